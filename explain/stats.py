@@ -69,7 +69,7 @@ class AucEstimate:
     counted one half, which equals the trapezoidal area under the empirical
     ROC curve. ``variance`` is DeLong's ``S10/m + S01/n``; it is NaN when a
     class has fewer than two members. ``low``/``high`` are
-    ``auc -+ z * sqrt(variance)`` clipped to [0, 1].
+    ``auc -+ z * sqrt(variance)`` clipped to [0, 1] (NaN with the variance).
     """
 
     auc: float
