@@ -1,0 +1,3 @@
+from explain.cli import main
+
+main()

@@ -1,0 +1,73 @@
+"""``nbledger why``: the exact account of one message's score."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+
+from explain.cli import app, console, fail, load_model_or_fail, warn
+
+#: Messages larger than this are refused (a guard against hostile input).
+MAX_MESSAGE_BYTES = 16 * 1024 * 1024
+
+
+def read_message(text: Optional[str], file: Optional[Path]) -> str:
+    """The message from the argument, a file, or standard input (``-``)."""
+    from explain.data_io import decode_utf8
+
+    if text is not None and file is not None:
+        fail("give the message as TEXT or with --file, not both")
+    if file is not None:
+        if not file.is_file():
+            fail(f"no message file at {file}")
+        if file.stat().st_size > MAX_MESSAGE_BYTES:
+            fail(f"{file.name} is larger than {MAX_MESSAGE_BYTES // (1024 * 1024)} MiB")
+        raw = file.read_bytes()
+    elif text == "-" or text is None:
+        if text is None and sys.stdin.isatty():
+            fail("give the message as TEXT, with --file F, or on standard input with -")
+        raw = sys.stdin.buffer.read(MAX_MESSAGE_BYTES + 1)
+        if len(raw) > MAX_MESSAGE_BYTES:
+            fail(f"the message is larger than {MAX_MESSAGE_BYTES // (1024 * 1024)} MiB")
+    else:
+        return text
+    decoded, replaced = decode_utf8(raw)
+    if replaced:
+        warn(f"{replaced} invalid UTF-8 byte sequences in the message were replaced by U+FFFD")
+    return decoded
+
+
+@app.command()
+def why(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    text: Optional[str] = typer.Argument(None, help="The message, or - to read standard input."),
+    file: Optional[Path] = typer.Option(None, "--file", "-f", help="Read the message from this file."),
+    top: int = typer.Option(10, "--top", min=1, help="Tokens to list for and against."),
+    threshold: Optional[float] = typer.Option(
+        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+    ),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    output_format: str = typer.Option("text", "--format", help="text | json"),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+):
+    """Why did the filter score this message the way it did?"""
+    from explain.evidence import explain_message
+    from explain.present_why import render, to_json
+
+    if output_format not in ("text", "json"):
+        fail(f"--format must be text or json, got {output_format!r}")
+    message = read_message(text, file)
+    loaded = load_model_or_fail(
+        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+    )
+    explanation = explain_message(loaded, message, threshold)
+    if output_format == "json":
+        sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2) + "\n")
+    else:
+        render(explanation, console, top)

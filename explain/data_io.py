@@ -1,0 +1,180 @@
+"""Reading labelled or unlabelled messages from CSV, JSON Lines or Parquet.
+
+Data files are untrusted. The policy:
+
+- ``.csv``, ``.jsonl`` (or ``.ndjson``) and ``.parquet``, each optionally
+  ``.gz``-compressed, recognised by the file name.
+- Text is decoded as UTF-8; bytes that are not valid UTF-8 are replaced by
+  U+FFFD and *counted* (``Messages.replaced_chars``) so the caller can say how
+  many were replaced.
+- A missing column is named together with the columns that were found; an
+  empty file or a file with no rows is refused; missing texts become empty
+  strings; missing labels are refused (naming the first row).
+"""
+
+from __future__ import annotations
+
+import gzip
+import hashlib
+import io
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from explain.errors import NbledgerError
+
+_FORMATS = {".csv": "csv", ".jsonl": "jsonl", ".ndjson": "jsonl", ".parquet": "parquet"}
+
+
+@dataclass(frozen=True, eq=False)
+class Messages:
+    """Messages read from a file, in file order.
+
+    Attributes
+    ----------
+    texts : list of str
+    labels : ndarray of str, or None when no label column was asked for
+    ids : ndarray of str (the ``id`` column when there is one, else row numbers from 1)
+    replaced_chars : int, bytes that were not valid UTF-8 and became U+FFFD
+    source : Path
+    sha256 : str, of the file's bytes as stored
+    """
+
+    texts: list
+    labels: np.ndarray | None
+    ids: np.ndarray
+    replaced_chars: int
+    source: Path
+    sha256: str
+
+    def __len__(self) -> int:
+        return len(self.texts)
+
+
+def data_format(path: Path) -> tuple[str, bool]:
+    """(format, gzipped) from the file name, or a one-line error."""
+    suffixes = [s.lower() for s in Path(path).suffixes]
+    gzipped = bool(suffixes) and suffixes[-1] == ".gz"
+    if gzipped:
+        suffixes = suffixes[:-1]
+    fmt = _FORMATS.get(suffixes[-1] if suffixes else "")
+    if fmt is None:
+        raise NbledgerError(
+            f"{Path(path).name}: unknown data format; use .csv, .jsonl or .parquet (optionally .gz)"
+        )
+    return fmt, gzipped
+
+
+def decode_utf8(raw: bytes) -> tuple[str, int]:
+    """Decode UTF-8, replacing invalid bytes with U+FFFD; returns (text, replaced).
+
+    ``replaced`` counts the U+FFFD characters the decoding introduced (each
+    stands for one maximal run of invalid bytes, as Python's "replace" policy
+    does), not those that were validly encoded in the file.
+    """
+    text = raw.decode("utf-8", errors="replace")
+    replaced = text.count("\ufffd") - raw.count("\ufffd".encode("utf-8"))
+    return text.removeprefix("\ufeff"), replaced
+
+
+def read_messages(path, text_col: str, label_col: str | None = None) -> Messages:
+    """Read messages (and labels) from a data file; see the module policy."""
+    path = Path(path)
+    fmt, gzipped = data_format(path)
+    if not path.is_file():
+        raise NbledgerError(f"no data file at {path}")
+    raw = path.read_bytes()
+    digest = hashlib.sha256(raw).hexdigest()
+    if gzipped:
+        try:
+            raw = gzip.decompress(raw)
+        except (OSError, EOFError) as exc:
+            raise NbledgerError(f"{path.name} is not a valid .gz file: {exc}") from None
+    if not raw.strip():
+        raise NbledgerError(f"{path.name} is empty")
+    if fmt == "parquet":
+        columns, replaced = _parquet_columns(raw, path.name)
+    else:
+        text, replaced = decode_utf8(raw)
+        columns = _csv_columns(text, path.name) if fmt == "csv" else _jsonl_columns(text, path.name)
+    wanted = [c for c in (text_col, label_col) if c is not None]
+    missing = [c for c in wanted if c not in columns]
+    if missing:
+        found = ", ".join(map(str, columns)) or "none"
+        raise NbledgerError(f"{path.name} has no column {missing[0]!r}; columns found: {found}")
+    texts_raw = columns[text_col]
+    n = len(texts_raw)
+    if n == 0:
+        raise NbledgerError(f"{path.name} has a header but no rows")
+    texts = ["" if _missing(t) else str(t) for t in texts_raw]
+    labels = None
+    if label_col is not None:
+        values = columns[label_col]
+        gaps = [i for i, v in enumerate(values) if _missing(v) or str(v).strip() == ""]
+        if gaps:
+            raise NbledgerError(
+                f"{path.name}: {len(gaps)} rows have no {label_col!r} (first at data row {gaps[0] + 1})"
+            )
+        labels = np.asarray([str(v).strip() for v in values], dtype=object)
+    ids = columns.get("id")
+    ids = (
+        np.asarray([str(i) for i in ids], dtype=object)
+        if ids is not None
+        else np.asarray([str(i + 1) for i in range(n)], dtype=object)
+    )
+    return Messages(texts, labels, ids, replaced, path, digest)
+
+
+def _missing(value) -> bool:
+    return value is None or (isinstance(value, float) and np.isnan(value))
+
+
+def _csv_columns(text: str, name: str) -> dict:
+    import pandas as pd
+
+    try:
+        frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, na_values=[])
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as exc:
+        raise NbledgerError(f"{name} is not valid CSV: {str(exc).splitlines()[0]}") from None
+    return {str(c): frame[c].tolist() for c in frame.columns}
+
+
+def _jsonl_columns(text: str, name: str) -> dict:
+    rows = []
+    for number, line in enumerate(text.splitlines(), start=1):
+        if not line.strip():
+            continue
+        try:
+            row = json.loads(line)
+        except json.JSONDecodeError as exc:
+            raise NbledgerError(f"{name} line {number} is not valid JSON: {exc.msg}") from None
+        if not isinstance(row, dict):
+            raise NbledgerError(f"{name} line {number} is not a JSON object")
+        rows.append(row)
+    keys: dict = {}
+    for row in rows:
+        keys.update(dict.fromkeys(row))
+    return {k: [row.get(k) for row in rows] for k in keys}
+
+
+def _parquet_columns(raw: bytes, name: str) -> tuple[dict, int]:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        table = pq.read_table(pa.BufferReader(raw))
+    except (pa.ArrowException, OSError, ValueError) as exc:
+        raise NbledgerError(f"{name} is not a valid Parquet file: {str(exc).splitlines()[0]}") from None
+    columns, replaced = {}, 0
+    for column_name in table.column_names:
+        values = table.column(column_name).to_pylist()
+        decoded = []
+        for v in values:
+            if isinstance(v, bytes):
+                v, bad = decode_utf8(v)
+                replaced += bad
+            decoded.append(v)
+        columns[str(column_name)] = decoded
+    return columns, replaced

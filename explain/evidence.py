@@ -1,0 +1,310 @@
+"""Why one message got its score: an exact, per-token account.
+
+For a naive Bayes filter the joint log-likelihood of class ``c`` is
+``b[c] + sum_j x_j W[c, j]`` (see :mod:`explain.model_view`). Comparing the
+predicted class ``A`` with the runner-up ``B``::
+
+    log_odds = jll[A] - jll[B] = (b[A] - b[B]) + sum_j x_j (W[A, j] - W[B, j])
+
+so every present token has an exact share ``evidence_j = x_j (W[A,j] - W[B,j])``
+and ``baseline + sum(evidence) == log_odds`` up to floating-point rounding.
+``exp(evidence_j)`` is the factor by which the token multiplies the odds of
+``A`` against ``B``.
+
+The *flip set* is the smallest set of token occurrences whose removal changes
+the decision. When the decision depends on sums of per-token terms (argmax,
+or a threshold with two classes) and features are counts or presence flags,
+removals are additive and sorting by their effect gives the exact minimum
+(the decision against each rival depends on one margin only; the minimum over
+rivals is the answer). For TF-IDF (a removal re-normalises the row) or a
+threshold over several flagged classes the set is found greedily, re-scoring
+exactly after each removal, and is labelled as greedy.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from explain.batch import top_two
+from explain.decision import DecisionRule
+from explain.errors import NbledgerError
+from explain.featurizer import Occurrences, unknown_tokens
+
+#: Greedy flip search stops after this many removals (a cost bound for huge messages).
+GREEDY_STEP_LIMIT = 400
+
+
+@dataclass(frozen=True)
+class TokenEvidence:
+    """One feature present in the message.
+
+    ``value`` is what the classifier multiplies (count, 0/1 or TF-IDF weight);
+    ``per_unit`` is ``W[A, j] - W[B, j]``; ``evidence = value * per_unit``;
+    ``spans`` the character offsets of its occurrences (empty when unknown).
+    """
+
+    token: str
+    column: int
+    occurrences: int
+    value: float
+    per_unit: float
+    evidence: float
+    spans: tuple[tuple[int, int], ...]
+
+    @property
+    def odds_factor(self) -> float:
+        """How many times this token multiplies the odds of A against B."""
+        return float(np.exp(self.evidence))
+
+
+@dataclass(frozen=True)
+class FlipSet:
+    """The token occurrences whose removal changes the decision.
+
+    ``removals`` lists ``(token, occurrences removed)``; ``exact`` is False
+    when the set was found greedily; ``new_decision`` is the decision after
+    the removals; ``reason`` explains an empty set.
+    """
+
+    removals: tuple[tuple[str, int], ...]
+    exact: bool
+    # With presence features a token counts once: only its presence matters,
+    # so the minimum is over tokens, each removed with all its occurrences.
+    method: str
+    new_decision: str | None
+    reason: str | None
+
+    @property
+    def size(self) -> int:
+        return sum(n for _, n in self.removals)
+
+
+@dataclass(frozen=True, eq=False)
+class Explanation:
+    """Everything ``why`` reports about one message; presenters only read it."""
+
+    text: str
+    classes: tuple[str, ...]
+    jll: np.ndarray
+    probabilities: np.ndarray
+    predicted: str
+    runner_up: str
+    log_odds: float
+    baseline: float
+    baseline_prior: float
+    baseline_absence: float
+    threshold: float | None
+    normal_class: str | None
+    flag_probability: float | None
+    decision: str
+    tokens: tuple[TokenEvidence, ...]
+    unknown_tokens: tuple[tuple[str, int], ...]
+    spans_note: str | None
+    flip: FlipSet
+    feature_kind: str
+    variant: str
+
+    @property
+    def evidence_sum(self) -> float:
+        return float(sum(t.evidence for t in self.tokens))
+
+    def strongest(self, n: int, side: str = "for") -> list[TokenEvidence]:
+        """The n tokens with the largest evidence for (or against) the predicted class."""
+        if side == "for":
+            chosen = [t for t in self.tokens if t.evidence > 0]
+            return sorted(chosen, key=lambda t: -t.evidence)[:n]
+        chosen = [t for t in self.tokens if t.evidence < 0]
+        return sorted(chosen, key=lambda t: t.evidence)[:n]
+
+
+def explain_message(model, text: str, threshold: float | None = None) -> Explanation:
+    """The exact per-token account of ``text`` under a loaded model."""
+    if not isinstance(text, str):
+        raise NbledgerError("the message must be text")
+    if not text.strip():
+        raise NbledgerError("the message is empty")
+    view, featurizer = model.view, model.featurizer
+    rule = DecisionRule.for_view(view, threshold)
+    occ = featurizer.occurrences(text)
+    x = view.prepare(featurizer.transform([text]))
+    jll = view.joint_log_likelihood(x)[0]
+    predicted, runner_up = (int(i[0]) for i in top_two(jll[None, :]))
+    a, b = predicted, runner_up
+    cols = x.indices
+    values = x.data
+    per_unit = view.weights[a, cols] - view.weights[b, cols]
+    counts = np.bincount(occ.columns[occ.columns >= 0], minlength=view.n_features)
+    spans_by_col: dict[int, list] = {}
+    if occ.spans is not None:
+        for col, span in zip(occ.columns, occ.spans):
+            if col >= 0:
+                spans_by_col.setdefault(int(col), []).append(span)
+    tokens = tuple(
+        TokenEvidence(
+            token=str(view.tokens[j]),
+            column=int(j),
+            occurrences=int(counts[j]),
+            value=float(v),
+            per_unit=float(d),
+            evidence=float(v * d),
+            spans=tuple(spans_by_col.get(int(j), ())),
+        )
+        for j, v, d in zip(cols, values, per_unit)
+    )
+    flag = None
+    if rule.normal_index is not None and view.n_classes > 1:
+        flag = float(1.0 / (1.0 + np.exp(-rule.flag_log_odds(jll)[0])))
+    decision = int(rule.decide(jll)[0])
+    return Explanation(
+        text=text,
+        classes=tuple(str(c) for c in view.classes),
+        jll=jll,
+        probabilities=view.posterior(jll),
+        predicted=str(view.classes[a]),
+        runner_up=str(view.classes[b]),
+        log_odds=float(jll[a] - jll[b]),
+        baseline=float(view.baseline[a] - view.baseline[b]),
+        baseline_prior=float(view.prior[a] - view.prior[b]),
+        baseline_absence=float(view.absence[a] - view.absence[b]),
+        threshold=threshold,
+        normal_class=None if rule.normal_index is None else str(view.classes[rule.normal_index]),
+        flag_probability=flag,
+        decision=str(view.classes[decision]),
+        tokens=tokens,
+        unknown_tokens=tuple(unknown_tokens(occ)),
+        spans_note=occ.spans_note,
+        flip=flip_set(model, occ, rule, decision),
+        feature_kind=view.feature_kind,
+        variant=view.variant,
+    )
+
+
+# --- the flip set ---------------------------------------------------------
+
+
+def _presence_only(view, featurizer) -> bool:
+    """True when only a token's presence matters (its count does not)."""
+    return featurizer.vectorizer.binary or (view.variant == "bernoulli" and view.binarize is not None)
+
+
+def _units(view, featurizer, counts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Removable units as (column, occurrences the unit stands for).
+
+    With count features every occurrence is a unit. When only presence
+    matters a token is one unit, made of as many occurrences as must go for
+    it to count as absent (all of them, or down to BernoulliNB's threshold).
+    """
+    present = np.flatnonzero(counts)
+    if not _presence_only(view, featurizer):
+        n = counts[present].astype(int)
+        return np.repeat(present, n), np.ones(int(n.sum()), dtype=int)
+    allowed = 0.0
+    if not featurizer.vectorizer.binary and view.binarize is not None:
+        allowed = max(np.floor(view.binarize), 0.0)
+    sizes = (counts[present] - allowed).astype(int)
+    return present[sizes > 0], sizes[sizes > 0]
+
+
+def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> FlipSet:
+    """The smallest set of token occurrences whose removal changes the decision."""
+    view, featurizer = model.view, model.featurizer
+    counts = np.bincount(occ.columns[occ.columns >= 0], minlength=view.n_features).astype(np.float64)
+    if view.n_classes < 2:
+        return FlipSet((), True, "exact", None, "the model has a single class, so no decision can change")
+    if not counts.any():
+        return FlipSet((), True, "exact", None, "the message has no token the model knows; the baseline alone decides")
+    cols, sizes = _units(view, featurizer, counts)
+    if view.feature_kind != "tfidf" and rule.additive:
+        return _exact_flip(view, featurizer, rule, decision, counts, cols, sizes)
+    return _greedy_flip(view, featurizer, rule, decision, counts)
+
+
+def _score(view, featurizer, counts: sp.csr_matrix) -> np.ndarray:
+    return view.joint_log_likelihood(view.prepare(featurizer.weigh(counts)))
+
+
+def _exact_flip(view, featurizer, rule, decision, counts, cols, sizes) -> FlipSet:
+    x0 = sp.csr_matrix(counts.reshape(1, -1))
+    jll0 = _score(view, featurizer, x0)[0]
+    # Each unit carries one unit of its feature (one occurrence, or presence),
+    # so removing it takes W[:, j] away from every class's score.
+    loss = view.weights[:, cols].T  # (units, C)
+    if rule.threshold is not None:
+        targets = [(rule.flagged_indices[0], rule.normal_index)]
+    else:
+        targets = [(decision, c) for c in range(view.n_classes) if c != decision]
+    best = None
+    for winner, rival in targets:
+        # Removing unit u lowers jll[winner] - jll[rival] by gain[u]; for a
+        # threshold the direction depends on whether the message is flagged.
+        gain = loss[:, winner] - loss[:, rival]
+        if rule.threshold is not None and decision == rule.normal_index:
+            gain = -gain
+        order = np.argsort(-gain, kind="stable")
+        order = order[gain[order] > 0]
+        if len(order) == 0:
+            continue
+        after = jll0 - np.cumsum(loss[order], axis=0)
+        changed = np.flatnonzero(rule.decide(after) != decision)
+        if len(changed) and (best is None or changed[0] + 1 < len(best[0])):
+            chosen = order[: changed[0] + 1]
+            best = (chosen, int(rule.decide(after[changed[0]][None, :])[0]))
+    if best is None:
+        return FlipSet(
+            (), True, "exact", None,
+            "removing every token that supports this decision does not change it; "
+            "the baseline and the remaining tokens decide",
+        )
+    chosen, new = best
+    return FlipSet(_removals(view, cols[chosen], sizes[chosen]), True, "exact", str(view.classes[new]), None)
+
+
+def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int], ...]:
+    totals: dict[int, int] = {}
+    for c, n in zip(cols, sizes):
+        totals[int(c)] = totals.get(int(c), 0) + int(n)
+    return tuple((str(view.tokens[c]), n) for c, n in totals.items())
+
+
+def _distance(rule: DecisionRule, jll: np.ndarray, decision: int) -> np.ndarray:
+    """How far each row of ``jll`` is from changing ``decision`` (<= 0 once changed)."""
+    if rule.threshold is not None:
+        gap = rule.flag_log_odds(jll) - rule.threshold_log_odds
+        return gap if decision != rule.normal_index else -gap
+    others = np.delete(jll, decision, axis=1)
+    return jll[:, decision] - others.max(axis=1)
+
+
+def _greedy_flip(view, featurizer, rule, decision, counts) -> FlipSet:
+    counts = counts.copy()
+    presence = _presence_only(view, featurizer)
+    removed: dict[int, int] = {}
+    for _ in range(GREEDY_STEP_LIMIT):
+        present = np.flatnonzero(counts)
+        if len(present) == 0:
+            break
+        # One candidate row per removable unit, all re-scored exactly at once.
+        step = counts[present] if presence else np.ones(len(present))
+        candidates = np.tile(counts, (len(present), 1))
+        candidates[np.arange(len(present)), present] -= step
+        jll = _score(view, featurizer, sp.csr_matrix(candidates))
+        new_decisions = rule.decide(jll)
+        flipped = np.flatnonzero(new_decisions != decision)
+        pick = flipped[0] if len(flipped) else int(np.argmin(_distance(rule, jll, decision)))
+        col = int(present[pick])
+        removed[col] = removed.get(col, 0) + int(step[pick])
+        counts[col] -= step[pick]
+        if len(flipped):
+            return FlipSet(
+                tuple((str(view.tokens[c]), n) for c, n in removed.items()),
+                False, "greedy", str(view.classes[new_decisions[pick]]), None,
+            )
+    why = (
+        f"no change within {GREEDY_STEP_LIMIT} greedy removals"
+        if counts.any()
+        else "removing every known token does not change the decision; the baseline decides"
+    )
+    return FlipSet((), False, "greedy", None, why)

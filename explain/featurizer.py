@@ -1,0 +1,221 @@
+"""From message text to the feature row a naive Bayes classifier multiplies.
+
+A :class:`Featurizer` wraps the fitted text steps of a pipeline
+(``CountVectorizer``, ``TfidfVectorizer`` or ``CountVectorizer`` followed by
+``TfidfTransformer``). It gives three things:
+
+- ``transform(texts)``: the pipeline's own feature matrix (scikit-learn does
+  the work, so the numbers are the model's);
+- ``occurrences(text)``: every token occurrence the analyzer produces, with
+  its column (or -1 when the vocabulary does not know it) and, where the
+  analyzer allows it, its character span in the original text;
+- ``weigh(counts)``: counts to features, so that removing occurrences can be
+  re-scored exactly (TF-IDF re-normalises the whole row).
+"""
+
+from __future__ import annotations
+
+import re
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+from sklearn.preprocessing import normalize
+
+from explain.errors import NbledgerError
+
+Span = tuple[int, int]
+
+
+@dataclass(frozen=True)
+class Occurrences:
+    """The analyzer's tokens for one message, in the analyzer's order.
+
+    ``columns[i]`` is the feature column of ``tokens[i]`` (-1 when unknown to
+    the vocabulary); ``spans[i]`` its ``(start, end)`` character offsets in
+    the original text, or ``spans is None`` with ``spans_note`` saying why.
+    """
+
+    tokens: tuple[str, ...]
+    columns: np.ndarray
+    spans: tuple[Span, ...] | None
+    spans_note: str | None
+
+    def counts(self, n_features: int) -> sp.csr_matrix:
+        """The count row these occurrences make (1 x n_features)."""
+        known = self.columns[self.columns >= 0]
+        counts = np.bincount(known, minlength=n_features).astype(np.float64)
+        return sp.csr_matrix(counts.reshape(1, -1))
+
+
+class Featurizer:
+    """The fitted text steps of a naive Bayes pipeline.
+
+    Parameters
+    ----------
+    vectorizer : fitted CountVectorizer or TfidfVectorizer.
+    tfidf : fitted TfidfTransformer applied after ``vectorizer``, or None.
+    """
+
+    def __init__(self, vectorizer, tfidf=None):
+        from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
+
+        if type(vectorizer) not in (CountVectorizer, TfidfVectorizer):
+            raise NbledgerError(
+                f"the text step is {type(vectorizer).__name__}; supported: CountVectorizer, TfidfVectorizer"
+            )
+        if not hasattr(vectorizer, "vocabulary_"):
+            raise NbledgerError(f"the {type(vectorizer).__name__} in this file has not been fitted")
+        self.vectorizer = vectorizer
+        self.tfidf = vectorizer if isinstance(vectorizer, TfidfVectorizer) else tfidf
+        self.tokens = np.asarray(vectorizer.get_feature_names_out(), dtype=object)
+        self._vocabulary = vectorizer.vocabulary_
+        self._analyzer = vectorizer.build_analyzer()
+        if self.tfidf is not None:
+            self.feature_kind = "tfidf"
+        elif vectorizer.binary:
+            self.feature_kind = "binary"
+        else:
+            self.feature_kind = "counts"
+
+    @property
+    def n_features(self) -> int:
+        return len(self.tokens)
+
+    def transform(self, texts) -> sp.csr_matrix:
+        """The pipeline's own feature matrix for ``texts`` (float64 CSR)."""
+        X = self.vectorizer.transform(texts)
+        if self.tfidf is not None and self.tfidf is not self.vectorizer:
+            X = self.tfidf.transform(X)
+        return sp.csr_matrix(X, dtype=np.float64)
+
+    def counts(self, texts) -> sp.csr_matrix:
+        """Raw occurrence counts of the vocabulary's tokens (before binary/TF-IDF)."""
+        rows = [self.occurrences(t, with_spans=False).columns for t in texts]
+        indptr = np.cumsum([0] + [int((r >= 0).sum()) for r in rows])
+        indices = np.concatenate([r[r >= 0] for r in rows]) if rows else np.zeros(0, int)
+        X = sp.csr_matrix(
+            (np.ones(len(indices)), indices, indptr), shape=(len(rows), self.n_features)
+        )
+        X.sum_duplicates()
+        return X
+
+    def weigh(self, counts: sp.spmatrix) -> sp.csr_matrix:
+        """Counts to the features ``transform`` would give for the same tokens.
+
+        Mirrors ``CountVectorizer(binary=...)`` and ``TfidfTransformer.transform``
+        (sublinear tf, idf, then row normalisation), so that a count row with
+        occurrences removed can be re-scored without re-tokenising.
+        """
+        X = sp.csr_matrix(counts, dtype=np.float64, copy=True)
+        X.eliminate_zeros()
+        if self.vectorizer.binary:
+            X.data[:] = 1.0
+        if self.tfidf is None:
+            return X
+        if self.tfidf.sublinear_tf:
+            np.log(X.data, X.data)
+            X.data += 1.0
+        if self.tfidf.use_idf:
+            X.data *= self.tfidf.idf_[X.indices]
+        if self.tfidf.norm is not None:
+            X = normalize(X, norm=self.tfidf.norm, copy=False)
+        return sp.csr_matrix(X)
+
+    def occurrences(self, text: str, with_spans: bool = True) -> Occurrences:
+        """Every token the analyzer makes of ``text``, with columns and spans."""
+        tokens = self._analyzer(text)
+        columns = np.fromiter(
+            (self._vocabulary.get(t, -1) for t in tokens), dtype=np.int64, count=len(tokens)
+        )
+        spans, note = (None, "not asked for")
+        if with_spans:
+            spans, note = self._spans(text, tokens)
+        return Occurrences(tuple(tokens), columns, spans, note)
+
+    # --- character spans -------------------------------------------------
+
+    def _spans(self, text: str, tokens: list[str]) -> tuple[tuple[Span, ...] | None, str | None]:
+        vec = self.vectorizer
+        if callable(vec.analyzer):
+            return None, "the model uses a custom analyzer, so token positions are unknown"
+        if vec.preprocessor is not None or vec.tokenizer is not None:
+            return None, "the model uses a custom preprocessor or tokenizer, so token positions are unknown"
+        if not isinstance(text, str):
+            return None, "the message is not text"
+        pre = vec.build_preprocessor()(text)
+        if len(pre) != len(text):
+            return None, "lower-casing or accent stripping changed the text's length, so positions are unknown"
+        if vec.analyzer == "word":
+            found = self._word_spans(pre)
+        elif vec.analyzer in ("char", "char_wb"):
+            found = self._char_spans(pre, vec.analyzer == "char_wb")
+        else:
+            return None, f"analyzer {vec.analyzer!r} has no known positions"
+        if [t for t, _ in found] != list(tokens):
+            return None, "the analyzer's tokens could not be matched to the text, so positions are unknown"
+        return tuple(s for _, s in found), None
+
+    def _word_spans(self, pre: str) -> list[tuple[str, Span]]:
+        vec = self.vectorizer
+        pattern = re.compile(vec.token_pattern)
+        group = 1 if pattern.groups == 1 else 0
+        stop = vec.get_stop_words()
+        words = [
+            (m.group(group), m.span(group))
+            for m in pattern.finditer(pre)
+            if not (stop is not None and m.group(group) in stop)
+        ]
+        lo, hi = vec.ngram_range
+        out: list[tuple[str, Span]] = []
+        for n in range(lo, hi + 1):
+            for i in range(len(words) - n + 1):
+                part = words[i : i + n]
+                out.append((" ".join(w for w, _ in part), (part[0][1][0], part[-1][1][1])))
+        return out
+
+    def _char_spans(self, pre: str, word_bounded: bool) -> list[tuple[str, Span]]:
+        # scikit-learn first folds runs of white space into one space; keep a
+        # map from the folded text back to the original offsets.
+        folded, origin = [], []
+        i = 0
+        for m in re.finditer(r"\s\s+", pre):
+            folded.append(pre[i : m.start()])
+            origin.extend(range(i, m.start()))
+            folded.append(" ")
+            origin.append(m.start())
+            i = m.end()
+        folded.append(pre[i:])
+        origin.extend(range(i, len(pre)))
+        text = "".join(folded)
+        lo, hi = self.vectorizer.ngram_range
+        out: list[tuple[str, Span]] = []
+        if not word_bounded:
+            for n in range(lo, hi + 1):
+                for k in range(len(text) - n + 1):
+                    out.append((text[k : k + n], (origin[k], origin[k + n - 1] + 1)))
+            return out
+        for m in re.finditer(r"\S+", text):
+            padded = " " + m.group() + " "
+            last = len(padded)
+            for n in range(lo, hi + 1):
+                offset = 0
+                starts = [0]
+                while offset + n < last:
+                    offset += 1
+                    starts.append(offset)
+                for k in starts:
+                    # padded index p is word index p - 1; the pad spaces map to the word's edges
+                    a = min(max(k - 1, 0), len(m.group()) - 1)
+                    b = min(max(k + n - 2, 0), len(m.group()) - 1)
+                    out.append((padded[k : k + n], (origin[m.start() + a], origin[m.start() + b] + 1)))
+                if offset == 0:
+                    break
+        return out
+
+
+def unknown_tokens(occ: Occurrences) -> list[tuple[str, int]]:
+    """Distinct tokens unknown to the vocabulary, with how often each occurs."""
+    unknown = Counter(t for t, c in zip(occ.tokens, occ.columns) if c < 0)
+    return sorted(unknown.items(), key=lambda kv: (-kv[1], kv[0]))
