@@ -1,0 +1,1 @@
+"""Benchmarks and the data they run on."""
