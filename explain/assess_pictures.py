@@ -1,0 +1,150 @@
+"""Pictures of an :class:`~explain.assessment.Assessment` (PNG, matplotlib Agg).
+
+ROC curve, precision-recall curve, reliability diagram and the score
+distribution per class on the log-odds scale. Everything drawn is read from
+the result; nothing is recomputed.
+"""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from explain.assessment import Assessment
+
+DPI = 150
+# Colour-blind-safe qualitative colours (Okabe & Ito 2008, "Color Universal
+# Design"); kept here because no shared picture palette exists yet.
+COLOURS = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000")
+NEUTRAL = "#7f7f7f"
+
+
+def _png(fig: Figure) -> bytes:
+    FigureCanvasAgg(fig)
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def _rankings(result: Assessment):
+    return [r for r in (result.flag_ranking, *result.class_ranking) if r is not None]
+
+
+def _auc_label(r) -> str:
+    if np.isfinite(r.auc.variance):
+        return f"{r.positive}: AUC {r.auc.auc:.3f} [{r.auc.low:.3f}, {r.auc.high:.3f}]"
+    return f"{r.positive}: AUC {r.auc.auc:.3f}"
+
+
+def roc_picture(result: Assessment) -> bytes:
+    """ROC curves; the right panel stretches the low false-positive rates an auditor cares about."""
+    fig = Figure(figsize=(10, 4.6))
+    linear, logx = fig.subplots(1, 2)
+    for i, r in enumerate(_rankings(result)):
+        colour = COLOURS[i % len(COLOURS)]
+        for ax in (linear, logx):
+            ax.plot(r.roc_false_positive_rate, r.roc_true_positive_rate, color=colour, lw=1.8, label=_auc_label(r))
+    chance = np.linspace(1e-4, 1, 200)
+    for ax in (linear, logx):
+        ax.plot(chance, chance, color=NEUTRAL, ls=":", lw=1, label="chance")
+        ax.set_ylabel("true-positive rate (recall)")
+        ax.set_ylim(0, 1.01)
+        ax.grid(alpha=0.3)
+    linear.set_xlim(0, 1)
+    linear.set_xlabel("false-positive rate")
+    linear.set_title(f"ROC ({100 * result.confidence:g} % DeLong intervals)")
+    logx.set_xscale("log")
+    logx.set_xlim(1e-4, 1)
+    logx.set_xlabel("false-positive rate (log scale)")
+    logx.set_title("the same, low false-positive rates stretched")
+    chosen = [p.figures for p in result.operating_points if p.kind in ("fpr", "recall") and p.figures is not None]
+    if chosen:
+        x = [f.false_positive_rate.value for f in chosen]
+        y = [f.recall.value for f in chosen]
+        for ax in (linear, logx):
+            ax.plot(x, y, "o", color=COLOURS[5], ms=5, label="operating points by target (flagged)")
+    linear.legend(loc="lower right", fontsize=8)
+    return _png(fig)
+
+
+def precision_recall_picture(result: Assessment) -> bytes:
+    """Precision against recall, with the base rate (the precision of flagging at random)."""
+    fig = Figure(figsize=(6, 4.6))
+    ax = fig.subplots()
+    for i, r in enumerate(_rankings(result)):
+        colour = COLOURS[i % len(COLOURS)]
+        ax.plot(r.pr_recall, r.pr_precision, color=colour, lw=1.8, label=f"{r.positive}: AP {r.average_precision:.3f}")
+        ax.axhline(r.n_positive / (r.n_positive + r.n_negative), color=colour, ls=":", lw=1)
+    ax.set_xlabel("recall")
+    ax.set_ylabel("precision")
+    ax.set_xlim(0, 1)
+    ax.set_ylim(0, 1.01)
+    ax.set_title("precision-recall (dotted: base rate)")
+    ax.grid(alpha=0.3)
+    ax.legend(loc="lower left", fontsize=8)
+    return _png(fig)
+
+
+def reliability_picture(result: Assessment) -> bytes:
+    """Observed share flagged against mean predicted probability, per equal-count bin."""
+    cal = result.calibration
+    fig = Figure(figsize=(6, 5))
+    ax = fig.subplots()
+    ax.plot([0, 1], [0, 1], color=NEUTRAL, ls=":", lw=1, label="perfectly calibrated")
+    errors = np.vstack([cal.observed - cal.observed_low, cal.observed_high - cal.observed])
+    ax.errorbar(
+        cal.mean_predicted,
+        cal.observed,
+        yerr=errors,
+        fmt="o-",
+        color=COLOURS[0],
+        ecolor=COLOURS[4],
+        capsize=3,
+        label=f"bins of about {int(np.median(cal.counts))} messages ({100 * result.confidence:g} % Wilson intervals)",
+    )
+    ax.set_xlim(-0.02, 1.02)
+    ax.set_ylim(-0.02, 1.02)
+    ax.set_xlabel(f"mean predicted P(not {result.normal_class})")
+    ax.set_ylabel("observed share not normal")
+    ax.set_title(
+        f"reliability: Brier {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f}"
+    )
+    ax.grid(alpha=0.3)
+    ax.legend(loc="upper left", fontsize=8)
+    return _png(fig)
+
+
+def score_picture(result: Assessment) -> bytes:
+    """Histogram of flag log-odds per true class, with the threshold in use."""
+    s = result.scores
+    fig = Figure(figsize=(8, 4.6))
+    ax = fig.subplots()
+    for c, name in enumerate(s.classes):
+        if s.counts[c].sum() == 0:
+            continue
+        ax.stairs(s.counts[c], s.edges, color=COLOURS[c % len(COLOURS)], lw=1.8, label=name)
+    if np.isfinite(s.threshold_log_odds):
+        ax.axvline(s.threshold_log_odds, color=COLOURS[7], ls="--", lw=1, label="threshold in use")
+    clipped = int(s.below.sum() + s.above.sum())
+    note = f" ({clipped} beyond the range counted in the end bins)" if clipped else ""
+    ax.set_xlabel(f"log P(not {result.normal_class}) - log P({result.normal_class})")
+    ax.set_ylabel("messages")
+    ax.set_title("scores by true class, log-odds scale" + note, fontsize=10)
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    return _png(fig)
+
+
+def draw_all(result: Assessment) -> dict[str, bytes]:
+    """File name -> PNG bytes of every picture the result supports."""
+    pictures = {}
+    if _rankings(result):
+        pictures["roc.png"] = roc_picture(result)
+        pictures["precision_recall.png"] = precision_recall_picture(result)
+    if result.calibration is not None:
+        pictures["reliability.png"] = reliability_picture(result)
+        pictures["scores.png"] = score_picture(result)
+    return pictures
