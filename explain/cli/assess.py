@@ -1,0 +1,130 @@
+"""``nbledger assess``: how well the filter works on labelled messages."""
+
+from __future__ import annotations
+
+import io
+import json
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.console import Console
+
+from explain.cli import app, console, fail, load_model_or_fail, warn, write_atomic
+
+
+def parse_fraction(text: str, what: str) -> float:
+    """``0.01`` or ``1%`` -> 0.01; anything outside [0, 1] is refused."""
+    raw = text.strip()
+    scale = 100.0 if raw.endswith("%") else 1.0
+    try:
+        value = float(raw.rstrip("%").strip()) / scale
+    except ValueError:
+        fail(f"{what} must be a fraction (0.01) or a percentage (1%), got {text!r}")
+    if not 0.0 <= value <= 1.0:
+        fail(f"{what} must be between 0 and 1 (or 0% and 100%), got {text!r}")
+    return value
+
+
+def parse_costs(text: Optional[str]) -> tuple[float, float] | None:
+    """``"FP:FN"``, e.g. ``1:20`` (a missed message costs twenty false alarms)."""
+    if text is None:
+        return None
+    parts = text.split(":")
+    try:
+        if len(parts) != 2:
+            raise ValueError
+        cost_fp, cost_fn = float(parts[0]), float(parts[1])
+    except ValueError:
+        fail(f"--costs takes FP:FN, the cost of a false alarm and of a missed message (e.g. 1:20), got {text!r}")
+    if not (cost_fp > 0 and cost_fn > 0 and cost_fp < float("inf") and cost_fn < float("inf")):
+        fail(f"--costs must be two positive numbers, got {text!r}")
+    return cost_fp, cost_fn
+
+
+@app.command()
+def assess(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    data: Path = typer.Argument(..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz)."),
+    text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
+    label_col: str = typer.Option(..., "--label-col", help="Column holding the true class."),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    threshold: Optional[float] = typer.Option(
+        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+    ),
+    target_fpr: Optional[List[str]] = typer.Option(
+        None, "--target-fpr", help="False-positive rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
+    ),
+    target_recall: Optional[List[str]] = typer.Option(
+        None, "--target-recall", help="Recall to reach, e.g. 95% (repeatable; default 90%, 95%, 99%)."
+    ),
+    costs: Optional[str] = typer.Option(
+        None, "--costs", help="FP:FN, costs of a false alarm and of a missed message, for the least-cost threshold."
+    ),
+    output_format: str = typer.Option("text", "--format", help="text | json"),
+    images: Optional[Path] = typer.Option(None, "--images", help="Write ROC, PR, reliability and score pictures (PNG) here."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
+    top: int = typer.Option(10, "--top", min=0, help="Errors, borderline messages and error drivers to list."),
+    bins: int = typer.Option(10, "--bins", min=1, help="Equal-count bins of the reliability diagram."),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+):
+    """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
+    from explain.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
+    from explain.assessment import assess as run_assessment
+    from explain.data_io import read_messages
+    from explain.present_assessment import render, to_json
+
+    if output_format not in ("text", "json"):
+        fail(f"--format must be text or json, got {output_format!r}")
+    fprs = DEFAULT_TARGET_FPR if not target_fpr else tuple(parse_fraction(t, "--target-fpr") for t in target_fpr)
+    recalls = (
+        DEFAULT_TARGET_RECALL if not target_recall else tuple(parse_fraction(t, "--target-recall") for t in target_recall)
+    )
+    cost_pair = parse_costs(costs)
+    loaded = load_model_or_fail(
+        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+    )
+    messages = read_messages(data, text_col, label_col)
+    if messages.replaced_chars:
+        warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+    result = run_assessment(
+        loaded.view,
+        loaded.featurizer.transform(messages.texts),
+        messages.labels,
+        threshold=threshold,
+        ids=messages.ids,
+        target_fpr=fprs,
+        target_recall=recalls,
+        costs=cost_pair,
+        n_bins=bins,
+        top=top,
+    )
+
+    pictures = {}
+    if images is not None:
+        from explain.assess_pictures import draw_all
+
+        if images.exists() and not images.is_dir():
+            fail(f"--images must be a folder; {images} is a file")
+        pictures = draw_all(result)
+
+    if output_format == "json":
+        text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
+    elif out is not None:
+        buffer = io.StringIO()
+        render(result, Console(file=buffer, width=120, no_color=True, highlight=False))
+        text = buffer.getvalue()
+    else:
+        text = None
+
+    # everything is computed before the first byte is written
+    for name, png in pictures.items():
+        write_atomic(images / name, png)
+    if out is not None:
+        write_atomic(out, text)
+    elif text is not None:
+        typer.echo(text, nl=False)
+    else:
+        render(result, console)
