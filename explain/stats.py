@@ -39,7 +39,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.special import ndtri, xlogy
-from scipy.stats import rankdata
 
 
 def _z(confidence: float) -> float:
@@ -98,18 +97,30 @@ class AucEstimate:
     n_negative: int
 
 
+def _midranks_of_sorted(values: np.ndarray) -> np.ndarray:
+    """Mid-ranks (1-based, ties averaged) of an already sorted array."""
+    n = len(values)
+    starts = np.flatnonzero(np.concatenate([[True], values[1:] != values[:-1]])) if n else np.zeros(0, int)
+    ends = np.append(starts[1:], n)
+    return np.repeat((starts + 1 + ends) / 2.0, ends - starts)
+
+
 def _midrank_components(scores: np.ndarray, positive: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """DeLong's structural components V10 (per positive) and V01 (per negative).
 
     Sun & Xu (2014), section II: with ``T_z`` the mid-ranks in the pooled
     sample and ``T_x``/``T_y`` those within positives/negatives,
     ``V10_i = (T_z_i - T_x_i) / n`` and ``V01_j = 1 - (T_z_j - T_y_j) / m``.
+    One sort serves all three rankings: each class, taken in pooled order,
+    is already sorted.
     """
-    pos, neg = scores[positive], scores[~positive]
-    m, n = len(pos), len(neg)
-    pooled = rankdata(np.concatenate([pos, neg]))
-    v10 = (pooled[:m] - rankdata(pos)) / n
-    v01 = 1.0 - (pooled[m:] - rankdata(neg)) / m
+    order = np.argsort(scores, kind="stable")
+    ordered = scores[order]
+    hit = positive[order]
+    pooled = _midranks_of_sorted(ordered)
+    m, n = int(hit.sum()), int((~hit).sum())
+    v10 = (pooled[hit] - _midranks_of_sorted(ordered[hit])) / n
+    v01 = 1.0 - (pooled[~hit] - _midranks_of_sorted(ordered[~hit])) / m
     return v10, v01
 
 
