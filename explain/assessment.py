@@ -128,7 +128,7 @@ def binary_metrics(positive: str, tp: int, fp: int, fn: int, tn: int, confidence
     )
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class ConfusionMatrix:
     """Rows are the true classes, columns the decided ones (scikit-learn's layout).
 
@@ -149,7 +149,7 @@ def _confusion(labels: tuple[str, ...], truth: np.ndarray, decided: np.ndarray) 
     return ConfusionMatrix(labels, _frozen(counts), _frozen(rates))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class BaseRates:
     """How often each class occurs in the data (``shares``), and abuse overall (``flagged``)."""
 
@@ -160,7 +160,7 @@ class BaseRates:
     flagged: Rate | None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class RankingQuality:
     """How well a score ranks ``positive`` messages above the rest.
 
@@ -230,7 +230,7 @@ class OperatingPoint:
     figures: ThresholdFigures | None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Calibration:
     """Reliability of the probability of *not normal*, in equal-count bins.
 
@@ -257,7 +257,7 @@ class Calibration:
     expected_calibration_error: float
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class ScoreDistribution:
     """Flag log-odds per true class: a shared histogram and quantiles.
 
@@ -339,7 +339,7 @@ class ErrorReview:
     missed_drivers: tuple[ErrorDriver, ...]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Assessment:
     """Every figure of one assessment; presenters read it, never recompute.
 
