@@ -575,24 +575,37 @@ def _pushes(tokens: np.ndarray, cols: np.ndarray, values: np.ndarray, sign: floa
     return tuple(TokenPush(str(tokens[c]), sign * float(v)) for c, v in zip(cols, values) if c >= 0)
 
 
-def _reviewed(rows, view, X, ctx, top_tokens: int) -> tuple[ReviewedMessage, ...]:
+@dataclass(frozen=True, eq=False)
+class _Decisions:
+    """Per-message arrays the error review reads (length n), and the normal class."""
+
+    normal: int
+    truth: np.ndarray
+    decided: np.ndarray
+    margin: np.ndarray
+    scores: np.ndarray
+    flag_class: np.ndarray
+    ids: np.ndarray
+
+
+def _reviewed(rows, view, X, ctx: _Decisions, top_tokens: int) -> tuple[ReviewedMessage, ...]:
     rows = np.asarray(rows, dtype=np.int64)
     if len(rows) == 0:
         return ()
-    E = _flag_evidence(view, X, rows, ctx["flag_class"], ctx["normal"])
+    E = _flag_evidence(view, X, rows, ctx.flag_class, ctx.normal)
     up_cols, up_vals = _top_k_per_row(E, E.data, top_tokens)
     down_cols, down_vals = _top_k_per_row(E, -E.data, top_tokens)
     classes = view.classes
     return tuple(
         ReviewedMessage(
             index=int(r),
-            id=str(ctx["ids"][r]),
-            true_class=str(classes[ctx["truth"][r]]),
-            decided_class=str(classes[ctx["decided"][r]]),
-            flag_class=str(classes[ctx["flag_class"][r]]),
-            flag_probability=float(expit(ctx["scores"][r])),
-            flag_log_odds=float(ctx["scores"][r]),
-            margin=float(ctx["margin"][r]),
+            id=str(ctx.ids[r]),
+            true_class=str(classes[ctx.truth[r]]),
+            decided_class=str(classes[ctx.decided[r]]),
+            flag_class=str(classes[ctx.flag_class[r]]),
+            flag_probability=float(expit(ctx.scores[r])),
+            flag_log_odds=float(ctx.scores[r]),
+            margin=float(ctx.margin[r]),
             toward_flag=_pushes(view.tokens, up_cols[i], up_vals[i], 1.0),
             toward_normal=_pushes(view.tokens, down_cols[i], down_vals[i], -1.0),
         )
@@ -600,24 +613,24 @@ def _reviewed(rows, view, X, ctx, top_tokens: int) -> tuple[ReviewedMessage, ...
     )
 
 
-def _drivers(view, X, rows: np.ndarray, ctx, sign: float, top: int) -> tuple[ErrorDriver, ...]:
+def _drivers(view, X, rows: np.ndarray, ctx: _Decisions, sign: float, top: int) -> tuple[ErrorDriver, ...]:
     """Tokens by summed evidence toward the wrong side; ``sign`` +1 for false alarms, -1 for misses."""
     if len(rows) == 0:
         return ()
-    E = _flag_evidence(view, X, rows, ctx["flag_class"], ctx["normal"])
+    E = _flag_evidence(view, X, rows, ctx.flag_class, ctx.normal)
     push = np.maximum(sign * E.data, 0.0)
     owner = np.repeat(np.arange(len(rows)), np.diff(E.indptr))
     n_features = len(view.tokens)
     total = np.bincount(E.indices, weights=push, minlength=n_features)
     pushed = np.bincount(E.indices[push > 0], minlength=n_features)
-    room = np.abs(ctx["margin"][rows])[owner]
+    room = np.abs(ctx.margin[rows])[owner]
     tipped = np.bincount(E.indices[push > room], minlength=n_features)
     ranked = [int(c) for c in np.lexsort((np.arange(n_features), -total)) if total[c] > 0][:top]
     return tuple(ErrorDriver(str(view.tokens[c]), float(total[c]), int(pushed[c]), int(tipped[c])) for c in ranked)
 
 
-def _error_review(view, X, ctx, top: int, top_tokens: int) -> ErrorReview:
-    normal, truth, decided, margin = ctx["normal"], ctx["truth"], ctx["decided"], ctx["margin"]
+def _error_review(view, X, ctx: _Decisions, top: int, top_tokens: int) -> ErrorReview:
+    normal, truth, decided, margin = ctx.normal, ctx.truth, ctx.decided, ctx.margin
     false_alarm = np.flatnonzero((truth == normal) & (decided != normal))
     missed = np.flatnonzero((truth != normal) & (decided == normal))
     false_alarm = false_alarm[np.argsort(-margin[false_alarm], kind="stable")]
@@ -835,18 +848,13 @@ def assess(
             *(_recall_point(sw, t, costs, confidence) for t in target_recall),
             *(() if costs is None else _cost_points(sw, costs, confidence)),
         )
-        notes.extend(f"target {p.kind} {_percent(p.target)} not met: {p.note}" for p in points if not p.met)
+        wording = {"fpr": "false-positive rate at most", "recall": "recall at least"}
+        notes.extend(
+            f"target {wording[p.kind]} {_percent(p.target)} not met: {p.note}" for p in points if not p.met
+        )
         calibration = _calibration(scores, flag_truth, n_bins, confidence)
         scores_dist = _score_distribution(classes, truth, scores, in_use_threshold)
-        ctx = {
-            "normal": normal,
-            "truth": truth,
-            "decided": decided,
-            "margin": margin,
-            "scores": scores,
-            "flag_class": best_flagged,
-            "ids": ids,
-        }
+        ctx = _Decisions(normal, truth, decided, margin, scores, best_flagged, ids)
         errors = _error_review(view, X, ctx, top, top_tokens)
 
     return Assessment(

@@ -113,12 +113,14 @@ def test_out_file_and_pictures(files, capsys, tmp_path):
             assert min(picture.info["dpi"]) >= 149.9
 
 
-def test_single_class_data_still_reports(files, capsys):
+def test_single_class_data_still_reports(files, capsys, tmp_path):
     code, out, err = assess_cli(
         capsys, files / "model.skops", files / "only_ok.csv", "--text-col", "text", "--label-col", "label",
-        "--normal-class", "ok", "--format", "json",
+        "--normal-class", "ok", "--format", "json", "--images", tmp_path,
     )
     assert code == 0, err
+    # no ROC or precision-recall picture without abuse to rank
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["reliability.png", "scores.png"]
     got = json.loads(out)["assessment"]
     assert got["flag_ranking"] is None
     assert any("AUC and precision-recall curve undefined: the data hold only ok messages" in n for n in got["notes"])
