@@ -217,7 +217,12 @@ def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> Flip
     if not counts.any():
         return FlipSet((), True, "exact", None, "the message has no token the model knows; the baseline alone decides")
     cols, sizes = _units(view, featurizer, counts)
-    if view.feature_kind != "tfidf" and rule.additive:
+    # TF-IDF re-normalises the row on every removal, except when BernoulliNB
+    # reduces the weights to presence (binarize=0): then removals are additive.
+    additive_features = featurizer.feature_kind != "tfidf" or (
+        view.variant == "bernoulli" and view.binarize == 0.0
+    )
+    if additive_features and rule.additive:
         return _exact_flip(view, featurizer, rule, decision, counts, cols, sizes)
     return _greedy_flip(view, featurizer, rule, decision, counts)
 
@@ -249,9 +254,11 @@ def _exact_flip(view, featurizer, rule, decision, counts, cols, sizes) -> FlipSe
             continue
         after = jll0 - np.cumsum(loss[order], axis=0)
         changed = np.flatnonzero(rule.decide(after) != decision)
-        if len(changed) and (best is None or changed[0] + 1 < len(best[0])):
-            chosen = order[: changed[0] + 1]
-            best = (chosen, int(rule.decide(after[changed[0]][None, :])[0]))
+        # Near a tie the running sums can miss a change that exact scoring sees.
+        k0 = changed[0] + 1 if len(changed) else len(order)
+        k, new = _confirm(view, featurizer, rule, decision, counts, cols[order], sizes[order], k0)
+        if k is not None and (best is None or k < len(best[0])):
+            best = (order[:k], new)
     if best is None:
         return FlipSet(
             (), True, "exact", None,
@@ -260,6 +267,27 @@ def _exact_flip(view, featurizer, rule, decision, counts, cols, sizes) -> FlipSe
         )
     chosen, new = best
     return FlipSet(_removals(view, cols[chosen], sizes[chosen]), True, "exact", str(view.classes[new]), None)
+
+
+def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
+    """Re-score prefixes exactly around ``k`` (the running sums can differ in the last bits).
+
+    Returns the shortest prefix length whose exact re-score changes the
+    decision, and the new decision; (None, None) if none does.
+    """
+
+    def outcome(n):
+        after = counts.copy()
+        np.subtract.at(after, cols[:n], sizes[:n])
+        return int(rule.decide(_score(view, featurizer, sp.csr_matrix(after.reshape(1, -1))))[0])
+
+    while k <= len(cols) and outcome(k) == decision:
+        k += 1
+    if k > len(cols):
+        return None, None
+    while k > 1 and outcome(k - 1) != decision:
+        k -= 1
+    return k, outcome(k)
 
 
 def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int], ...]:
