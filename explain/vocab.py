@@ -82,6 +82,14 @@ from explain.risk import (
 from explain.stats import dunning_g2, mutual_information, pearson_chi2
 
 LENSES = ("zscore", "ratio", "mass", "chi2", "g2")
+#: How tables and pictures name each lens's values.
+LENS_TITLES = {
+    "zscore": "z-score",
+    "ratio": "log-odds per occurrence",
+    "mass": "log-odds on a typical message",
+    "chi2": "chi-square",
+    "g2": "G2",
+}
 REST = "rest"
 DEFAULT_TOP = 20
 
@@ -231,6 +239,12 @@ class Contrast:
 
     def flag(self, name: str) -> np.ndarray:
         return self.flags[FLAGS.index(name)]
+
+    def strongest_flagged(self, name: str, lens: str, n: int) -> np.ndarray:
+        """Columns of the ``n`` tokens carrying flag ``name`` with the largest ``|lens|``, either way."""
+        flagged = np.flatnonzero(self.flag(name))
+        strength = np.abs(self.values(lens)[flagged])
+        return flagged[np.argsort(-strength, kind="stable")[:n]]
 
 
 @dataclass(frozen=True)
@@ -482,14 +496,14 @@ def review_vocabulary(
         _contrast(view, t, others, documents, traits, watched, thresholds, prior_scale) for t, others in plan
     )
     tokens = redact(view.tokens, traits) if redact_personal else np.asarray(view.tokens, dtype=object)
+    shown = list(terms)
     if redact_personal:
-        personal_terms = token_traits(terms).personal
-        shown = [
-            tokens[c] if c >= 0 else ("[personal term]" if hidden else term)
-            for term, c, hidden in zip(terms, columns, personal_terms)
-        ]
-    else:
-        shown = list(terms)
+        # A term is hidden when it looks personal itself or matched a hidden token.
+        for i, (c, personal) in enumerate(zip(columns, token_traits(terms).personal)):
+            if c >= 0 and traits.personal[c]:
+                shown[i] = tokens[c]
+            elif personal:
+                shown[i] = "[personal term]"
     return VocabReview(
         classes=tuple(str(c) for c in view.classes),
         normal_class=view.normal_class,

@@ -113,3 +113,4 @@ def main() -> None:
 # Command modules register themselves on import; keep these lines last.
 from explain.cli import train, why  # noqa: E402,F401
 from explain.cli import assess  # noqa: E402,F401
+from explain.cli import vocab  # noqa: E402,F401

@@ -1,0 +1,121 @@
+"""``nbledger vocab``: what the filter has learned, ranked by evidence and support, with risk flags."""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.console import Console
+
+from explain.cli import app, console, fail, load_model_or_fail, warn, write_atomic
+
+FORMATS = ("text", "csv", "json")
+
+
+@app.command()
+def vocab(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    target: Optional[str] = typer.Option(None, "--class", help="The class to measure evidence for."),
+    against: Optional[str] = typer.Option(None, "--against", help="A class, or 'rest' for all other classes pooled."),
+    normal_class: Optional[str] = typer.Option(
+        None, "--normal-class", help="The class that lets a message through; every other class is compared with it."
+    ),
+    by: str = typer.Option("zscore", "--by", help="Ranking: zscore | ratio | mass | chi2 | g2."),
+    top: int = typer.Option(20, "--top", help="Tokens to list for and against each class."),
+    watchlist: Optional[Path] = typer.Option(
+        None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
+    ),
+    data: Optional[Path] = typer.Option(
+        None, "--data", help="Labelled messages (.csv, .jsonl, .parquet): the 2x2 tables then count messages."
+    ),
+    text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of --data holding the text."),
+    label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of --data holding the class."),
+    output_format: str = typer.Option("text", "--format", help="text | csv | json (csv lists every token)."),
+    images: Optional[Path] = typer.Option(None, "--images", help="Write word clouds and bar charts (PNG) here."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
+    redact: bool = typer.Option(False, "--redact", help="Mask personal-looking tokens in every table and picture."),
+    thin_below: float = typer.Option(
+        10.0, "--thin-below", help="Strong evidence on fewer training occurrences than this is flagged thin."
+    ),
+    strong: float = typer.Option(
+        4.0, "--strong", help="Odds factor one occurrence must reach to count as strong evidence."
+    ),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+):
+    """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
+    from explain.risk import RiskThresholds, read_watchlist
+    from explain.vocab import LENSES, document_counts, review_vocabulary
+
+    if output_format not in FORMATS:
+        fail(f"--format must be text, csv or json, got {output_format!r}")
+    if by not in LENSES:
+        fail(f"--by must be one of {', '.join(LENSES)}, got {by!r}")
+    if top < 1:
+        fail(f"--top must be at least 1, got {top}")
+    if not strong > 1 or not math.isfinite(strong):
+        fail(f"--strong is an odds factor and must be above 1, got {strong}")
+    if data is not None and (text_col is None or label_col is None):
+        fail("--data needs --text-col and --label-col")
+    if images is not None and images.exists() and not images.is_dir():
+        fail(f"--images must be a folder; {images} is a file")
+    thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
+    terms = read_watchlist(watchlist) if watchlist is not None else None
+
+    loaded = load_model_or_fail(
+        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+    )
+    messages = documents = None
+    if data is not None:
+        from explain.data_io import read_messages
+
+        messages = read_messages(data, text_col, label_col)
+        if messages.replaced_chars:
+            warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+        documents = document_counts(
+            loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name
+        )
+    review = review_vocabulary(
+        loaded.view,
+        target=target,
+        against=against,
+        lens=by,
+        top=top,
+        documents=documents,
+        watchlist=terms,
+        thresholds=thresholds,
+        redact_personal=redact,
+    )
+
+    from explain.present_vocab import render, to_csv, to_json
+
+    pictures = {}
+    if images is not None:
+        from explain.pictures import draw_all
+
+        pictures = draw_all(review)
+    if output_format == "json":
+        text = json.dumps(to_json(review, loaded, messages), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+    elif output_format == "csv":
+        text = to_csv(review)
+    elif out is not None:
+        buffer = io.StringIO()
+        render(review, Console(file=buffer, width=160, no_color=True, highlight=False))
+        text = buffer.getvalue()
+    else:
+        text = None
+
+    # everything is computed before the first byte is written
+    for name, png in pictures.items():
+        write_atomic(images / name, png)
+    if out is not None:
+        write_atomic(out, text)
+    elif text is not None:
+        typer.echo(text, nl=False)
+    else:
+        render(review, console)

@@ -1,0 +1,319 @@
+"""Presenting a :class:`~explain.vocab.VocabReview`: terminal, CSV and JSON.
+
+Nothing here computes a figure; everything written is read from the review.
+Log-odds are natural logarithms; mutual information is in bits. With
+redaction on, personal-looking tokens arrive here already replaced by
+placeholders such as ``[e-mail 1]``.
+
+Columns
+-------
+The CSV (``nbledger vocab --format csv``) has one row per comparison and
+token: **every** token of the vocabulary, in the order of the chosen ranking.
+JSON rows carry the same keys (without the first three, which the enclosing
+comparison holds).
+
+======================  ==========================================================
+column                  meaning
+======================  ==========================================================
+``contrast``            the comparison, ``"<target> vs <other>"``
+``target``              the class the evidence is measured for
+``other``               the class it is measured against, or ``rest`` (all others pooled)
+``rank``                position under the chosen ranking (1 = strongest for target)
+``token``               the vocabulary entry (a placeholder when redacted)
+``zscore``              Monroe, Colaresi & Quinn (2008) z-score; > 0 favours target
+``weighted_log_odds``   the same paper's log-odds ratio with the informative prior
+``ratio``               log-odds one occurrence adds for target against other
+``mass``                ratio x mean count per message of the side it favours
+``chi2``                Pearson chi-square of the 2x2 table (no continuity correction)
+``g2``                  Dunning's log-likelihood ratio G2 of the same table
+``mi``                  mutual information of token and class, bits
+``direction``           +1 the token goes with target, -1 with other, 0 neither
+``support_target``      the model's training total for target (``feature_count_``)
+``support_other``       the same for the other side
+``documents_target``    messages of target containing the token (empty if unknown)
+``documents_other``     the same for the other side
+``n11`` ... ``n00``     the 2x2 table: present & target, present & other,
+                        absent & target, absent & other (what they count: see
+                        ``counts`` in the JSON header or the terminal)
+``rank_<lens>``         position under each ranking: zscore, ratio, mass, chi2, g2
+``thin`` ... ``watchlist``  true where the token carries that risk flag
+``personal_kind``       e-mail, url, ip, digits or phone; empty otherwise
+======================  ==========================================================
+
+JSON (``--format json``), schema ``nbledger.vocab/1``: ``model`` and ``data``
+(``{path, sha256}`` or null); ``review`` (variant, feature kind, classes,
+normal class, token count, ranking, list length, what the 2x2 tables count
+and why, the z-score prior scale, risk thresholds, redaction); ``contrasts``,
+each with its classes, training messages, ``flag_counts``, ``top_for`` and
+``top_against`` (rows as above) and ``flagged`` (per flag, the strongest
+tokens carrying it, at most ``top``); and ``watchlist`` (source and, per term,
+whether the vocabulary has it and its row in each comparison). Numbers that
+are not finite become null.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+from rich.console import Console
+from rich.table import Table
+from rich.text import Text
+
+from explain.risk import FLAGS, PERSONAL_KINDS
+from explain.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
+
+SCHEMA = "nbledger.vocab/1"
+VALUE_COLUMNS = ("zscore", "weighted_log_odds", "ratio", "mass", "chi2", "g2", "mi", "direction")
+TABLE_CELLS = ("n11", "n10", "n01", "n00")
+# How many of the strongest flagged tokens the terminal names per flag.
+TERMINAL_FLAG_EXAMPLES = 5
+
+
+def _number(x):
+    if isinstance(x, (np.integer, int)):
+        return int(x)
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def _row(review: VocabReview, c: Contrast, j: int) -> dict:
+    """One token of one comparison, with the documented keys."""
+    lens_at = LENSES.index(review.lens)
+    row = {"rank": int(c.rank[lens_at, j]), "token": str(review.tokens[j])}
+    row.update({name: _number(getattr(c, name)[j]) for name in VALUE_COLUMNS})
+    row["support_target"] = _number(c.support_target[j])
+    row["support_other"] = _number(c.support_other[j])
+    row["documents_target"] = None if c.documents_target is None else _number(c.documents_target[j])
+    row["documents_other"] = None if c.documents_other is None else _number(c.documents_other[j])
+    row.update({cell: _number(c.table[k, j]) for k, cell in enumerate(TABLE_CELLS)})
+    row.update({f"rank_{lens}": int(c.rank[k, j]) for k, lens in enumerate(LENSES)})
+    row["flags"] = [name for k, name in enumerate(FLAGS) if c.flags[k, j]]
+    kind = int(review.traits.personal_kind[j])
+    row["personal_kind"] = PERSONAL_KINDS[kind] if kind >= 0 else None
+    return row
+
+
+def to_json(review: VocabReview, model=None, data=None) -> dict:
+    """The documented JSON object of one review (``model``/``data`` need ``.path``/``.source`` and ``.sha256``)."""
+    rows = lambda c, columns: [_row(review, c, int(j)) for j in columns]  # noqa: E731
+    return {
+        "schema": SCHEMA,
+        "model": None if model is None else {"path": str(model.path), "sha256": model.sha256},
+        "data": None if data is None else {"path": str(data.source), "sha256": data.sha256},
+        "review": {
+            "variant": review.variant,
+            "feature_kind": review.feature_kind,
+            "classes": list(review.classes),
+            "normal_class": review.normal_class,
+            "n_features": review.n_features,
+            "ranked_by": review.lens,
+            "top": review.top,
+            "counts": {"kind": review.counts.kind, "reason": review.counts.reason},
+            "prior_scale": review.prior_scale,
+            "thresholds": {
+                "thin_below": review.thresholds.thin_below,
+                "strong_log_odds": review.thresholds.strong_log_odds,
+            },
+            "redacted": review.redacted,
+            "redacted_count": review.redacted_count,
+        },
+        "contrasts": [
+            {
+                "contrast": c.label,
+                "target": c.target,
+                "other": c.other,
+                "other_classes": list(c.other_classes),
+                "messages_target": _number(c.messages_target),
+                "messages_other": _number(c.messages_other),
+                "flag_counts": dict(c.flag_counts),
+                "top_for": rows(c, c.top(review.lens, review.top, "for")),
+                "top_against": rows(c, c.top(review.lens, review.top, "against")),
+                "flagged": {
+                    name: rows(c, c.strongest_flagged(name, review.lens, review.top))
+                    for name in FLAGS
+                    if name != "watchlist"
+                },
+            }
+            for c in review.contrasts
+        ],
+        "watchlist": None
+        if review.watchlist_source is None
+        else {
+            "source": review.watchlist_source,
+            "terms": [
+                {
+                    "term": w.term,
+                    "in_vocabulary": w.column >= 0,
+                    "rows": [
+                        {"contrast": c.label, **_row(review, c, w.column)} if w.column >= 0 else None
+                        for c in review.contrasts
+                    ],
+                }
+                for w in review.watchlist
+            ],
+        },
+    }
+
+
+def to_csv(review: VocabReview) -> str:
+    """Every token of every comparison as CSV, with the documented columns."""
+    import pandas as pd
+
+    lens_at = LENSES.index(review.lens)
+    frames = []
+    for c in review.contrasts:
+        order = c.order[lens_at]
+        columns = {
+            "contrast": c.label,
+            "target": c.target,
+            "other": c.other,
+            "rank": c.rank[lens_at, order],
+            "token": review.tokens[order],
+        }
+        columns.update({name: getattr(c, name)[order] for name in VALUE_COLUMNS})
+        columns["support_target"] = c.support_target[order]
+        columns["support_other"] = c.support_other[order]
+        columns["documents_target"] = None if c.documents_target is None else c.documents_target[order]
+        columns["documents_other"] = None if c.documents_other is None else c.documents_other[order]
+        columns.update({cell: c.table[k, order] for k, cell in enumerate(TABLE_CELLS)})
+        columns.update({f"rank_{lens}": c.rank[k, order] for k, lens in enumerate(LENSES)})
+        columns.update({name: c.flags[k, order] for k, name in enumerate(FLAGS)})
+        kinds = np.array([""] + list(PERSONAL_KINDS), dtype=object)
+        columns["personal_kind"] = kinds[review.traits.personal_kind[order] + 1]
+        frames.append(pd.DataFrame(columns))
+    buffer = io.StringIO()
+    pd.concat(frames, ignore_index=True).to_csv(buffer, index=False, lineterminator="\n")
+    return buffer.getvalue()
+
+
+# ---------------------------------------------------------------- terminal
+
+
+def _fmt(x) -> str:
+    x = float(x)
+    if not math.isfinite(x):
+        return "-"
+    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.3g}"
+
+
+def _count(x) -> str:
+    x = float(x)
+    return f"{int(x):,}" if x == int(x) else f"{x:,.2f}"
+
+
+# Below this terminal width only the ranking lens, ratio and mass are shown.
+WIDE_TERMINAL = 120
+
+
+def _token_table(review: VocabReview, c: Contrast, picked, side: str, wide: bool) -> Table:
+    """Rows of ``picked``; ``#`` counts from the end of the ranking that ``side`` starts at."""
+    lenses = LENSES if wide else tuple(dict.fromkeys((review.lens, "ratio", "mass")))
+    docs = wide and c.documents_target is not None
+    owner = c.target if side == "for" else c.other
+    table = Table(title=Text(f"strongest {len(picked)} for {owner}"), title_justify="left", show_edge=False, pad_edge=False)
+    table.add_column("#", justify="right")
+    table.add_column("token", overflow="fold", min_width=8, max_width=32)
+    for lens in lenses:
+        table.add_column(lens, justify="right", style="bold" if lens == review.lens else None)
+    if wide:
+        table.add_column("mi", justify="right")
+    for side_name in (c.target, c.other):
+        table.add_column(Text(f"n {side_name}"), justify="right")
+    if docs:
+        for side_name in (c.target, c.other):
+            table.add_column(Text(f"docs {side_name}"), justify="right")
+    table.add_column("flags")
+    lens_at = LENSES.index(review.lens)
+    for j in picked:
+        rank = int(c.rank[lens_at, j])
+        cells = [str(rank if side == "for" else review.n_features + 1 - rank), str(review.tokens[j])]
+        cells += [_fmt(c.values(lens)[j] if lens in ("chi2", "g2") else getattr(c, lens)[j]) for lens in lenses]
+        if wide:
+            cells.append(_fmt(c.mi[j]))
+        cells += [_count(c.support_target[j]), _count(c.support_other[j])]
+        if docs:
+            cells += [_count(c.documents_target[j]), _count(c.documents_other[j])]
+        cells.append(", ".join(name for k, name in enumerate(FLAGS) if c.flags[k, j]))
+        # Tokens are data, never markup: "[e-mail 1]" must print as it is.
+        table.add_row(*map(Text, cells))
+    return table
+
+
+def _header(review: VocabReview, console: Console) -> None:
+    t = review.thresholds
+    console.print(
+        f"Vocabulary of a {review.variant} naive Bayes model: {review.n_features:,} tokens "
+        f"({review.feature_kind} features), classes {', '.join(review.classes)}"
+        + (f", normal class {review.normal_class}" if review.normal_class else ""),
+        markup=False,
+    )
+    console.print(f"Ranked by {review.lens} ({LENS_TITLES[review.lens]}); positive values favour the first class named.", markup=False)
+    console.print(f"2x2 tables (chi2, g2, mi) count {review.counts.kind}: {review.counts.reason}.", markup=False)
+    prior = "the pooled counts of the two sides" if review.prior_scale is None else f"scale a0 = {review.prior_scale:g}"
+    console.print(f"z-score prior: {prior}.", markup=False)
+    console.print(
+        f"Risk: strong evidence = one occurrence changes the odds at least {math.exp(t.strong_log_odds):.3g}-fold "
+        f"(|ratio| >= {t.strong_log_odds:.3g}); thin = strong on fewer than {t.thin_below:g} training occurrences.",
+        markup=False,
+    )
+    if review.redacted:
+        console.print(f"Redacted: {review.redacted_count} personal-looking tokens are shown as placeholders.", markup=False)
+
+
+def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
+    console.print()
+    console.rule(
+        Text(f"{c.label}: {_count(c.messages_target)} vs {_count(c.messages_other)} training messages"), style="none"
+    )
+    for side in ("for", "against"):
+        picked = c.top(review.lens, review.top, side)
+        console.print(_token_table(review, c, picked, side, console.width >= WIDE_TERMINAL))
+    counts = "  ".join(f"{name} {c.flag_counts[name]:,}" for name in FLAGS)
+    console.print(f"flags: {counts}", markup=False)
+    for name in FLAGS:
+        if name == "watchlist" or not c.flag_counts[name]:
+            continue
+        examples = c.strongest_flagged(name, review.lens, TERMINAL_FLAG_EXAMPLES)
+        listed = ", ".join(f"{review.tokens[j]} ({_fmt(c.values(review.lens)[j])})" for j in examples)
+        console.print(f"  strongest {name}: {listed}", markup=False, soft_wrap=True)
+
+
+def _watchlist(review: VocabReview, console: Console) -> None:
+    console.print()
+    table = Table(
+        title=Text(f"watchlist {review.watchlist_source}"), title_justify="left", show_edge=False, pad_edge=False
+    )
+    for name in ("term", "comparison", review.lens, "ratio", "rank", "support", "flags"):
+        table.add_column(name, justify="left" if name in ("term", "comparison", "flags") else "right")
+    lens_at = LENSES.index(review.lens)
+    for w in review.watchlist:
+        for c in review.contrasts:
+            if w.column < 0:
+                table.add_row(*map(Text, (w.term, c.label, "-", "-", "not in the vocabulary", "-", "")))
+                continue
+            j = w.column
+            rank = int(c.rank[lens_at, j])
+            value = c.values(review.lens)[j]
+            where = f"{rank:,} for {c.target}" if value >= 0 else f"{review.n_features + 1 - rank:,} for {c.other}"
+            cells = (
+                w.term,
+                c.label,
+                _fmt(value),
+                _fmt(c.ratio[j]),
+                where,
+                f"{_count(c.support_target[j])} / {_count(c.support_other[j])}",
+                ", ".join(name for k, name in enumerate(FLAGS) if c.flags[k, j] and name != "watchlist"),
+            )
+            table.add_row(*map(Text, cells))
+    console.print(table)
+
+
+def render(review: VocabReview, console: Console) -> None:
+    """The review as terminal tables."""
+    _header(review, console)
+    for c in review.contrasts:
+        _contrast(review, c, console)
+    if review.watchlist_source is not None:
+        _watchlist(review, console)
