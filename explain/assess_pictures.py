@@ -2,31 +2,37 @@
 
 ROC curve, precision-recall curve, reliability diagram and the score
 distribution per class on the log-odds scale. Everything drawn is read from
-the result; nothing is recomputed.
+the result; nothing is recomputed. Colours and the PNG writer are the
+project's (:mod:`explain.pictures`), so a class looks the same in every picture.
 """
 
 from __future__ import annotations
 
-import io
-
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from explain.assessment import Assessment
+from explain.assessment import FLAGGED, Assessment
+from explain.pictures import NEUTRAL, PALETTE, _png, class_colours
 
-DPI = 150
-# Colour-blind-safe qualitative colours (Okabe & Ito 2008, "Color Universal
-# Design"); kept here because no shared picture palette exists yet.
-COLOURS = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000")
-NEUTRAL = "#7f7f7f"
+# Marks drawn over the curves (operating points, threshold): the darkest neutral shade.
+MARK = NEUTRAL.shade(1.0)
 
 
-def _png(fig: Figure) -> bytes:
-    FigureCanvasAgg(fig)
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
-    return buffer.getvalue()
+def _colours(result: Assessment) -> dict[str, str]:
+    """Line colour per positive class and for "flagged", from the project's palette.
+
+    Classes keep their family from :func:`explain.pictures.class_colours`. With
+    one flagged class, "flagged" is that class; with more, it takes the next
+    unused family.
+    """
+    families = class_colours(result.classes, result.normal_class)
+    colours = {name: family.base for name, family in families.items()}
+    flagged = [c for c in result.classes if c != result.normal_class]
+    if len(flagged) == 1:
+        colours[FLAGGED] = colours[flagged[0]]
+    else:
+        colours[FLAGGED] = PALETTE[len(flagged) % len(PALETTE)].base if len(flagged) < len(PALETTE) else MARK
+    return colours
 
 
 def _rankings(result: Assessment):
@@ -43,13 +49,14 @@ def roc_picture(result: Assessment) -> bytes:
     """ROC curves; the right panel stretches the low false-positive rates an auditor cares about."""
     fig = Figure(figsize=(10, 4.6))
     linear, logx = fig.subplots(1, 2)
-    for i, r in enumerate(_rankings(result)):
-        colour = COLOURS[i % len(COLOURS)]
+    colours = _colours(result)
+    for r in _rankings(result):
+        colour = colours[r.positive]
         for ax in (linear, logx):
             ax.plot(r.roc_false_positive_rate, r.roc_true_positive_rate, color=colour, lw=1.8, label=_auc_label(r))
     chance = np.linspace(1e-4, 1, 200)
     for ax in (linear, logx):
-        ax.plot(chance, chance, color=NEUTRAL, ls=":", lw=1, label="chance")
+        ax.plot(chance, chance, color=NEUTRAL.base, ls=":", lw=1, label="chance")
         ax.set_ylabel("true-positive rate (recall)")
         ax.set_ylim(0, 1.01)
         ax.grid(alpha=0.3)
@@ -65,7 +72,7 @@ def roc_picture(result: Assessment) -> bytes:
         x = [f.false_positive_rate.value for f in chosen]
         y = [f.recall.value for f in chosen]
         for ax in (linear, logx):
-            ax.plot(x, y, "o", color=COLOURS[5], ms=5, label="operating points by target (flagged)")
+            ax.plot(x, y, "o", color=MARK, ms=5, label="operating points by target (flagged)")
     linear.legend(loc="lower right", fontsize=8)
     return _png(fig)
 
@@ -74,8 +81,9 @@ def precision_recall_picture(result: Assessment) -> bytes:
     """Precision against recall, with the base rate (the precision of flagging at random)."""
     fig = Figure(figsize=(6, 4.6))
     ax = fig.subplots()
-    for i, r in enumerate(_rankings(result)):
-        colour = COLOURS[i % len(COLOURS)]
+    colours = _colours(result)
+    for r in _rankings(result):
+        colour = colours[r.positive]
         ax.plot(r.pr_recall, r.pr_precision, color=colour, lw=1.8, label=f"{r.positive}: AP {r.average_precision:.3f}")
         ax.axhline(r.n_positive / (r.n_positive + r.n_negative), color=colour, ls=":", lw=1)
     ax.set_xlabel("recall")
@@ -93,15 +101,16 @@ def reliability_picture(result: Assessment) -> bytes:
     cal = result.calibration
     fig = Figure(figsize=(6, 5))
     ax = fig.subplots()
-    ax.plot([0, 1], [0, 1], color=NEUTRAL, ls=":", lw=1, label="perfectly calibrated")
+    ax.plot([0, 1], [0, 1], color=NEUTRAL.base, ls=":", lw=1, label="perfectly calibrated")
+    family = PALETTE[0]
     errors = np.vstack([cal.observed - cal.observed_low, cal.observed_high - cal.observed])
     ax.errorbar(
         cal.mean_predicted,
         cal.observed,
         yerr=errors,
         fmt="o-",
-        color=COLOURS[0],
-        ecolor=COLOURS[4],
+        color=family.base,
+        ecolor=family.shade(0.2),
         capsize=3,
         label=f"bins of about {int(np.median(cal.counts))} messages ({100 * result.confidence:g} % Wilson intervals)",
     )
@@ -122,12 +131,13 @@ def score_picture(result: Assessment) -> bytes:
     s = result.scores
     fig = Figure(figsize=(8, 4.6))
     ax = fig.subplots()
+    colours = _colours(result)
     for c, name in enumerate(s.classes):
         if s.counts[c].sum() == 0:
             continue
-        ax.stairs(s.counts[c], s.edges, color=COLOURS[c % len(COLOURS)], lw=1.8, label=name)
+        ax.stairs(s.counts[c], s.edges, color=colours[name], lw=1.8, label=name)
     if np.isfinite(s.threshold_log_odds):
-        ax.axvline(s.threshold_log_odds, color=COLOURS[7], ls="--", lw=1, label="threshold in use")
+        ax.axvline(s.threshold_log_odds, color=MARK, ls="--", lw=1, label="threshold in use")
     clipped = int(s.below.sum() + s.above.sum())
     note = f" ({clipped} beyond the range counted in the end bins)" if clipped else ""
     ax.set_xlabel(f"log P(not {result.normal_class}) - log P({result.normal_class})")
