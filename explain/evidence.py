@@ -57,7 +57,8 @@ class TokenEvidence:
     @property
     def odds_factor(self) -> float:
         """How many times this token multiplies the odds of A against B."""
-        return float(np.exp(self.evidence))
+        with np.errstate(over="ignore"):
+            return float(np.exp(self.evidence))
 
 
 @dataclass(frozen=True)
@@ -291,10 +292,11 @@ def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
 
 
 def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int], ...]:
-    totals: dict[int, int] = {}
-    for c, n in zip(cols, sizes):
-        totals[int(c)] = totals.get(int(c), 0) + int(n)
-    return tuple((str(view.tokens[c]), n) for c, n in totals.items())
+    """(token, occurrences) per column, in the order the columns were first chosen."""
+    unique, first, inverse = np.unique(cols, return_index=True, return_inverse=True)
+    totals = np.bincount(inverse, weights=sizes).astype(int)
+    order = np.argsort(first, kind="stable")
+    return tuple((str(view.tokens[unique[i]]), int(totals[i])) for i in order)
 
 
 def _distance(rule: DecisionRule, jll: np.ndarray, decision: int) -> np.ndarray:

@@ -168,8 +168,8 @@ class Featurizer:
             if not (stop is not None and m.group(group) in stop)
         ]
         lo, hi = vec.ngram_range
-        out: list[tuple[str, Span]] = []
-        for n in range(lo, hi + 1):
+        out: list[tuple[str, Span]] = list(words) if lo == 1 else []
+        for n in range(max(lo, 2), hi + 1):
             for i in range(len(words) - n + 1):
                 part = words[i : i + n]
                 out.append((" ".join(w for w, _ in part), (part[0][1][0], part[-1][1][1])))

@@ -61,7 +61,8 @@ def cases(draw, n_classes=None, kind=None, variant=None, ngrams=None):
     ngrams = draw(st.sampled_from([(1, 1), (1, 2)])) if ngrams is None else ngrams
     alpha = draw(st.sampled_from([1.0, 0.5, 0.1]))
     classes = [f"class{i}" for i in range(n_classes)]
-    docs = st.lists(st.sampled_from(WORDS), min_size=1, max_size=10).map(" ".join)
+    # Single letters are not tokens by default: a document of only "a" would have none.
+    docs = st.lists(st.sampled_from([w for w in WORDS if len(w) > 1]), min_size=1, max_size=10).map(" ".join)
     texts, labels = [], []
     for c in classes:  # every class gets some documents
         for text in draw(st.lists(docs, min_size=1, max_size=6)):

@@ -11,29 +11,33 @@ import typer
 
 from explain.cli import app, console, fail, load_model_or_fail, warn
 
-#: Messages larger than this are refused (a guard against hostile input).
-MAX_MESSAGE_BYTES = 16 * 1024 * 1024
+#: Messages larger than this are refused unless --max-bytes raises it: a
+#: direct message of megabytes is far more likely an attack than a message.
+MAX_MESSAGE_BYTES = 1024 * 1024
 
 
-def read_message(text: Optional[str], file: Optional[Path]) -> str:
+def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MESSAGE_BYTES) -> str:
     """The message from the argument, a file, or standard input (``-``)."""
     from explain.data_io import decode_utf8
 
+    too_big = f"the message is larger than {limit:,} bytes; raise --max-bytes if it is genuine"
     if text is not None and file is not None:
         fail("give the message as TEXT or with --file, not both")
     if file is not None:
         if not file.is_file():
             fail(f"no message file at {file}")
-        if file.stat().st_size > MAX_MESSAGE_BYTES:
-            fail(f"{file.name} is larger than {MAX_MESSAGE_BYTES // (1024 * 1024)} MiB")
+        if file.stat().st_size > limit:
+            fail(too_big)
         raw = file.read_bytes()
     elif text == "-" or text is None:
         if text is None and sys.stdin.isatty():
             fail("give the message as TEXT, with --file F, or on standard input with -")
-        raw = sys.stdin.buffer.read(MAX_MESSAGE_BYTES + 1)
-        if len(raw) > MAX_MESSAGE_BYTES:
-            fail(f"the message is larger than {MAX_MESSAGE_BYTES // (1024 * 1024)} MiB")
+        raw = sys.stdin.buffer.read(limit + 1)
+        if len(raw) > limit:
+            fail(too_big)
     else:
+        if len(text.encode("utf-8", errors="surrogatepass")) > limit:
+            fail(too_big)
         return text
     decoded, replaced = decode_utf8(raw)
     if replaced:
@@ -55,6 +59,7 @@ def why(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
 ):
     """Why did the filter score this message the way it did?"""
     from explain.evidence import explain_message
@@ -62,7 +67,7 @@ def why(
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
-    message = read_message(text, file)
+    message = read_message(text, file, max_bytes)
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
