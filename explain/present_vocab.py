@@ -1,7 +1,9 @@
 """Presenting a :class:`~explain.vocab.VocabReview`: terminal, CSV and JSON.
 
 Nothing here computes a figure; everything written is read from the review.
-Log-odds are natural logarithms; mutual information is in bits. With
+Log-odds are natural logarithms; mutual information is in bits. Files carry
+chi2 and g2 unsigned beside ``direction``; the terminal shows them signed
+(``direction * statistic``), as the rankings sort them. With
 redaction on, personal-looking tokens arrive here already replaced by
 placeholders such as ``[e-mail 1]``.
 
