@@ -32,6 +32,8 @@ column                  meaning
 ``direction``           +1 the token goes with target, -1 with other, 0 neither
 ``support_target``      the model's training total for target (``feature_count_``)
 ``support_other``       the same for the other side
+``support_<class>``     the model's training total in each class of the model
+                        (JSON: ``support_by_class``, an object keyed by class)
 ``documents_target``    messages of target containing the token (empty if unknown)
 ``documents_other``     the same for the other side
 ``n11`` ... ``n00``     the 2x2 table: present & target, present & other,
@@ -87,6 +89,7 @@ def _row(review: VocabReview, c: Contrast, j: int) -> dict:
     row.update({name: _number(getattr(c, name)[j]) for name in VALUE_COLUMNS})
     row["support_target"] = _number(c.support_target[j])
     row["support_other"] = _number(c.support_other[j])
+    row["support_by_class"] = {k: _number(v) for k, v in zip(review.classes, review.support_by_class[:, j])}
     row["documents_target"] = None if c.documents_target is None else _number(c.documents_target[j])
     row["documents_other"] = None if c.documents_other is None else _number(c.documents_other[j])
     row.update({cell: _number(c.table[k, j]) for k, cell in enumerate(TABLE_CELLS)})
@@ -177,6 +180,7 @@ def to_csv(review: VocabReview) -> str:
         columns.update({name: getattr(c, name)[order] for name in VALUE_COLUMNS})
         columns["support_target"] = c.support_target[order]
         columns["support_other"] = c.support_other[order]
+        columns.update({f"support_{k}": review.support_by_class[i, order] for i, k in enumerate(review.classes)})
         columns["documents_target"] = None if c.documents_target is None else c.documents_target[order]
         columns["documents_other"] = None if c.documents_other is None else c.documents_other[order]
         columns.update({cell: c.table[k, order] for k, cell in enumerate(TABLE_CELLS)})

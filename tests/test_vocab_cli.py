@@ -96,13 +96,15 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
     table = pd.read_csv(out_file, keep_default_na=False)
     review = review_vocabulary(load_model(files / "model.skops").view)
     expected = (["contrast", "target", "other", "rank", "token", "zscore", "weighted_log_odds", "ratio", "mass",
-                 "chi2", "g2", "mi", "direction", "support_target", "support_other", "documents_target",
+                 "chi2", "g2", "mi", "direction", "support_target", "support_other",
+                 "support_advert", "support_ok", "support_scam", "documents_target",
                  "documents_other", "n11", "n10", "n01", "n00"]
                 + [f"rank_{lens}" for lens in LENSES] + list(FLAGS) + ["personal_kind"])
     assert list(table.columns) == expected
     import explain.present_vocab as presenter
     for column in expected:
-        assert f"``{column}``" in presenter.__doc__ or column.startswith(("rank_", "n1", "n0")) or column in FLAGS
+        documented = column.startswith(("rank_", "support_", "n1", "n0")) or column in FLAGS
+        assert f"``{column}``" in presenter.__doc__ or documented
     assert len(table) == len(review.contrasts) * review.n_features
     for c in review.contrasts:
         part = table[table.contrast == c.label]
@@ -111,6 +113,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
         # floats are written with full precision: the file reproduces the arrays exactly
         np.testing.assert_array_equal(part.zscore.to_numpy(), c.zscore[order])
         np.testing.assert_array_equal(part.mass.to_numpy(), c.mass[order])
+        np.testing.assert_array_equal(part.support_scam.to_numpy(), review.support_by_class[2, order])
         assert list(part["rank"]) == list(range(1, review.n_features + 1))
 
 
