@@ -4,7 +4,7 @@ import string
 
 import numpy as np
 import pytest
-from hypothesis import assume, given, settings
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from explain.errors import NbledgerError

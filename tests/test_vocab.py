@@ -9,7 +9,6 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 from scipy.stats import chi2_contingency
-from sklearn.feature_extraction.text import CountVectorizer
 from sklearn.naive_bayes import BernoulliNB, ComplementNB, MultinomialNB
 
 from explain.errors import NbledgerError

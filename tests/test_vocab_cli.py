@@ -1,6 +1,5 @@
 """``nbledger vocab`` end to end: outputs match the library, pictures, redaction, bad input."""
 
-import io
 import itertools
 import json
 import subprocess
@@ -20,7 +19,6 @@ from explain import pictures
 from explain.cli import run
 from explain.data_io import read_messages
 from explain.loading import load_model
-from explain.present_vocab import to_csv
 from explain.risk import FLAGS
 from explain.vocab import LENSES, document_counts, review_vocabulary
 
