@@ -12,7 +12,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from explain.assessment import FLAGGED, Assessment
-from explain.pictures import NEUTRAL, PALETTE, _png, class_colours
+from explain.pictures import NEUTRAL, PALETTE, class_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold): the darkest neutral shade.
 MARK = NEUTRAL.shade(1.0)
@@ -74,7 +74,7 @@ def roc_picture(result: Assessment) -> bytes:
         for ax in (linear, logx):
             ax.plot(x, y, "o", color=MARK, ms=5, label="operating points by target (flagged)")
     linear.legend(loc="lower right", fontsize=8)
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def precision_recall_picture(result: Assessment) -> bytes:
@@ -93,7 +93,7 @@ def precision_recall_picture(result: Assessment) -> bytes:
     ax.set_title("precision-recall (dotted: base rate)")
     ax.grid(alpha=0.3)
     ax.legend(loc="lower left", fontsize=8)
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def reliability_picture(result: Assessment) -> bytes:
@@ -123,7 +123,7 @@ def reliability_picture(result: Assessment) -> bytes:
     )
     ax.grid(alpha=0.3)
     ax.legend(loc="upper left", fontsize=8)
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def score_picture(result: Assessment) -> bytes:
@@ -145,7 +145,7 @@ def score_picture(result: Assessment) -> bytes:
     ax.set_title("scores by true class, log-odds scale" + note, fontsize=10)
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8)
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def draw_all(result: Assessment) -> dict[str, bytes]:

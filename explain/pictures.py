@@ -82,7 +82,7 @@ def class_colours(classes, normal_class: str | None = None) -> dict[str, ColourF
     return colours
 
 
-def _png(fig: Figure) -> bytes:
+def png_bytes(fig: Figure) -> bytes:
     FigureCanvasAgg(fig)
     buffer = io.BytesIO()
     fig.savefig(buffer, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
@@ -137,7 +137,7 @@ def word_cloud(review: VocabReview, index: int, side: str = "for") -> bytes:
     ax.set_title(title, fontsize=11)
     if review.redacted:
         fig.text(0.5, 0.02, f"{review.redacted_count} personal-looking tokens redacted", ha="center", fontsize=8)
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def bar_chart(review: VocabReview, index: int) -> bytes:
@@ -168,7 +168,7 @@ def bar_chart(review: VocabReview, index: int) -> bytes:
             ax.text(0.5, 0.5, f"no token points to {owner}", transform=ax.transAxes, ha="center", color=NEUTRAL.base)
     fig.suptitle(f"{c.label}: top {review.top} by {LENS_TITLES[lens]}", fontsize=11)
     fig.tight_layout()
-    return _png(fig)
+    return png_bytes(fig)
 
 
 def _slug(name: str) -> str:

@@ -187,14 +187,14 @@ def picture_inputs(monkeypatch):
         seen.extend(frequencies)
         return layout(self, frequencies, *args, **kwargs)
 
-    png = pictures._png
+    png = pictures.png_bytes
 
     def recording_png(fig):
         seen.extend(t.get_text() for t in fig.findobj(matplotlib.text.Text))
         return png(fig)
 
     monkeypatch.setattr(wordcloud.WordCloud, "generate_from_frequencies", recording_layout)
-    monkeypatch.setattr(pictures, "_png", recording_png)
+    monkeypatch.setattr(pictures, "png_bytes", recording_png)
     return seen
 
 

@@ -8,9 +8,8 @@ a defect and still ends as one line (exit status 3), never a traceback.
 
 from __future__ import annotations
 
-import os
+import io
 import sys
-import tempfile
 from pathlib import Path
 from typing import NoReturn
 
@@ -20,6 +19,7 @@ from typer._click.exceptions import NoArgsIsHelpError
 from typer.exceptions import TyperException
 
 from explain.errors import NbledgerError
+from explain.output_files import write_atomic
 
 app = typer.Typer(
     name="nbledger",
@@ -45,19 +45,37 @@ def warn(message: str) -> None:
     err_console.print(f"warning: {message}", markup=False, soft_wrap=True)
 
 
-def write_atomic(path, data: bytes | str) -> None:
-    """Write a file whole or not at all (temp file in the same folder, then rename)."""
-    path = Path(path)
-    payload = data.encode("utf-8") if isinstance(data, str) else data
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(payload)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+def read_messages_or_fail(data: Path, text_col: str, label_col: str | None = None):
+    """Read a data file; say how many invalid UTF-8 sequences were replaced."""
+    from explain.data_io import read_messages
+
+    messages = read_messages(data, text_col, label_col)
+    if messages.replaced_chars:
+        warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+    return messages
+
+
+def plain_text(render, result, width: int) -> str:
+    """What ``render(result, console)`` prints, as plain text of a given width (for --out)."""
+    buffer = io.StringIO()
+    render(result, Console(file=buffer, width=width, no_color=True, highlight=False))
+    return buffer.getvalue()
+
+
+def deliver(*, text: str | None, out: Path | None, pictures: dict, images: Path | None, show) -> None:
+    """Write the pictures and the output; call only once everything is computed.
+
+    ``text`` goes to ``out`` (or standard output); with neither, ``show()``
+    prints to the terminal.
+    """
+    for name, png in pictures.items():
+        write_atomic(images / name, png)
+    if out is not None:
+        write_atomic(out, text)
+    elif text is not None:
+        typer.echo(text, nl=False)
+    else:
+        show()
 
 
 def load_model_or_fail(model: Path, *, vectorizer=None, allow_pickle=False, trust=(), normal_class=None):

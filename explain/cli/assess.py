@@ -2,15 +2,13 @@
 
 from __future__ import annotations
 
-import io
 import json
 from pathlib import Path
 from typing import List, Optional
 
 import typer
-from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, warn, write_atomic
+from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
 
 
 def parse_fraction(text: str, what: str) -> float:
@@ -73,7 +71,6 @@ def assess(
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
     from explain.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
     from explain.assessment import assess as run_assessment
-    from explain.data_io import read_messages
     from explain.present_assessment import render, to_json
 
     if output_format not in ("text", "json"):
@@ -86,9 +83,7 @@ def assess(
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    messages = read_messages(data, text_col, label_col)
-    if messages.replaced_chars:
-        warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+    messages = read_messages_or_fail(data, text_col, label_col)
     result = run_assessment(
         loaded.view,
         loaded.featurizer.transform(messages.texts),
@@ -112,19 +107,6 @@ def assess(
 
     if output_format == "json":
         text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
-    elif out is not None:
-        buffer = io.StringIO()
-        render(result, Console(file=buffer, width=120, no_color=True, highlight=False))
-        text = buffer.getvalue()
     else:
-        text = None
-
-    # everything is computed before the first byte is written
-    for name, png in pictures.items():
-        write_atomic(images / name, png)
-    if out is not None:
-        write_atomic(out, text)
-    elif text is not None:
-        typer.echo(text, nl=False)
-    else:
-        render(result, console)
+        text = plain_text(render, result, 120) if out is not None else None
+    deliver(text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))

@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import json
-import os
-import tempfile
 from pathlib import Path
 from typing import Optional
 
 import typer
 
-from explain.cli import app, console, warn, write_atomic
+from explain.cli import app, console, read_messages_or_fail
+from explain.output_files import atomic_path, write_atomic
 
 
 @app.command()
@@ -32,7 +31,6 @@ def train(
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
 
-    from explain.data_io import read_messages
     from explain.loading import card_path_for, sha256_of
     from explain.training import TrainSettings, model_card, parse_ngrams, train_filter
 
@@ -40,21 +38,16 @@ def train(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
         alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
     )
-    messages = read_messages(data, text_col, label_col)
-    if messages.replaced_chars:
-        warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+    messages = read_messages_or_fail(data, text_col, label_col)
     trained = train_filter(messages.texts, messages.labels, settings)
 
-    out.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{out.name}.", dir=out.parent)
-    os.close(fd)
-    try:
+    # The card records the SHA-256 of the exact bytes that become the model file.
+    with atomic_path(out) as tmp:
         sio.dump(trained.pipeline, tmp)
-        digest = sha256_of(Path(tmp))
         card = model_card(
             trained,
             model_file=out.name,
-            model_sha256=digest,
+            model_sha256=sha256_of(tmp),
             data={
                 "file": data.name,
                 "sha256": messages.sha256,
@@ -65,9 +58,6 @@ def train(
             },
         )
         write_atomic(card_path_for(out), json.dumps(card, indent=2) + "\n")
-        os.replace(tmp, out)
-    finally:
-        Path(tmp).unlink(missing_ok=True)
 
     per_class = ", ".join(f"{c} {n}" for c, n in trained.rows_per_class.items())
     console.print(f"trained {variant} naive Bayes on {trained.train_rows} of {len(messages)} messages ({per_class})")

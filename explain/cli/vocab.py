@@ -2,16 +2,14 @@
 
 from __future__ import annotations
 
-import io
 import json
 import math
 from pathlib import Path
 from typing import List, Optional
 
 import typer
-from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, warn, write_atomic
+from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
 
 FORMATS = ("text", "csv", "json")
 
@@ -72,11 +70,7 @@ def vocab(
     )
     messages = documents = None
     if data is not None:
-        from explain.data_io import read_messages
-
-        messages = read_messages(data, text_col, label_col)
-        if messages.replaced_chars:
-            warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+        messages = read_messages_or_fail(data, text_col, label_col)
         documents = document_counts(
             loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name
         )
@@ -103,19 +97,6 @@ def vocab(
         text = json.dumps(to_json(review, loaded, messages), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
     elif output_format == "csv":
         text = to_csv(review)
-    elif out is not None:
-        buffer = io.StringIO()
-        render(review, Console(file=buffer, width=160, no_color=True, highlight=False))
-        text = buffer.getvalue()
     else:
-        text = None
-
-    # everything is computed before the first byte is written
-    for name, png in pictures.items():
-        write_atomic(images / name, png)
-    if out is not None:
-        write_atomic(out, text)
-    elif text is not None:
-        typer.echo(text, nl=False)
-    else:
-        render(review, console)
+        text = plain_text(render, review, 160) if out is not None else None
+    deliver(text=text, out=out, pictures=pictures, images=images, show=lambda: render(review, console))
