@@ -37,7 +37,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.special import expit
 
-from explain.batch import BatchEvidence, batch_evidence, top_k_per_row
+from explain.batch import BatchEvidence, batch_evidence, evidence_matrix, top_k_per_row
 from explain.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model_view import ModelView
@@ -566,9 +566,7 @@ def _flag_evidence(view: ModelView, X, rows: np.ndarray, flag_class: np.ndarray,
     """Per-token evidence toward ``flag_class[row]`` against normal, for ``rows``."""
     part = view.prepare(sp.csr_matrix(X)[rows])
     part.sort_indices()
-    owner = np.repeat(np.arange(len(rows)), np.diff(part.indptr))
-    delta = view.weights[flag_class[rows][owner], part.indices] - view.weights[normal, part.indices]
-    return sp.csr_matrix((part.data * delta, part.indices, part.indptr), shape=part.shape)
+    return evidence_matrix(view, part, flag_class[rows], np.full(len(rows), normal))
 
 
 def _pushes(tokens: np.ndarray, cols: np.ndarray, values: np.ndarray, sign: float) -> tuple[TokenPush, ...]:
