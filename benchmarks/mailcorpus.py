@@ -110,11 +110,8 @@ class CorpusIntegrityError(NbledgerError):
 
 
 def sha1_of(path: Path) -> str:
-    digest = hashlib.sha1()
     with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+        return hashlib.file_digest(fh, "sha1").hexdigest()
 
 
 def verify_tarball(path: Path, expected_sha1: str = TARBALL_SHA1) -> Path:

@@ -52,11 +52,8 @@ class LoadedModel:
 
 
 def sha256_of(path: Path) -> str:
-    digest = hashlib.sha256()
     with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+        return hashlib.file_digest(handle, "sha256").hexdigest()
 
 
 def card_path_for(model_path: Path) -> Path:
