@@ -505,7 +505,7 @@ OK_TEMPLATES: dict[str, list[str]] = {
         "Yes it's {small} for members for a half day, it goes towards consumables. {Pay {name} or put it in the tin.|You can pay on the booking page https://tideway.example.org/workshop.}",
         "Somebody left the {kit} running in the workshop {last night|this morning}. {Please switch it off at the wall when you're done.|Please check before you lock up!}",
         "I've booked the workshop on the calendar for {day} but I can move if someone needs it.",
-        "{name} can you sign me off on the {kit}? I've done the {safety video|induction} and paid the {small} fee.",
+        "{name} can you sign me off on the {kit}? I've done the {safety briefing|induction} and paid the {small} fee.",
         "The workshop is closed {when} while the {kit} gets fixed. {Sorry!|Should be back by {day}.}",
         "Is the workshop free {when}? Want to finish the {chairs|bird boxes|cot|shelving unit|boat oars} before {month}.",
         "Booking link for the workshop is https://tideway.example.org/book, fees are {small} for half a day and they go straight to the co-op.",
