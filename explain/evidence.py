@@ -316,11 +316,16 @@ def _greedy_flip(view, featurizer, rule, decision, counts) -> FlipSet:
         present = np.flatnonzero(counts)
         if len(present) == 0:
             break
-        # One candidate row per removable unit, all re-scored exactly at once.
-        step = counts[present] if presence else np.ones(len(present))
-        candidates = np.tile(counts, (len(present), 1))
-        candidates[np.arange(len(present)), present] -= step
-        jll = _score(view, featurizer, sp.csr_matrix(candidates))
+        # One candidate row per removable unit, all re-scored exactly at once;
+        # only the message's own columns are stored (p x p, not p x vocabulary).
+        p = len(present)
+        step = counts[present] if presence else np.ones(p)
+        block = np.tile(counts[present], (p, 1))
+        block[np.arange(p), np.arange(p)] -= step
+        candidates = sp.csr_matrix(
+            (block.ravel(), np.tile(present, p), np.arange(0, p * p + 1, p)), shape=(p, view.n_features)
+        )
+        jll = _score(view, featurizer, candidates)
         new_decisions = rule.decide(jll)
         flipped = np.flatnonzero(new_decisions != decision)
         pick = flipped[0] if len(flipped) else int(np.argmin(_distance(rule, jll, decision)))

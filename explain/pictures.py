@@ -35,6 +35,7 @@ from matplotlib.colors import to_hex, to_rgb
 from matplotlib.figure import Figure
 
 from explain.risk import FLAGS
+from explain.token_display import shown
 from explain.vocab import LENS_TITLES, REST, Contrast, VocabReview
 
 DPI = 200
@@ -155,7 +156,7 @@ def bar_chart(review: VocabReview, index: int) -> bytes:
         strength = np.abs(values[picked])
         positions = np.arange(len(picked))
         ax.barh(positions, strength, color=colours[owner].base, height=0.7)
-        ax.set_yticks(positions, [f"{review.tokens[j]}{_flag_note(c, j)}" for j in picked], fontsize=8)
+        ax.set_yticks(positions, [f"{shown(review.tokens[j])}{_flag_note(c, j)}" for j in picked], fontsize=8)
         ax.set_ylim(rows - 0.5, -0.5)
         top_value = float(strength.max()) if len(picked) else 1.0
         for y, j, s in zip(positions, picked, strength):

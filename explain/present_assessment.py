@@ -33,6 +33,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.assessment import Assessment, OperatingPoint, Rate, ReviewedMessage
+from explain.token_display import shown
 
 SCHEMA = "nbledger.assess/1"
 
@@ -253,7 +254,7 @@ def _calibration(result: Assessment, console: Console) -> None:
 
 
 def _tokens(pushes) -> str:
-    return ", ".join(f"{p.token} {p.evidence:+.2f}" for p in pushes) or "-"
+    return ", ".join(f"{shown(p.token)} {p.evidence:+.2f}" for p in pushes) or "-"
 
 
 def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, console: Console) -> None:

@@ -66,6 +66,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.risk import FLAGS, PERSONAL_KINDS
+from explain.token_display import shown
 from explain.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
 
 SCHEMA = "nbledger.vocab/1"
@@ -234,7 +235,7 @@ def _token_table(review: VocabReview, c: Contrast, picked, side: str, wide: bool
     lens_at = LENSES.index(review.lens)
     for j in picked:
         rank = int(c.rank[lens_at, j])
-        cells = [str(rank if side == "for" else review.n_features + 1 - rank), str(review.tokens[j])]
+        cells = [str(rank if side == "for" else review.n_features + 1 - rank), shown(review.tokens[j])]
         cells += [_fmt(c.values(lens)[j] if lens in ("chi2", "g2") else getattr(c, lens)[j]) for lens in lenses]
         if wide:
             cells.append(_fmt(c.mi[j]))

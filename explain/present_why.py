@@ -47,6 +47,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.evidence import Explanation
+from explain.token_display import shown
 
 SCHEMA = "nbledger.why/1"
 
@@ -56,6 +57,7 @@ SCHEMA = "nbledger.why/1"
 TOWARD = ("#f6d8a8", "#eaa24b", "#b8610f")
 AGAINST = ("#c9daf2", "#7da3d9", "#2f5c9e")
 DISPLAY_LIMIT = 4000
+FLIP_SHOWN = 20
 
 
 def to_json(expl: Explanation, model=None) -> dict:
@@ -181,7 +183,7 @@ def render(expl: Explanation, console: Console, top: int = 10) -> None:
         table.add_column("evidence (log-odds)", justify="right")
         table.add_column("odds", justify="right")
         for t in rows:
-            table.add_row(Text(t.token), str(t.occurrences), f"{t.value:.4g}", _signed(t.evidence), _odds(t.odds_factor))
+            table.add_row(Text(shown(t.token)), str(t.occurrences), f"{t.value:.4g}", _signed(t.evidence), _odds(t.odds_factor))
         if not rows:
             table.add_row("(none)", "", "", "", "")
         console.print(table)
@@ -194,7 +196,7 @@ def render(expl: Explanation, console: Console, top: int = 10) -> None:
         f"  (odds {_odds(math.exp(min(expl.log_odds, 700)))})"
     )
     if expl.unknown_tokens:
-        names = ", ".join(f"{t}" + (f" x{n}" if n > 1 else "") for t, n in expl.unknown_tokens[:15])
+        names = ", ".join(shown(t) + (f" x{n}" if n > 1 else "") for t, n in expl.unknown_tokens[:15])
         more = len(expl.unknown_tokens) - 15
         console.print(
             f"not in the vocabulary (no effect): {names}" + (f" and {more} more" if more > 0 else ""),
@@ -202,7 +204,9 @@ def render(expl: Explanation, console: Console, top: int = 10) -> None:
         )
     flip = expl.flip
     if flip.removals:
-        items = ", ".join(f"'{t}'" + (f" x{n}" if n > 1 else "") for t, n in flip.removals)
+        items = ", ".join(f"'{shown(t)}'" + (f" x{n}" if n > 1 else "") for t, n in flip.removals[:FLIP_SHOWN])
+        if len(flip.removals) > FLIP_SHOWN:
+            items += f" and {len(flip.removals) - FLIP_SHOWN} more tokens ({flip.size} occurrences in all; the JSON lists them)"
         label = "the smallest such set" if flip.exact else "found greedily, re-scored exactly; may not be the smallest"
         console.print(f"removing {items} changes the decision to {flip.new_decision} ({label})", markup=False)
     else:
