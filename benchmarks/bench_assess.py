@@ -21,11 +21,11 @@ import scipy.sparse as sp
 from sklearn.metrics import roc_auc_score
 from sklearn.naive_bayes import MultinomialNB
 
-from explain.assessment import assess
-from explain.batch import batch_evidence
-from explain.decision import DecisionRule
-from explain.model_view import view_of
-from explain.stats import delong_auc
+from explain.analysis.assessment import assess
+from explain.analysis.batch import batch_evidence
+from explain.model.decision import DecisionRule
+from explain.model.model_view import view_of
+from explain.analysis.stats import delong_auc
 
 
 def synthetic(n: int, n_features: int = 5000, seed: int = 0):

@@ -25,11 +25,11 @@ import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
-from explain.batch import evidence_matrix, score_texts, top_two
-from explain.featurizer import Featurizer
-from explain.loading import LoadedModel
-from explain.model_view import view_of
-from explain.training import TrainSettings, train_filter
+from explain.analysis.batch import evidence_matrix, score_texts, top_two
+from explain.model.featurizer import Featurizer
+from explain.model.loading import LoadedModel
+from explain.model.model_view import view_of
+from explain.model.training import TrainSettings, train_filter
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -79,9 +79,9 @@ def best_of(repeat: int, fn):
 
 
 def main() -> None:
-    from explain.loading import load_model
-    from explain.risk import Watchlist, token_traits
-    from explain.vocab import review_vocabulary
+    from explain.model.loading import load_model
+    from explain.analysis.risk import Watchlist, token_traits
+    from explain.analysis.vocab import review_vocabulary
 
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--features", type=int, default=1_000_000)

@@ -1,8 +1,61 @@
 """nbledger: exact explanations, vocabulary review and assessment of naive Bayes filters.
 
-Data flows one way: load (:mod:`explain.loading`, :mod:`explain.data_io`) ->
-compute (:mod:`explain.evidence`, :mod:`explain.batch`, ...) -> present
-(the command line in :mod:`explain.cli`, pictures, files).
+The public Python API lives here, so the inside can move without breaking users::
+
+    from explain import load_model, explain_message, read_messages, assess
+
+Data flows one way, and the folders show the layers:
+
+- :mod:`explain.model` loads: model files, text steps, decision rules, data files, training;
+- :mod:`explain.analysis` computes: pure functions returning frozen result objects;
+- :mod:`explain.present` presents those objects: terminal, JSON, pictures, the report;
+- :mod:`explain.cli` is the thin command line on top.
+
+Every import points down that list. Names are imported on first use, so that
+``nbledger --help`` does not pay for scikit-learn.
 """
 
+from __future__ import annotations
+
+import importlib
+
 __version__ = "0.1.0"
+
+_PUBLIC = {
+    "NbledgerError": "explain.errors",
+    "load_model": "explain.model.loading",
+    "LoadedModel": "explain.model.loading",
+    "read_messages": "explain.model.data_io",
+    "Messages": "explain.model.data_io",
+    "DecisionRule": "explain.model.decision",
+    "ModelView": "explain.model.model_view",
+    "TrainSettings": "explain.model.training",
+    "train_filter": "explain.model.training",
+    "explain_message": "explain.analysis.evidence",
+    "Explanation": "explain.analysis.evidence",
+    "score_texts": "explain.analysis.batch",
+    "batch_evidence": "explain.analysis.batch",
+    "BatchEvidence": "explain.analysis.batch",
+    "review_vocabulary": "explain.analysis.vocab",
+    "VocabReview": "explain.analysis.vocab",
+    "read_watchlist": "explain.analysis.risk",
+    "assess": "explain.analysis.assessment",
+    "Assessment": "explain.analysis.assessment",
+    "wilson_interval": "explain.analysis.stats",
+    "delong_auc": "explain.analysis.stats",
+}
+
+__all__ = sorted(_PUBLIC) + ["__version__"]
+
+
+def __getattr__(name: str):
+    module = _PUBLIC.get(name)
+    if module is None:
+        raise AttributeError(f"module 'explain' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return __all__

@@ -9,9 +9,9 @@ from sklearn.feature_extraction.text import CountVectorizer, TfidfTransformer, T
 from sklearn.naive_bayes import BernoulliNB, ComplementNB, MultinomialNB
 from sklearn.pipeline import Pipeline
 
-from explain.featurizer import Featurizer
-from explain.loading import LoadedModel
-from explain.model_view import view_of
+from explain.model.featurizer import Featurizer
+from explain.model.loading import LoadedModel
+from explain.model.model_view import view_of
 
 WORDS = [
     "fee", "parcel", "link", "sofa", "drill", "ladder", "raffle", "prize", "club", "courier",
@@ -45,7 +45,7 @@ def make_pipeline(kind: str, variant: str, ngrams=(1, 1), alpha=1.0, analyzer="w
 
 
 def loaded(pipeline: Pipeline, normal_class=None) -> LoadedModel:
-    """What :func:`explain.loading.load_model` builds, without a file."""
+    """What :func:`explain.model.loading.load_model` builds, without a file."""
     *text_steps, clf = [s for _, s in pipeline.steps]
     featurizer = Featurizer(*text_steps)
     view = view_of(clf, featurizer.tokens, featurizer.feature_kind, normal_class)

@@ -10,10 +10,10 @@ import pandas as pd
 import pytest
 from PIL import Image
 
-from explain.assessment import assess
+from explain.analysis.assessment import assess
 from explain.cli import run
-from explain.data_io import read_messages
-from explain.loading import load_model
+from explain.model.data_io import read_messages
+from explain.model.loading import load_model
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_corpus" / "messages.csv"

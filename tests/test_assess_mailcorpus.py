@@ -20,8 +20,8 @@ from sklearn.metrics import (
 from sklearn.naive_bayes import MultinomialNB
 
 from benchmarks import mailcorpus
-from explain.assessment import assess
-from explain.model_view import view_of
+from explain.analysis.assessment import assess
+from explain.model.model_view import view_of
 
 pytestmark = pytest.mark.mailcorpus
 

@@ -18,9 +18,9 @@ from sklearn.metrics import (
 )
 from sklearn.naive_bayes import BernoulliNB, ComplementNB, MultinomialNB
 
-from explain.assessment import PER_MESSAGES, assess
+from explain.analysis.assessment import PER_MESSAGES, assess
 from explain.errors import NbledgerError
-from explain.model_view import ModelView, view_of
+from explain.model.model_view import ModelView, view_of
 
 CLASSES = ("advert", "ok", "scam")
 VARIANTS = {"multinomial": MultinomialNB, "complement": ComplementNB, "bernoulli": BernoulliNB}

@@ -97,7 +97,7 @@ def test_other_formats_train_the_same_model(tmp_path, csv_file, capsys, suffix):
     a = json.loads((tmp_path / "x.card.json").read_text())
     b = json.loads((tmp_path / "y.card.json").read_text())
     assert a["data"]["rows_per_class"] == b["data"]["rows_per_class"]
-    from explain.loading import load_model
+    from explain.model.loading import load_model
 
     x, y = load_model(tmp_path / "x.skops").view, load_model(tmp_path / "y.skops").view
     assert list(x.tokens) == list(y.tokens) and (x.weights == y.weights).all()

@@ -10,10 +10,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from corpora import cases, loaded, make_pipeline, messages
-from explain.batch import batch_evidence, score_texts
-from explain.decision import DecisionRule
+from explain.analysis.batch import batch_evidence, score_texts
+from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
-from explain.evidence import explain_message
+from explain.analysis.evidence import explain_message
 
 PROPERTY = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

@@ -11,8 +11,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from corpora import WORDS, cases
-from explain.decision import DecisionRule
-from explain.evidence import _presence_only, explain_message
+from explain.model.decision import DecisionRule
+from explain.analysis.evidence import _presence_only, explain_message
 
 short_messages = st.lists(st.sampled_from(WORDS[:8]), min_size=1, max_size=6).map(" ".join)
 PROPERTY = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])

@@ -18,7 +18,7 @@ from sklearn.pipeline import make_pipeline
 
 from clirun import nbledger
 from explain.errors import NbledgerError
-from explain.loading import card_path_for, load_model
+from explain.model.loading import card_path_for, load_model
 
 TEXTS = ["pay the parcel fee", "fee link now", "tea at the workshop", "kids tea party"]
 LABELS = ["scam", "scam", "ok", "ok"]

@@ -1,4 +1,4 @@
-"""Risk flags on vocabulary tokens, redaction and watchlists (explain.risk)."""
+"""Risk flags on vocabulary tokens, redaction and watchlists (explain.analysis.risk)."""
 
 import string
 
@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from explain.errors import NbledgerError
-from explain.risk import (
+from explain.analysis.risk import (
     FLAGS,
     PERSONAL_KINDS,
     RiskThresholds,
@@ -115,7 +115,7 @@ def test_a_cyrillic_letter_inside_a_latin_word_is_mixed_script(word, glyph, data
 
 
 def test_compatibility_forms_and_unspaced_scripts_do_not_count_as_mixing():
-    # Decisions documented in explain.risk: NFKD decides the script; Han, kana and Hangul
+    # Decisions documented in explain.analysis.risk: NFKD decides the script; Han, kana and Hangul
     # next to Latin are ordinary writing.
     traits = token_traits(["naïve", "ｆree", "ªpple", "solaris上にあります", "it분야에서는", "ρa", "ѡa"])
     assert traits.mixed_script.tolist() == [False, False, False, False, False, True, True]

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from sklearn.feature_extraction.text import CountVectorizer
 
-from explain.featurizer import Featurizer
+from explain.model.featurizer import Featurizer
 
 FIT = ["Parcel fee due", "tea at the Workshop", "the drill is free", "café au lait"]
 # Text with mixed case, punctuation, runs of white space and accented letters.

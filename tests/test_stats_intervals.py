@@ -1,4 +1,4 @@
-"""Wilson score intervals and DeLong's AUC variance (explain.stats)."""
+"""Wilson score intervals and DeLong's AUC variance (explain.analysis.stats)."""
 
 import numpy as np
 import pytest
@@ -8,7 +8,7 @@ from hypothesis import strategies as st
 from scipy.stats import binomtest
 from sklearn.metrics import roc_auc_score
 
-from explain.stats import delong_auc, wilson_interval
+from explain.analysis.stats import delong_auc, wilson_interval
 
 
 # Newcombe (1998), Statistics in Medicine 17(8), Table I, method 3 (score

@@ -1,4 +1,4 @@
-"""Association statistics of 2x2 tables (explain.stats: pearson_chi2, dunning_g2, mutual_information)."""
+"""Association statistics of 2x2 tables (explain.analysis.stats: pearson_chi2, dunning_g2, mutual_information)."""
 
 import math
 
@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 from scipy.stats import chi2_contingency
 from sklearn.metrics import mutual_info_score
 
-from explain.stats import dunning_g2, mutual_information, pearson_chi2
+from explain.analysis.stats import dunning_g2, mutual_information, pearson_chi2
 
 cell = st.integers(0, 10**6)
 tables = st.tuples(cell, cell, cell, cell)

@@ -1,4 +1,4 @@
-"""The vocabulary review: lenses, contrasts, tables, rankings (explain.vocab)."""
+"""The vocabulary review: lenses, contrasts, tables, rankings (explain.analysis.vocab)."""
 
 import math
 
@@ -12,9 +12,9 @@ from scipy.stats import chi2_contingency
 from sklearn.naive_bayes import BernoulliNB, ComplementNB, MultinomialNB
 
 from explain.errors import NbledgerError
-from explain.model_view import view_of
-from explain.risk import FLAGS, Watchlist
-from explain.vocab import (
+from explain.model.model_view import view_of
+from explain.analysis.risk import FLAGS, Watchlist
+from explain.analysis.vocab import (
     LENSES,
     REST,
     document_counts,
@@ -28,7 +28,7 @@ def direct_monroe(y_t, y_o, a0=None):
     """Monroe, Colaresi & Quinn (2008), Political Analysis 16(4), section 3.5 (from memory):
     informative Dirichlet prior alpha_w = a0 * pi_w with pi from the pooled counts,
     delta_w = log-odds(t) - log-odds(o), var = 1/(y_t + alpha) + 1/(y_o + alpha).
-    Written word by word with math.log, independently of explain.vocab."""
+    Written word by word with math.log, independently of explain.analysis.vocab."""
     n_t, n_o = sum(y_t), sum(y_o)
     total = n_t + n_o
     a0 = total if a0 is None else a0

@@ -15,12 +15,12 @@ from sklearn.feature_extraction.text import CountVectorizer
 from sklearn.naive_bayes import MultinomialNB
 from sklearn.pipeline import Pipeline
 
-from explain import pictures
+from explain.present import drawing, vocab_pictures as pictures
 from explain.cli import run
-from explain.data_io import read_messages
-from explain.loading import load_model
-from explain.risk import FLAGS
-from explain.vocab import LENSES, document_counts, review_vocabulary
+from explain.model.data_io import read_messages
+from explain.model.loading import load_model
+from explain.analysis.risk import FLAGS
+from explain.analysis.vocab import LENSES, document_counts, review_vocabulary
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_corpus" / "messages.csv"
@@ -99,7 +99,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
                  "documents_other", "n11", "n10", "n01", "n00"]
                 + [f"rank_{lens}" for lens in LENSES] + list(FLAGS) + ["personal_kind"])
     assert list(table.columns) == expected
-    import explain.present_vocab as presenter
+    import explain.present.vocab as presenter
     for column in expected:
         documented = column.startswith(("rank_", "support_", "n1", "n0")) or column in FLAGS
         assert f"``{column}``" in presenter.__doc__ or documented
@@ -291,7 +291,7 @@ def _linear(hex_colour):
 
 
 def test_palette_stays_distinguishable_under_colour_vision_deficiencies():
-    bases = ["#ffffff", pictures.NEUTRAL.base] + [f.base for f in pictures.PALETTE]
+    bases = ["#ffffff", drawing.NEUTRAL.base] + [f.base for f in drawing.PALETTE]
     for name, matrix in CVD.items():
         for a, b in itertools.combinations(bases, 2):
             distance = np.linalg.norm(_lab(matrix @ _linear(a)) - _lab(matrix @ _linear(b)))
@@ -299,9 +299,9 @@ def test_palette_stays_distinguishable_under_colour_vision_deficiencies():
 
 
 def test_normal_class_and_rest_are_drawn_neutral_and_shades_darken():
-    colours = pictures.class_colours(("advert", "ok", "scam"), "ok")
-    assert colours["ok"] is pictures.NEUTRAL and colours["rest"] is pictures.NEUTRAL
-    assert colours["advert"] is pictures.PALETTE[0] and colours["scam"] is pictures.PALETTE[1]
-    for family in pictures.PALETTE:
+    colours = drawing.class_colours(("advert", "ok", "scam"), "ok")
+    assert colours["ok"] is drawing.NEUTRAL and colours["rest"] is drawing.NEUTRAL
+    assert colours["advert"] is drawing.PALETTE[0] and colours["scam"] is drawing.PALETTE[1]
+    for family in drawing.PALETTE:
         lightness = [_lab(_linear(family.shade(s)))[0] for s in np.linspace(0, 1, 6)]
         assert all(np.diff(lightness) < 0)

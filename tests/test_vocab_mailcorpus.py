@@ -13,8 +13,8 @@ from sklearn.feature_extraction.text import CountVectorizer
 from sklearn.naive_bayes import MultinomialNB
 
 from benchmarks import mailcorpus
-from explain.model_view import view_of
-from explain.vocab import review_vocabulary
+from explain.model.model_view import view_of
+from explain.analysis.vocab import review_vocabulary
 
 pytestmark = pytest.mark.mailcorpus
 

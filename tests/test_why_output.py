@@ -8,8 +8,8 @@ import math
 import pytest
 
 from clirun import nbledger
-from explain.present_why import SCHEMA
-from explain.token_display import shown
+from explain.present.why import SCHEMA
+from explain.present.token_display import shown
 
 DOCUMENTED_KEYS = {
     "schema", "model", "classes", "predicted", "runner_up", "probabilities", "log_odds", "baseline",

@@ -47,7 +47,7 @@ def warn(message: str) -> None:
 
 def read_messages_or_fail(data: Path, text_col: str, label_col: str | None = None):
     """Read a data file; say how many invalid UTF-8 sequences were replaced."""
-    from explain.data_io import read_messages
+    from explain.model.data_io import read_messages
 
     messages = read_messages(data, text_col, label_col)
     if messages.replaced_chars:
@@ -80,7 +80,7 @@ def deliver(*, text: str | None, out: Path | None, pictures: dict, images: Path 
 
 def load_model_or_fail(model: Path, *, vectorizer=None, allow_pickle=False, trust=(), normal_class=None):
     """The CLI's one way to load a model: warnings to stderr, errors as one line."""
-    from explain.loading import load_model
+    from explain.model.loading import load_model
 
     return load_model(
         model,

@@ -69,9 +69,9 @@ def assess(
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
-    from explain.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
-    from explain.assessment import assess as run_assessment
-    from explain.present_assessment import render, to_json
+    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
+    from explain.analysis.assessment import assess as run_assessment
+    from explain.present.assessment import render, to_json
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
@@ -99,7 +99,7 @@ def assess(
 
     pictures = {}
     if images is not None:
-        from explain.assess_pictures import draw_all
+        from explain.present.assess_pictures import draw_all
 
         if images.exists() and not images.is_dir():
             fail(f"--images must be a folder; {images} is a file")

@@ -31,8 +31,8 @@ def train(
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
 
-    from explain.loading import card_path_for, sha256_of
-    from explain.training import TrainSettings, model_card, parse_ngrams, train_filter
+    from explain.model.loading import card_path_for, sha256_of
+    from explain.model.training import TrainSettings, model_card, parse_ngrams, train_filter
 
     settings = TrainSettings(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,

@@ -47,8 +47,8 @@ def vocab(
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
 ):
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
-    from explain.risk import RiskThresholds, read_watchlist
-    from explain.vocab import LENSES, document_counts, review_vocabulary
+    from explain.analysis.risk import RiskThresholds, read_watchlist
+    from explain.analysis.vocab import LENSES, document_counts, review_vocabulary
 
     if output_format not in FORMATS:
         fail(f"--format must be text, csv or json, got {output_format!r}")
@@ -86,11 +86,11 @@ def vocab(
         redact_personal=redact,
     )
 
-    from explain.present_vocab import render, to_csv, to_json
+    from explain.present.vocab import render, to_csv, to_json
 
     pictures = {}
     if images is not None:
-        from explain.pictures import draw_all
+        from explain.present.vocab_pictures import draw_all
 
         pictures = draw_all(review)
     if output_format == "json":

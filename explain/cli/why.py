@@ -18,7 +18,7 @@ MAX_MESSAGE_BYTES = 1024 * 1024
 
 def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MESSAGE_BYTES) -> str:
     """The message from the argument, a file, or standard input (``-``)."""
-    from explain.data_io import decode_utf8
+    from explain.model.data_io import decode_utf8
 
     too_big = f"the message is larger than {limit:,} bytes; raise --max-bytes if it is genuine"
     if text is not None and file is not None:
@@ -62,8 +62,8 @@ def why(
     max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
 ):
     """Why did the filter score this message the way it did?"""
-    from explain.evidence import explain_message
-    from explain.present_why import render, to_json
+    from explain.analysis.evidence import explain_message
+    from explain.present.why import render, to_json
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")

@@ -5,7 +5,7 @@ The assessment answers an auditor's questions on the data it is given:
 - how often each class occurs (base rates), and what the filter decided for
   each (confusion matrices, per class and *flagged versus normal*), with
   precision, recall, specificity, false-positive rate, F1 and accuracy, each
-  with a Wilson score interval (see :mod:`explain.stats`);
+  with a Wilson score interval (see :mod:`explain.analysis.stats`);
 - how well its score ranks abuse above normal traffic: ROC curve and AUC with
   DeLong's interval, precision-recall curve and average precision (one class
   against the rest for more than two classes);
@@ -17,7 +17,7 @@ The assessment answers an auditor's questions on the data it is given:
 
 Thresholds act on the probability that a message is *not normal*. The score
 is the flag log-odds ``log P(not normal) - log P(normal)`` from
-:class:`explain.batch.BatchEvidence`: naive Bayes probabilities pile up at 0
+:class:`explain.analysis.batch.BatchEvidence`: naive Bayes probabilities pile up at 0
 and 1 where many messages round to exactly 1.0, while their log-odds stay
 distinct, so every ranking and threshold here works on the log-odds. A
 message is flagged at threshold ``tau`` when its log-odds is at least ``tau``
@@ -37,11 +37,11 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.special import expit
 
-from explain.batch import BatchEvidence, batch_evidence, evidence_matrix, top_k_per_row
-from explain.decision import DecisionRule
+from explain.analysis.batch import BatchEvidence, batch_evidence, evidence_matrix, top_k_per_row
+from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
-from explain.model_view import ModelView
-from explain.stats import AucEstimate, delong_auc, wilson_interval
+from explain.model.model_view import ModelView
+from explain.analysis.stats import AucEstimate, delong_auc, wilson_interval
 
 DEFAULT_TARGET_FPR = (0.001, 0.005, 0.01)
 DEFAULT_TARGET_RECALL = (0.90, 0.95, 0.99)
@@ -708,7 +708,7 @@ def assess(
 
     Parameters
     ----------
-    view : the model's :class:`~explain.model_view.ModelView` (its
+    view : the model's :class:`~explain.model.model_view.ModelView` (its
         ``normal_class`` names the class that lets a message through; with two
         classes and none named, the first class is taken as normal).
     X : the vectorizer's feature matrix of the messages, shape (n, F).
@@ -723,14 +723,14 @@ def assess(
     top : how many errors, borderline messages and error drivers to list.
     top_tokens : how many tokens for and against in each message's summary.
     confidence : level of every interval.
-    evidence : the :func:`~explain.batch.batch_evidence` of ``X`` under the
+    evidence : the :func:`~explain.analysis.batch.batch_evidence` of ``X`` under the
         same threshold, when the messages are already scored.
 
     Examples
     --------
     >>> from sklearn.feature_extraction.text import CountVectorizer
     >>> from sklearn.naive_bayes import MultinomialNB
-    >>> from explain.model_view import view_of
+    >>> from explain.model.model_view import view_of
     >>> texts = ["pay the fee now", "meeting at the boathouse", "fee for prize", "boathouse rota"]
     >>> labels = ["scam", "ok", "scam", "ok"]
     >>> vec = CountVectorizer().fit(texts)

@@ -25,8 +25,8 @@ from pathlib import Path
 from typing import Callable
 
 from explain.errors import NbledgerError
-from explain.featurizer import Featurizer
-from explain.model_view import ModelView, view_of
+from explain.model.featurizer import Featurizer
+from explain.model.model_view import ModelView, view_of
 
 CARD_SUFFIX = ".card.json"
 _CARD_LIMIT = 1 << 20

@@ -1,7 +1,7 @@
 """Why one message got its score: an exact, per-token account.
 
 For a naive Bayes filter the joint log-likelihood of class ``c`` is
-``b[c] + sum_j x_j W[c, j]`` (see :mod:`explain.model_view`). Comparing the
+``b[c] + sum_j x_j W[c, j]`` (see :mod:`explain.model.model_view`). Comparing the
 predicted class ``A`` with the runner-up ``B``::
 
     log_odds = jll[A] - jll[B] = (b[A] - b[B]) + sum_j x_j (W[A, j] - W[B, j])
@@ -28,10 +28,10 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from explain.batch import top_two
-from explain.decision import DecisionRule
+from explain.analysis.batch import top_two
+from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
-from explain.featurizer import Occurrences, unknown_tokens
+from explain.model.featurizer import Occurrences, unknown_tokens
 
 #: Greedy flip search stops after this many removals (a cost bound for huge messages).
 GREEDY_STEP_LIMIT = 400

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from explain.decision import DecisionRule
-from explain.model_view import ModelView
+from explain.model.decision import DecisionRule
+from explain.model.model_view import ModelView
 
 
 @dataclass(frozen=True, eq=False)

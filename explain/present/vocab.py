@@ -1,4 +1,4 @@
-"""Presenting a :class:`~explain.vocab.VocabReview`: terminal, CSV and JSON.
+"""Presenting a :class:`~explain.analysis.vocab.VocabReview`: terminal, CSV and JSON.
 
 Nothing here computes a figure; everything written is read from the review.
 Log-odds are natural logarithms; mutual information is in bits. Files carry
@@ -65,9 +65,9 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.risk import FLAGS, PERSONAL_KINDS
-from explain.token_display import shown
-from explain.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
+from explain.analysis.risk import FLAGS, PERSONAL_KINDS
+from explain.present.token_display import shown
+from explain.analysis.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
 
 SCHEMA = "nbledger.vocab/1"
 VALUE_COLUMNS = ("zscore", "weighted_log_odds", "ratio", "mass", "chi2", "g2", "mi", "direction")

@@ -1,4 +1,4 @@
-"""Presenting an :class:`~explain.assessment.Assessment`: terminal and JSON.
+"""Presenting an :class:`~explain.analysis.assessment.Assessment`: terminal and JSON.
 
 Nothing here computes a figure; everything printed is read from the result.
 
@@ -11,7 +11,7 @@ key                 meaning
 ``model``           ``{path, sha256}`` of the model file, or null
 ``data``            ``{path, sha256}`` of the data file, or null
 ``assessment``      the result, field for field as the dataclasses in
-                    :mod:`explain.assessment` name them: nested objects for
+                    :mod:`explain.analysis.assessment` name them: nested objects for
                     nested results, lists for tuples and arrays (matrices as
                     lists of rows)
 ==================  ============================================================
@@ -32,8 +32,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.assessment import Assessment, OperatingPoint, Rate, ReviewedMessage
-from explain.token_display import shown
+from explain.analysis.assessment import Assessment, OperatingPoint, Rate, ReviewedMessage
+from explain.present.token_display import shown
 
 SCHEMA = "nbledger.assess/1"
 

@@ -1,4 +1,4 @@
-"""Presenting an :class:`~explain.evidence.Explanation`: terminal and JSON.
+"""Presenting an :class:`~explain.analysis.evidence.Explanation`: terminal and JSON.
 
 Nothing here computes a score; every figure comes from the explanation.
 
@@ -46,8 +46,8 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.evidence import Explanation
-from explain.token_display import shown
+from explain.analysis.evidence import Explanation
+from explain.present.token_display import shown
 
 SCHEMA = "nbledger.why/1"
 

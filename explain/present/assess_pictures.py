@@ -1,9 +1,9 @@
-"""Pictures of an :class:`~explain.assessment.Assessment` (PNG, matplotlib Agg).
+"""Pictures of an :class:`~explain.analysis.assessment.Assessment` (PNG, matplotlib Agg).
 
 ROC curve, precision-recall curve, reliability diagram and the score
 distribution per class on the log-odds scale. Everything drawn is read from
 the result; nothing is recomputed. Colours and the PNG writer are the
-project's (:mod:`explain.pictures`), so a class looks the same in every picture.
+project's (:mod:`explain.present.vocab_pictures`), so a class looks the same in every picture.
 """
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from explain.assessment import FLAGGED, Assessment
-from explain.pictures import NEUTRAL, PALETTE, class_colours, png_bytes
+from explain.analysis.assessment import FLAGGED, Assessment
+from explain.present.drawing import NEUTRAL, PALETTE, class_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold): the darkest neutral shade.
 MARK = NEUTRAL.shade(1.0)
@@ -21,7 +21,7 @@ MARK = NEUTRAL.shade(1.0)
 def _colours(result: Assessment) -> dict[str, str]:
     """Line colour per positive class and for "flagged", from the project's palette.
 
-    Classes keep their family from :func:`explain.pictures.class_colours`. With
+    Classes keep their family from :func:`explain.present.vocab_pictures.class_colours`. With
     one flagged class, "flagged" is that class; with more, it takes the next
     unused family.
     """

@@ -1,4 +1,4 @@
-"""Pictures of a :class:`~explain.vocab.VocabReview` (PNG, matplotlib's Agg renderer).
+"""Pictures of a :class:`~explain.analysis.vocab.VocabReview` (PNG, matplotlib's Agg renderer).
 
 - a word cloud per side of each comparison, word sizes proportional to the
   chosen lens (not to frequency), laid out with a fixed seed so the same
@@ -10,84 +10,23 @@ Everything drawn is read from the review; nothing is recomputed. Redaction
 happens in the review itself, so a redacted review has no personal token to
 draw.
 
-The palette
------------
-:data:`PALETTE` holds the colour families of the project's pictures, one per
-class; the normal class (and "rest") is drawn in :data:`NEUTRAL`. The base
-colours were chosen so that every pair, and each against white, stays at
-least 27 CIELAB units apart (CIE76) in normal vision and in the protanopia,
-deuteranopia and tritanopia simulations of Machado, Oliveira & Fernandes
-2009, "A physiologically-based model for simulation of color vision
-deficiency", IEEE TVCG 15(6) (severity 1). With more than five flagged
-classes the families repeat. Lighter and darker shades of a family come from
-mixing its base with white or black (:meth:`ColourFamily.shade`).
+The colours come from :mod:`explain.present.drawing`, the same in every picture.
 """
 
 from __future__ import annotations
 
-import io
 import re
-from dataclasses import dataclass
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
-from matplotlib.colors import to_hex, to_rgb
 from matplotlib.figure import Figure
 
-from explain.risk import FLAGS
-from explain.token_display import shown
-from explain.vocab import LENS_TITLES, REST, Contrast, VocabReview
+from explain.analysis.risk import FLAGS
+from explain.present.token_display import shown
+from explain.analysis.vocab import LENS_TITLES, REST, Contrast, VocabReview
+from explain.present.drawing import DPI, NEUTRAL, class_colours, png_bytes
 
-DPI = 200
 SEED = 20_240_601
 CLOUD_WORDS = 80
-
-
-@dataclass(frozen=True)
-class ColourFamily:
-    """A named base colour and the shades made from it."""
-
-    name: str
-    base: str
-
-    def shade(self, strength: float) -> str:
-        """A shade from light (``strength`` 0: base mixed half with white) to dark (1: a third black)."""
-        strength = float(np.clip(strength, 0.0, 1.0))
-        rgb = np.array(to_rgb(self.base))
-        light, dark = rgb + 0.5 * (1.0 - rgb), rgb * (2.0 / 3.0)
-        # light -> base over the first half, base -> dark over the second
-        if strength < 0.5:
-            mixed = light + (rgb - light) * (strength / 0.5)
-        else:
-            mixed = rgb + (dark - rgb) * ((strength - 0.5) / 0.5)
-        return to_hex(mixed)
-
-
-PALETTE = (
-    ColourFamily("ember orange", "#e5801a"),
-    ColourFamily("heather purple", "#8c2fc0"),
-    ColourFamily("crimson", "#a3162a"),
-    ColourFamily("sky blue", "#5aa8de"),
-    ColourFamily("sand", "#c4a27c"),
-)
-NEUTRAL = ColourFamily("slate grey", "#6b7378")
-
-
-def class_colours(classes, normal_class: str | None = None) -> dict[str, ColourFamily]:
-    """Colour family of each class (and of ``"rest"``): the normal class is neutral."""
-    flagged = [c for c in classes if c != normal_class]
-    colours = {c: PALETTE[i % len(PALETTE)] for i, c in enumerate(flagged)}
-    if normal_class is not None:
-        colours[normal_class] = NEUTRAL
-    colours[REST] = NEUTRAL
-    return colours
-
-
-def png_bytes(fig: Figure) -> bytes:
-    FigureCanvasAgg(fig)
-    buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI, bbox_inches="tight", metadata={"Software": None})
-    return buffer.getvalue()
 
 
 def _side_names(c: Contrast, side: str) -> tuple[str, str]:

@@ -11,7 +11,7 @@ Lenses (one column each; ``LENSES`` lists those a ranking can use)
 -------------------------------------------------------------------
 ``ratio``
     What one occurrence adds to the log-odds of target against other:
-    ``W[target, j] - W[other, j]`` (see :mod:`explain.model_view` for ``W``).
+    ``W[target, j] - W[other, j]`` (see :mod:`explain.model.model_view` for ``W``).
     Against ``rest`` the other classes are pooled by the model itself: the
     ratio is how much one occurrence of the token, alone in a message,
     changes ``log P(target) - log P(any other class)``, i.e.
@@ -40,7 +40,7 @@ Lenses (one column each; ``LENSES`` lists those a ranking can use)
     otherwise): the evidence the token contributes on a typical message.
 ``chi2``, ``g2``, ``mi``
     Pearson's chi-square, Dunning's G2 and the mutual information (bits) of
-    the 2x2 table token-versus-class (:mod:`explain.stats`). They carry no
+    the 2x2 table token-versus-class (:mod:`explain.analysis.stats`). They carry no
     sign; ``direction`` is +1 where the token goes with the target
     (``n11 n00 > n10 n01``), -1 where with the other side, and rankings use
     ``direction * statistic``. Which counts fill the tables is told by
@@ -54,7 +54,7 @@ Support and risk
 ``support_target``/``support_other`` are the model's training totals of the
 two sides (``feature_count_``: occurrences for count features);
 ``documents_target``/``documents_other`` the messages containing the token,
-when known. Risk flags are those of :mod:`explain.risk`.
+when known. Risk flags are those of :mod:`explain.analysis.risk`.
 """
 
 from __future__ import annotations
@@ -68,8 +68,8 @@ import scipy.sparse as sp
 from scipy.special import logsumexp
 
 from explain.errors import NbledgerError
-from explain.model_view import ModelView
-from explain.risk import (
+from explain.model.model_view import ModelView
+from explain.analysis.risk import (
     FLAGS,
     RiskThresholds,
     TokenTraits,
@@ -79,7 +79,7 @@ from explain.risk import (
     token_traits,
     watchlist_columns,
 )
-from explain.stats import dunning_g2, mutual_information, pearson_chi2
+from explain.analysis.stats import dunning_g2, mutual_information, pearson_chi2
 
 LENSES = ("zscore", "ratio", "mass", "chi2", "g2")
 #: How tables and pictures name each lens's values.
@@ -476,7 +476,7 @@ def review_vocabulary(
     Examples
     --------
     >>> from sklearn.naive_bayes import MultinomialNB
-    >>> from explain.model_view import view_of
+    >>> from explain.model.model_view import view_of
     >>> clf = MultinomialNB().fit([[5, 1, 0], [0, 1, 4]], ["ok", "scam"])
     >>> review = review_vocabulary(view_of(clf, ["moorings", "the", "prize"], "counts"))
     >>> c = review.contrasts[0]

@@ -1,0 +1,1 @@
+"""Load: model files, their text steps, decision rules, training and data files."""

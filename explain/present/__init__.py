@@ -1,0 +1,1 @@
+"""Present: terminal, JSON/CSV, pictures and the printable report; read results, never compute."""
