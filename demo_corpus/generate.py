@@ -326,7 +326,9 @@ class Filler:
         elif base == "plant":
             v = r.choice(PLANTS)
         elif base == "phone":
-            v = f"555-01{r.randrange(0, 100):02d}"
+            # 555-0190..0199 stay unused, so tests can plant a number the corpus never holds.
+            n = r.randrange(0, 100)
+            v = f"555-01{n - 10 if n >= 90 else n:02d}"
         elif base == "ip":
             v = f"192.0.2.{r.randrange(1, 255)}"
         elif base == "tok":
