@@ -5,7 +5,7 @@ Tideway Commons is an invented housing co-operative in the invented harbour
 town of Brackenmouth.  Its members' app carries direct messages; moderators
 sort them into ``ok``, ``scam`` and ``advert``.  Every name, street, business,
 number and address below is made up; personal-looking values come only from
-reserved ranges (example.org / example.net / example.com, 555-0100..555-0199,
+reserved ranges (example.org / example.net / example.com, 555-0100..555-0189,
 192.0.2.0/24).
 
 Usage::
