@@ -107,6 +107,8 @@ class Explanation:
     flip: FlipSet
     feature_kind: str
     variant: str
+    #: what was read from a raw e-mail (explain.analysis.mail_facts.MailFacts), else None
+    mail: object = None
 
     @property
     def evidence_sum(self) -> float:

@@ -79,6 +79,8 @@ class Limits:
     max_parts: int = 1000
     max_depth: int = 64
     max_decoded_bytes: int = 16 * 1024 * 1024
+    #: bytes read from one message file of a data set; the rest is cut off, and said.
+    max_message_bytes: int = 32 * 1024 * 1024
 
 
 @dataclass(frozen=True)
@@ -91,14 +93,26 @@ class Attachment:
     size: int | None
 
 
+#: Kinds of :class:`UndecodablePart`, and what was done instead of decoding.
+FALLBACKS = {
+    "unknown-charset": "charset unknown to Python; read as UTF-8",
+    "invalid-bytes": "bytes not valid in the charset became U+FFFD",
+    "bad-encoded-word": "RFC 2047 encoded word not decodable; kept as written",
+}
+
+
 @dataclass(frozen=True)
 class UndecodablePart:
     """A part or header read with a fallback: ``where`` it is, the ``charset`` it
-    declared, and ``fallback``, what was done instead."""
+    declared, and ``kind``, a key of :data:`FALLBACKS` saying what was done instead."""
 
     where: str
     charset: str
-    fallback: str
+    kind: str
+
+    @property
+    def fallback(self) -> str:
+        return FALLBACKS[self.kind]
 
 
 @dataclass(frozen=True)
@@ -118,6 +132,8 @@ class EmailText:
     attachments: tuple[Attachment, ...] = ()
     undecodable: tuple[UndecodablePart, ...] = ()
     problems: tuple[str, ...] = ()
+    #: True when the MIME structure could not be read and the raw text stands in for it
+    raw_fallback: bool = False
 
     def text(self, view: str = DEFAULT_VIEW) -> str:
         """The text a filter reads in ``view`` (one of :data:`VIEWS`)."""
@@ -299,7 +315,7 @@ class _Walk:
         try:
             return payload.decode(charset)
         except LookupError:  # unknown charset name (common in spam), or not a text codec
-            self.undecodable.append(UndecodablePart(where, charset, "unknown charset, read as UTF-8"))
+            self.undecodable.append(UndecodablePart(where, charset, "unknown-charset"))
             charset = "utf-8"
             try:
                 return payload.decode(charset)
@@ -308,7 +324,7 @@ class _Walk:
         except UnicodeDecodeError:
             pass
         self.undecodable.append(
-            UndecodablePart(where, declared or "none declared", f"bytes not valid in {charset} became U+FFFD")
+            UndecodablePart(where, declared or "none declared (read as UTF-8)", "invalid-bytes")
         )
         return payload.decode(charset, errors="replace")
 
@@ -362,7 +378,7 @@ def _header_lines(message: Message, walk: _Walk) -> list[str]:
             value = str(make_header(decode_header(raw_value)))
         except Exception:  # unknown charset or malformed encoded word: keep it as it came
             value = raw_value
-            walk.undecodable.append(UndecodablePart(f"{name} header", "encoded word", "kept as written"))
+            walk.undecodable.append(UndecodablePart(f"{name} header", "", "bad-encoded-word"))
         line = _valid_unicode(f"{name}: {' '.join(value.split())}")
         (first if name.lower() in ("subject", "from") else rest).append(line)
     return first + rest
@@ -386,7 +402,7 @@ def read_email(data: bytes, limits: Limits = Limits()) -> EmailText:
     walk = _Walk(limits)
     declared = len(_MULTIPART_DECLARATION.findall(data))
     if declared > limits.max_multiparts:
-        walk.note(f"{declared:,} multipart parts (limit {limits.max_multiparts:,}); the MIME structure was not read")
+        walk.note(f"more than {limits.max_multiparts:,} multipart parts; the MIME structure was not read")
         return _raw_fallback(data, walk)
     try:
         message = email.message_from_bytes(data, policy=_POLICY)
@@ -413,4 +429,30 @@ def read_email(data: bytes, limits: Limits = Limits()) -> EmailText:
 def _raw_fallback(data: bytes, walk: _Walk) -> EmailText:
     text = data[: walk.limits.max_decoded_bytes].decode("utf-8", errors="replace")
     head, _, body = text.partition("\n\n")
-    return EmailText(head, body, undecodable=tuple(walk.undecodable), problems=tuple(walk.problems))
+    return EmailText(
+        head, body, undecodable=tuple(walk.undecodable), problems=tuple(walk.problems), raw_fallback=True
+    )
+
+
+def summarise(emails, total: int | None = None) -> tuple[str, ...]:
+    """One line per kind of fallback or limit met among ``emails``, with its count.
+
+    For the warnings of a data set: ``"3 of 120 messages: charset unknown to Python;
+    read as UTF-8"``.
+    """
+    emails = list(emails)
+    total = len(emails) if total is None else total
+    lines = []
+    for kind, fallback in FALLBACKS.items():
+        hit = sum(any(u.kind == kind for u in e.undecodable) for e in emails)
+        if hit:
+            lines.append(f"{hit} of {total} messages: {fallback}")
+    only = sum(e.attachment_only for e in emails)
+    if only:
+        lines.append(f"{only} of {total} messages carry attachments and no text")
+    problems: dict[str, int] = {}
+    for e in emails:
+        for problem in e.problems:
+            problems[problem] = problems.get(problem, 0) + 1
+    lines.extend(f"{n} of {total} messages: {problem}" for problem, n in problems.items())
+    return tuple(lines)
