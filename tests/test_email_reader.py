@@ -160,7 +160,7 @@ def test_unknown_charset_is_read_as_utf8_and_listed_once():
     mail = read_email(raw)
     assert mail.body == "caf\u00e9 harbour\n"
     assert [(u.charset, u.kind) for u in mail.undecodable] == [("x-tideway-7", "unknown-charset")]
-    assert summarise([mail]) == ("1 of 1 messages: charset unknown to Python; read as UTF-8",)
+    assert summarise([mail]) == ("1 of 1 messages: unknown charset, read as UTF-8",)
 
 
 def test_bytes_not_in_the_charset_become_replacement_characters():

@@ -95,9 +95,9 @@ class Attachment:
 
 #: Kinds of :class:`UndecodablePart`, and what was done instead of decoding.
 FALLBACKS = {
-    "unknown-charset": "charset unknown to Python; read as UTF-8",
-    "invalid-bytes": "bytes not valid in the charset became U+FFFD",
-    "bad-encoded-word": "RFC 2047 encoded word not decodable; kept as written",
+    "unknown-charset": "unknown charset, read as UTF-8",
+    "invalid-bytes": "bytes not valid in the charset, now U+FFFD",
+    "bad-encoded-word": "RFC 2047 word not decodable, kept as written",
 }
 
 
@@ -437,8 +437,7 @@ def _raw_fallback(data: bytes, walk: _Walk) -> EmailText:
 def summarise(emails, total: int | None = None) -> tuple[str, ...]:
     """One line per kind of fallback or limit met among ``emails``, with its count.
 
-    For the warnings of a data set: ``"3 of 120 messages: charset unknown to Python;
-    read as UTF-8"``.
+    For the warnings of a data set: ``"3 of 120 messages: unknown charset, read as UTF-8"``.
     """
     emails = list(emails)
     total = len(emails) if total is None else total
