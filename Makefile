@@ -39,6 +39,7 @@ demo: install
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/parcel_fee.txt
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/raffle_prize.txt --threshold 0.9
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/parcel_fee.txt --format json > $(OUT)/why_parcel_fee.json
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --data $(OUT)/train.csv --text-col text --label-col label \
 		--watchlist demo_corpus/examples/watchlist.txt --redact --top 15 --images $(OUT)/vocab
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --format json --out $(OUT)/vocab.json
@@ -52,6 +53,7 @@ benchmark: install
 	$(BIN)/python -m benchmarks.bench_evidence
 	$(BIN)/python -m benchmarks.bench_vocab
 	$(BIN)/python -m benchmarks.bench_assess
+	$(BIN)/python -m benchmarks.bench_email
 
 clean:
 	rm -rf $(OUT) .pytest_cache .hypothesis
