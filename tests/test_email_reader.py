@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import tracemalloc
+from pathlib import Path
 from email.message import EmailMessage
 
 import pytest
@@ -275,3 +276,14 @@ def test_resolve_text_view_follows_the_card_and_refuses_a_mismatch():
         resolve_text_view(card, "body")
     with pytest.raises(NbledgerError, match="unknown text view"):
         resolve_text_view(None, "subject")
+
+
+_NOTICE = (Path(__file__).resolve().parent.parent / "demo_corpus" / "examples" / "notice.eml").read_bytes()
+
+
+@given(cut=st.integers(0, len(_NOTICE)), junk=st.binary(max_size=64), at=st.integers(0, len(_NOTICE)))
+def test_damaged_messages_never_raise(cut, junk, at):
+    damaged = _NOTICE[:at] + junk + _NOTICE[at:cut]
+    mail = read_email(damaged)
+    for view in ("body", "subject+body", "headers+body"):
+        mail.text(view).encode("utf-8")  # valid Unicode, no lone surrogates

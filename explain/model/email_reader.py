@@ -100,7 +100,7 @@ class Attachment:
 #: Kinds of :class:`UndecodablePart`, and what was done instead of decoding.
 FALLBACKS = {
     "unknown-charset": "unknown charset, read as UTF-8",
-    "invalid-bytes": "bytes not valid in the charset, now U+FFFD",
+    "invalid-bytes": "invalid bytes became U+FFFD",
     "bad-encoded-word": "RFC 2047 word not decodable, kept as written",
 }
 
@@ -328,7 +328,7 @@ class _Walk:
         except UnicodeDecodeError:
             pass
         self.undecodable.append(
-            UndecodablePart(where, declared or "none declared (read as UTF-8)", "invalid-bytes")
+            UndecodablePart(where, declared or "none declared", "invalid-bytes")
         )
         return payload.decode(charset, errors="replace")
 
