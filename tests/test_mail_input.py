@@ -296,3 +296,22 @@ def test_demo_examples_read_cleanly():
     assert any(m.attachments for m in read.values())
     for m in read.values():
         assert "@" in m.sender and m.sender.split("@")[1].rstrip(">") in ("example.org", "example.net", "example.com")
+
+
+def test_folder_reading_skips_symbolic_links(tmp_path):
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (outside / "secret.eml").write_bytes(as_email("not for training", "8bit", 9))
+    inbox = tmp_path / "inbox" / "ok"
+    inbox.mkdir(parents=True)
+    (inbox / "a.eml").write_bytes(as_email("tea at four", "8bit", 1))
+    (inbox / "link.eml").symlink_to(outside / "secret.eml")
+    (inbox / "linked-folder").symlink_to(outside, target_is_directory=True)
+    messages = read_data(tmp_path / "inbox", None, None, MailInput(labels_from_folders=True))
+    assert messages.texts == ["tea at four\n"]
+
+
+def test_a_table_starting_with_from_is_still_a_table(tmp_path):
+    path = tmp_path / "t.csv"
+    path.write_text("From ,text,label\nx,pay now,scam\n")
+    assert read_data(path, "text", "label").texts == ["pay now"]

@@ -4,8 +4,8 @@ Each message is read by :func:`explain.model.email_reader.read_email` and become
 text of one view; the result is the same :class:`~explain.model.data_io.Messages` that
 tables give, so every command reads e-mail and tables alike.
 
-- **Folder**: the ``*.eml`` files under it, in path order; symbolic links are skipped,
-  never followed. With ``labels_from_folders`` each sub-folder of the top folder is a
+- **Folder**: the ``*.eml`` files under it, in path order; symbolic links (to files or
+  folders) are skipped, never followed. With ``labels_from_folders`` each sub-folder of the top folder is a
   label and holds that label's messages; with ``label`` every message gets that label.
 - **mbox** (RFC 4155; recognised by a ``.mbox``/``.mbx`` suffix or a leading ``From ``
   line): every message, all with ``label``.
@@ -31,6 +31,7 @@ from explain.model.data_io import Messages, read_messages
 from explain.model.email_reader import DEFAULT_VIEW, EmailText, Limits, check_view, read_email, summarise
 
 MBOX_SUFFIXES = (".mbox", ".mbx")
+_TABLE_SUFFIXES = (".csv", ".jsonl", ".ndjson", ".parquet", ".gz")
 
 
 @dataclass(frozen=True)
@@ -53,10 +54,11 @@ class MailInput:
 
 
 def is_mbox(path: Path) -> bool:
+    """A ``.mbox``/``.mbx`` file, or a file of no table format that starts with ``From ``."""
     path = Path(path)
     if path.suffix.lower() in MBOX_SUFFIXES:
         return True
-    if not path.is_file():
+    if not path.is_file() or path.suffix.lower() in _TABLE_SUFFIXES:
         return False
     with open(path, "rb") as fh:
         return fh.read(5) == b"From "
