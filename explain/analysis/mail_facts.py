@@ -6,7 +6,8 @@ parts and headers read with a fallback, and the reading limits met. Redaction us
 personal-value detection of the vocabulary review (:func:`explain.analysis.risk.token_traits`):
 each whitespace-separated piece of the line, stripped of the punctuation that frames
 addresses (``<>"(),;``), that looks like an e-mail address, URL, IP address or phone
-number becomes ``[e-mail]``, ``[url]`` ...
+number becomes a numbered placeholder, ``[e-mail 1]``, ``[url 2]`` ..., as redaction does
+in the vocabulary review.
 """
 
 from __future__ import annotations
@@ -34,10 +35,10 @@ class MailFacts:
 
 
 def redact_line(line: str) -> str:
-    """``line`` with every piece that looks personal replaced by ``[<kind>]``.
+    """``line`` with every piece that looks personal replaced by ``[<kind> <n>]``.
 
     >>> redact_line('Harbour Office <office@example.org>')
-    'Harbour Office <[e-mail]>'
+    'Harbour Office <[e-mail 1]>'
     """
     pieces = [(m.start(), m.end(), m.group().strip(_FRAME)) for m in _PIECE.finditer(line)]
     if not pieces:
@@ -48,7 +49,7 @@ def redact_line(line: str) -> str:
         if kind < 0 or not core:
             continue
         at = line.index(core, start, end)
-        out.append(line[last:at] + f"[{PERSONAL_KINDS[kind]}]")
+        out.append(line[last:at] + f"[{PERSONAL_KINDS[kind]} {len(out) + 1}]")
         last = at + len(core)
     return "".join(out) + line[last:]
 
