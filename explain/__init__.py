@@ -43,6 +43,12 @@ _PUBLIC = {
     "Assessment": "explain.analysis.assessment",
     "wilson_interval": "explain.analysis.stats",
     "delong_auc": "explain.analysis.stats",
+    "read_email": "explain.model.email_reader",
+    "EmailText": "explain.model.email_reader",
+    "resolve_text_view": "explain.model.email_reader",
+    "read_data": "explain.model.mail_data",
+    "MailInput": "explain.model.mail_data",
+    "explain_email": "explain.analysis.mail_facts",
 }
 
 __all__ = sorted(_PUBLIC) + ["__version__"]

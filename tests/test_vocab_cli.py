@@ -229,7 +229,7 @@ BAD = [
      "no_advert.csv has no messages labelled advert", None),
     (["--data", "messages.csv", "--text-col", "text", "--label-col", "kind"],
      "messages.csv has no column 'kind'; columns found: id, sent_at, text, label", None),
-    (["--data", "messages.csv"], "--data needs --text-col and --label-col", None),
+    (["--data", "messages.csv"], "messages.csv is a table: give --text-col (and --label-col)", None),
     (["--by", "frequency"], "--by must be one of zscore, ratio, mass, chi2, g2", None),
     (["--format", "pdf"], "--format must be text, csv or json", None),
     (["--strong", "0.5"], "--strong is an odds factor and must be above 1", None),

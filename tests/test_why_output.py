@@ -15,7 +15,7 @@ DOCUMENTED_KEYS = {
     "schema", "model", "classes", "predicted", "runner_up", "probabilities", "log_odds", "baseline",
     "baseline_prior", "baseline_absence", "threshold", "normal_class", "flag_probability", "decision",
     "tokens", "spans_note", "unknown_tokens", "flip_set", "flip_exact", "flip_method", "flip_decision",
-    "flip_reason", "feature_kind", "variant",
+    "flip_reason", "feature_kind", "variant", "email",
 }
 MESSAGE = "Your parcel is at the depot: pay the fee at http://parcel-fee.example.net/x today, thanks"
 

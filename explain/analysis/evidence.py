@@ -24,6 +24,7 @@ exactly after each removal, and is labelled as greedy.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse as sp
@@ -32,6 +33,9 @@ from explain.analysis.batch import top_two
 from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
+
+if TYPE_CHECKING:  # mail_facts builds on this module, so the type is named only for checkers
+    from explain.analysis.mail_facts import MailFacts
 
 #: Greedy flip search stops after this many removals (a cost bound for huge messages).
 GREEDY_STEP_LIMIT = 400
@@ -107,6 +111,8 @@ class Explanation:
     flip: FlipSet
     feature_kind: str
     variant: str
+    #: what was read from a raw e-mail, else None
+    mail: MailFacts | None = None
 
     @property
     def evidence_sum(self) -> float:

@@ -45,13 +45,29 @@ def warn(message: str) -> None:
     err_console.print(f"warning: {message}", markup=False, soft_wrap=True)
 
 
-def read_messages_or_fail(data: Path, text_col: str, label_col: str | None = None):
-    """Read a data file; say how many invalid UTF-8 sequences were replaced."""
-    from explain.model.data_io import read_messages
+def read_messages_or_fail(data: Path, text_col: str | None, label_col: str | None = None, mail=None):
+    """Read a table, a folder of .eml files or an mbox file; say what was replaced or cut.
 
-    messages = read_messages(data, text_col, label_col)
+    ``mail`` is an ``explain.model.mail_data.MailInput``; when ``label_col`` is given
+    (or the e-mail options give labels) every message must have a label.
+    """
+    from explain.model.mail_data import MailInput, read_data
+
+    messages = read_data(data, text_col, label_col, mail or MailInput())
     if messages.replaced_chars:
         warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
+    for note in messages.notes:
+        warn(f"{data.name}: {note}")
+    return messages
+
+
+def labelled_or_fail(messages, data: Path):
+    """``messages`` if they carry labels, else one error line saying how to give them."""
+    if messages.labels is None:
+        fail(
+            f"{data.name} gives no labels: use --label-col for a table, "
+            "--labels-from-folders or --label for e-mail"
+        )
     return messages
 
 

@@ -8,7 +8,10 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
+from explain.cli import (
+    app, console, deliver, fail, labelled_or_fail, load_model_or_fail, plain_text, read_messages_or_fail,
+)
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
 
 def parse_fraction(text: str, what: str) -> float:
@@ -43,9 +46,11 @@ def parse_costs(text: Optional[str]) -> tuple[float, float] | None:
 @app.command()
 def assess(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
-    data: Path = typer.Argument(..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz)."),
-    text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
-    label_col: str = typer.Option(..., "--label-col", help="Column holding the true class."),
+    data: Path = typer.Argument(
+        ..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz), a folder of .eml files, or an mbox file."
+    ),
+    text_col: Optional[str] = typer.Option(None, "--text-col", help="Column holding the message text."),
+    label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the true class."),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
@@ -67,6 +72,10 @@ def assess(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
     from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
@@ -83,7 +92,8 @@ def assess(
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    messages = read_messages_or_fail(data, text_col, label_col)
+    mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail), data)
     result = run_assessment(
         loaded.view,
         loaded.featurizer.transform(messages.texts),

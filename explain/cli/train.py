@@ -8,15 +8,18 @@ from typing import Optional
 
 import typer
 
-from explain.cli import app, console, read_messages_or_fail
+from explain.cli import app, console, fail, labelled_or_fail, read_messages_or_fail
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import atomic_path, write_atomic
 
 
 @app.command()
 def train(
-    data: Path = typer.Argument(..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz)."),
-    text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
-    label_col: str = typer.Option(..., "--label-col", help="Column holding the class label."),
+    data: Path = typer.Argument(
+        ..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz), a folder of .eml files, or an mbox file."
+    ),
+    text_col: Optional[str] = typer.Option(None, "--text-col", help="Column holding the message text."),
+    label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the class label."),
     out: Path = typer.Option(..., "--out", help="Model file to write (skops format)."),
     features: str = typer.Option("counts", help="counts | binary | tfidf"),
     ngrams: str = typer.Option("1-1", help="Word or character n-gram range MIN-MAX."),
@@ -27,18 +30,28 @@ def train(
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     holdout: float = typer.Option(0.0, help="Fraction held out (stratified) to measure accuracy and F1."),
     seed: int = typer.Option(0, help="Seed for the hold-out split."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
 ):
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
 
     from explain.model.loading import card_path_for, sha256_of
+    from explain.model.mail_data import input_kind, is_mail_source
     from explain.model.training import TrainSettings, model_card, parse_ngrams, train_filter
 
+    mail = mail_input(None, text_view, raw_email, labels_from_folders, label)
+    from_mail = is_mail_source(data, mail)
+    if text_view is not None and not from_mail:
+        fail("--text-view applies to raw e-mail: a folder of .eml files, an mbox file, or a table with --raw-email")
     settings = TrainSettings(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
         alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
+        text_view=mail.view if from_mail else None,
     )
-    messages = read_messages_or_fail(data, text_col, label_col)
+    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail), data)
     trained = train_filter(messages.texts, messages.labels, settings)
 
     # The card records the SHA-256 of the exact bytes that become the model file.
@@ -50,6 +63,7 @@ def train(
             model_sha256=sha256_of(tmp),
             data={
                 "file": data.name,
+                "input": input_kind(data, mail),
                 "sha256": messages.sha256,
                 "rows": len(messages),
                 "text_col": text_col,

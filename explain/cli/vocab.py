@@ -9,7 +9,10 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
+from explain.cli import (
+    app, console, deliver, fail, labelled_or_fail, load_model_or_fail, plain_text, read_messages_or_fail,
+)
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
 FORMATS = ("text", "csv", "json")
 
@@ -28,7 +31,8 @@ def vocab(
         None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
     ),
     data: Optional[Path] = typer.Option(
-        None, "--data", help="Labelled messages (.csv, .jsonl, .parquet): the 2x2 tables then count messages."
+        None, "--data",
+        help="Labelled messages (.csv, .jsonl, .parquet, a folder of .eml files, an mbox): the 2x2 tables then count messages.",
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of --data holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of --data holding the class."),
@@ -45,6 +49,10 @@ def vocab(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
 ):
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
@@ -58,8 +66,8 @@ def vocab(
         fail(f"--top must be at least 1, got {top}")
     if not strong > 1 or not math.isfinite(strong):
         fail(f"--strong is an odds factor and must be above 1, got {strong}")
-    if data is not None and (text_col is None or label_col is None):
-        fail("--data needs --text-col and --label-col")
+    if data is None and (raw_email or labels_from_folders or label is not None):
+        fail("--raw-email, --labels-from-folders and --label describe --data; give --data")
     if images is not None and images.exists() and not images.is_dir():
         fail(f"--images must be a folder; {images} is a file")
     thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
@@ -70,7 +78,8 @@ def vocab(
     )
     messages = documents = None
     if data is not None:
-        messages = read_messages_or_fail(data, text_col, label_col)
+        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+        messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail), data)
         documents = document_counts(
             loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name
         )

@@ -39,7 +39,9 @@ class Messages:
     ids : ndarray of str (the ``id`` column when there is one, else row numbers from 1)
     replaced_chars : int, bytes that were not valid UTF-8 and became U+FFFD
     source : Path
-    sha256 : str, of the file's bytes as stored
+    sha256 : str, of the file's bytes as stored (for a folder, of its files' names and bytes)
+    notes : tuple of str, what the reader had to do that the user should hear (one line each,
+        e.g. e-mail parts in unknown charsets, counted); the CLI prints them as warnings
     """
 
     texts: list
@@ -48,6 +50,7 @@ class Messages:
     replaced_chars: int
     source: Path
     sha256: str
+    notes: tuple = ()
 
     def __len__(self) -> int:
         return len(self.texts)

@@ -34,8 +34,14 @@ class TrainSettings:
     normal_class: str | None = None
     holdout: float = 0.0
     seed: int = 0
+    #: the part of raw e-mail trained on (explain.model.email_reader.VIEWS); None for plain text
+    text_view: str | None = None
 
     def __post_init__(self):
+        if self.text_view is not None:
+            from explain.model.email_reader import check_view
+
+            check_view(self.text_view)
         if self.features not in FEATURES:
             raise NbledgerError(f"--features must be one of {', '.join(FEATURES)}")
         if self.analyzer not in ANALYZERS:

@@ -35,6 +35,9 @@ key                    meaning
 ``flip_reason``        why the flip set is empty, or null
 ``feature_kind``       ``counts``, ``binary`` or ``tfidf``
 ``variant``            ``multinomial``, ``complement`` or ``bernoulli``
+``email``              for a raw e-mail, what was read (``text_view``, redacted
+                       ``subject`` and ``sender``, ``attachments``,
+                       ``undecodable_parts``, ``problems``); null for plain text
 =====================  ==========================================================
 """
 
@@ -47,6 +50,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.analysis.evidence import Explanation
+from explain.present.email_lines import email_header_lines, email_json
 from explain.present.token_display import shown
 
 SCHEMA = "nbledger.why/1"
@@ -98,6 +102,7 @@ def to_json(expl: Explanation, model=None) -> dict:
         "flip_reason": expl.flip.reason,
         "feature_kind": expl.feature_kind,
         "variant": expl.variant,
+        "email": email_json(expl.mail),
     }
 
 
@@ -154,6 +159,10 @@ def render(expl: Explanation, console: Console, top: int = 10) -> None:
     else:
         head.append("   (most probable class)")
     console.print(head)
+    if expl.mail is not None:
+        for line in email_header_lines(expl.mail):
+            console.print(line, markup=False, highlight=False)
+        console.print()
 
     probs = Table(show_header=True, header_style="bold", box=None, pad_edge=False)
     probs.add_column("class")
