@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, read_messages_or_fail, warn
+from explain.cli import app, fail, load_model_or_fail, read_messages_or_fail, warn
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
@@ -95,12 +95,15 @@ def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, s
 
 
 def console_for(color: str) -> Console:
-    """The terminal console under ``--color`` (auto honours NO_COLOR and a non-terminal output)."""
-    if color == "never":
-        return Console(highlight=False, no_color=True, color_system=None)
+    """The terminal console under ``--color``.
+
+    ``auto`` styles only a terminal, and nothing at all when ``NO_COLOR`` is
+    set (no colour, and no bold or faint either: no escape codes).
+    """
     if color == "always":
         return Console(highlight=False, force_terminal=True, no_color=False)
-    return console
+    plain = color == "never" or os.environ.get("NO_COLOR", "") != ""
+    return Console(highlight=False, color_system=None if plain else "auto")
 
 
 @app.command()
