@@ -156,3 +156,23 @@ def test_redaction_hides_planted_addresses_and_numbers(demo, capsys, tmp_path_fa
         for piece in (name, "555", f"01{digits:02d}"):  # pieces the vectorizer may have made of them, as words
             assert not re.search(rf"(?<![\w.]){re.escape(piece)}(?![\w])", shown), (piece, args)
         assert "[e-mail 1]" in shown or "e-mail" in shown
+
+
+def test_html_fragment_lays_out_an_escaped_ledger(demo):
+    import jinja2
+
+    from explain.analysis.ledger import ledger_of
+    from explain.model.loading import load_model
+    from explain.present.ledger_html import TEMPLATE, ledger_context
+
+    model = load_model(demo[0])
+    ledger = ledger_of(model, "<script>alert(1)</script> pay the parcel fee to warden@example.org", message_id="m<1>")
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader("templates"), autoescape=True, undefined=jinja2.StrictUndefined)
+    html = env.get_template(TEMPLATE).render(lv=ledger_context(ledger, "personal", date="2026-05-28T20:26:40Z"))
+    assert "<html" not in html and "<script>" not in html and "&lt;script&gt;" in html and "m&lt;1&gt;" in html
+    assert "warden@example.org" not in html and "[e-mail 1]" in html
+    assert model.sha256 in html and "closing balance" in html
+    # Every entry row carries its direction as a mark, so grey print keeps it.
+    assert html.count('<span class="nbl-mk">▲</span>') + html.count('<span class="nbl-mk">▼</span>') >= len(ledger.entries)
+    withheld = env.get_template(TEMPLATE).render(lv=ledger_context(ledger, "bodies"))
+    assert "alert(1)" not in withheld and "Message text withheld" in withheld
