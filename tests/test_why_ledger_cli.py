@@ -176,3 +176,30 @@ def test_html_fragment_lays_out_an_escaped_ledger(demo):
     assert html.count('<span class="nbl-mk">▲</span>') + html.count('<span class="nbl-mk">▼</span>') >= len(ledger.entries)
     withheld = env.get_template(TEMPLATE).render(lv=ledger_context(ledger, "bodies"))
     assert "alert(1)" not in withheld and "Message text withheld" in withheld
+
+
+def test_sixteen_colours_show_strength_by_weight_not_by_brightness(demo):
+    """On 16 colours the palette's light shades would turn bright and read stronger: weight shows strength."""
+    import io
+
+    from rich.console import Console
+
+    from explain.analysis.ledger import ledger_of
+    from explain.model.loading import load_model
+    from explain.present.drawing import class_colours
+    from explain.present.why import _word, colour_mode, render
+
+    ledger = ledger_of(load_model(demo[0]), "pay the parcel fee at the depot today")
+    buffer = io.StringIO()
+    console = Console(file=buffer, force_terminal=True, color_system="standard", width=80)
+    assert colour_mode(console) == "weights"
+    render(ledger, console)
+    out = buffer.getvalue()
+    assert "\x1b[38;2" not in out and "\x1b[48" not in out  # no truecolor, no background shades
+    assert "bold is stronger" in " ".join(out.split()) and "darker" not in out
+    families = class_colours(ledger.classes, ledger.normal_class)
+    largest = max(abs(e.per_occurrence) for e in ledger.entries)
+    styles = {e.token: str(_word(e, largest, "weights", families).spans[-1].style) for e in ledger.entries}
+    strongest = max(ledger.entries, key=lambda e: abs(e.per_occurrence))
+    weakest = min(ledger.entries, key=lambda e: abs(e.per_occurrence))
+    assert "bold" in styles[strongest.token] and "dim" in styles[weakest.token]

@@ -413,11 +413,8 @@ def ledger_of(
         credit_name = classes[credit[0]]
     else:
         names = ", ".join(classes[c] for c in credit)
-        method = (
-            f"log P(not {normal_name}) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]; "
-            "a logsumexp does not split into per-token shares, so each entry is the change it makes "
-            "where it first appears (approximate: its size depends on the order)"
-        )
+        # A logsumexp does not split into per-token shares: the entries say they are approximate.
+        method = f"log P(not {normal_name}) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]"
         credit_name = f"not {normal_name}"
 
     card = getattr(model, "card", None) or {}

@@ -278,7 +278,10 @@ def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
     else:
         notes.append(f"The opening balance is already on the {side} side and no entry takes it across.")
     if not ledger.exact:
-        notes.append("Entries are approximate shares: each is the change it makes where it first appears.")
+        notes.append(
+            "Entries are approximate: a logsumexp over several classes does not split into shares, so each "
+            "entry is the change it makes where it first appears (its size depends on the order, the sum does not)."
+        )
     notes.append(
         f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {credit_colour_class(ledger)}/{ledger.debit_class}"
         + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + "."
