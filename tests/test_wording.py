@@ -38,7 +38,8 @@ def test_probability_from_log_odds_keeps_its_distance_from_certainty():
 ODDS = [
     (math.log(117), "x117"),
     (-math.log(117), "x117"),  # the side is named by the caller
-    (math.log(2.19), "x2.2"),
+    (math.log(2.19), "x2.19"),
+    (0.01, "x1.01"),
     (0.0, "x1"),
     (math.log(999_999), "x999,999"),
     (194.3 * math.log(10), "about 10^194 to 1"),

@@ -398,8 +398,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     if not rows:
         table.add_row("", Text("(no word the model knows)", style="italic"))
     console.print(table)
-    width = min(console.width, 80)
-    console.print("═" * width)
+    console.print("═" * min(console.measure(table).maximum, console.width))
     side = decided_side(ledger)
     closing = Text("closing balance ", style="bold")
     closing.append(f"{ledger.closing:+.2f}", style="bold")
