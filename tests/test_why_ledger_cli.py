@@ -203,3 +203,14 @@ def test_sixteen_colours_show_strength_by_weight_not_by_brightness(demo):
     strongest = max(ledger.entries, key=lambda e: abs(e.per_occurrence))
     weakest = min(ledger.entries, key=lambda e: abs(e.per_occurrence))
     assert "bold" in styles[strongest.token] and "dim" in styles[weakest.token]
+
+
+def test_support_counts_training_messages_when_data_is_the_cards_training_file(demo, capsys):
+    model, data = demo
+    doc = json.loads(nbledger(capsys, "why", model, "--data", data, "--id", "m1", "--format", "json").out)
+    ledger = doc["ledger"]
+    assert ledger["support_kind"] == "documents" and "training data of the model card" in ledger["support_source"]
+    fee = next(e for e in ledger["entries"] if e["token"] == "fee")
+    # Counted by hand in ROWS: messages holding "fee" per class.
+    expected = {c: sum(1 for _, t, l in ROWS if l == c and "fee" in t.split()) for c in ("advert", "ok", "scam")}
+    assert fee["support"] == expected

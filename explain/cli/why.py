@@ -94,6 +94,21 @@ def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, s
     return [(mid, messages.texts[first[mid]]) for mid in wanted]
 
 
+def support_labels(loaded, data: Path, label_col: Optional[str]) -> tuple[Optional[str], str]:
+    """The label column that gives message counts of support, and how to name their source.
+
+    When ``data`` is the very file the model card says the model was trained
+    on (same SHA-256), its label column is known without ``--label-col``.
+    """
+    from explain.model.loading import sha256_of
+
+    recorded = (loaded.card or {}).get("data") or {}
+    if data.is_file() and recorded.get("sha256") == sha256_of(data):
+        held_out = " (held-out messages included)" if (loaded.card or {}).get("holdout") else ""
+        return label_col or recorded.get("label_col"), f"{data.name}, the training data of the model card{held_out}"
+    return label_col, data.name
+
+
 def console_for(color: str) -> Console:
     """The terminal console under ``--color``.
 
@@ -155,21 +170,22 @@ def why(
         fail("give --id or --ids, not both")
     terms = read_watchlist(watchlist) if watchlist is not None else None
 
-    if data is not None:
-        wanted = read_id_list(ids) if ids is not None else [message_id]
-        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
-        chosen = pick_messages(messages, wanted, data.name)
-    else:
-        messages = None
-        chosen = [(None, read_message(text, file, max_bytes))]
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    documents = None
-    if messages is not None and label_col is not None:
-        from explain.analysis.vocab import document_counts
+    messages = documents = None
+    if data is not None:
+        wanted = read_id_list(ids) if ids is not None else [message_id]
+        label_col, source = support_labels(loaded, data, label_col)
+        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+        chosen = pick_messages(messages, wanted, data.name)
+        if label_col is not None:
+            from explain.analysis.vocab import document_counts
 
-        documents = document_counts(loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name)
+            features = loaded.featurizer.transform(messages.texts)
+            documents = document_counts(loaded.view, features, messages.labels, source)
+    else:
+        chosen = [(None, read_message(text, file, max_bytes))]
     ledgers = []
     for mid, message in chosen:
         ledger = ledger_of(loaded, message, threshold, message_id=mid, documents=documents, watchlist=terms)
