@@ -166,12 +166,15 @@ def test_html_fragment_lays_out_an_escaped_ledger(demo):
     from explain.present.ledger_html import TEMPLATE, ledger_context
 
     model = load_model(demo[0])
-    ledger = ledger_of(model, "<script>alert(1)</script> pay the parcel fee to warden@example.org", message_id="m<1>")
+    ledger = ledger_of(
+        model, "<script>alert(1)</script> pay the p\u0430rcel fee to warden@example.org", message_id="m<1>"
+    )
     env = jinja2.Environment(loader=jinja2.FileSystemLoader("templates"), autoescape=True, undefined=jinja2.StrictUndefined)
     html = env.get_template(TEMPLATE).render(lv=ledger_context(ledger, "personal", date="2026-05-28T20:26:40Z"))
     assert "<html" not in html and "<script>" not in html and "&lt;script&gt;" in html and "m&lt;1&gt;" in html
     assert "warden@example.org" not in html and "[e-mail 1]" in html
     assert model.sha256 in html and "closing balance" in html
+    assert 'class="nbl-disguised" title="looks like parcel">p\u0430rcel</span>' in html
     # Every entry row carries its direction as a mark, so grey print keeps it.
     assert html.count('<span class="nbl-mk">▲</span>') + html.count('<span class="nbl-mk">▼</span>') >= len(ledger.entries)
     withheld = env.get_template(TEMPLATE).render(lv=ledger_context(ledger, "bodies"))

@@ -39,7 +39,9 @@ opening balance is already on that side and no entry takes it across.
 *Disguised words*: unknown tokens whose Unicode confusable skeleton (UTS
 #39, :mod:`explain.analysis.lookalike`) equals a known token's, with the
 exact change of the balance had the known token been written instead
-(the message re-scored with those occurrences added to its counts).
+(the message re-scored with those occurrences added to its counts). Only
+for word tokens: with character n-grams a look-alike letter changes
+n-grams, not words, and none is reported.
 """
 
 from __future__ import annotations
@@ -473,7 +475,9 @@ def _unknown(model, occ, expl: Explanation, balance, closing: float) -> tuple[Un
         for token, col, span in zip(occ.tokens, occ.columns, occ.spans):
             if col < 0:
                 spans.setdefault(token, []).append(span)
-    disguises = lookalikes([t for t, _ in expl.unknown_tokens], view.tokens)
+    # Character n-grams are pieces of words: a look-alike piece is no disguised word.
+    words = featurizer.vectorizer.analyzer == "word"
+    disguises = lookalikes([t for t, _ in expl.unknown_tokens], view.tokens) if words else {}
     wanted = set(disguises.values())
     index = {t: j for j, t in enumerate(view.tokens) if t in wanted} if wanted else {}
     counts = occ.counts(view.n_features).toarray()

@@ -42,13 +42,17 @@ def _money(x: float) -> dict:
 
 
 def _segments(ledger: Ledger, looks: dict) -> list[dict]:
-    """The text cut at the entries' spans: plain pieces ``{text}``, words ``{text, mark, style, level}``.
+    """The text cut at the entries' spans: plain pieces ``{text}``, words ``{text, mark, style, level}``,
+    disguised words ``{text, looks_like}``.
 
     Where character n-grams overlap, the stronger entry's tint wins the
     shared characters.
     """
     text = ledger.text
     owner = [None] * len(text)
+    for u in ledger.disguised:
+        for a, b in u.spans:
+            owner[a:b] = [("disguised", u.looks_like)] * (min(b, len(text)) - a)
     for e in sorted(ledger.entries, key=lambda e: abs(e.per_occurrence)):
         for a, b in e.spans:
             owner[a:b] = [e.column] * (min(b, len(text)) - a)
@@ -57,10 +61,12 @@ def _segments(ledger: Ledger, looks: dict) -> list[dict]:
         end = at
         while end < len(text) and owner[end] == owner[at]:
             end += 1
-        look = looks.get(owner[at])
+        key = owner[at]
         piece = {"text": text[at:end]}
-        if look is not None:
-            piece.update(look)
+        if isinstance(key, tuple):
+            piece["looks_like"] = key[1]
+        elif key is not None:
+            piece.update(looks[key])
         segments.append(piece)
         at = end
     return segments

@@ -423,7 +423,10 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
 
 
 def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT) -> Text:
-    """The message with each known word tinted like its entry (weaker first, so stronger tints win overlaps)."""
+    """The message with each known word tinted like its entry (weaker first, so stronger tints win overlaps).
+
+    Disguised words (unknown, so untinted) are underlined.
+    """
     text = Text(ledger.text[:limit])
     if mode == "none" or ledger.spans_note is not None:
         return text
@@ -433,6 +436,10 @@ def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT)
         for start, end in e.spans:
             if start < limit:
                 text.stylize(style, start, min(end, limit))
+    for u in ledger.disguised:  # unknown to the model, so untinted: underlined, named below the book
+        for start, end in u.spans:
+            if start < limit:
+                text.stylize("underline", start, min(end, limit))
     return text
 
 
