@@ -408,7 +408,8 @@ def ledger_of(
 
     normal_name = None if normal is None else classes[normal]
     if threshold is None:
-        method = f"log-odds of {classes[credit[0]]} against {classes[debit]} = jll[{classes[credit[0]]}] - jll[{classes[debit]}]"
+        c, d = classes[credit[0]], classes[debit]
+        method = f"log-odds of {c} against {d} = jll[{c}] - jll[{d}]"
         credit_name = classes[credit[0]]
     elif additive:
         method = f"log P(not {normal_name}) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"

@@ -90,7 +90,8 @@ def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, s
         fail(f"no message with id {missing[0]!r} in {source}{more}; it has {len(first):,} distinct ids")
     for mid in dict.fromkeys(wanted):
         if mid in repeats:
-            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {first[mid] + 1})")
+            row = first[mid] + 1
+            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {row})")
     return [(mid, messages.texts[first[mid]]) for mid in wanted]
 
 

@@ -25,6 +25,8 @@ from explain.present.why import (
     decided_side,
     ledger_notes,
     ledger_rows,
+    money,
+    opening_lines,
     probability_line,
     rule_line,
     support_cell,
@@ -38,7 +40,8 @@ STYLESHEET = "ledger.css"
 
 
 def _money(x: float) -> dict:
-    return {"debit": f"{-x:.2f}" if x < 0 else "", "credit": f"{x:.2f}" if x >= 0 else ""}
+    debit, credit = money(x)
+    return {"debit": debit, "credit": credit}
 
 
 def _segments(ledger: Ledger, looks: dict) -> list[dict]:
@@ -103,7 +106,9 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
-            shown_rows.append({"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"})
+            shown_rows.append(
+                {"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"}
+            )
             continue
         i = number[id(row)]
         shown_rows.append({
@@ -119,9 +124,9 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
             "seen": support_cell(row, ledger),
             "flags": list(row.flags),
         })
-    opening = [{"label": "opening: priors", **_money(ledger.opening_prior), "balance": f"{ledger.opening_prior:+.2f}"}]
-    if ledger.variant == "bernoulli":
-        opening.append({"label": "opening: absent words", **_money(ledger.opening_absence), "balance": f"{ledger.opening:+.2f}"})
+    opening = [
+        {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)
+    ]
     directions = {r["direction"] for r in shown_rows if r["kind"] == "entry"}
     legend = [
         {"mark": MARKS[d], "text": f"{d}, toward {side}", "swatch": families[side].shade(0.55)}

@@ -261,6 +261,19 @@ def rule_line(ledger: Ledger) -> str:
     return f"rule: the most probable class; {ledger.credit_side} when the balance is above {tie}0"
 
 
+def money(x: float) -> tuple[str, str]:
+    """The (debit, credit) cells of an amount: its size in the column of its side."""
+    return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
+
+
+def opening_lines(ledger: Ledger) -> list[tuple[str, float, float]]:
+    """``(label, amount, balance after)`` of the opening balance's lines."""
+    lines = [("opening: priors", ledger.opening_prior, ledger.opening_prior)]
+    if ledger.variant == "bernoulli":
+        lines.append(("opening: absent words", ledger.opening_absence, ledger.opening))
+    return lines
+
+
 def decided_side(ledger: Ledger) -> str:
     return ledger.credit_side if ledger.credit_wins else ledger.debit_class
 
@@ -307,7 +320,9 @@ def word_notes(ledger: Ledger) -> list[str]:
         )
     plain_unknown = [u for u in ledger.unknown if u.looks_like is None]
     if plain_unknown:
-        names = ", ".join(shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN])
+        names = ", ".join(
+            shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN]
+        )
         more = len(plain_unknown) - UNKNOWN_SHOWN
         lines.append(
             f"not in the vocabulary (no effect): {names}" + (f" and {plural(more, 'more word')}" if more > 0 else "")
@@ -368,20 +383,15 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     if flagged:
         table.add_column("flags", overflow="fold")
 
-    def money(x: float) -> tuple[str, str]:
-        return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
-
-    running = ledger.opening_prior
-    table.add_row("", Text("opening: priors", style="italic"), "", "", *money(ledger.opening_prior), f"{running:+.2f}")
-    if ledger.variant == "bernoulli":
-        running = ledger.opening
-        table.add_row("", Text("opening: absent words", style="italic"), "", "", *money(ledger.opening_absence), f"{running:+.2f}")
+    for label, change, after in opening_lines(ledger):
+        table.add_row("", Text(label, style="italic"), "", "", *money(change), f"{after:+.2f}")
     table.add_section()
     number = {id(e): i for i, e in enumerate(ledger.entries)}
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
-            table.add_row("", Text(f"… {folded(count, total)}", style="italic"), "", "", *money(total), f"{after:+.2f}")
+            label = Text(f"… {folded(count, total)}", style="italic")
+            table.add_row("", label, "", "", *money(total), f"{after:+.2f}")
             continue
         i = number[id(row)]
         tipped = " ◀" if i == ledger.tipped_at else ""
@@ -415,7 +425,8 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     console.print(Text("message", style="bold"))
     console.print(tinted_text(ledger, mode, families))
     if len(ledger.text) > DISPLAY_LIMIT:
-        console.print(f"[... {len(ledger.text) - DISPLAY_LIMIT:,} more characters not shown; the ledger covers them all]", markup=False)
+        more = len(ledger.text) - DISPLAY_LIMIT
+        console.print(f"[... {more:,} more characters not shown; the ledger covers them all]", markup=False)
     if ledger.spans_note is not None:
         console.print(Text(f"(not tinted: {ledger.spans_note})"))
     console.print()
