@@ -114,7 +114,7 @@ def test_duplicate_ids_explain_the_first_and_warn(demo, capsys):
     [
         (["--data", "{data}", "--id", "m99"], "no message with id 'm99' in train.csv"),
         (["--data", "{data}", "--id", "m1", "--id-col", "ref"], "has no column 'ref'"),
-        (["hello", "--out", "record.docx"], "--out must end in .txt, .json"),
+        (["hello", "--out", "record.docx"], "'record.docx' has an unknown suffix; records are written as .txt, .json"),
         (["--data", "{data}"], "--data needs --id ID or --ids FILE"),
         (["--id", "m1"], "give it with --data"),
         (["hello", "--color", "sometimes"], "--color must be auto, always or never"),

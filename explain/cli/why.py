@@ -160,7 +160,7 @@ def why(
     if color not in COLOR_CHOICES:
         fail(f"--color must be auto, always or never, got {color!r}")
     if out is not None and out.suffix.lower() not in WRITERS:
-        fail(f"--out must end in {', '.join(WRITERS)}; got {out.name!r}")
+        fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
     if (message_id is not None or ids is not None) and data is None:
         fail("--id and --ids pick messages of a data file: give it with --data")
     if data is not None and message_id is None and ids is None:
