@@ -127,3 +127,27 @@ def test_a_disguised_word_is_reported_with_the_evidence_it_avoided():
     assert word.token == "t\u0456d\u0435way" and word.looks_like == "tideway" and word.count == 1
     assert close(word.avoided, plain.closing - disguised.closing)
     assert ledger_of(model, "the zebra fee").disguised == ()
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    before=messages,
+    after=messages,
+    value=st.sampled_from(["warden@example.org", "555-0142", "http://parcel-fee.example.net/x", "192.0.2.7"]),
+)
+def test_redaction_moves_spans_to_the_masked_text(before, after, value):
+    from explain.analysis.ledger import redacted
+
+    pipeline = make_pipeline("counts", "multinomial").fit(
+        ["pay the fee now", "fee link now example net", "tea at the hall", "the hall is open 555"],
+        ["scam", "scam", "ok", "ok"],
+    )
+    text = f"{before} {value} {after}".strip()
+    ledger = redacted(ledger_of(loaded(pipeline, normal_class="ok"), text, message_id="warden@example.org"))
+    assert value not in ledger.text and ledger.message_id.startswith("[")
+    for e in ledger.entries:
+        for a, b in e.spans:
+            piece = ledger.text[a:b]
+            # Each span shows its word, or the placeholder of the value it was part of.
+            assert piece.lower() == e.token or (piece.startswith("[") and piece.endswith("]"))
+    assert close(ledger.opening + math.fsum(e.amount for e in ledger.entries), ledger.closing)

@@ -505,7 +505,7 @@ def redacted(ledger: Ledger) -> Ledger:
     Values found in the text (:func:`explain.analysis.risk.personal_spans`)
     become numbered placeholders such as ``[e-mail 1]``; a token is masked
     when every occurrence of it overlaps such a value, or when it looks
-    personal itself (the ``personal`` flag). Spans
+    personal itself (the ``personal`` flag); so is a personal-looking message id. Spans
     are moved to the masked text. Amounts and balances are unchanged.
     """
     if ledger.redacted:
@@ -546,7 +546,11 @@ def redacted(ledger: Ledger) -> Ledger:
         unknown_tokens=tuple((mask(t), n) for t, n in expl.unknown_tokens),
         flip=flip,
     )
-    return replace(ledger, text=text, entries=entries, unknown=unknown, flip=flip, redacted=True, explanation=expl)
+    message_id = None if ledger.message_id is None else mask(ledger.message_id)
+    return replace(
+        ledger, text=text, message_id=message_id, entries=entries, unknown=unknown, flip=flip, redacted=True,
+        explanation=expl,
+    )
 
 
 def _masked_text(text: str, marks: list[tuple[int, int, str]]):
