@@ -45,7 +45,9 @@ def warn(message: str) -> None:
     err_console.print(f"warning: {message}", markup=False, soft_wrap=True)
 
 
-def read_messages_or_fail(data: Path, text_col: str | None, label_col: str | None = None, mail=None):
+def read_messages_or_fail(
+    data: Path, text_col: str | None, label_col: str | None = None, mail=None, id_col: str | None = None
+):
     """Read a table, a folder of .eml files or an mbox file; say what was replaced or cut.
 
     ``mail`` is an ``explain.model.mail_data.MailInput``; when ``label_col`` is given
@@ -53,7 +55,7 @@ def read_messages_or_fail(data: Path, text_col: str | None, label_col: str | Non
     """
     from explain.model.mail_data import MailInput, read_data
 
-    messages = read_data(data, text_col, label_col, mail or MailInput())
+    messages = read_data(data, text_col, label_col, mail or MailInput(), id_col=id_col)
     if messages.replaced_chars:
         warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
     for note in messages.notes:

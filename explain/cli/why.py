@@ -1,20 +1,23 @@
-"""``nbledger why``: the exact account of one message's score."""
+"""``nbledger why``: one message's decision told as a ledger."""
 
 from __future__ import annotations
 
-import json
+import datetime as _dt
+import os
 import sys
 from pathlib import Path
 from typing import List, Optional
 
 import typer
+from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, warn
+from explain.cli import app, fail, load_model_or_fail, read_messages_or_fail, warn
 from explain.cli.mail_options import TEXT_VIEW
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
 MAX_MESSAGE_BYTES = 1024 * 1024
+COLOR_CHOICES = ("auto", "always", "never")
 
 
 def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MESSAGE_BYTES) -> bytes | str:
@@ -30,7 +33,7 @@ def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MES
         return file.read_bytes()
     if text == "-" or text is None:
         if text is None and sys.stdin.isatty():
-            fail("give the message as TEXT, with --file F, or on standard input with -")
+            fail("give the message as TEXT, with --file F, on standard input with -, or --data F --id ID")
         raw = sys.stdin.buffer.read(limit + 1)
         if len(raw) > limit:
             fail(too_big)
@@ -52,17 +55,121 @@ def plain_message(raw: bytes | str) -> str:
     return decoded
 
 
+def record_date() -> str:
+    """The date of a record: ``SOURCE_DATE_EPOCH`` when set (reproducible builds), else now, in UTC."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None:
+        try:
+            moment = _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            fail(f"SOURCE_DATE_EPOCH must be whole seconds since 1970, got {epoch!r}")
+    else:
+        moment = _dt.datetime.now(_dt.timezone.utc)
+    return moment.replace(microsecond=0).isoformat().replace("+00:00", "Z")
+
+
+def read_id_list(path: Path) -> list[str]:
+    """Ids one a line; blank lines and lines starting with # are skipped."""
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except OSError as exc:
+        fail(f"cannot read the id list {path}: {exc.strerror or exc}")
+    except UnicodeDecodeError:
+        fail(f"the id list {path} is not UTF-8 text")
+    ids = [line.strip() for line in text.splitlines() if line.strip() and not line.strip().startswith("#")]
+    if not ids:
+        fail(f"the id list {path} has no ids")
+    return ids
+
+
+def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, str]]:
+    """``(id, text)`` of each wanted id; the first of duplicate ids is taken, with a warning."""
+    first: dict[str, int] = {}
+    repeats: dict[str, int] = {}
+    for row, mid in enumerate(messages.ids):
+        if mid in first:
+            repeats[mid] = repeats.get(mid, 1) + 1
+        else:
+            first[mid] = row
+    missing = [m for m in wanted if m not in first]
+    if missing:
+        more = f" (and {len(missing) - 1} more wanted ids)" if len(missing) > 1 else ""
+        fail(f"no message with id {missing[0]!r} in {source}{more}; it has {len(first):,} distinct ids")
+    for mid in dict.fromkeys(wanted):
+        if mid in repeats:
+            row = first[mid] + 1
+            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {row})")
+    return [(mid, messages.texts[first[mid]]) for mid in wanted]
+
+
+def support_labels(loaded, data: Path, label_col: Optional[str]) -> tuple[Optional[str], str]:
+    """The label column that gives message counts of support, and how to name their source.
+
+    When ``data`` is the very file the model card says the model was trained
+    on (same SHA-256), its label column is known without ``--label-col``.
+    """
+    from explain.model.loading import sha256_of
+
+    recorded = (loaded.card or {}).get("data") or {}
+    if data.is_file() and recorded.get("sha256") == sha256_of(data):
+        held_out = " (held-out messages included)" if (loaded.card or {}).get("holdout") else ""
+        return label_col or recorded.get("label_col"), f"{data.name}, the training data of the model card{held_out}"
+    return label_col, data.name
+
+
+def console_for(color: str) -> Console:
+    """The terminal console under ``--color``.
+
+    ``auto`` styles only a terminal, and nothing at all when ``NO_COLOR`` is
+    set (no colour, and no bold or faint either: no escape codes).
+    """
+    if color == "always":
+        return Console(highlight=False, force_terminal=True, no_color=False)
+    plain = color == "never" or os.environ.get("NO_COLOR", "") != ""
+    return Console(highlight=False, color_system=None if plain else "auto")
+
+
+def read_one(raw: bytes | str, as_email: bool, view: str) -> tuple:
+    """``(message id, text the model reads, mail facts or None)`` of one message given directly."""
+    from explain.analysis.mail_facts import mail_facts
+    from explain.model.email_reader import looks_like_email, read_email
+
+    data = raw.encode("utf-8", errors="surrogatepass") if isinstance(raw, str) else raw
+    if not (as_email or looks_like_email(data)):
+        return None, plain_message(raw), None
+    mail = read_email(data)
+    if mail.raw_fallback:
+        fail(f"the e-mail could not be read: {mail.problems[0]}")
+    for problem in mail.problems:
+        warn(f"e-mail: {problem}")
+    if not mail.text(view).strip():
+        fail(f"the e-mail has no text in the {view} view" + (" (attachments only)" if mail.attachments else ""))
+    return mail.message_id or None, mail.text(view), mail_facts(mail, view)
+
+
 @app.command()
 def why(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     text: Optional[str] = typer.Argument(None, help="The message, or - to read standard input."),
     file: Optional[Path] = typer.Option(None, "--file", "-f", help="Read the message (text or a raw .eml e-mail) from this file."),
-    top: int = typer.Option(10, "--top", min=1, help="Tokens to list for and against."),
+    data: Optional[Path] = typer.Option(None, "--data", help="Data file (.csv, .jsonl, .parquet) holding the message."),
+    text_col: str = typer.Option("text", "--text-col", help="Column of --data holding the text."),
+    id_col: str = typer.Option("id", "--id-col", help="Column of --data holding message ids."),
+    message_id: Optional[str] = typer.Option(None, "--id", help="Explain the message of --data with this id."),
+    ids: Optional[Path] = typer.Option(None, "--ids", help="File of ids (one a line): explain each into one output."),
+    label_col: Optional[str] = typer.Option(
+        None, "--label-col", help="Column of --data holding classes: support then counts training-like messages."
+    ),
+    top: int = typer.Option(10, "--top", min=1, help="Largest entries to keep when a long message is folded."),
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    output_format: str = typer.Option("text", "--format", help="text | json"),
+    output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
+    redact: bool = typer.Option(False, "--redact", help="Mask personal-looking values in the text and the entries."),
+    watchlist: Optional[Path] = typer.Option(None, "--watchlist", help="Terms to flag as watchlist (one a line)."),
+    color: str = typer.Option("auto", "--color", help="auto | always | never (auto honours NO_COLOR)."),
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
@@ -72,32 +179,62 @@ def why(
     ),
     text_view: Optional[str] = TEXT_VIEW,
 ):
-    """Why did the filter score this message the way it did?"""
-    from explain.analysis.evidence import explain_message
-    from explain.analysis.mail_facts import explain_email
-    from explain.model.email_reader import looks_like_email, read_email, resolve_text_view
-    from explain.present.why import render, to_json
+    """Why did the filter decide this message the way it did? Told as a ledger."""
+    from explain.analysis.ledger import ledger_of, redacted
+    from explain.model.email_reader import resolve_text_view
+    from explain.analysis.risk import read_watchlist
+    from explain.present.why import WRITERS, render
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
-    raw = read_message(text, file, max_bytes)
+    if color not in COLOR_CHOICES:
+        fail(f"--color must be auto, always or never, got {color!r}")
+    if out is not None and out.suffix.lower() not in WRITERS:
+        fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
+    if (message_id is not None or ids is not None) and data is None:
+        fail("--id and --ids pick messages of a data file: give it with --data")
+    if data is not None and message_id is None and ids is None:
+        fail("--data needs --id ID or --ids FILE to pick the messages to explain")
+    if data is not None and (text is not None or file is not None):
+        fail("give the message as TEXT, with --file, or from --data, not several")
+    if message_id is not None and ids is not None:
+        fail("give --id or --ids, not both")
+    terms = read_watchlist(watchlist) if watchlist is not None else None
+
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    view = resolve_text_view(loaded.card, text_view)
-    data = raw.encode("utf-8", errors="surrogatepass") if isinstance(raw, str) else raw
-    if as_email or looks_like_email(data):
-        mail = read_email(data)
-        if mail.raw_fallback:
-            fail(f"the e-mail could not be read: {mail.problems[0]}")
-        for problem in mail.problems:
-            warn(f"e-mail: {problem}")
-        if not mail.text(view).strip():
-            fail(f"the e-mail has no text in the {view} view" + (" (attachments only)" if mail.attachments else ""))
-        explanation = explain_email(loaded, mail, view, threshold)
+    messages = documents = None
+    if data is not None:
+        wanted = read_id_list(ids) if ids is not None else [message_id]
+        label_col, source = support_labels(loaded, data, label_col)
+        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+        chosen = pick_messages(messages, wanted, data.name)
+        if label_col is not None:
+            from explain.analysis.vocab import document_counts
+
+            features = loaded.featurizer.transform(messages.texts)
+            documents = document_counts(loaded.view, features, messages.labels, source)
+        chosen = [(mid, message, None) for mid, message in chosen]
     else:
-        explanation = explain_message(loaded, plain_message(raw), threshold)
-    if output_format == "json":
-        sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2) + "\n")
+        chosen = [read_one(read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view))]
+    ledgers = []
+    for mid, message, mail in chosen:
+        ledger = ledger_of(
+            loaded, message, threshold, message_id=mid, documents=documents, watchlist=terms, mail=mail
+        )
+        ledgers.append(redacted(ledger) if redact else ledger)
+
+    date = record_date()
+    if out is not None:
+        from explain.output_files import write_atomic
+
+        write_atomic(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
+    elif output_format == "json":
+        sys.stdout.write(WRITERS[".json"](ledgers, date=date, top=top))
     else:
-        render(explanation, console, top)
+        screen = console_for(color)
+        for n, ledger in enumerate(ledgers):
+            if n:
+                screen.rule()
+            render(ledger, screen, top, date)

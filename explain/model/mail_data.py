@@ -69,7 +69,9 @@ def is_mail_source(path: Path, mail: MailInput) -> bool:
     return Path(path).is_dir() or is_mbox(path) or mail.raw_email
 
 
-def read_data(path, text_col: str | None, label_col: str | None, mail: MailInput = MailInput()) -> Messages:
+def read_data(
+    path, text_col: str | None, label_col: str | None, mail: MailInput = MailInput(), id_col: str | None = None
+) -> Messages:
     """Messages from a folder of ``.eml`` files, an mbox file or a table; see the module policy."""
     path = Path(path)
     if path.is_dir():
@@ -85,7 +87,7 @@ def read_data(path, text_col: str | None, label_col: str | None, mail: MailInput
         )
     if text_col is None:
         raise NbledgerError(f"{path.name} is a table: give --text-col (and --label-col)")
-    messages = read_messages(path, text_col, label_col)
+    messages = read_messages(path, text_col, label_col, id_col)
     if not mail.raw_email:
         return messages
     emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits) for text in messages.texts]
