@@ -99,14 +99,17 @@ class DocumentCounts:
     """Messages containing each token, per class, counted in a labelled file.
 
     ``counts`` has shape (C, F) in the model's class order, ``messages`` (C,).
+    ``rows_note`` says which rows of the file were counted (those the model
+    trained on, or all of them and why).
     """
 
     counts: np.ndarray
     messages: np.ndarray
     source: str
+    rows_note: str = ""
 
 
-def document_counts(view: ModelView, X, labels, source: str) -> DocumentCounts:
+def document_counts(view: ModelView, X, labels, source: str, rows_note: str = "") -> DocumentCounts:
     """Count, per class, the messages of a labelled file that contain each token.
 
     ``X`` is the file's feature matrix as the model's text steps make it;
@@ -139,6 +142,7 @@ def document_counts(view: ModelView, X, labels, source: str) -> DocumentCounts:
         counts=np.asarray((onehot @ present).todense()),
         messages=np.bincount(by_class, minlength=view.n_classes).astype(np.float64),
         source=source,
+        rows_note=rows_note,
     )
 
 
@@ -155,7 +159,7 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
         return CountSource(
             "documents",
             f"messages containing each token, counted in the labelled file {documents.source} "
-            f"({int(documents.messages.sum())} messages)",
+            f"({int(documents.messages.sum()):,} messages)" + (f"; {documents.rows_note}" if documents.rows_note else ""),
         )
     if view.feature_kind == "binary":
         return CountSource(
