@@ -72,7 +72,7 @@ def test_json_carries_the_library_result(files, capsys):
     doc = json.loads(out)
     review = review_vocabulary(load_model(files / "model.skops").view, target="scam", against="rest", lens="g2", top=7)
     (c,) = review.contrasts
-    (got,) = doc["contrasts"]
+    (got,) = doc["comparisons"]
     assert doc["schema"] == "nbledger.vocab/1" and doc["review"]["ranked_by"] == "g2"
     assert (got["target"], got["other"]) == ("scam", "rest")
     assert got["flag_counts"] == dict(c.flag_counts)
@@ -92,7 +92,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
     assert code == 0 and out == "", err
     table = pd.read_csv(out_file, keep_default_na=False)
     review = review_vocabulary(load_model(files / "model.skops").view)
-    expected = (["contrast", "target", "other", "rank", "token", "zscore", "weighted_log_odds", "ratio", "mass",
+    expected = (["comparison", "target", "other", "rank", "token", "zscore", "weighted_log_odds", "ratio", "mass",
                  "chi2", "g2", "mi", "direction", "support_target", "support_other",
                  "support_advert", "support_ok", "support_scam", "documents_target",
                  "documents_other", "n11", "n10", "n01", "n00"]
@@ -104,7 +104,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
         assert f"``{column}``" in presenter.__doc__ or documented
     assert len(table) == len(review.contrasts) * review.n_features
     for c in review.contrasts:
-        part = table[table.contrast == c.label]
+        part = table[table.comparison == c.label]
         order = c.order[LENSES.index("zscore")]
         assert list(part.token.astype(str)) == [str(t) for t in review.tokens[order]]
         # floats are written with full precision: the file reproduces the arrays exactly
@@ -120,10 +120,10 @@ def test_text_output_names_settings_and_both_sides(files, capsys, tmp_path):
     )
     assert code == 0 and out == "", err
     flat = " ".join((tmp_path / "v.txt").read_text(encoding="utf-8").split())
-    assert "2x2 tables (chi2, g2, mi) count occurrences" in flat
+    assert "2x2 tables (chi-square, G2, MI) count token occurrences" in flat
     assert "advert vs ok" in flat and "scam vs ok" in flat
     assert "strongest 5 for scam" in flat and "strongest 5 for ok" in flat
-    assert "thin = strong on fewer than 10 training occurrences" in flat
+    assert "thin: strong on less than 10 of support" in flat
     assert "roma" in flat and "not in the vocabulary" in flat
 
 
@@ -140,7 +140,7 @@ def test_labelled_data_counts_messages(files, capsys):
     messages = read_messages(files / "messages.csv", "text", "label")
     docs = document_counts(loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, "messages.csv")
     a, o = loaded.view.class_index("advert"), loaded.view.class_index("ok")
-    for row in doc["contrasts"][0]["top_for"]:
+    for row in doc["comparisons"][0]["top_for"]:
         j = int(np.flatnonzero(loaded.view.tokens == row["token"])[0])
         assert row["documents_target"] == docs.counts[a, j] and row["documents_other"] == docs.counts[o, j]
         assert row["n01"] == docs.messages[a] - docs.counts[a, j]

@@ -61,7 +61,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Mapping
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 import scipy.sparse as sp
@@ -71,10 +71,12 @@ from explain.errors import NbledgerError
 from explain.model.model_view import ModelView
 from explain.analysis.risk import (
     FLAGS,
+    RedactionCheck,
     RiskThresholds,
     TokenTraits,
     Watchlist,
     redact,
+    redaction_check,
     risk_flags,
     token_traits,
     watchlist_columns,
@@ -267,7 +269,9 @@ class VocabReview:
     personal-looking token is already replaced by a placeholder, so nothing
     downstream can show it. ``support_by_class`` is the model's
     ``feature_count_`` (C, F). ``lens`` and ``top`` are the ranking and list
-    length asked for; every lens is ranked regardless.
+    length asked for; every lens is ranked regardless. ``redaction`` says
+    what the personal-data check looked at and found (also without
+    ``redacted``).
     """
 
     classes: tuple[str, ...]
@@ -285,6 +289,7 @@ class VocabReview:
     top: int
     redacted: bool
     redacted_count: int
+    redaction: RedactionCheck
     watchlist: tuple[WatchEntry, ...]
     watchlist_source: str | None
 
@@ -421,7 +426,9 @@ def _contrast(
     chi2, g2, mi = pearson_chi2(*table), dunning_g2(*table), mutual_information(*table)
     direction = np.sign(table[0] * table[3] - table[1] * table[2]).astype(np.int8)
 
-    flags = risk_flags(traits, ratio, y_t + y_o, watched, thresholds)
+    normal = view.normal_index
+    flagged_sides = (True, True) if normal is None else (t != normal, normal not in others)
+    flags = risk_flags(traits, ratio, y_t + y_o, watched, thresholds, flagged_sides)
     columns = {"zscore": z, "ratio": ratio, "mass": mass, "chi2": direction * chi2, "g2": direction * g2}
     rankings = [_ranking(columns[lens]) for lens in LENSES]
     return Contrast(
@@ -462,6 +469,7 @@ def review_vocabulary(
     thresholds: RiskThresholds = RiskThresholds(),
     prior_scale: float | None = None,
     redact_personal: bool = False,
+    analyzer: Callable[[str], Sequence[str]] | None = None,
 ) -> VocabReview:
     """Review what ``view`` has learned; see the module docstring for every column.
 
@@ -476,6 +484,8 @@ def review_vocabulary(
     thresholds : when evidence is strong and support thin.
     prior_scale : ``a0`` of the z-score's prior; None for the pooled total.
     redact_personal : replace personal-looking tokens (and watchlist terms) by placeholders.
+    analyzer : the model's tokenizer (text -> tokens), tried on example personal
+        values to say which kinds it splits into unrecognisable pieces.
 
     Examples
     --------
@@ -524,6 +534,7 @@ def review_vocabulary(
         top=int(top),
         redacted=bool(redact_personal),
         redacted_count=int(traits.personal.sum()) if redact_personal else 0,
+        redaction=redaction_check(traits, analyzer),
         watchlist=tuple(WatchEntry(str(s), int(c)) for s, c in zip(shown, columns)),
         watchlist_source=None if watchlist is None else watchlist.source,
     )

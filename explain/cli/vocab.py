@@ -93,6 +93,7 @@ def vocab(
         watchlist=terms,
         thresholds=thresholds,
         redact_personal=redact,
+        analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
     )
 
     from explain.present.vocab import render, to_csv, to_json
