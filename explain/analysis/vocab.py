@@ -87,8 +87,8 @@ LENSES = ("zscore", "ratio", "mass", "chi2", "g2")
 #: How tables and pictures name each lens's values.
 LENS_TITLES = {
     "zscore": "z-score",
-    "ratio": "log-odds per occurrence",
-    "mass": "log-odds on a typical message",
+    "ratio": "ratio (log-odds per occurrence)",
+    "mass": "mass (log-odds on a typical message)",
     "chi2": "chi-square",
     "g2": "G2",
 }

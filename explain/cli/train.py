@@ -68,7 +68,7 @@ def train(
     vocab = len(trained.pipeline[0].vocabulary_)
     lines = [
         f"trained {variant} naive Bayes on {trained.train_rows:,} of {len(messages):,} messages{held}",
-        f"rows trained on, per class: {per_class}",
+        f"rows trained on: {per_class}",
         f"features: {trained.features_shown} of {trained.ngrams_shown}; vocabulary of {vocab:,} tokens",
     ]
     if trained.holdout:

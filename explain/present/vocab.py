@@ -128,7 +128,7 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
             "redacted_count": review.redacted_count,
             "personal_data_check": {
                 "tokens_checked": review.redaction.checked,
-                "found": dict(review.redaction.found),
+                "found": [{"kind": kind, "tokens": n} for kind, n in review.redaction.found.items()],
                 "tokenizer_splits": None
                 if review.redaction.tokenizer_splits is None
                 else list(review.redaction.tokenizer_splits),
@@ -352,7 +352,8 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
     for side in ("for", "against"):
         picked = c.top(review.lens, review.top, side)
         console.print(_token_table(review, c, picked, side, console.width >= WIDE_TERMINAL))
-    counts = ", ".join(f"{FLAG_LABELS[name]} {c.flag_counts[name]:,}" for name in FLAGS)
+    # name=count keeps each pair on one line when the terminal wraps
+    counts = ", ".join(f"{FLAG_LABELS[name]}={c.flag_counts[name]:,}" for name in FLAGS)
     console.print(f"flags: {counts}", markup=False)
     for name in FLAGS:
         if name == "watchlist" or not c.flag_counts[name]:
@@ -366,8 +367,8 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
         console.print(f"  strongest {FLAG_LABELS[name]}: {listed}", markup=False)
 
 
-def _watchlist(review: VocabReview, console: Console) -> None:
-    console.print()
+def _watchlist(review: VocabReview) -> Table:
+    """Every watchlist term in every comparison."""
     table = Table(
         title=Text(f"watchlist {review.watchlist_source}"), title_justify="left", show_edge=False, pad_edge=False
     )
@@ -397,7 +398,7 @@ def _watchlist(review: VocabReview, console: Console) -> None:
                 _flags(c, j, skip=("watchlist",)),
             )
             table.add_row(*map(Text, cells))
-    console.print(table)
+    return table
 
 
 def render(review: VocabReview, console: Console) -> None:
@@ -406,7 +407,8 @@ def render(review: VocabReview, console: Console) -> None:
     for c in review.contrasts:
         _contrast(review, c, console)
     if review.watchlist_source is not None:
-        _watchlist(review, console)
+        console.print()
+        console.print(_watchlist(review))
     console.print()
     for line in redaction_lines(review):
         console.print(line, markup=False)
