@@ -123,7 +123,7 @@ def test_text_output_names_settings_and_both_sides(files, capsys, tmp_path):
     assert "2x2 tables (chi-square, G2, MI) count token occurrences" in flat
     assert "advert vs ok" in flat and "scam vs ok" in flat
     assert "strongest 5 for scam" in flat and "strongest 5 for ok" in flat
-    assert "thin: strong on less than 10 of support" in flat
+    assert "thin: strong with support below 10 (both sides together)" in flat
     assert "roma" in flat and "not in the vocabulary" in flat
 
 
