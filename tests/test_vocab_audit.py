@@ -103,6 +103,8 @@ def test_data_counts_only_the_rows_the_model_trained_on(model_files, capsys):
     doc = vocab_json(capsys, model, "--data", folder / "train.csv", "--text-col", "text", "--label-col", "label",
                      "--class", "scam", "--against", "ok")
     assert "counted the 1,500 rows the model trained on" in doc["review"]["counts"]["reason"]
+    assert doc["review"]["counts"]["rows_counted"] == len(trained) == 1500
+    assert doc["review"]["counts"]["rows_note"].endswith("leaving out the 500 held-out rows the card lists")
     (comparison,) = doc["comparisons"]
     present = CountVectorizer(binary=True).fit(trained.text)
     X = present.transform(trained.text)

@@ -150,10 +150,16 @@ def document_counts(view: ModelView, X, labels, source: str, rows_note: str = ""
 
 @dataclass(frozen=True)
 class CountSource:
-    """What fills the 2x2 tables: ``"documents"``, ``"occurrences"`` or ``"tfidf-weights"``, and why."""
+    """What fills the 2x2 tables: ``"documents"``, ``"occurrences"`` or ``"tfidf-weights"``, and why.
+
+    With a labelled file, ``rows_counted`` is the number of its messages
+    counted and ``rows_note`` which rows they are (see :class:`DocumentCounts`).
+    """
 
     kind: str
     reason: str
+    rows_counted: int | None = None
+    rows_note: str = ""
 
 
 def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSource:
@@ -162,6 +168,8 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
             "documents",
             f"counted in the labelled file {documents.source} "
             f"({int(documents.messages.sum()):,} messages)" + (f"; {documents.rows_note}" if documents.rows_note else ""),
+            rows_counted=int(documents.messages.sum()),
+            rows_note=documents.rows_note,
         )
     if view.feature_kind == "binary":
         return CountSource(

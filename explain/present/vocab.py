@@ -118,7 +118,12 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
             "n_features": review.n_features,
             "ranked_by": review.lens,
             "top": review.top,
-            "counts": {"kind": review.counts.kind, "reason": review.counts.reason},
+            "counts": {
+                "kind": review.counts.kind,
+                "reason": review.counts.reason,
+                "rows_counted": review.counts.rows_counted,
+                "rows_note": review.counts.rows_note or None,
+            },
             "prior_scale": review.prior_scale,
             "thresholds": {
                 "thin_below": review.thresholds.thin_below,
