@@ -96,7 +96,7 @@ def test_vocab_screen_terms_are_in_the_glossary(trained, files, width, lens):
     c = review.contrasts[0]
     tables = [present._token_table(review, c, c.top(lens, 5, side), side, width >= present.WIDE_TERMINAL)
               for side in ("for", "against")]
-    tables.append(present._watchlist(review))
+    tables += [present._watchlist(review, c) for c in review.contrasts]
     for table in tables:
         for column in table.columns:
             heading = str(column.header).split("\n")[0]

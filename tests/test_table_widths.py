@@ -63,7 +63,8 @@ def test_vocab_tables_keep_numbers_whole(data, width, lens):
         for side in ("for", "against"):
             table = present._token_table(review, c, c.top(lens, 20, side), side, width >= present.WIDE_TERMINAL)
             assert_numbers_whole(table, width)
-    assert_numbers_whole(present._watchlist(review), width)
+    for c in review.contrasts:
+        assert_numbers_whole(present._watchlist(review, c), width)
 
 
 def test_the_wide_layout_fits_its_width(data):

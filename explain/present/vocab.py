@@ -372,37 +372,36 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
         console.print(f"  strongest {FLAG_LABELS[name]}: {listed}", markup=False)
 
 
-def _watchlist(review: VocabReview) -> Table:
-    """Every watchlist term in every comparison."""
+def _watchlist(review: VocabReview, c: Contrast) -> Table:
+    """The watchlist terms the vocabulary has, in one comparison (the others are listed after the tables)."""
     table = Table(
-        title=Text(f"watchlist {review.watchlist_source}"), title_justify="left", show_edge=False, pad_edge=False
+        title=Text(f"watchlist, {c.label}"),
+        title_justify="left",
+        show_edge=False,
+        pad_edge=False,
     )
-    headings = ("term", "comparison", LENS_HEADINGS[review.lens], "ratio", "rank", "support", "flags")
-    for name in headings:
-        if name in ("term", "comparison", "flags"):
+    for name in ("term", LENS_HEADINGS[review.lens], "ratio", "rank", "support", "flags"):
+        if name in ("term", "flags"):
             table.add_column(name, overflow="fold")
         else:
             table.add_column(name, justify="right", no_wrap=True)
     lens_at = LENSES.index(review.lens)
     for w in review.watchlist:
-        for c in review.contrasts:
-            if w.column < 0:
-                table.add_row(*map(Text, (w.term, c.label, "-", "-", "not in the vocabulary", "-", "")))
-                continue
-            j = w.column
-            rank = int(c.rank[lens_at, j])
-            value = c.values(review.lens)[j]
-            where = f"{rank:,} for {c.target}" if value >= 0 else f"{review.n_features + 1 - rank:,} for {c.other}"
-            cells = (
-                w.term,
-                c.label,
-                _shown_value(c, review.lens, j),
-                _fmt(c.ratio[j]),
-                where,
-                f"{_count(c.support_target[j])} / {_count(c.support_other[j])}",
-                _flags(c, j, skip=("watchlist",)),
-            )
-            table.add_row(*map(Text, cells))
+        if w.column < 0:
+            continue
+        j = w.column
+        rank = int(c.rank[lens_at, j])
+        value = c.values(review.lens)[j]
+        where = f"{rank:,} for {c.target}" if value >= 0 else f"{review.n_features + 1 - rank:,} for {c.other}"
+        cells = (
+            w.term,
+            _shown_value(c, review.lens, j),
+            _fmt(c.ratio[j]),
+            where,
+            f"{_count(c.support_target[j])} / {_count(c.support_other[j])}",
+            _flags(c, j, skip=("watchlist",)),
+        )
+        table.add_row(*map(Text, cells))
     return table
 
 
@@ -413,7 +412,13 @@ def render(review: VocabReview, console: Console) -> None:
         _contrast(review, c, console)
     if review.watchlist_source is not None:
         console.print()
-        console.print(_watchlist(review))
+        console.print(f"Watchlist {review.watchlist_source}: every term in every comparison.", markup=False)
+        if any(w.column >= 0 for w in review.watchlist):
+            for c in review.contrasts:
+                console.print(_watchlist(review, c))
+        missing = [w.term for w in review.watchlist if w.column < 0]
+        if missing:
+            console.print(f"watchlist terms not in the vocabulary (no effect): {', '.join(missing)}", markup=False)
     console.print()
     for line in redaction_lines(review):
         console.print(line, markup=False)
