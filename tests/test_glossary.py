@@ -4,6 +4,7 @@ The glossary is read by :mod:`glossary` (tests/glossary.py); the assessment's
 screens are checked the same way in their own tests.
 """
 
+import contextlib
 import io
 import json
 import re
@@ -43,8 +44,6 @@ def cli(capsys, *args):
 @pytest.fixture(scope="module")
 def trained(files):
     out = io.StringIO()
-    import contextlib
-
     with contextlib.redirect_stdout(out):
         assert run(["train", str(files / "train.csv"), "--text-col", "text", "--label-col", "label",
                     "--normal-class", "ok", "--holdout", "0.2", "--seed", "3", "--out", str(files / "m.skops")]) == 0

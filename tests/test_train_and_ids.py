@@ -1,7 +1,5 @@
 """`train`'s summary and card (issue 12, item 11) and the id column of data files (item 10)."""
 
-import contextlib
-import io
 import json
 from pathlib import Path
 

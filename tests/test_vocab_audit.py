@@ -1,6 +1,7 @@
 """Issue 12's vocabulary checks: flags as defined, unsigned statistics, the personal-data check,
 the rows `--data` counts, and the support map."""
 
+import contextlib
 import io
 import json
 from pathlib import Path
@@ -73,8 +74,6 @@ def model_files(tmp_path_factory):
     frame.to_csv(folder / "train.csv", index=False)
     frame.iloc[:300].to_csv(folder / "other.csv", index=False)
     out = io.StringIO()
-    import contextlib
-
     with contextlib.redirect_stdout(out):
         assert run(["train", str(folder / "train.csv"), "--text-col", "text", "--label-col", "label",
                     "--normal-class", "ok", "--holdout", "0.25", "--seed", "11", "--out", str(folder / "m.skops")]) == 0

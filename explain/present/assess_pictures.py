@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from explain.analysis.assessment import FLAGGED, Assessment
+from explain.analysis.assessment import Assessment
 from explain.present.drawing import INK, NEUTRAL, PALETTE, line_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold).
