@@ -134,3 +134,10 @@ def test_train_screen_terms_are_in_the_glossary(files, capsys):
     metrics = next(line for line in out.splitlines() if line.startswith("  "))
     for name in re.findall(r"([A-Za-z][A-Za-z0-9 ]*?) [0-9]", metrics):
         assert glossary.is_term(name.strip(", ")), name
+
+
+def test_every_glossary_entry_has_a_definition_and_snake_case_keys():
+    for term, keys, definition, _ in glossary.rows():
+        assert term and len(definition) > 20, term
+        for key in re.findall(r"`([^`]+)`", keys):
+            assert glossary.SNAKE_CASE.fullmatch(re.sub(r"<[^>]+>", "x", key)), (term, key)

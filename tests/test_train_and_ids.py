@@ -127,3 +127,22 @@ def test_without_hold_out_every_row_trains():
     labels = np.array(["scam", "ok", "scam", "ok"] * 3)
     trained = train_filter(texts, labels, TrainSettings())
     assert trained.train_rows == 12 and trained.rows_per_class == {"ok": 6, "scam": 6} and trained.holdout is None
+
+
+def test_which_rows_a_file_trained_is_said_in_every_case(folder):
+    from explain.model.training import rows_trained_on
+
+    messages = read_messages(folder / "with_id.csv", "text", "label")
+    unknown = rows_trained_on(None, messages)
+    assert unknown.trained is None and "has no card" in unknown.note
+    other = rows_trained_on({"data": {"sha256": "0" * 64}}, messages)
+    assert other.trained is None and "is not the model's training file" in other.note
+    same = {"data": {"sha256": messages.sha256}}
+    whole = rows_trained_on({**same, "holdout": None}, messages)
+    assert whole.trained.all() and "all its 900 rows trained the model" in whole.note
+    old = rows_trained_on({**same, "holdout": {"rows": 180}}, messages)  # a card from before data_rows
+    assert old.trained is None and "include the 180 rows the model did not train on" in old.note
+    held = rows_trained_on({**same, "holdout": {"rows": 2, "data_rows": [1, 900]}}, messages)
+    assert held.trained.sum() == 898 and not held.trained[0] and not held.trained[-1]
+    with pytest.raises(NbledgerError):
+        rows_trained_on({**same, "holdout": {"rows": 1, "data_rows": [901]}}, messages)
