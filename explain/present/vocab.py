@@ -47,9 +47,11 @@ column                  meaning
 
 JSON (``--format json``), schema ``nbledger.vocab/1``: ``model`` and ``data``
 (``{path, sha256}`` or null); ``review`` (variant, feature kind, classes,
-normal class, token count, ranking, list length, what the 2x2 tables count
-and why, the z-score prior scale, risk thresholds, redaction and the
-personal-data check); ``comparisons``,
+normal class, token count, ranking, list length, ``counts``: what the 2x2
+tables count and why, with ``rows_counted`` and ``rows_note`` for a labelled
+file; the z-score prior scale, risk thresholds, redaction and
+``personal_data_check``: ``tokens_checked``, ``found`` as a list of
+``{kind, tokens}``, ``tokenizer_splits``); ``comparisons``,
 each with its classes, training messages, ``flag_counts``, ``top_for`` and
 ``top_against`` (rows as above) and ``flagged`` (per flag, the strongest
 tokens carrying it, at most ``top``); and ``watchlist`` (source and, per term,
