@@ -7,6 +7,7 @@ import math
 from pathlib import Path
 from typing import List, Optional
 
+import numpy as np
 import typer
 
 from explain.cli import (
@@ -36,6 +37,7 @@ def vocab(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of --data holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of --data holding the class."),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data holding message ids (default: 'id' if present)."),
     output_format: str = typer.Option("text", "--format", help="text | csv | json (csv lists every token)."),
     images: Optional[Path] = typer.Option(None, "--images", help="Write word clouds and bar charts (PNG) here."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
@@ -57,6 +59,7 @@ def vocab(
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
     from explain.analysis.vocab import LENSES, document_counts, review_vocabulary
+    from explain.model.training import rows_trained_on
 
     if output_format not in FORMATS:
         fail(f"--format must be text, csv or json, got {output_format!r}")
@@ -79,9 +82,15 @@ def vocab(
     messages = documents = None
     if data is not None:
         mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-        messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail), data)
+        messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col), data)
+        seen = rows_trained_on(loaded.card, messages)
+        rows = np.arange(len(messages)) if seen.trained is None else np.flatnonzero(seen.trained)
         documents = document_counts(
-            loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name
+            loaded.view,
+            loaded.featurizer.transform([messages.texts[i] for i in rows]),
+            messages.labels[rows],
+            data.name,
+            seen.note,
         )
     review = review_vocabulary(
         loaded.view,
@@ -93,6 +102,7 @@ def vocab(
         watchlist=terms,
         thresholds=thresholds,
         redact_personal=redact,
+        analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
     )
 
     from explain.present.vocab import render, to_csv, to_json

@@ -10,6 +10,9 @@ Data files are untrusted. The policy:
 - A missing column is named together with the columns that were found; an
   empty file or a file with no rows is refused; missing texts become empty
   strings; missing labels are refused (naming the first row).
+- Ids come from the id column (``id_col``, default ``id`` when present) or
+  are data row numbers from 1; a blank or repeated id is refused, naming the
+  row, so that every figure about a message names exactly one row.
 """
 
 from __future__ import annotations
@@ -36,7 +39,9 @@ class Messages:
     ----------
     texts : list of str
     labels : ndarray of str, or None when no label column was asked for
-    ids : ndarray of str (the ``id`` column when there is one, else row numbers from 1)
+    ids : ndarray of str, one per message: the id column (``id_col``, or ``id``
+        when the file has one), else data row numbers counted from 1
+    id_col : str or None, the column the ids came from (None: row numbers)
     replaced_chars : int, bytes that were not valid UTF-8 and became U+FFFD
     source : Path
     sha256 : str, of the file's bytes as stored (for a folder, of its files' names and bytes)
@@ -51,6 +56,7 @@ class Messages:
     source: Path
     sha256: str
     notes: tuple = ()
+    id_col: str | None = None
 
     def __len__(self) -> int:
         return len(self.texts)
@@ -85,8 +91,10 @@ def decode_utf8(raw: bytes) -> tuple[str, int]:
 def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
     """Read messages (and labels) from a data file; see the module policy.
 
-    Ids come from ``id_col`` when named (it must exist), else from a column
-    ``id`` when there is one, else are row numbers from 1.
+    ``id_col`` names the column of message ids; without it the column ``id``
+    is used when the file has one, else data row numbers from 1. A missing id is
+    refused; repeated ids are allowed and counted in ``notes`` (commands that
+    pick messages by id use the first).
     """
     path = Path(path)
     fmt, gzipped = data_format(path)
@@ -125,13 +133,36 @@ def read_messages(path, text_col: str, label_col: str | None = None, id_col: str
                 f"{path.name}: {len(gaps)} rows have no {label_col!r} (first at data row {gaps[0] + 1})"
             )
         labels = np.asarray([str(v).strip() for v in values], dtype=object)
-    ids = columns.get("id" if id_col is None else id_col)
-    ids = (
-        np.asarray([str(i) for i in ids], dtype=object)
-        if ids is not None
-        else np.asarray([str(i + 1) for i in range(n)], dtype=object)
+    if id_col is None and "id" in columns:
+        id_col = "id"
+    ids = _ids(columns[id_col], id_col, path.name) if id_col is not None else np.asarray(
+        [str(i + 1) for i in range(n)], dtype=object
     )
-    return Messages(texts, labels, ids, replaced, path, digest)
+    notes = () if id_col is None else _repeated_ids(ids, id_col)
+    return Messages(texts, labels, ids, replaced, path, digest, notes=notes, id_col=id_col)
+
+
+def _ids(values, id_col: str, name: str) -> np.ndarray:
+    """The id column as strings; a missing id is refused, naming its data row."""
+    ids = np.asarray(["" if _missing(v) else str(v).strip() for v in values], dtype=object)
+    empty = np.flatnonzero(ids == "")
+    if len(empty):
+        rows = "1 row has" if len(empty) == 1 else f"{len(empty):,} rows have"
+        raise NbledgerError(f"{name}: {rows} no {id_col!r} (first at data row {empty[0] + 1})")
+    return ids
+
+
+def _repeated_ids(ids: np.ndarray, id_col: str) -> tuple[str, ...]:
+    """A note on ids used by more than one row (a figure about such an id names its first row)."""
+    _, first, counts = np.unique(ids.astype(str), return_index=True, return_counts=True)
+    if not (counts > 1).any():
+        return ()
+    row = int(first[counts > 1].min())
+    shared, extra = int((counts > 1).sum()), int(counts[counts > 1].sum() - (counts > 1).sum())
+    return (
+        f"ids in column {id_col!r} used by more than one row: {shared:,} "
+        f"({extra:,} extra {'row' if extra == 1 else 'rows'}; first {ids[row]!r} at data row {row + 1})",
+    )
 
 
 def _missing(value) -> bool:

@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import hashlib
 import mailbox
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -91,15 +91,7 @@ def read_data(
     if not mail.raw_email:
         return messages
     emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits) for text in messages.texts]
-    return Messages(
-        [e.text(mail.view) for e in emails],
-        messages.labels,
-        messages.ids,
-        messages.replaced_chars,
-        messages.source,
-        messages.sha256,
-        summarise(emails),
-    )
+    return replace(messages, texts=[e.text(mail.view) for e in emails], notes=messages.notes + summarise(emails))
 
 
 def _read_limited(path: Path, limit: int) -> tuple[bytes, bool]:
