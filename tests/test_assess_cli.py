@@ -89,8 +89,8 @@ def test_text_output_puts_base_rates_first(files, capsys):
         "--normal-class", "ok", "--threshold", "0.9",
     )
     assert code == 0, err
-    order = ["base rates", "confusion matrix", "flagged versus normal", "metrics at the decision in use",
-             "ranking quality", "operating points", "calibration: Brier", "false alarms (", "missed abuse (",
+    order = ["base rates", "confusion matrix", "flagged versus normal", "rates at the decision in use",
+             "ranking quality", "operating points", "calibration: Brier", "false alarms (", "missed (",
              "borderline", "what drives"]
     positions = [out.find(h) for h in order]
     assert -1 not in positions and positions == sorted(positions)

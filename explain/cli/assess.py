@@ -50,6 +50,24 @@ def assess(
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds",
+        help="Flag when log P(not normal) - log P(normal) >= L, exactly (as printed for each operating point).",
+    ),
+    base_rate: Optional[str] = typer.Option(
+        None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: project the figures to it."
+    ),
+    slice_by: Optional[List[str]] = typer.Option(
+        None, "--slice-by", help="Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month)."
+    ),
+    watchlist: Optional[Path] = typer.Option(
+        None, "--watchlist", help="UTF-8 file of terms (one a line, # comments): error rates of messages holding each."
+    ),
+    label_errors: bool = typer.Option(
+        False, "--label-errors", help="List messages whose label may be wrong (refits the model's pipeline on folds of DATA)."
+    ),
+    folds: int = typer.Option(5, "--folds", help="Folds for --label-errors."),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding the message id (default: id, if present)."),
     target_fpr: Optional[List[str]] = typer.Option(
         None, "--target-fpr", help="False-positive rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
     ),
@@ -68,8 +86,9 @@ def assess(
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
 ):
-    """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
-    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
+    """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
+    from explain.analysis import slices as slicing
+    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL, class_indices
     from explain.analysis.assessment import assess as run_assessment
     from explain.present.assessment import render, to_json
 
@@ -80,15 +99,44 @@ def assess(
         DEFAULT_TARGET_RECALL if not target_recall else tuple(parse_fraction(t, "--target-recall") for t in target_recall)
     )
     cost_pair = parse_costs(costs)
+    prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
+    if threshold is not None and threshold_log_odds is not None:
+        fail("give --threshold or --threshold-log-odds, not both")
+    if folds < 2:
+        fail(f"--folds must be at least 2, got {folds}")
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    messages = read_messages_or_fail(data, text_col, label_col)
+    messages = read_messages_or_fail(data, text_col, label_col, id_col)
+    X = loaded.featurizer.transform(messages.texts)
+    groups = [slicing.by_length(messages.texts)] if (slice_by or watchlist) else []
+    for spec in slice_by or ():
+        from explain.model.data_io import read_column
+
+        column, period = slicing.parse_slice_spec(spec)
+        values = read_column(data, column)
+        groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))
+    if watchlist is not None:
+        from explain.analysis.risk import read_watchlist
+
+        groups.append(slicing.by_terms(messages.texts, read_watchlist(watchlist).terms))
+    suspected = None
+    if label_errors:
+        from explain.analysis.label_errors import label_errors as find_label_errors
+        from explain.analysis.label_errors import out_of_sample_probabilities
+
+        truth = class_indices(loaded.view, messages.labels)
+        probabilities = out_of_sample_probabilities(loaded.unfitted_copy(), messages.texts, truth, loaded.classes, folds)
+        suspected = find_label_errors(loaded.view, X, truth, messages.ids, probabilities, folds=folds)
     result = run_assessment(
         loaded.view,
-        loaded.featurizer.transform(messages.texts),
+        X,
         messages.labels,
         threshold=threshold,
+        threshold_log_odds=threshold_log_odds,
+        base_rate=prevalence,
+        slices=groups,
+        label_errors=suspected,
         ids=messages.ids,
         target_fpr=fprs,
         target_recall=recalls,

@@ -19,7 +19,14 @@ key                 meaning
 Numbers that are not finite become ``null``: an undefined proportion (0/0),
 and the threshold +inf that starts each ROC curve (nothing flagged). Every
 proportion is ``{value, low, high, numerator, denominator}`` with the Wilson
-interval at ``assessment.confidence``. Log-odds are natural logarithms.
+interval at ``assessment.confidence``. Log-odds are natural logarithms, and
+every float is written with all its digits (Python's ``repr``): a
+``threshold_log_odds`` typed back with ``--threshold-log-odds`` flags exactly
+the messages its row counts.
+
+The terminal output uses one interval style, ``value [low, high]`` in the
+value's unit, and never splits a number or an interval across lines: a table
+too wide for the terminal is printed stacked, one block per row.
 """
 
 from __future__ import annotations
@@ -28,11 +35,15 @@ import dataclasses
 import math
 
 import numpy as np
+from rich.cells import cell_len
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.analysis.assessment import Assessment, OperatingPoint, Rate, ReviewedMessage
+from explain.analysis.assessment import Assessment
+from explain.analysis.error_review import ReviewedMessage
+from explain.analysis.ranking import OperatingPoint
+from explain.analysis.rates import Estimate, Rate
 from explain.present.token_display import shown
 
 SCHEMA = "nbledger.assess/1"
@@ -72,13 +83,25 @@ def _pct(x: float) -> str:
 
 
 def _interval(value: float, low: float, high: float, n: int) -> str:
+    """A share as ``7.21 % [5.98, 8.61]``: the one interval style of every screen."""
     if n == 0:
         return "undefined (0/0)"
-    return f"{_pct(value)} [{100 * low:.2f}-{100 * high:.2f}]"
+    return f"{_pct(value)} [{100 * low:.2f}, {100 * high:.2f}]"
 
 
 def _rate(r: Rate) -> str:
     return _interval(r.value, r.low, r.high, r.denominator)
+
+
+def _count_interval(e: Estimate) -> str:
+    """A projected count as ``12.3 [9.8, 15.6]``."""
+    if not math.isfinite(e.value):
+        return "-"
+    return f"{e.value:.1f} [{e.low:.1f}, {e.high:.1f}]"
+
+
+def _share_interval(e: Estimate) -> str:
+    return _interval(e.value, e.low, e.high, 1 if math.isfinite(e.value) else 0)
 
 
 def _prob(p: float) -> str:
@@ -96,12 +119,58 @@ def _num(x: float, digits: int = 3) -> str:
     return "-" if x is None or not math.isfinite(x) else f"{x:.{digits}f}"
 
 
-def _table(title: str, *columns: str, right_from: int = 1) -> Table:
-    table = Table(title=title, title_justify="left", title_style="bold", header_style="bold")
+def _exact(x: float) -> str:
+    """A log-odds threshold with every digit, as typed back to ``--threshold-log-odds``."""
+    return repr(float(x))
+
+
+def _level(result: Assessment) -> str:
+    return f"{100 * result.confidence:g} %"
+
+
+# --- tables that fit ------------------------------------------------------------------
+
+
+def _plain_text(cell) -> str:
+    return cell.plain if isinstance(cell, Text) else str(cell)
+
+
+def _widest_word(text: str) -> int:
+    return max((cell_len(w) for w in text.split()), default=0)
+
+
+def _emit(console: Console, title: str | None, columns, rows, *, right_from: int = 1, wrap=()) -> None:
+    """Print a table whose numbers never break; stacked when it cannot fit.
+
+    Columns from ``right_from`` on hold figures (right-aligned); only the
+    columns named in ``wrap`` (words, tokens) may wrap, between words.
+    When even that does not fit the console, each row is printed as a block:
+    its first cell, then ``column: value`` lines.
+    """
+    wrapping = [name in wrap for name in columns]
+    need = 1
     for i, name in enumerate(columns):
-        # fold rather than cut: a truncated figure is a wrong figure
-        table.add_column(name, justify="right" if i >= right_from else "left", overflow="fold")
-    return table
+        cells = [_plain_text(r[i]) for r in rows] if rows else [""]
+        width = max(_widest_word(c) if wrapping[i] else cell_len(c) for c in cells)
+        need += max(width, _widest_word(name)) + 3
+    if need <= console.width:
+        table = Table(title=title, title_justify="left", title_style="bold", header_style="bold")
+        for i, name in enumerate(columns):
+            table.add_column(
+                name, justify="right" if i >= right_from and name not in wrap else "left", no_wrap=not wrapping[i]
+            )
+        for r in rows:
+            table.add_row(*r)
+        console.print(table)
+        return
+    if title:
+        console.print(Text(title, style="bold"))
+    for r in rows:
+        console.print(Text.assemble("  ", r[0] if isinstance(r[0], Text) else Text(str(r[0])), style="bold"))
+        for name, cell in zip(columns[1:], r[1:]):
+            line = Text(f"    {name}: ")
+            line.append(cell if isinstance(cell, Text) else Text(str(cell)))
+            console.print(line)
 
 
 # --- sections -------------------------------------------------------------------------
@@ -109,73 +178,55 @@ def _table(title: str, *columns: str, right_from: int = 1) -> Table:
 
 def _base_rates(result: Assessment, console: Console) -> None:
     b = result.base_rates
-    table = _table(f"base rates ({b.n_messages} messages)", "class", "messages", f"share  [{_level(result)} interval]")
-    for name, count, share in zip(b.classes, b.counts, b.shares):
-        table.add_row(Text(name), str(count), _rate(share))
+    rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
-        table.add_row(Text(f"not {result.normal_class}", style="bold"), str(b.flagged.numerator), _rate(b.flagged))
-    console.print(table)
-
-
-def _level(result: Assessment) -> str:
-    return f"{100 * result.confidence:g} %"
+        rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
+    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"share [{_level(result)} interval]"], rows)
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
-    table = _table(title, "true \\ decided", *matrix.labels, "total")
-    for i, name in enumerate(matrix.labels):
-        cells = [
-            f"{matrix.counts[i, j]}  ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))
-        ]
-        table.add_row(Text(name), *cells, str(matrix.counts[i].sum()))
-    console.print(table)
+    rows = [
+        [Text(name), *(f"{matrix.counts[i, j]} ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))),
+         str(matrix.counts[i].sum())]
+        for i, name in enumerate(matrix.labels)
+    ]
+    _emit(console, title, ["true \\ decided", *matrix.labels, "total"], rows)
 
 
 METRICS = (
-    ("precision", "precision"),
-    ("recall (sensitivity)", "recall"),
-    ("specificity", "specificity"),
-    ("false-positive rate", "false_positive_rate"),
-    ("F1", "f1"),
-    ("accuracy", "accuracy"),
+    (("precision", "precision"), ("recall", "recall")),
+    (("specificity", "specificity"), ("false-positive rate", "false_positive_rate")),
+    (("F1", "f1"), ("accuracy", "accuracy")),
 )
 
 
 def _metrics(result: Assessment, console: Console) -> None:
-    shown = ([result.flag_metrics] if result.flag_metrics is not None else []) + list(result.class_metrics)
-    table = _table(
-        f"metrics at the decision in use, with {_level(result)} Wilson intervals",
-        "positive class",
-        *(m.positive for m in shown),
-    )
-    for label, field in METRICS:
-        table.add_row(label, *(_rate(getattr(m, field)) for m in shown))
-    console.print(table)
-    console.print(f"overall accuracy: {_rate(result.accuracy)}   (on imbalanced traffic, read the rates above instead)")
+    shown_metrics = ([result.flag_metrics] if result.flag_metrics is not None else []) + list(result.class_metrics)
+    for i, pair in enumerate(METRICS):
+        rows = [[Text(m.positive), *(_rate(getattr(m, field)) for _, field in pair)] for m in shown_metrics]
+        title = f"rates at the decision in use, with {_level(result)} Wilson intervals" if i == 0 else None
+        _emit(console, title, ["positive class", *(label for label, _ in pair)], rows)
+    console.print(f"overall accuracy: {_rate(result.accuracy)} (on imbalanced traffic, read the rates above instead)")
 
 
 def _ranking(result: Assessment, console: Console) -> None:
     rankings = [r for r in (result.flag_ranking, *result.class_ranking) if r is not None]
     if not rankings:
         return
-    table = _table(
-        f"ranking quality (AUC with {_level(result)} DeLong interval)",
-        "positive",
-        "positives",
-        "negatives",
-        "AUC",
-        "interval",
-        "average precision",
-    )
+    rows = []
     for r in rankings:
-        interval = "-" if not math.isfinite(r.auc.variance) else f"[{r.auc.low:.4f}, {r.auc.high:.4f}]"
-        table.add_row(
-            Text(r.positive), str(r.n_positive), str(r.n_negative), f"{r.auc.auc:.4f}", interval, f"{r.average_precision:.4f}"
-        )
-    console.print(table)
+        interval = "-" if not math.isfinite(r.auc.variance) else f"{r.auc.auc:.4f} [{r.auc.low:.4f}, {r.auc.high:.4f}]"
+        rows.append([Text(r.positive), str(r.n_positive), str(r.n_negative), interval, f"{r.average_precision:.4f}"])
+    _emit(
+        console,
+        f"ranking quality (AUC with {_level(result)} DeLong interval)",
+        ["positive", "positives", "negatives", "AUC [interval]", "average precision"],
+        rows,
+    )
 
 
-def _point_label(p: OperatingPoint) -> str:
+def point_label(p: OperatingPoint) -> str:
+    """How an operating point was chosen, in a few words (also the pictures' label)."""
     if p.kind == "fpr":
         return f"FPR <= {100 * p.target:g} %"
     if p.kind == "recall":
@@ -186,37 +237,50 @@ def _point_label(p: OperatingPoint) -> str:
 def _operating_points(result: Assessment, console: Console) -> None:
     if not result.operating_points:
         return
-    thresholds = _table(
-        "operating points (FPR: false-positive rate)", "chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "FPR"
-    )
-    columns = ["chosen by", "false alarms", "missed abuse"] + ([] if result.costs is None else ["cost / message"])
-    expected = _table("expected per 10,000 messages at the data's base rate", *columns)
-    for table in (thresholds, expected):
-        table.columns[0].no_wrap = True
+    rows, expected, projected, exact = [], [], [], []
     for p in result.operating_points:
         f = p.figures
         if f is None:
-            thresholds.add_row(Text(_point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", "")
+            rows.append([Text(point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", ""])
             continue
-        thresholds.add_row(
-            Text(_point_label(p)),
-            _num(f.threshold_log_odds),
-            _prob(f.threshold_probability),
-            _pct(f.precision.value),
-            _pct(f.recall.value),
-            _pct(f.false_positive_rate.value),
-        )
-        row = [Text(_point_label(p)), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
+        rows.append([Text(point_label(p)), _num(f.threshold_log_odds), _prob(f.threshold_probability),
+                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_positive_rate.value)])
+        row = [Text(point_label(p)), str(f.tp + f.fp), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))
-        expected.add_row(*row)
-    console.print(thresholds)
+        expected.append(row)
+        if f.projection is not None:
+            pr = f.projection
+            projected.append([Text(point_label(p)), _share_interval(pr.precision),
+                              _count_interval(pr.false_alarms_per_10k), _count_interval(pr.missed_per_10k)])
+        if math.isfinite(f.threshold_log_odds):
+            exact.append(f"  {point_label(p)}: --threshold-log-odds {_exact(f.threshold_log_odds)}")
+    _emit(console, "operating points (FPR: false-positive rate)",
+          ["chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "FPR"], rows, wrap=("log-odds >=",))
     console.print(
-        "a message is flagged when its log-odds of not being normal is at least the threshold; "
-        "the JSON output carries an interval for every rate. Thresholds chosen by target on this data "
-        "look better here than they will on new traffic: confirm them on messages not used to choose them"
+        "a message is flagged when its log-odds of being in a flagged class rather than the normal class is at "
+        "least the threshold; the JSON output carries an interval for every rate. Thresholds chosen by target on "
+        "this data look better here than they will on new traffic: confirm them on messages not used to choose them"
     )
-    console.print(expected)
+    if exact:
+        console.print("each threshold exactly, to reproduce its row:")
+        for line in exact:
+            console.print(line, soft_wrap=True)
+    columns = ["chosen by", "flagged", "false alarms", "missed"] + ([] if result.costs is None else ["cost / message"])
+    _emit(console, "per 10,000 messages at the test set's base rate (measured)", columns, expected)
+    if projected:
+        _emit(
+            console,
+            f"per 10,000 messages at a base rate of {100 * result.base_rate:g} % (a projection: Bayes' rule "
+            f"on the measured recall and false-positive rate)",
+            ["chosen by", "precision [interval]", "false alarms [interval]", "missed [interval]"],
+            projected,
+        )
+        console.print(
+            f"projection intervals put the ends of the {_level(result)} Wilson intervals of recall and "
+            "false-positive rate through Bayes' rule; precision uses both, so its level is at least "
+            f"{100 * (2 * result.confidence - 1):g} %. It assumes the measured rates hold in that traffic"
+        )
     if result.costs is not None:
         console.print(
             f"costs: a false alarm {result.costs[0]:g}, a missed message {result.costs[1]:g}; "
@@ -235,22 +299,16 @@ def _calibration(result: Assessment, console: Console) -> None:
             f"({cal.n_bins} bins of equal count)",
         )
     )
-    table = _table(None, "bin", "messages", "log-odds from", "to", "mean P(flag)", "observed share flagged  [interval]")
-    for b in range(cal.n_bins):
-        table.add_row(
-            str(b + 1),
-            str(cal.counts[b]),
-            _num(cal.log_odds_low[b], 2),
-            _num(cal.log_odds_high[b], 2),
-            _prob(cal.mean_predicted[b]),
-            _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b]),
-        )
-    console.print(table)
+    rows = [
+        [str(b + 1), str(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
+         _prob(cal.mean_predicted[b]),
+         _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
+        for b in range(cal.n_bins)
+    ]
+    _emit(console, None, ["bin", "messages", "log-odds from", "to", "mean P(flag)", "observed flagged share [interval]"], rows)
     s = result.scores
-    table = _table("flag log-odds by true class", "class", *(f"{100 * q:g} %" for q in s.quantile_levels))
-    for c, name in enumerate(s.classes):
-        table.add_row(Text(name), *(_num(v, 2) for v in s.quantiles[c]))
-    console.print(table)
+    rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
+    _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
 
 
 def _tokens(pushes) -> str:
@@ -259,27 +317,21 @@ def _tokens(pushes) -> str:
 
 def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, console: Console) -> None:
     heading = title if total is None else f"{title}: {total}" + (f" (showing {len(rows)})" if len(rows) < total else "")
-    table = _table(heading, "id", "true", "decided", "P(flag)", "margin", "toward flagging", "toward normal", right_from=3)
-    for m in rows:
-        table.add_row(
-            Text(m.id),
-            Text(m.true_class),
-            Text(m.decided_class),
-            _prob(m.flag_probability),
-            f"{m.margin:+.2f}",
-            Text(_tokens(m.toward_flag), justify="left"),
-            Text(_tokens(m.toward_normal), justify="left"),
-        )
-    console.print(table)
+    cells = [
+        [Text(m.id + ("\nlabel may be wrong" if m.label_may_be_wrong else "")), Text(m.true_class),
+         Text(m.decided_class), _prob(m.flag_probability), f"{m.margin:+.2f}",
+         Text(_tokens(m.toward_flag)), Text(_tokens(m.toward_normal))]
+        for m in rows
+    ]
+    _emit(console, heading, ["id", "true", "decided", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
+          right_from=3, wrap=("toward flagged", "toward normal"))
 
 
 def _drivers(title: str, drivers, console: Console) -> None:
     if not drivers:
         return
-    table = _table(title, "token", "summed evidence", "errors pushed", "errors tipped")
-    for d in drivers:
-        table.add_row(Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped))
-    console.print(table)
+    rows = [[Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped)] for d in drivers]
+    _emit(console, title, ["token", "summed evidence", "errors pushed", "errors tipped"], rows)
 
 
 def _errors(result: Assessment, console: Console) -> None:
@@ -287,13 +339,59 @@ def _errors(result: Assessment, console: Console) -> None:
     if e is None:
         return
     _messages("false alarms (normal messages flagged), most confident first", e.false_alarms, e.n_false_alarms, console)
-    _messages("missed abuse (flagged classes let through), most confident first", e.missed, e.n_missed, console)
+    _messages("missed (flagged-class messages let through), most confident first", e.missed, e.n_missed, console)
     _messages("borderline messages (closest to the threshold)", e.borderline, None, console)
-    _drivers("what drives false alarms (tokens pushing normal messages toward flagging)", e.false_alarm_drivers, console)
-    _drivers("what drives missed abuse (tokens pushing abuse toward normal)", e.missed_drivers, console)
+    _drivers("what drives false alarms (tokens pushing normal messages toward flagged)", e.false_alarm_drivers, console)
+    _drivers("what drives missed messages (tokens pushing them toward normal)", e.missed_drivers, console)
+    scale = (
+        "log-odds of every flagged class together against the normal class"
+        if result.threshold is not None
+        else "log-odds of the most probable flagged class against the normal class"
+    )
     console.print(
-        "margin: distance to the threshold on the log-odds scale; evidence compares the most probable flagged "
-        "class with the normal class; 'tipped': the token's evidence alone exceeded the margin"
+        f"P(flag) and margin are on one scale, the {scale}: P(flag) is its probability, margin its distance to "
+        "the threshold; evidence compares the most probable flagged class with the normal class; 'tipped': the "
+        "token's evidence alone exceeded the margin"
+    )
+
+
+def _slices(result: Assessment, console: Console) -> None:
+    rep = result.slices
+    if rep is None:
+        return
+    rows = [
+        [Text(f"{s.group}: {s.name}"), str(s.n_messages), _rate(s.false_alarm_rate), _rate(s.miss_rate),
+         _num(s.adjusted_p_value, 4)]
+        for s in rep.slices
+    ]
+    _emit(console, f"slices (rates with {_level(result)} Wilson intervals)",
+          ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p"], rows)
+    console.print(f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
+    if rep.differing:
+        console.print(Text(f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", style="bold"))
+        for s in rep.differing:
+            console.print(f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
+                          f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
+    else:
+        console.print(f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}")
+
+
+def _label_errors(result: Assessment, console: Console) -> None:
+    le = result.label_errors
+    if le is None:
+        return
+    rows = [
+        [Text(s.id), Text(s.label), Text(s.favoured_class), _prob(s.label_probability), f"{s.log_odds:+.2f}",
+         Text(_tokens(s.toward_favoured))]
+        for s in le.suspected
+    ]
+    _emit(console, f"suspected label errors: {len(le.suspected)} of {le.n_messages} messages",
+          ["id", "label", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
+          wrap=("toward favoured",))
+    console.print(
+        f"found by {le.method} on out-of-sample probabilities from {le.folds} refits of the model's own pipeline "
+        "(stratified folds); P(label) and log-odds (favoured class against the label) are out-of-sample; the "
+        "label may be right and the filter wrong: look again before relabelling"
     )
 
 
@@ -312,6 +410,12 @@ def render(result: Assessment, console: Console) -> None:
     _ranking(result, console)
     _operating_points(result, console)
     _calibration(result, console)
+    _slices(result, console)
     _errors(result, console)
+    _label_errors(result, console)
+    console.print(
+        "error rates are estimates from this data; the figures describe the model, not the truth about any "
+        "message; messages are personal data; decisions stay with trained staff"
+    )
     for note in result.notes:
         console.print(Text(f"note: {note}", style="italic"))
