@@ -33,6 +33,8 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import re
+import textwrap
 
 import numpy as np
 from rich.cells import cell_len
@@ -139,6 +141,18 @@ def _widest_word(text: str) -> int:
     return max((cell_len(w) for w in text.split()), default=0)
 
 
+_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \[[^\]]*\]|[-+]?[\d.]+ %|1 - [\d.e+-]+")
+_NBSP = "\u00a0"
+
+
+def _say(console: Console, text: str, style: str | None = None) -> None:
+    """Print prose wrapped to the console between words, never inside a figure or an interval."""
+    # textwrap breaks only at ASCII whitespace: no-break spaces hold each figure together
+    glued = _FIGURE.sub(lambda m: m.group(0).replace(" ", _NBSP), text)
+    for line in textwrap.wrap(glued, width=console.width, break_long_words=False, break_on_hyphens=False):
+        console.print(Text(line.replace(_NBSP, " "), style=style or ""), soft_wrap=True)
+
+
 def _emit(console: Console, title: str | None, columns, rows, *, right_from: int = 1, wrap=()) -> None:
     """Print a table whose numbers never break; stacked when it cannot fit.
 
@@ -153,8 +167,10 @@ def _emit(console: Console, title: str | None, columns, rows, *, right_from: int
         cells = [_plain_text(r[i]) for r in rows] if rows else [""]
         width = max(_widest_word(c) if wrapping[i] else cell_len(c) for c in cells)
         need += max(width, _widest_word(name)) + 3
+    if title:
+        _say(console, title, "bold")
     if need <= console.width:
-        table = Table(title=title, title_justify="left", title_style="bold", header_style="bold")
+        table = Table(header_style="bold")
         for i, name in enumerate(columns):
             table.add_column(
                 name, justify="right" if i >= right_from and name not in wrap else "left", no_wrap=not wrapping[i]
@@ -163,14 +179,10 @@ def _emit(console: Console, title: str | None, columns, rows, *, right_from: int
             table.add_row(*r)
         console.print(table)
         return
-    if title:
-        console.print(Text(title, style="bold"))
     for r in rows:
-        console.print(Text.assemble("  ", r[0] if isinstance(r[0], Text) else Text(str(r[0])), style="bold"))
+        _say(console, f"  {_plain_text(r[0])}", "bold")
         for name, cell in zip(columns[1:], r[1:]):
-            line = Text(f"    {name}: ")
-            line.append(cell if isinstance(cell, Text) else Text(str(cell)))
-            console.print(line)
+            _say(console, f"    {name}: {_plain_text(cell)}")
 
 
 # --- sections -------------------------------------------------------------------------
@@ -206,7 +218,7 @@ def _metrics(result: Assessment, console: Console) -> None:
         rows = [[Text(m.positive), *(_rate(getattr(m, field)) for _, field in pair)] for m in shown_metrics]
         title = f"rates at the decision in use, with {_level(result)} Wilson intervals" if i == 0 else None
         _emit(console, title, ["positive class", *(label for label, _ in pair)], rows)
-    console.print(f"overall accuracy: {_rate(result.accuracy)} (on imbalanced traffic, read the rates above instead)")
+    _say(console, f"overall accuracy: {_rate(result.accuracy)} (on imbalanced traffic, read the rates above instead)")
 
 
 def _ranking(result: Assessment, console: Console) -> None:
@@ -257,7 +269,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
             exact.append(f"  {point_label(p)}: --threshold-log-odds {_exact(f.threshold_log_odds)}")
     _emit(console, "operating points (FPR: false-positive rate)",
           ["chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "FPR"], rows, wrap=("log-odds >=",))
-    console.print(
+    _say(console, 
         "a message is flagged when its log-odds of being in a flagged class rather than the normal class is at "
         "least the threshold; the JSON output carries an interval for every rate. Thresholds chosen by target on "
         "this data look better here than they will on new traffic: confirm them on messages not used to choose them"
@@ -276,13 +288,13 @@ def _operating_points(result: Assessment, console: Console) -> None:
             ["chosen by", "precision [interval]", "false alarms [interval]", "missed [interval]"],
             projected,
         )
-        console.print(
+        _say(console, 
             f"projection intervals put the ends of the {_level(result)} Wilson intervals of recall and "
             "false-positive rate through Bayes' rule; precision uses both, so its level is at least "
             f"{100 * (2 * result.confidence - 1):g} %. It assumes the measured rates hold in that traffic"
         )
     if result.costs is not None:
-        console.print(
+        _say(console, 
             f"costs: a false alarm {result.costs[0]:g}, a missed message {result.costs[1]:g}; "
             "'cost if calibrated' is the threshold that would cost least if the probabilities could be taken at face value"
         )
@@ -348,7 +360,7 @@ def _errors(result: Assessment, console: Console) -> None:
         if result.threshold is not None
         else "log-odds of the most probable flagged class against the normal class"
     )
-    console.print(
+    _say(console, 
         f"P(flag) and margin are on one scale, the {scale}: P(flag) is its probability, margin its distance to "
         "the threshold; evidence compares the most probable flagged class with the normal class; 'tipped': the "
         "token's evidence alone exceeded the margin"
@@ -366,14 +378,14 @@ def _slices(result: Assessment, console: Console) -> None:
     ]
     _emit(console, f"slices (rates with {_level(result)} Wilson intervals)",
           ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p"], rows)
-    console.print(f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
+    _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
     if rep.differing:
-        console.print(Text(f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", style="bold"))
+        _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
         for s in rep.differing:
-            console.print(f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
+            _say(console, f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
                           f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
     else:
-        console.print(f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}")
+        _say(console, f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}")
 
 
 def _label_errors(result: Assessment, console: Console) -> None:
@@ -388,7 +400,7 @@ def _label_errors(result: Assessment, console: Console) -> None:
     _emit(console, f"suspected label errors: {len(le.suspected)} of {le.n_messages} messages",
           ["id", "label", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
           wrap=("toward favoured",))
-    console.print(
+    _say(console, 
         f"found by {le.method} on out-of-sample probabilities from {le.folds} refits of the model's own pipeline "
         "(stratified folds); P(label) and log-odds (favoured class against the label) are out-of-sample; the "
         "label may be right and the filter wrong: look again before relabelling"
@@ -413,9 +425,9 @@ def render(result: Assessment, console: Console) -> None:
     _slices(result, console)
     _errors(result, console)
     _label_errors(result, console)
-    console.print(
+    _say(console, 
         "error rates are estimates from this data; the figures describe the model, not the truth about any "
         "message; messages are personal data; decisions stay with trained staff"
     )
     for note in result.notes:
-        console.print(Text(f"note: {note}", style="italic"))
+        _say(console, f"note: {note}", "italic")
