@@ -74,7 +74,7 @@ def test_every_printed_threshold_reproduces_its_row(files, capsys):
         assert in_use_counts(again) == (f["tp"], f["fp"]), p["kind"]
         assert again["threshold_log_odds"] == f["threshold_log_odds"]
     # text: the string printed in the terminal output, typed back as is
-    labels = {"fpr": "FPR <= {:g} %", "recall": "recall >= {:g} %"}
+    labels = {"fpr": "false alarms <= {:g} %", "recall": "recall >= {:g} %"}
     for p in points:
         label = labels[p["kind"]].format(100 * p["target"]) if p["kind"] in labels else p["kind"]
         again = assess_json(capsys, files, "--threshold-log-odds", printed[label])
@@ -122,7 +122,7 @@ def test_projection_is_bayes_rule_with_intervals_carried(n_pos, n_neg, tp, fp, b
 
 def test_base_rate_is_printed_as_a_projection_beside_the_measured_figures(files, capsys):
     text = cli(capsys, files / "model.skops", files / "held.csv", *COLUMNS, "--base-rate", "1%")
-    measured = text.index("at the test set's base rate (measured)")
+    measured = text.index("at the test-set base rate (measured)")
     projected = text.index("at a base rate of 1 % (a projection")
     assert measured < projected
     doc = assess_json(capsys, files, "--base-rate", "0.01")
@@ -267,7 +267,9 @@ def test_json_keys_are_snake_case(files):
     assert not bad
 
 
-INTERVAL = re.compile(r"-?[\d.]+( %)? \[-?[\d.]+, -?[\d.]+\]")
+INTERVAL = re.compile(r"-?[\d.]+( %)? \(-?[\d.]+ to -?[\d.]+\)")
+OPENED = re.compile(r"\(-?[\d.]+( to)?( -?[\d.]*)?$")
+CLOSING = re.compile(r"^\s*(to -?[\d.]+|-?[\d.]+ to -?[\d.]+)\)")
 
 
 @pytest.mark.parametrize("width", [80, 120])
@@ -278,16 +280,19 @@ def test_tables_fit_without_splitting_a_number(files, width):
     lines = buffer.getvalue().splitlines()
     too_long = [line for line in lines if len(line.rstrip()) > width]
     assert not too_long
-    # every interval opened on a line is closed on it
+    # no interval opened on one line and closed on the next
     for line in lines:
-        assert line.count("[") == line.count("]"), line
+        assert not OPENED.search(line.rstrip(" │┃")), line
+        assert not CLOSING.match(line.strip("│┃ ")), line
     # every rate of the decision in use, and every projected precision, appears whole in the text
     text = "\n".join(lines)
     m = result.flag_metrics
     for r in (m.precision, m.recall, m.specificity, m.false_positive_rate, m.f1, m.accuracy):
-        assert f"{100 * r.value:.2f} % [{100 * r.low:.2f}, {100 * r.high:.2f}]" in text
+        d = 2 if 100 * min(r.value, r.low) < 1 else 1
+        assert f"{100 * r.value:.{d}f} % ({100 * r.low:.{d}f} to {100 * r.high:.{d}f})" in text
     for p in result.operating_points:
         if p.figures is not None:
             e = p.figures.projection.precision
-            assert f"{100 * e.value:.2f} % [{100 * e.low:.2f}, {100 * e.high:.2f}]" in text
+            d = 2 if 100 * min(e.value, e.low) < 1 else 1
+            assert f"{100 * e.value:.{d}f} % ({100 * e.low:.{d}f} to {100 * e.high:.{d}f})" in text
     assert len(INTERVAL.findall(text)) > 20

@@ -94,7 +94,7 @@ def test_text_output_puts_base_rates_first(files, capsys):
              "borderline", "what drives"]
     positions = [out.find(h) for h in order]
     assert -1 not in positions and positions == sorted(positions)
-    assert "flag when P(not ok) >= 0.9" in out
+    assert "flag when P(flag) >= 0.9, that is flag log-odds >= 2.1972245773362196" in out
 
 
 def test_out_file_and_pictures(files, capsys, tmp_path):

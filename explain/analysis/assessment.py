@@ -315,19 +315,18 @@ def assess(
         best_flagged = rule.flagged_indices[np.argmax(evidence.jll[:, rule.flagged_indices], axis=1)]
         if rule.threshold is None:
             decision = "most probable class"
-            # the pair the decision compares: the most probable flagged class against normal
-            compared = evidence.jll[np.arange(n), best_flagged] - evidence.jll[:, normal]
-            margin = compared
+            margin = evidence.jll[np.arange(n), best_flagged] - evidence.jll[:, normal]
+            margin_scale = "strongest flagged class against normal"
             in_use_threshold = 0.0 if len(classes) == 2 else float("nan")
         else:
-            exact = f"log P(not {classes[normal]}) - log P({classes[normal]}) >= {rule.threshold_log_odds!r}"
+            exact = f"flag log-odds >= {rule.threshold_log_odds!r}"
             decision = (
-                f"flag when P(not {classes[normal]}) >= {rule.threshold:g}, that is {exact}"
+                f"flag when P(flag) >= {rule.threshold:g}, that is {exact}"
                 if threshold is not None
                 else f"flag when {exact}"
             )
-            compared = scores
             margin = scores - rule.threshold_log_odds
+            margin_scale = "flag log-odds"
             in_use_threshold = rule.threshold_log_odds
         if 0 < flag_truth.sum() < n:
             flag_ranking = ranking_quality(FLAGGED, scores, flag_truth, confidence)
@@ -354,7 +353,7 @@ def assess(
         suspected = np.zeros(n, dtype=bool)
         if label_errors is not None:
             suspected[[s.index for s in label_errors.suspected]] = True
-        ctx = Decisions(normal, truth, decided, margin, compared, best_flagged, ids, suspected)
+        ctx = Decisions(normal, truth, decided, margin, scores, best_flagged, ids, suspected, margin_scale)
         errors = error_review(view, X, ctx, top, top_tokens)
         if slices:
             slice_figures = slice_report(slices, flag_truth, flag_decided, confidence)

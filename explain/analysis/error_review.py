@@ -22,18 +22,19 @@ class TokenPush:
 
 @dataclass(frozen=True)
 class ReviewedMessage:
-    """One message under review, with its evidence summary.
+    """One message under review, with its evidence summary (words as in ``docs/glossary.md``).
 
-    ``flag_log_odds`` is the log-odds the decision compares, and
-    ``flag_probability`` its probability ``expit(flag_log_odds)``: with a
-    threshold, every flagged class together against the normal class
-    (``log P(not normal) - log P(normal)``); without one (most probable
-    class), the most probable flagged class ``flag_class`` against the normal
-    class. ``margin`` is ``flag_log_odds`` minus the threshold in log-odds (0
-    without one), so the two are on the same scale; positive means flagged.
-    Token evidence compares ``flag_class`` with the normal class:
-    ``x_j * (W[flag_class, j] - W[normal, j])``. ``label_may_be_wrong`` marks a
-    message listed among the suspected label errors, when they were searched.
+    ``flag_probability`` is P(flag), every flagged class together, and
+    ``flag_log_odds`` the same on the log-odds scale. ``margin`` is how far
+    the decision was from going the other way, in log-odds, positive on the
+    flagged side: with a threshold ``flag_log_odds - threshold_log_odds`` (the
+    same scale as P(flag)); with the most probable class deciding, the
+    boundary is where the strongest flagged class ``flag_class`` ties with the
+    normal class, so the margin is ``jll[flag_class] - jll[normal]``
+    (:attr:`ErrorReview.margin_scale` says which). Token evidence compares
+    ``flag_class`` with the normal class: ``x_j * (W[flag_class, j] - W[normal, j])``.
+    ``label_may_be_wrong`` marks a message listed among the suspected label
+    errors, when they were searched.
     """
 
     index: int
@@ -70,7 +71,12 @@ class ErrorDriver:
 
 @dataclass(frozen=True)
 class ErrorReview:
-    """False alarms and missed abuse, the most confident first; borderline messages; drivers."""
+    """False alarms and missed messages, the most confident first; borderline messages; drivers.
+
+    ``margin_scale`` names the log-odds every margin is on: ``"flag log-odds"``
+    (with a threshold) or ``"strongest flagged class against normal"`` (most
+    probable class deciding).
+    """
 
     n_false_alarms: int
     n_missed: int
@@ -79,6 +85,7 @@ class ErrorReview:
     borderline: tuple[ReviewedMessage, ...]
     false_alarm_drivers: tuple[ErrorDriver, ...]
     missed_drivers: tuple[ErrorDriver, ...]
+    margin_scale: str = "flag log-odds"
 
 
 def pair_evidence(view: ModelView, X, rows: np.ndarray, winner: np.ndarray, rival: np.ndarray) -> sp.csr_matrix:
@@ -111,8 +118,8 @@ def top_pushes(view: ModelView, X, rows: np.ndarray, winner: np.ndarray, rival: 
 class Decisions:
     """Per-message arrays the error review reads (length n), and the normal class.
 
-    ``scores`` is the log-odds the decision compares, ``margin`` that minus
-    the threshold (see :class:`ReviewedMessage`); ``suspected`` marks the
+    ``scores`` is the flag log-odds, ``margin`` as in
+    :class:`ReviewedMessage` on ``margin_scale``; ``suspected`` marks the
     suspected label errors.
     """
 
@@ -124,6 +131,7 @@ class Decisions:
     flag_class: np.ndarray
     ids: np.ndarray
     suspected: np.ndarray
+    margin_scale: str
 
 
 def _reviewed(rows, view, X, ctx: Decisions, top_tokens: int) -> tuple[ReviewedMessage, ...]:
@@ -181,4 +189,5 @@ def error_review(view, X, ctx: Decisions, top: int, top_tokens: int) -> ErrorRev
         borderline=_reviewed(borderline, view, X, ctx, top_tokens),
         false_alarm_drivers=_drivers(view, X, false_alarm, ctx, 1.0, top),
         missed_drivers=_drivers(view, X, missed, ctx, -1.0, top),
+        margin_scale=ctx.margin_scale,
     )

@@ -24,9 +24,11 @@ every float is written with all its digits (Python's ``repr``): a
 ``threshold_log_odds`` typed back with ``--threshold-log-odds`` flags exactly
 the messages its row counts.
 
-The terminal output uses one interval style, ``value [low, high]`` in the
-value's unit, and never splits a number or an interval across lines: a table
-too wide for the terminal is printed stacked, one block per row.
+The terminal output uses the glossary's words (``docs/glossary.md``) and its
+one interval style, ``93.7 % (90.6 to 95.8)``: the estimate, then the
+interval in the estimate's unit, the level said once in the heading. A number
+or an interval is never split across lines: a table too wide for the terminal
+is printed stacked, one block per row.
 """
 
 from __future__ import annotations
@@ -80,15 +82,21 @@ def to_json(result: Assessment, model=None, data=None) -> dict:
 # --- number formats ---------------------------------------------------------------
 
 
+def _digits(x: float) -> int:
+    """One decimal of a percentage, two below 1 % where the small rates an auditor reads live."""
+    return 2 if abs(100 * x) < 1 else 1
+
+
 def _pct(x: float) -> str:
-    return "-" if not math.isfinite(x) else f"{100 * x:.2f} %"
+    return "-" if not math.isfinite(x) else f"{100 * x:.{_digits(x)}f} %"
 
 
 def _interval(value: float, low: float, high: float, n: int) -> str:
-    """A share as ``7.21 % [5.98, 8.61]``: the one interval style of every screen."""
+    """A share as ``93.7 % (90.6 to 95.8)``: the one interval style of every screen."""
     if n == 0:
         return "undefined (0/0)"
-    return f"{_pct(value)} [{100 * low:.2f}, {100 * high:.2f}]"
+    d = _digits(min(value, low))
+    return f"{100 * value:.{d}f} % ({100 * low:.{d}f} to {100 * high:.{d}f})"
 
 
 def _rate(r: Rate) -> str:
@@ -96,10 +104,10 @@ def _rate(r: Rate) -> str:
 
 
 def _count_interval(e: Estimate) -> str:
-    """A projected count as ``12.3 [9.8, 15.6]``."""
+    """A projected count as ``12.3 (9.8 to 15.6)``."""
     if not math.isfinite(e.value):
         return "-"
-    return f"{e.value:.1f} [{e.low:.1f}, {e.high:.1f}]"
+    return f"{e.value:.1f} ({e.low:.1f} to {e.high:.1f})"
 
 
 def _share_interval(e: Estimate) -> str:
@@ -141,7 +149,7 @@ def _widest_word(text: str) -> int:
     return max((cell_len(w) for w in text.split()), default=0)
 
 
-_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \[[^\]]*\]|[-+]?[\d.]+ %|1 - [\d.e+-]+")
+_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \([-+\d.]+ to [-+\d.]+\)|[-+]?[\d.]+ %|1 - [\d.e+-]+")
 _NBSP = "\u00a0"
 
 
@@ -193,7 +201,7 @@ def _base_rates(result: Assessment, console: Console) -> None:
     rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
         rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
-    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"share [{_level(result)} interval]"], rows)
+    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"share ({_level(result)} Wilson interval)"], rows)
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
@@ -207,7 +215,7 @@ def _confusion(matrix, title: str, console: Console) -> None:
 
 METRICS = (
     (("precision", "precision"), ("recall", "recall")),
-    (("specificity", "specificity"), ("false-positive rate", "false_positive_rate")),
+    (("specificity", "specificity"), ("false-alarm rate", "false_positive_rate")),
     (("F1", "f1"), ("accuracy", "accuracy")),
 )
 
@@ -227,12 +235,15 @@ def _ranking(result: Assessment, console: Console) -> None:
         return
     rows = []
     for r in rankings:
-        interval = "-" if not math.isfinite(r.auc.variance) else f"{r.auc.auc:.4f} [{r.auc.low:.4f}, {r.auc.high:.4f}]"
+        interval = (
+            f"{r.auc.auc:.4f}" if not math.isfinite(r.auc.variance)
+            else f"{r.auc.auc:.4f} ({r.auc.low:.4f} to {r.auc.high:.4f})"
+        )
         rows.append([Text(r.positive), str(r.n_positive), str(r.n_negative), interval, f"{r.average_precision:.4f}"])
     _emit(
         console,
         f"ranking quality (AUC with {_level(result)} DeLong interval)",
-        ["positive", "positives", "negatives", "AUC [interval]", "average precision"],
+        ["positive", "positives", "negatives", "AUC", "average precision"],
         rows,
     )
 
@@ -240,7 +251,7 @@ def _ranking(result: Assessment, console: Console) -> None:
 def point_label(p: OperatingPoint) -> str:
     """How an operating point was chosen, in a few words (also the pictures' label)."""
     if p.kind == "fpr":
-        return f"FPR <= {100 * p.target:g} %"
+        return f"false alarms <= {100 * p.target:g} %"
     if p.kind == "recall":
         return f"recall >= {100 * p.target:g} %"
     return p.kind
@@ -267,11 +278,12 @@ def _operating_points(result: Assessment, console: Console) -> None:
                               _count_interval(pr.false_alarms_per_10k), _count_interval(pr.missed_per_10k)])
         if math.isfinite(f.threshold_log_odds):
             exact.append(f"  {point_label(p)}: --threshold-log-odds {_exact(f.threshold_log_odds)}")
-    _emit(console, "operating points (FPR: false-positive rate)",
-          ["chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "FPR"], rows, wrap=("log-odds >=",))
+    _emit(console, "operating points",
+          ["chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "false-alarm rate"], rows,
+          wrap=("log-odds >=",))
     _say(console, 
-        "a message is flagged when its log-odds of being in a flagged class rather than the normal class is at "
-        "least the threshold; the JSON output carries an interval for every rate. Thresholds chosen by target on "
+        "a message is flagged when its flag log-odds (every flagged class together against the normal class) is "
+        "at least the threshold log-odds; the JSON output carries an interval for every rate. Thresholds chosen by target on "
         "this data look better here than they will on new traffic: confirm them on messages not used to choose them"
     )
     if exact:
@@ -279,18 +291,18 @@ def _operating_points(result: Assessment, console: Console) -> None:
         for line in exact:
             console.print(line, soft_wrap=True)
     columns = ["chosen by", "flagged", "false alarms", "missed"] + ([] if result.costs is None else ["cost / message"])
-    _emit(console, "per 10,000 messages at the test set's base rate (measured)", columns, expected)
+    _emit(console, "per 10,000 messages at the test-set base rate (measured)", columns, expected)
     if projected:
         _emit(
             console,
             f"per 10,000 messages at a base rate of {100 * result.base_rate:g} % (a projection: Bayes' rule "
-            f"on the measured recall and false-positive rate)",
-            ["chosen by", "precision [interval]", "false alarms [interval]", "missed [interval]"],
+            f"on the measured recall and false-alarm rate; {_level(result)} Wilson ends carried through)",
+            ["chosen by", "precision", "false alarms", "missed"],
             projected,
         )
         _say(console, 
             f"projection intervals put the ends of the {_level(result)} Wilson intervals of recall and "
-            "false-positive rate through Bayes' rule; precision uses both, so its level is at least "
+            "false-alarm rate through Bayes' rule; precision uses both, so its level is at least "
             f"{100 * (2 * result.confidence - 1):g} %. It assumes the measured rates hold in that traffic"
         )
     if result.costs is not None:
@@ -317,7 +329,7 @@ def _calibration(result: Assessment, console: Console) -> None:
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
         for b in range(cal.n_bins)
     ]
-    _emit(console, None, ["bin", "messages", "log-odds from", "to", "mean P(flag)", "observed flagged share [interval]"], rows)
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds from", "to", "mean P(flag)", "observed share flagged-class"], rows)
     s = result.scores
     rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
     _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
@@ -355,15 +367,11 @@ def _errors(result: Assessment, console: Console) -> None:
     _messages("borderline messages (closest to the threshold)", e.borderline, None, console)
     _drivers("what drives false alarms (tokens pushing normal messages toward flagged)", e.false_alarm_drivers, console)
     _drivers("what drives missed messages (tokens pushing them toward normal)", e.missed_drivers, console)
-    scale = (
-        "log-odds of every flagged class together against the normal class"
-        if result.threshold is not None
-        else "log-odds of the most probable flagged class against the normal class"
-    )
-    _say(console, 
-        f"P(flag) and margin are on one scale, the {scale}: P(flag) is its probability, margin its distance to "
-        "the threshold; evidence compares the most probable flagged class with the normal class; 'tipped': the "
-        "token's evidence alone exceeded the margin"
+    _say(
+        console,
+        f"margin: distance to the decision boundary in log-odds, on the {e.margin_scale} scale; P(flag): every "
+        "flagged class together; evidence compares the strongest flagged class with the normal class; "
+        "'tipped': the token's evidence alone exceeded the margin",
     )
 
 
@@ -376,7 +384,7 @@ def _slices(result: Assessment, console: Console) -> None:
          _num(s.adjusted_p_value, 4)]
         for s in rep.slices
     ]
-    _emit(console, f"slices (rates with {_level(result)} Wilson intervals)",
+    _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
           ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p"], rows)
     _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
     if rep.differing:
