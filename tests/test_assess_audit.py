@@ -296,3 +296,30 @@ def test_tables_fit_without_splitting_a_number(files, width):
             d = 2 if 100 * min(e.value, e.low) < 1 else 1
             assert f"{100 * e.value:.{d}f} % ({100 * e.low:.{d}f} to {100 * e.high:.{d}f})" in text
     assert len(INTERVAL.findall(text)) > 20
+
+
+# --- 6. pictures read the result ------------------------------------------------------------
+
+
+def test_reliability_and_score_shares_on_the_scales_the_pictures_draw(files):
+    from scipy.special import logit
+
+    result = full_result(files)
+    cal = result.calibration
+    finite = (cal.mean_predicted > 0) & (cal.mean_predicted < 1) & (np.abs(logit(cal.mean_predicted)) < 15)  # beyond, logit of a rounded mean loses digits
+    np.testing.assert_allclose(cal.mean_predicted_log_odds[finite], logit(cal.mean_predicted[finite]), atol=1e-6)
+    np.testing.assert_array_equal(cal.observed_log_odds, logit(cal.observed))
+    s = result.scores
+    np.testing.assert_allclose(s.shares.sum(axis=1), 1.0)
+    np.testing.assert_array_equal(s.shares * s.counts.sum(axis=1, keepdims=True), s.counts)
+
+
+def test_pictures_include_the_slices(files, capsys, tmp_path):
+    from PIL import Image
+
+    cli(capsys, files / "model.skops", files / "held.csv", *COLUMNS, "--slice-by", "sent_at:week",
+        "--images", tmp_path, "--out", tmp_path / "out.txt")
+    names = sorted(p.name for p in tmp_path.glob("*.png"))
+    assert names == ["precision_recall.png", "reliability.png", "roc.png", "scores.png", "slices.png"]
+    for name in names:
+        assert Image.open(tmp_path / name).size[0] > 600

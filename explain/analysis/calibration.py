@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import expit
+from scipy.special import expit, log_expit, logit, logsumexp
 
 from explain.analysis.rates import frozen
 from explain.analysis.stats import wilson_interval
@@ -29,6 +29,12 @@ class Calibration:
     Review 78(1)). Expected calibration error: ``sum_b (n_b / N)
     |observed_b - mean_predicted_b|`` (Naeini, Cooper & Hauskrecht 2015,
     AAAI, "Obtaining well calibrated probabilities using Bayesian binning").
+
+    The same on the log-odds scale, where naive Bayes probabilities spread
+    out: ``mean_predicted_log_odds`` is ``logit(mean_predicted)`` computed
+    without rounding (``log mean P - log mean (1 - P)`` from log-probabilities),
+    ``observed_log_odds`` and its ends ``logit`` of the observed share and of
+    its Wilson ends (infinite where the share is 0 or 1).
     """
 
     n_bins: int
@@ -41,6 +47,10 @@ class Calibration:
     log_odds_high: np.ndarray
     brier_score: float
     expected_calibration_error: float
+    mean_predicted_log_odds: np.ndarray
+    observed_log_odds: np.ndarray
+    observed_log_odds_low: np.ndarray
+    observed_log_odds_high: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
@@ -50,6 +60,8 @@ class ScoreDistribution:
     ``edges`` span the middle 99 % of all scores; scores outside are counted
     in the end bins and also in ``below``/``above``. ``quantiles[c, q]`` is
     the ``quantile_levels[q]`` quantile of class ``c`` (NaN when absent).
+    ``shares[c, b]`` is ``counts[c, b]`` over the class's messages, so that
+    small classes show their shape beside large ones (NaN when absent).
     """
 
     classes: tuple[str, ...]
@@ -60,6 +72,7 @@ class ScoreDistribution:
     quantile_levels: np.ndarray
     quantiles: np.ndarray
     threshold_log_odds: float
+    shares: np.ndarray
 
 
 
@@ -84,7 +97,18 @@ def calibration_of(scores: np.ndarray, positive: np.ndarray, n_bins: int, confid
         log_odds_high=frozen([scores[g[-1]] for g in groups]),
         brier_score=float(np.mean((probability - positive) ** 2)),
         expected_calibration_error=float(np.sum(counts / len(scores) * np.abs(observed - mean_predicted))),
+        mean_predicted_log_odds=frozen(
+            [logsumexp(log_expit(scores[g])) - logsumexp(log_expit(-scores[g])) for g in groups]
+        ),
+        observed_log_odds=frozen(_logit(observed)),
+        observed_log_odds_low=frozen(_logit(lo)),
+        observed_log_odds_high=frozen(_logit(hi)),
     )
+
+
+def _logit(p) -> np.ndarray:
+    with np.errstate(divide="ignore"):
+        return logit(np.asarray(p, dtype=np.float64))
 
 
 def score_distribution(
@@ -111,4 +135,11 @@ def score_distribution(
         quantile_levels=frozen(QUANTILE_LEVELS),
         quantiles=frozen(quantiles),
         threshold_log_odds=float(threshold_log_odds),
+        shares=frozen(_shares(counts)),
     )
+
+
+def _shares(counts: np.ndarray) -> np.ndarray:
+    totals = counts.sum(axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return counts / totals
