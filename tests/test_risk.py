@@ -151,19 +151,27 @@ finite = st.floats(-20, 20, allow_nan=False)
     st.lists(st.tuples(finite, st.integers(0, 40), st.booleans()), min_size=1, max_size=40),
     st.floats(0, 30),
     st.floats(0.01, 5),
+    st.tuples(st.booleans(), st.booleans()),
 )
-def test_thin_and_stopword_flags_follow_their_definitions(rows, thin_below, strong):
+def test_flags_follow_their_definitions(rows, thin_below, strong, flagged_sides):
     ratio = np.array([r for r, _, _ in rows])
     support = np.array([s for _, s, _ in rows], dtype=float)
     watched = np.array([w for _, _, w in rows])
     tokens = ["the" if i % 2 else f"moorings{i}" for i in range(len(rows))]
     traits = token_traits(tokens)
-    flags = risk_flags(traits, ratio, support, watched, RiskThresholds(thin_below, strong))
+    flags = risk_flags(traits, ratio, support, watched, RiskThresholds(thin_below, strong), flagged_sides)
     assert flags.shape == (len(FLAGS), len(rows))
     is_strong = np.abs(ratio) >= strong
     assert flags[FLAGS.index("thin")].tolist() == (is_strong & (support < thin_below)).tolist()
-    assert flags[FLAGS.index("stopword")].tolist() == (is_strong & traits.stopword).tolist()
+    # Every stop word, whatever its evidence (issue 12: "the" went unflagged while "if" was).
+    assert flags[FLAGS.index("stopword")].tolist() == traits.stopword.tolist()
     assert flags[FLAGS.index("watchlist")].tolist() == watched.tolist()
+    target_flagged, other_flagged = flagged_sides
+    expected = [
+        bool(w and abs(r) >= strong and ((r > 0 and target_flagged) or (r < 0 and other_flagged)))
+        for r, _, w in rows
+    ]
+    assert flags[FLAGS.index("watchlist_strong")].tolist() == expected
     assert flags[FLAGS.index("personal")].tolist() == traits.personal.tolist()
 
 

@@ -1,6 +1,5 @@
 """``nbledger vocab`` end to end: outputs match the library, pictures, redaction, bad input."""
 
-import itertools
 import json
 import subprocess
 import sys
@@ -15,7 +14,7 @@ from sklearn.feature_extraction.text import CountVectorizer
 from sklearn.naive_bayes import MultinomialNB
 from sklearn.pipeline import Pipeline
 
-from explain.present import drawing, vocab_pictures as pictures
+from explain.present import vocab_pictures as pictures
 from explain.cli import run
 from explain.model.data_io import read_messages
 from explain.model.loading import load_model
@@ -73,7 +72,7 @@ def test_json_carries_the_library_result(files, capsys):
     doc = json.loads(out)
     review = review_vocabulary(load_model(files / "model.skops").view, target="scam", against="rest", lens="g2", top=7)
     (c,) = review.contrasts
-    (got,) = doc["contrasts"]
+    (got,) = doc["comparisons"]
     assert doc["schema"] == "nbledger.vocab/1" and doc["review"]["ranked_by"] == "g2"
     assert (got["target"], got["other"]) == ("scam", "rest")
     assert got["flag_counts"] == dict(c.flag_counts)
@@ -93,7 +92,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
     assert code == 0 and out == "", err
     table = pd.read_csv(out_file, keep_default_na=False)
     review = review_vocabulary(load_model(files / "model.skops").view)
-    expected = (["contrast", "target", "other", "rank", "token", "zscore", "weighted_log_odds", "ratio", "mass",
+    expected = (["comparison", "target", "other", "rank", "token", "zscore", "weighted_log_odds", "ratio", "mass",
                  "chi2", "g2", "mi", "direction", "support_target", "support_other",
                  "support_advert", "support_ok", "support_scam", "documents_target",
                  "documents_other", "n11", "n10", "n01", "n00"]
@@ -105,7 +104,7 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
         assert f"``{column}``" in presenter.__doc__ or documented
     assert len(table) == len(review.contrasts) * review.n_features
     for c in review.contrasts:
-        part = table[table.contrast == c.label]
+        part = table[table.comparison == c.label]
         order = c.order[LENSES.index("zscore")]
         assert list(part.token.astype(str)) == [str(t) for t in review.tokens[order]]
         # floats are written with full precision: the file reproduces the arrays exactly
@@ -121,10 +120,10 @@ def test_text_output_names_settings_and_both_sides(files, capsys, tmp_path):
     )
     assert code == 0 and out == "", err
     flat = " ".join((tmp_path / "v.txt").read_text(encoding="utf-8").split())
-    assert "2x2 tables (chi2, g2, mi) count occurrences" in flat
+    assert "2x2 tables (chi-square, G2, MI) count token occurrences" in flat
     assert "advert vs ok" in flat and "scam vs ok" in flat
     assert "strongest 5 for scam" in flat and "strongest 5 for ok" in flat
-    assert "thin = strong on fewer than 10 training occurrences" in flat
+    assert "thin: strong on less than 10 of support" in flat
     assert "roma" in flat and "not in the vocabulary" in flat
 
 
@@ -141,7 +140,7 @@ def test_labelled_data_counts_messages(files, capsys):
     messages = read_messages(files / "messages.csv", "text", "label")
     docs = document_counts(loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, "messages.csv")
     a, o = loaded.view.class_index("advert"), loaded.view.class_index("ok")
-    for row in doc["contrasts"][0]["top_for"]:
+    for row in doc["comparisons"][0]["top_for"]:
         j = int(np.flatnonzero(loaded.view.tokens == row["token"])[0])
         assert row["documents_target"] == docs.counts[a, j] and row["documents_other"] == docs.counts[o, j]
         assert row["n01"] == docs.messages[a] - docs.counts[a, j]
@@ -259,49 +258,3 @@ def test_real_entry_point_prints_no_traceback(files):
     assert done.returncode == 2
     assert done.stderr == "error: no class 'spam' in this model; its classes are: advert, ok, scam\n"
     assert done.stdout == ""
-
-
-# Machado, Oliveira & Fernandes (2009), IEEE TVCG 15(6), simulation matrices for severity 1.0
-# on linear RGB (values from memory).
-CVD = {
-    "normal": np.eye(3),
-    "protanopia": np.array([[0.152286, 1.052583, -0.204868], [0.114503, 0.786281, 0.099216],
-                            [-0.003882, -0.048116, 1.051998]]),
-    "deuteranopia": np.array([[0.367322, 0.860646, -0.227968], [0.280085, 0.672501, 0.047413],
-                              [-0.011820, 0.042940, 0.968881]]),
-    "tritanopia": np.array([[1.255528, -0.076749, -0.178779], [-0.078411, 0.930809, 0.147602],
-                            [0.004733, 0.691367, 0.303900]]),
-}
-
-
-def _lab(linear_rgb):
-    # sRGB (IEC 61966-2-1) to CIELAB, D65 white (common practice, no source)
-    xyz = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]]) @ np.clip(
-        linear_rgb, 0, 1)
-    t = xyz / np.array([0.95047, 1.0, 1.08883])
-    f = np.where(t > 216 / 24389, np.cbrt(t), (24389 / 27 * t + 16) / 116)
-    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
-
-
-def _linear(hex_colour):
-    from matplotlib.colors import to_rgb
-
-    c = np.array(to_rgb(hex_colour))
-    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
-
-
-def test_palette_stays_distinguishable_under_colour_vision_deficiencies():
-    bases = ["#ffffff", drawing.NEUTRAL.base] + [f.base for f in drawing.PALETTE]
-    for name, matrix in CVD.items():
-        for a, b in itertools.combinations(bases, 2):
-            distance = np.linalg.norm(_lab(matrix @ _linear(a)) - _lab(matrix @ _linear(b)))
-            assert distance >= 27, (name, a, b, distance)
-
-
-def test_normal_class_and_rest_are_drawn_neutral_and_shades_darken():
-    colours = drawing.class_colours(("advert", "ok", "scam"), "ok")
-    assert colours["ok"] is drawing.NEUTRAL and colours["rest"] is drawing.NEUTRAL
-    assert colours["advert"] is drawing.PALETTE[0] and colours["scam"] is drawing.PALETTE[1]
-    for family in drawing.PALETTE:
-        lightness = [_lab(_linear(family.shade(s)))[0] for s in np.linspace(0, 1, 6)]
-        assert all(np.diff(lightness) < 0)

@@ -20,7 +20,7 @@ these flags (names as they appear in every table and file):
     nothing recognisable to flag.
 ``numeric``
     Has a digit and no letter.
-``mixed-script``
+``mixed_script``
     Letters from more than one writing system in one token, a common
     obfuscation (a Cyrillic ``а`` inside a Latin word). A letter's script is
     the first word of the Unicode name of its compatibility decomposition
@@ -32,10 +32,17 @@ these flags (names as they appear in every table and file):
     product name in it is ordinary writing, not obfuscation.
 ``stopword``
     A function word from scikit-learn's English list
-    (``sklearn.feature_extraction.text.ENGLISH_STOP_WORDS``) that carries
-    strong evidence (``|ratio| >= strong_log_odds``).
+    (``sklearn.feature_extraction.text.ENGLISH_STOP_WORDS``), whatever its
+    evidence: the reviewer sees every stop word the filter leans on, weak or
+    strong, and can sort by the lens.
 ``watchlist``
     A term of the reviewer's watchlist file.
+``watchlist_strong``
+    A watchlist term whose evidence is strong toward a flagged class: the
+    side of the comparison its ratio points to holds only flagged classes
+    (with no normal class known, either side counts).
+
+Flag names are snake_case keys; screens show :data:`FLAG_LABELS`.
 
 Everything is vectorised over the vocabulary: character classes are looked
 up once per distinct code point and reduced per token with array operations;
@@ -53,12 +60,16 @@ import unicodedata
 from dataclasses import dataclass
 from math import log
 from pathlib import Path
+from types import MappingProxyType
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
 from explain.errors import NbledgerError
 
-FLAGS = ("thin", "personal", "numeric", "mixed-script", "stopword", "watchlist")
+FLAGS = ("thin", "personal", "numeric", "mixed_script", "stopword", "watchlist", "watchlist_strong")
+#: How screens and pictures name each flag (the glossary's words).
+FLAG_LABELS = {name: name.replace("_", "-") for name in FLAGS}
 PERSONAL_KINDS = ("e-mail", "url", "ip", "digits", "phone")
 DEFAULT_THIN_BELOW = 10.0
 DEFAULT_STRONG_LOG_ODDS = log(4.0)
@@ -87,8 +98,7 @@ class TokenTraits:
     """What a token is, regardless of the evidence it carries (arrays of shape (F,)).
 
     ``personal_kind[j]`` indexes :data:`PERSONAL_KINDS`, or is -1.
-    ``stopword`` marks membership of the English stop-word list only; the
-    ``stopword`` *flag* also needs strong evidence.
+    ``stopword`` marks membership of the English stop-word list.
     """
 
     personal_kind: np.ndarray
@@ -209,23 +219,84 @@ def token_traits(tokens) -> TokenTraits:
     )
 
 
-def risk_flags(traits: TokenTraits, ratio, support, watched, thresholds: RiskThresholds) -> np.ndarray:
-    """The flags of :data:`FLAGS` for one contrast, a bool array of shape (len(FLAGS), F).
+def risk_flags(
+    traits: TokenTraits,
+    ratio,
+    support,
+    watched,
+    thresholds: RiskThresholds,
+    flagged_sides: tuple[bool, bool] = (True, True),
+) -> np.ndarray:
+    """The flags of :data:`FLAGS` for one comparison, a bool array of shape (len(FLAGS), F).
 
-    ``ratio`` is the per-occurrence evidence of the contrast, ``support`` the
-    training occurrences on both of its sides together, ``watched`` marks the
-    watchlist's tokens.
+    ``ratio`` is the per-occurrence evidence of the comparison (> 0 toward
+    its target), ``support`` the training support on both of its sides
+    together, ``watched`` marks the watchlist's tokens. ``flagged_sides``
+    says whether the target, and the other side, hold only flagged classes.
     """
-    strong = np.abs(np.asarray(ratio)) >= thresholds.strong_log_odds
+    ratio = np.asarray(ratio)
+    strong = np.abs(ratio) >= thresholds.strong_log_odds
+    watched = np.asarray(watched, dtype=bool)
+    toward_flagged = (flagged_sides[0] & (ratio > 0)) | (flagged_sides[1] & (ratio < 0))
     return np.stack(
         [
             strong & (np.asarray(support) < thresholds.thin_below),
             traits.personal,
             traits.numeric,
             traits.mixed_script,
-            traits.stopword & strong,
-            np.asarray(watched, dtype=bool),
+            traits.stopword,
+            watched,
+            watched & strong & toward_flagged,
         ]
+    )
+
+
+# Reserved example values (RFC 2606 names, RFC 5737 addresses, 555-01xx numbers), one per
+# PERSONAL_KINDS entry, that the model's own tokenizer is tried on.
+PERSONAL_PROBES = {
+    "e-mail": "warden@example.org",
+    "url": "https://tideway.example.net/notices",
+    "ip": "192.0.2.14",
+    "digits": "20260101",
+    "phone": "555-555-0134",
+}
+
+
+@dataclass(frozen=True)
+class RedactionCheck:
+    """What the personal-data check looked at and found.
+
+    ``checked`` tokens of the vocabulary were tested for every kind of
+    :data:`PERSONAL_KINDS`; ``found[k]`` is how many matched kind ``k``.
+    ``tokenizer_splits`` lists the kinds the model's tokenizer cannot keep
+    whole (tried on :data:`PERSONAL_PROBES`): such values reach the
+    vocabulary only in pieces (``example``, ``org``) that no check can
+    recognise. None when no tokenizer was given to try.
+    """
+
+    checked: int
+    found: Mapping[str, int]
+    tokenizer_splits: tuple[str, ...] | None
+
+    @property
+    def total(self) -> int:
+        return sum(self.found.values())
+
+
+def redaction_check(traits: TokenTraits, analyzer: Callable[[str], Sequence[str]] | None = None) -> RedactionCheck:
+    """Count each personal kind among the tokens, and try the tokenizer on one example of each."""
+    counts = np.bincount(traits.personal_kind[traits.personal_kind >= 0], minlength=len(PERSONAL_KINDS))
+    splits = None
+    if analyzer is not None:
+        splits = tuple(
+            kind
+            for k, kind in enumerate(PERSONAL_KINDS)
+            if not (token_traits(list(analyzer(PERSONAL_PROBES[kind]))).personal_kind == k).any()
+        )
+    return RedactionCheck(
+        checked=len(traits.personal_kind),
+        found=MappingProxyType({kind: int(counts[k]) for k, kind in enumerate(PERSONAL_KINDS)}),
+        tokenizer_splits=splits,
     )
 
 

@@ -61,7 +61,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Mapping
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 import scipy.sparse as sp
@@ -71,10 +71,12 @@ from explain.errors import NbledgerError
 from explain.model.model_view import ModelView
 from explain.analysis.risk import (
     FLAGS,
+    RedactionCheck,
     RiskThresholds,
     TokenTraits,
     Watchlist,
     redact,
+    redaction_check,
     risk_flags,
     token_traits,
     watchlist_columns,
@@ -85,8 +87,8 @@ LENSES = ("zscore", "ratio", "mass", "chi2", "g2")
 #: How tables and pictures name each lens's values.
 LENS_TITLES = {
     "zscore": "z-score",
-    "ratio": "log-odds per occurrence",
-    "mass": "log-odds on a typical message",
+    "ratio": "ratio (log-odds per occurrence)",
+    "mass": "mass (log-odds on a typical message)",
     "chi2": "chi-square",
     "g2": "G2",
 }
@@ -99,14 +101,17 @@ class DocumentCounts:
     """Messages containing each token, per class, counted in a labelled file.
 
     ``counts`` has shape (C, F) in the model's class order, ``messages`` (C,).
+    ``rows_note`` says which rows of the file were counted (those the model
+    trained on, or all of them and why).
     """
 
     counts: np.ndarray
     messages: np.ndarray
     source: str
+    rows_note: str = ""
 
 
-def document_counts(view: ModelView, X, labels, source: str) -> DocumentCounts:
+def document_counts(view: ModelView, X, labels, source: str, rows_note: str = "") -> DocumentCounts:
     """Count, per class, the messages of a labelled file that contain each token.
 
     ``X`` is the file's feature matrix as the model's text steps make it;
@@ -139,6 +144,7 @@ def document_counts(view: ModelView, X, labels, source: str) -> DocumentCounts:
         counts=np.asarray((onehot @ present).todense()),
         messages=np.bincount(by_class, minlength=view.n_classes).astype(np.float64),
         source=source,
+        rows_note=rows_note,
     )
 
 
@@ -155,7 +161,7 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
         return CountSource(
             "documents",
             f"messages containing each token, counted in the labelled file {documents.source} "
-            f"({int(documents.messages.sum())} messages)",
+            f"({int(documents.messages.sum()):,} messages)" + (f"; {documents.rows_note}" if documents.rows_note else ""),
         )
     if view.feature_kind == "binary":
         return CountSource(
@@ -263,7 +269,9 @@ class VocabReview:
     personal-looking token is already replaced by a placeholder, so nothing
     downstream can show it. ``support_by_class`` is the model's
     ``feature_count_`` (C, F). ``lens`` and ``top`` are the ranking and list
-    length asked for; every lens is ranked regardless.
+    length asked for; every lens is ranked regardless. ``redaction`` says
+    what the personal-data check looked at and found (also without
+    ``redacted``).
     """
 
     classes: tuple[str, ...]
@@ -281,6 +289,7 @@ class VocabReview:
     top: int
     redacted: bool
     redacted_count: int
+    redaction: RedactionCheck
     watchlist: tuple[WatchEntry, ...]
     watchlist_source: str | None
 
@@ -417,7 +426,9 @@ def _contrast(
     chi2, g2, mi = pearson_chi2(*table), dunning_g2(*table), mutual_information(*table)
     direction = np.sign(table[0] * table[3] - table[1] * table[2]).astype(np.int8)
 
-    flags = risk_flags(traits, ratio, y_t + y_o, watched, thresholds)
+    normal = view.normal_index
+    flagged_sides = (True, True) if normal is None else (t != normal, normal not in others)
+    flags = risk_flags(traits, ratio, y_t + y_o, watched, thresholds, flagged_sides)
     columns = {"zscore": z, "ratio": ratio, "mass": mass, "chi2": direction * chi2, "g2": direction * g2}
     rankings = [_ranking(columns[lens]) for lens in LENSES]
     return Contrast(
@@ -458,6 +469,7 @@ def review_vocabulary(
     thresholds: RiskThresholds = RiskThresholds(),
     prior_scale: float | None = None,
     redact_personal: bool = False,
+    analyzer: Callable[[str], Sequence[str]] | None = None,
 ) -> VocabReview:
     """Review what ``view`` has learned; see the module docstring for every column.
 
@@ -472,6 +484,8 @@ def review_vocabulary(
     thresholds : when evidence is strong and support thin.
     prior_scale : ``a0`` of the z-score's prior; None for the pooled total.
     redact_personal : replace personal-looking tokens (and watchlist terms) by placeholders.
+    analyzer : the model's tokenizer (text -> tokens), tried on example personal
+        values to say which kinds it splits into unrecognisable pieces.
 
     Examples
     --------
@@ -520,6 +534,7 @@ def review_vocabulary(
         top=int(top),
         redacted=bool(redact_personal),
         redacted_count=int(traits.personal.sum()) if redact_personal else 0,
+        redaction=redaction_check(traits, analyzer),
         watchlist=tuple(WatchEntry(str(s), int(c)) for s, c in zip(shown, columns)),
         watchlist_source=None if watchlist is None else watchlist.source,
     )

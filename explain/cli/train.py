@@ -17,6 +17,9 @@ def train(
     data: Path = typer.Argument(..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz)."),
     text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
     label_col: str = typer.Option(..., "--label-col", help="Column holding the class label."),
+    id_col: Optional[str] = typer.Option(
+        None, "--id-col", help="Column of message ids, recorded for the hold-out (default: 'id' if present)."
+    ),
     out: Path = typer.Option(..., "--out", help="Model file to write (skops format)."),
     features: str = typer.Option("counts", help="counts | binary | tfidf"),
     ngrams: str = typer.Option("1-1", help="Word or character n-gram range MIN-MAX."),
@@ -38,8 +41,8 @@ def train(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
         alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
     )
-    messages = read_messages_or_fail(data, text_col, label_col)
-    trained = train_filter(messages.texts, messages.labels, settings)
+    messages = read_messages_or_fail(data, text_col, label_col, id_col)
+    trained = train_filter(messages.texts, messages.labels, settings, ids=messages.ids)
 
     # The card records the SHA-256 of the exact bytes that become the model file.
     with atomic_path(out) as tmp:
@@ -54,16 +57,24 @@ def train(
                 "rows": len(messages),
                 "text_col": text_col,
                 "label_col": label_col,
+                "id_col": messages.id_col,
                 "replaced_utf8_sequences": messages.replaced_chars,
             },
         )
         write_atomic(card_path_for(out), json.dumps(card, indent=2) + "\n")
 
-    per_class = ", ".join(f"{c} {n}" for c, n in trained.rows_per_class.items())
-    console.print(f"trained {variant} naive Bayes on {trained.train_rows} of {len(messages)} messages ({per_class})")
+    held = f" ({len(messages) - trained.train_rows:,} held out)" if trained.holdout else ""
+    per_class = ", ".join(f"{c} {n:,}" for c, n in trained.rows_per_class.items())
     vocab = len(trained.pipeline[0].vocabulary_)
-    console.print(f"features: {features}, {analyzer} {ngrams}-grams, vocabulary of {vocab} tokens")
+    lines = [
+        f"trained {variant} naive Bayes on {trained.train_rows:,} of {len(messages):,} messages{held}",
+        f"rows trained on: {per_class}",
+        f"features: {trained.features_shown} of {trained.ngrams_shown}; vocabulary of {vocab:,} tokens",
+    ]
     if trained.holdout:
         h = trained.holdout
-        console.print(f"hold-out ({h['rows']} messages): accuracy {h['accuracy']:.4f}, macro F1 {h['macro_f1']:.4f}")
+        lines.append(f"hold-out: {h['rows']:,} messages (seed {h['seed']}; their ids are in the card)")
+        lines.append(f"  accuracy {h['accuracy']:.4f}, macro F1 {h['macro_f1']:.4f}")
+    for line in lines:
+        console.print(line, markup=False, soft_wrap=True)
     console.print(f"wrote {out} and {card_path_for(out).name}")

@@ -7,6 +7,7 @@ import math
 from pathlib import Path
 from typing import List, Optional
 
+import numpy as np
 import typer
 
 from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
@@ -32,6 +33,7 @@ def vocab(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of --data holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of --data holding the class."),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data holding message ids (default: 'id' if present)."),
     output_format: str = typer.Option("text", "--format", help="text | csv | json (csv lists every token)."),
     images: Optional[Path] = typer.Option(None, "--images", help="Write word clouds and bar charts (PNG) here."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
@@ -49,6 +51,7 @@ def vocab(
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
     from explain.analysis.vocab import LENSES, document_counts, review_vocabulary
+    from explain.model.training import rows_trained_on
 
     if output_format not in FORMATS:
         fail(f"--format must be text, csv or json, got {output_format!r}")
@@ -70,9 +73,15 @@ def vocab(
     )
     messages = documents = None
     if data is not None:
-        messages = read_messages_or_fail(data, text_col, label_col)
+        messages = read_messages_or_fail(data, text_col, label_col, id_col)
+        seen = rows_trained_on(loaded.card, messages)
+        rows = np.arange(len(messages)) if seen.trained is None else np.flatnonzero(seen.trained)
         documents = document_counts(
-            loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name
+            loaded.view,
+            loaded.featurizer.transform([messages.texts[i] for i in rows]),
+            messages.labels[rows],
+            data.name,
+            seen.note,
         )
     review = review_vocabulary(
         loaded.view,
@@ -84,6 +93,7 @@ def vocab(
         watchlist=terms,
         thresholds=thresholds,
         redact_personal=redact,
+        analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
     )
 
     from explain.present.vocab import render, to_csv, to_json

@@ -36,7 +36,9 @@ class Messages:
     ----------
     texts : list of str
     labels : ndarray of str, or None when no label column was asked for
-    ids : ndarray of str (the ``id`` column when there is one, else row numbers from 1)
+    ids : ndarray of str, one per message: the id column (``id_col``, or ``id``
+        when the file has one), else data row numbers counted from 1
+    id_col : str or None, the column the ids came from (None: row numbers)
     replaced_chars : int, bytes that were not valid UTF-8 and became U+FFFD
     source : Path
     sha256 : str, of the file's bytes as stored
@@ -48,6 +50,7 @@ class Messages:
     replaced_chars: int
     source: Path
     sha256: str
+    id_col: str | None = None
 
     def __len__(self) -> int:
         return len(self.texts)
@@ -114,8 +117,9 @@ def read_column(path, column: str) -> list:
 def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
     """Read messages (and labels) from a data file; see the module policy.
 
-    ``id_col`` names the column of message ids; without it the ``id`` column
-    is used when there is one, else row numbers from 1.
+    ``id_col`` names the column of message ids; without it the column ``id``
+    is used when the file has one, else data row numbers from 1. Ids must be
+    present and distinct, so that every figure about a message names one row.
     """
     path = Path(path)
     columns, replaced, digest = _read_columns(path)
@@ -138,13 +142,25 @@ def read_messages(path, text_col: str, label_col: str | None = None, id_col: str
                 f"{path.name}: {len(gaps)} rows have no {label_col!r} (first at data row {gaps[0] + 1})"
             )
         labels = np.asarray([str(v).strip() for v in values], dtype=object)
-    ids = columns.get(id_col or "id")
-    ids = (
-        np.asarray([str(i) for i in ids], dtype=object)
-        if ids is not None
-        else np.asarray([str(i + 1) for i in range(n)], dtype=object)
+    if id_col is None and "id" in columns:
+        id_col = "id"
+    ids = _ids(columns[id_col], id_col, path.name) if id_col is not None else np.asarray(
+        [str(i + 1) for i in range(n)], dtype=object
     )
-    return Messages(texts, labels, ids, replaced, path, digest)
+    return Messages(texts, labels, ids, replaced, path, digest, id_col)
+
+
+def _ids(values, id_col: str, name: str) -> np.ndarray:
+    """The id column as strings; a missing or repeated id is refused, naming its data row."""
+    ids = np.asarray(["" if _missing(v) else str(v).strip() for v in values], dtype=object)
+    empty = np.flatnonzero(ids == "")
+    if len(empty):
+        raise NbledgerError(f"{name}: {len(empty)} rows have no {id_col!r} (first at data row {empty[0] + 1})")
+    _, first, counts = np.unique(ids.astype(str), return_index=True, return_counts=True)
+    if (counts > 1).any():
+        row = int(first[counts > 1].min())
+        raise NbledgerError(f"{name}: the id {ids[row]!r} in column {id_col!r} is used by more than one row")
+    return ids
 
 
 def _missing(value) -> bool:

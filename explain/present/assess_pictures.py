@@ -15,27 +15,15 @@ from matplotlib.figure import Figure
 
 from explain.analysis.assessment import FLAGGED, Assessment
 from explain.present.assessment import point_label
-from explain.present.drawing import NEUTRAL, PALETTE, class_colours, png_bytes
+from explain.present.drawing import INK, NEUTRAL, PALETTE, line_colours, png_bytes
 
-# Marks drawn over the curves (operating points, threshold): the darkest neutral shade.
-MARK = NEUTRAL.shade(1.0)
+# Marks drawn over the curves (operating points, threshold).
+MARK = INK
 
 
 def _colours(result: Assessment) -> dict[str, str]:
-    """Line colour per positive class and for "flagged", from the project's palette.
-
-    Classes keep their family from :func:`explain.present.vocab_pictures.class_colours`. With
-    one flagged class, "flagged" is that class; with more, it takes the next
-    unused family.
-    """
-    families = class_colours(result.classes, result.normal_class)
-    colours = {name: family.base for name, family in families.items()}
-    flagged = [c for c in result.classes if c != result.normal_class]
-    if len(flagged) == 1:
-        colours[FLAGGED] = colours[flagged[0]]
-    else:
-        colours[FLAGGED] = PALETTE[len(flagged) % len(PALETTE)].base if len(flagged) < len(PALETTE) else MARK
-    return colours
+    """Line colour per positive class and for "flagged" (:func:`explain.present.drawing.line_colours`)."""
+    return line_colours(result.classes, result.normal_class)
 
 
 def _rankings(result: Assessment):

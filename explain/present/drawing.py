@@ -3,14 +3,19 @@
 The palette
 -----------
 :data:`PALETTE` holds the colour families of the project's pictures, one per
-class; the normal class (and "rest") is drawn in :data:`NEUTRAL`. The base
-colours were chosen so that every pair, and each against white, stays at
-least 27 CIELAB units apart (CIE76) in normal vision and in the protanopia,
-deuteranopia and tritanopia simulations of Machado, Oliveira & Fernandes
-2009, "A physiologically-based model for simulation of color vision
-deficiency", IEEE TVCG 15(6) (severity 1). With more than five flagged
-classes the families repeat. Lighter and darker shades of a family come from
-mixing its base with white or black (:meth:`ColourFamily.shade`).
+flagged class; the normal class (and "rest") is drawn in :data:`NEUTRAL`,
+marks over curves (operating points, the threshold in use) in :data:`INK`,
+and "flagged" (all flagged classes together) in the family after the last
+flagged class (:func:`line_colours`). Every colour that can share a picture
+(:func:`shown_together`: paper white, ink, neutral and every palette base)
+stays at least :data:`MIN_DISTANCE` CIELAB units (CIE76) from every other in
+normal vision and in the protanopia, deuteranopia and tritanopia
+simulations of Machado, Oliveira & Fernandes 2009, "A physiologically-based
+model for simulation of color vision deficiency", IEEE TVCG 15(6), at
+severity 1 (the tests check this with the ``colorspacious`` package's
+implementation of that model). With more than five flagged classes the
+families repeat. Lighter and darker shades of a family come from mixing its
+base with white or black (:meth:`ColourFamily.shade`).
 """
 
 from __future__ import annotations
@@ -51,11 +56,15 @@ class ColourFamily:
 PALETTE = (
     ColourFamily("ember orange", "#e5801a"),
     ColourFamily("heather purple", "#8c2fc0"),
-    ColourFamily("crimson", "#a3162a"),
+    # A crimson (#a3162a) came within 28 units of the slate grey under protanopia: a purer red instead.
+    ColourFamily("signal red", "#a60111"),
     ColourFamily("sky blue", "#5aa8de"),
     ColourFamily("sand", "#c4a27c"),
 )
 NEUTRAL = ColourFamily("slate grey", "#6b7378")
+INK = "#000000"
+PAPER = "#ffffff"
+MIN_DISTANCE = 28.0
 
 
 def class_colours(classes, normal_class: str | None = None) -> dict[str, ColourFamily]:
@@ -66,6 +75,28 @@ def class_colours(classes, normal_class: str | None = None) -> dict[str, ColourF
         colours[normal_class] = NEUTRAL
     colours[REST] = NEUTRAL
     return colours
+
+
+def line_colours(classes, normal_class: str | None = None) -> dict[str, str]:
+    """Base colour of each class, of ``"rest"`` and of ``"flagged"`` (every flagged class together).
+
+    With one flagged class, "flagged" is that class; with more, it takes the
+    next unused family, or ink when every family is taken.
+    """
+    from explain.analysis.assessment import FLAGGED
+
+    colours = {name: family.base for name, family in class_colours(classes, normal_class).items()}
+    flagged = [c for c in classes if c != normal_class]
+    if len(flagged) == 1:
+        colours[FLAGGED] = colours[flagged[0]]
+    else:
+        colours[FLAGGED] = PALETTE[len(flagged)].base if len(flagged) < len(PALETTE) else INK
+    return colours
+
+
+def shown_together() -> dict[str, str]:
+    """Name -> colour of everything that can share one picture (what the palette must keep apart)."""
+    return {"paper": PAPER, "ink": INK, NEUTRAL.name: NEUTRAL.base, **{f.name: f.base for f in PALETTE}}
 
 
 def png_bytes(fig: Figure) -> bytes:

@@ -1,9 +1,10 @@
 """Presenting a :class:`~explain.analysis.vocab.VocabReview`: terminal, CSV and JSON.
 
 Nothing here computes a figure; everything written is read from the review.
-Log-odds are natural logarithms; mutual information is in bits. Files carry
-chi2 and g2 unsigned beside ``direction``; the terminal shows them signed
-(``direction * statistic``), as the rankings sort them. With
+Log-odds are natural logarithms; mutual information is in bits. Chi-square
+and G2 are unsigned everywhere, beside ``direction`` (the terminal names the
+class the token goes with); rankings sort ``direction * statistic``. Words
+are those of ``docs/glossary.md``. With
 redaction on, personal-looking tokens arrive here already replaced by
 placeholders such as ``[e-mail 1]``.
 
@@ -17,7 +18,7 @@ comparison holds).
 ======================  ==========================================================
 column                  meaning
 ======================  ==========================================================
-``contrast``            the comparison, ``"<target> vs <other>"``
+``comparison``          the comparison, ``"<target> vs <other>"``
 ``target``              the class the evidence is measured for
 ``other``               the class it is measured against, or ``rest`` (all others pooled)
 ``rank``                position under the chosen ranking (1 = strongest for target)
@@ -40,14 +41,15 @@ column                  meaning
                         absent & target, absent & other (what they count: see
                         ``counts`` in the JSON header or the terminal)
 ``rank_<lens>``         position under each ranking: zscore, ratio, mass, chi2, g2
-``thin`` ... ``watchlist``  true where the token carries that risk flag
+``thin`` ... ``watchlist_strong``  true where the token carries that risk flag
 ``personal_kind``       e-mail, url, ip, digits or phone; empty otherwise
 ======================  ==========================================================
 
 JSON (``--format json``), schema ``nbledger.vocab/1``: ``model`` and ``data``
 (``{path, sha256}`` or null); ``review`` (variant, feature kind, classes,
 normal class, token count, ranking, list length, what the 2x2 tables count
-and why, the z-score prior scale, risk thresholds, redaction); ``contrasts``,
+and why, the z-score prior scale, risk thresholds, redaction and the
+personal-data check); ``comparisons``,
 each with its classes, training messages, ``flag_counts``, ``top_for`` and
 ``top_against`` (rows as above) and ``flagged`` (per flag, the strongest
 tokens carrying it, at most ``top``); and ``watchlist`` (source and, per term,
@@ -65,7 +67,7 @@ from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.analysis.risk import FLAGS, PERSONAL_KINDS
+from explain.analysis.risk import FLAG_LABELS, FLAGS, PERSONAL_KINDS
 from explain.present.token_display import shown
 from explain.analysis.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
 
@@ -124,10 +126,17 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
             },
             "redacted": review.redacted,
             "redacted_count": review.redacted_count,
+            "personal_data_check": {
+                "tokens_checked": review.redaction.checked,
+                "found": [{"kind": kind, "tokens": n} for kind, n in review.redaction.found.items()],
+                "tokenizer_splits": None
+                if review.redaction.tokenizer_splits is None
+                else list(review.redaction.tokenizer_splits),
+            },
         },
-        "contrasts": [
+        "comparisons": [
             {
-                "contrast": c.label,
+                "comparison": c.label,
                 "target": c.target,
                 "other": c.other,
                 "other_classes": list(c.other_classes),
@@ -153,7 +162,7 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
                     "term": w.term,
                     "in_vocabulary": w.column >= 0,
                     "rows": [
-                        {"contrast": c.label, **_row(review, c, w.column)} if w.column >= 0 else None
+                        {"comparison": c.label, **_row(review, c, w.column)} if w.column >= 0 else None
                         for c in review.contrasts
                     ],
                 }
@@ -172,7 +181,7 @@ def to_csv(review: VocabReview) -> str:
     for c in review.contrasts:
         order = c.order[lens_at]
         columns = {
-            "contrast": c.label,
+            "comparison": c.label,
             "target": c.target,
             "other": c.other,
             "rank": c.rank[lens_at, order],
@@ -210,63 +219,129 @@ def _count(x) -> str:
     return f"{int(x):,}" if x == int(x) else f"{x:,.2f}"
 
 
-# Below this terminal width only the ranking lens, ratio and mass are shown.
-WIDE_TERMINAL = 120
+# Below this terminal width only the ranking lens, ratio and mass are shown: every lens,
+# direction, support and messages need about 150 columns without folding a number.
+WIDE_TERMINAL = 150
+#: Column headings of the lenses (glossary words; MI is mutual information).
+LENS_HEADINGS = {"zscore": "z-score", "ratio": "ratio", "mass": "mass", "chi2": "chi-square", "g2": "G2", "mi": "MI"}
+#: What each kind of personal data is called in sentences.
+PERSONAL_NAMES = {
+    "e-mail": "e-mail addresses",
+    "url": "URLs",
+    "ip": "IP addresses",
+    "digits": "runs of 7+ digits",
+    "phone": "phone numbers",
+}
+_COUNT_WORDS = {"documents": "messages containing each token", "occurrences": "token occurrences",
+                "tfidf-weights": "summed TF-IDF weights"}
+
+
+def _listing(words) -> str:
+    words = list(words)
+    return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " and " + words[-1]
+
+
+def redaction_lines(review: VocabReview) -> list[str]:
+    """The personal-data footer: what was checked, what was found, what could not be checked."""
+    check = review.redaction
+    found = ", ".join(f"{PERSONAL_NAMES[k]} {n:,}" for k, n in check.found.items() if n)
+    lines = [
+        f"Personal-data check: {check.checked:,} tokens checked for {_listing(PERSONAL_NAMES.values())}; "
+        + (f"found {check.total:,} ({found})" if check.total else "found none")
+        + (", each shown as a placeholder." if review.redacted and check.total else ".")
+    ]
+    if check.tokenizer_splits is None:
+        lines.append("The model's tokenizer was not tried, so values it splits into pieces may be present.")
+    elif check.tokenizer_splits:
+        lines.append(
+            f"This model's tokenizer splits {_listing(PERSONAL_NAMES[k] for k in check.tokenizer_splits)} "
+            "into pieces (tried on reserved examples such as warden@example.org): those reach the vocabulary "
+            "only as pieces like 'example' or 'org', which no check recognises, so they may be there unflagged."
+        )
+    return lines
+
+
+def _shown_value(c: Contrast, lens: str, j: int) -> str:
+    """A lens value as shown: signed for z-score, ratio and mass, unsigned for chi-square, G2 and MI."""
+    return _fmt(getattr(c, lens)[j])
+
+
+def _direction(c: Contrast, j: int) -> str:
+    return {1: c.target, -1: c.other}.get(int(c.direction[j]), "neither")
+
+
+def _flags(c: Contrast, j: int, skip=()) -> str:
+    return ", ".join(FLAG_LABELS[name] for k, name in enumerate(FLAGS) if c.flags[k, j] and name not in skip)
 
 
 def _token_table(review: VocabReview, c: Contrast, picked, side: str, wide: bool) -> Table:
-    """Rows of ``picked``; ``#`` counts from the end of the ranking that ``side`` starts at."""
+    """Rows of ``picked``; ``rank`` counts from the end of the ranking that ``side`` starts at.
+
+    Numbers never wrap: their columns do not fold, and only the token and
+    flags columns give way at narrow widths.
+    """
     lenses = LENSES if wide else tuple(dict.fromkeys((review.lens, "ratio", "mass")))
+    # Narrow tables need no direction: their ranking puts every row on the side the title names.
+    statistics = wide
     docs = wide and c.documents_target is not None
     owner = c.target if side == "for" else c.other
     table = Table(title=Text(f"strongest {len(picked)} for {owner}"), title_justify="left", show_edge=False, pad_edge=False)
-    table.add_column("#", justify="right")
+    number = dict(justify="right", no_wrap=True)
+    table.add_column("rank", **number)
     table.add_column("token", overflow="fold", min_width=8, max_width=32)
-    for lens in lenses:
-        table.add_column(lens, justify="right", style="bold" if lens == review.lens else None)
-    if wide:
-        table.add_column("mi", justify="right")
+    for lens in [*lenses, *(["mi"] if wide else [])]:
+        table.add_column(LENS_HEADINGS[lens], style="bold" if lens == review.lens else None, **number)
+    if statistics:
+        table.add_column("direction", no_wrap=True)
     for side_name in (c.target, c.other):
-        table.add_column(Text(f"n {side_name}"), justify="right")
+        table.add_column(Text(f"support\n{side_name}"), **number)
     if docs:
         for side_name in (c.target, c.other):
-            table.add_column(Text(f"docs {side_name}"), justify="right")
-    table.add_column("flags")
+            table.add_column(Text(f"messages\n{side_name}"), **number)
+    table.add_column("flags", overflow="fold", min_width=6)
     lens_at = LENSES.index(review.lens)
     for j in picked:
         rank = int(c.rank[lens_at, j])
-        cells = [str(rank if side == "for" else review.n_features + 1 - rank), shown(review.tokens[j])]
-        cells += [_fmt(c.values(lens)[j] if lens in ("chi2", "g2") else getattr(c, lens)[j]) for lens in lenses]
-        if wide:
-            cells.append(_fmt(c.mi[j]))
+        cells = [f"{rank if side == 'for' else review.n_features + 1 - rank:,}", shown(review.tokens[j])]
+        cells += [_shown_value(c, lens, j) for lens in [*lenses, *(["mi"] if wide else [])]]
+        if statistics:
+            cells.append(_direction(c, j))
         cells += [_count(c.support_target[j]), _count(c.support_other[j])]
         if docs:
             cells += [_count(c.documents_target[j]), _count(c.documents_other[j])]
-        cells.append(", ".join(name for k, name in enumerate(FLAGS) if c.flags[k, j]))
+        cells.append(_flags(c, j))
         # Tokens are data, never markup: "[e-mail 1]" must print as it is.
         table.add_row(*map(Text, cells))
     return table
 
 
+def feature_words(review: VocabReview) -> str:
+    """The feature kind as the classifier uses it (BernoulliNB: presence, whatever it was given)."""
+    from explain.model.training import feature_kind_words
+
+    return feature_kind_words(review.feature_kind, review.variant)
+
+
 def _header(review: VocabReview, console: Console) -> None:
     t = review.thresholds
-    console.print(
-        f"Vocabulary of a {review.variant} naive Bayes model: {review.n_features:,} tokens "
-        f"({review.feature_kind} features), classes {', '.join(review.classes)}"
-        + (f", normal class {review.normal_class}" if review.normal_class else ""),
-        markup=False,
+    say = lambda line: console.print(line, markup=False)  # noqa: E731
+    say(
+        f"Vocabulary of a {review.variant} naive Bayes model: {review.n_features:,} tokens, "
+        f"features {feature_words(review)}; classes {', '.join(review.classes)}"
+        + (f"; normal class {review.normal_class}" if review.normal_class else "")
     )
-    console.print(f"Ranked by {review.lens} ({LENS_TITLES[review.lens]}); positive values favour the first class named.", markup=False)
-    console.print(f"2x2 tables (chi2, g2, mi) count {review.counts.kind}: {review.counts.reason}.", markup=False)
+    say(f"Ranked by {LENS_TITLES[review.lens]}; positive values favour the first class of each comparison.")
+    say(
+        f"2x2 tables (chi-square, G2, MI) count {_COUNT_WORDS[review.counts.kind]}: {review.counts.reason}. "
+        "Chi-square and G2 carry no sign; direction names the class the token goes with."
+    )
     prior = "the pooled counts of the two sides" if review.prior_scale is None else f"scale a0 = {review.prior_scale:g}"
-    console.print(f"z-score prior: {prior}.", markup=False)
-    console.print(
-        f"Risk: strong evidence = one occurrence changes the odds at least {math.exp(t.strong_log_odds):.3g}-fold "
-        f"(|ratio| >= {t.strong_log_odds:.3g}); thin = strong on fewer than {t.thin_below:g} training occurrences.",
-        markup=False,
+    say(f"z-score prior: {prior}.")
+    say(
+        f"Strong: one occurrence changes the odds at least {math.exp(t.strong_log_odds):.3g}-fold "
+        f"(|ratio| >= {t.strong_log_odds:.3g}); thin: strong on less than {t.thin_below:g} of support; "
+        "watchlist-strong: a watchlist token strong toward a flagged class."
     )
-    if review.redacted:
-        console.print(f"Redacted: {review.redacted_count} personal-looking tokens are shown as placeholders.", markup=False)
 
 
 def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
@@ -277,23 +352,32 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
     for side in ("for", "against"):
         picked = c.top(review.lens, review.top, side)
         console.print(_token_table(review, c, picked, side, console.width >= WIDE_TERMINAL))
-    counts = "  ".join(f"{name} {c.flag_counts[name]:,}" for name in FLAGS)
+    # name=count keeps each pair on one line when the terminal wraps
+    counts = ", ".join(f"{FLAG_LABELS[name]}={c.flag_counts[name]:,}" for name in FLAGS)
     console.print(f"flags: {counts}", markup=False)
     for name in FLAGS:
         if name == "watchlist" or not c.flag_counts[name]:
             continue
         examples = c.strongest_flagged(name, review.lens, TERMINAL_FLAG_EXAMPLES)
-        listed = ", ".join(f"{review.tokens[j]} ({_fmt(c.values(review.lens)[j])})" for j in examples)
-        console.print(f"  strongest {name}: {listed}", markup=False, soft_wrap=True)
+        values = c.values(review.lens)
+        listed = ", ".join(
+            f"{review.tokens[j]} ({_shown_value(c, review.lens, j)} for {c.target if values[j] >= 0 else c.other})"
+            for j in examples
+        )
+        console.print(f"  strongest {FLAG_LABELS[name]}: {listed}", markup=False)
 
 
-def _watchlist(review: VocabReview, console: Console) -> None:
-    console.print()
+def _watchlist(review: VocabReview) -> Table:
+    """Every watchlist term in every comparison."""
     table = Table(
         title=Text(f"watchlist {review.watchlist_source}"), title_justify="left", show_edge=False, pad_edge=False
     )
-    for name in ("term", "comparison", review.lens, "ratio", "rank", "support", "flags"):
-        table.add_column(name, justify="left" if name in ("term", "comparison", "flags") else "right")
+    headings = ("term", "comparison", LENS_HEADINGS[review.lens], "ratio", "rank", "support", "flags")
+    for name in headings:
+        if name in ("term", "comparison", "flags"):
+            table.add_column(name, overflow="fold")
+        else:
+            table.add_column(name, justify="right", no_wrap=True)
     lens_at = LENSES.index(review.lens)
     for w in review.watchlist:
         for c in review.contrasts:
@@ -307,20 +391,24 @@ def _watchlist(review: VocabReview, console: Console) -> None:
             cells = (
                 w.term,
                 c.label,
-                _fmt(value),
+                _shown_value(c, review.lens, j),
                 _fmt(c.ratio[j]),
                 where,
                 f"{_count(c.support_target[j])} / {_count(c.support_other[j])}",
-                ", ".join(name for k, name in enumerate(FLAGS) if c.flags[k, j] and name != "watchlist"),
+                _flags(c, j, skip=("watchlist",)),
             )
             table.add_row(*map(Text, cells))
-    console.print(table)
+    return table
 
 
 def render(review: VocabReview, console: Console) -> None:
-    """The review as terminal tables."""
+    """The review as terminal tables, the personal-data check last."""
     _header(review, console)
     for c in review.contrasts:
         _contrast(review, c, console)
     if review.watchlist_source is not None:
-        _watchlist(review, console)
+        console.print()
+        console.print(_watchlist(review))
+    console.print()
+    for line in redaction_lines(review):
+        console.print(line, markup=False)

@@ -4,7 +4,12 @@
   chosen lens (not to frequency), laid out with a fixed seed so the same
   review always gives the same picture;
 - a ranked horizontal bar chart of the strongest tokens for and against,
-  with each value and the token's risk flags written beside its bar.
+  with each value and the token's risk flags written beside its bar;
+- a support map per comparison: every token's ratio (log-odds per
+  occurrence) against its training support on a log scale, thin tokens
+  marked, the strong and thin limits drawn, and the chosen lens's top tokens
+  labelled, so that strong evidence resting on a handful of messages stands
+  out at a glance.
 
 Everything drawn is read from the review; nothing is recomputed. Redaction
 happens in the review itself, so a redacted review has no personal token to
@@ -20,13 +25,16 @@ import re
 import numpy as np
 from matplotlib.figure import Figure
 
-from explain.analysis.risk import FLAGS
+from explain.analysis.risk import FLAG_LABELS, FLAGS
+from explain.analysis.vocab import LENS_TITLES, Contrast, VocabReview
+from explain.present.drawing import INK, NEUTRAL, class_colours, png_bytes
 from explain.present.token_display import shown
-from explain.analysis.vocab import LENS_TITLES, REST, Contrast, VocabReview
-from explain.present.drawing import DPI, NEUTRAL, class_colours, png_bytes
+from explain.present.vocab import redaction_lines
 
 SEED = 20_240_601
 CLOUD_WORDS = 80
+# Tokens named on a support map, per side.
+MAP_LABELS = 8
 
 
 def _side_names(c: Contrast, side: str) -> tuple[str, str]:
@@ -34,7 +42,7 @@ def _side_names(c: Contrast, side: str) -> tuple[str, str]:
 
 
 def _flag_note(c: Contrast, j: int) -> str:
-    raised = [name for i, name in enumerate(FLAGS) if c.flags[i, j]]
+    raised = [FLAG_LABELS[name] for i, name in enumerate(FLAGS) if c.flags[i, j]]
     return f"  [{', '.join(raised)}]" if raised else ""
 
 
@@ -75,9 +83,75 @@ def word_cloud(review: VocabReview, index: int, side: str = "for") -> bytes:
         ).generate_from_frequencies(words)
         ax.imshow(cloud.to_array(), interpolation="bilinear")
     ax.set_title(title, fontsize=11)
-    if review.redacted:
-        fig.text(0.5, 0.02, f"{review.redacted_count} personal-looking tokens redacted", ha="center", fontsize=8)
+    _footer(fig, review)
     return png_bytes(fig)
+
+
+def _footer(fig: Figure, review: VocabReview) -> None:
+    """The personal-data check, as the terminal says it, under the picture."""
+    import textwrap
+
+    lines = [part for line in redaction_lines(review) for part in textwrap.wrap(line, 110)]
+    fig.text(0.5, -0.01, "\n".join(lines), ha="center", va="top", fontsize=7, color=NEUTRAL.shade(1.0))
+
+
+def support_map(review: VocabReview, index: int) -> bytes:
+    """Every token's ratio against its training support (both sides together, log scale).
+
+    Points take the colour of the side their evidence favours; thin tokens
+    are ringed in ink; the dashed lines are the strong limits (``+-log
+    strong``) and the thin limit (``thin_below``). The ``MAP_LABELS``
+    strongest tokens for and against under the chosen lens are named.
+    Tokens with no support at all cannot sit on a log axis and are counted
+    in the title instead.
+    """
+    c = review.contrasts[index]
+    colours = class_colours(review.classes, review.normal_class)
+    support = c.support_target + c.support_other
+    placed = support > 0
+    thin = c.flag("thin") & placed
+    fig = Figure(figsize=(10, 6.5))
+    ax = fig.subplots()
+    for owner, side in ((c.target, c.ratio > 0), (c.other, c.ratio <= 0)):
+        keep = side & placed & ~thin
+        ax.scatter(support[keep], c.ratio[keep], s=6, color=colours[owner].base, alpha=0.45, linewidths=0,
+                   label=f"toward {owner}", rasterized=True)
+        keep = side & thin
+        ax.scatter(support[keep], c.ratio[keep], s=22, facecolors=colours[owner].base, edgecolors=INK,
+                   linewidths=0.7, label=f"thin, toward {owner}", rasterized=True)
+    t = review.thresholds
+    for y in (t.strong_log_odds, -t.strong_log_odds):
+        ax.axhline(y, color=NEUTRAL.base, ls="--", lw=0.8)
+    if t.thin_below > 0:
+        ax.axvline(t.thin_below, color=NEUTRAL.base, ls=":", lw=0.8)
+    ax.axhline(0, color=NEUTRAL.base, lw=0.5)
+    labelled = [*c.top(review.lens, MAP_LABELS, "for"), *c.top(review.lens, MAP_LABELS, "against")]
+    for j in labelled:
+        if placed[j]:
+            ax.annotate(shown(review.tokens[j]), (support[j], c.ratio[j]), xytext=(4, 2), textcoords="offset points",
+                        fontsize=7, color=INK)
+    ax.set_xscale("log")
+    ax.set_xlabel(f"support: training {_support_unit(review)} of {c.target} and {c.other} together (log scale)")
+    ax.set_ylabel(f"ratio: log-odds per occurrence, + toward {c.target}")
+    missing = int((~placed).sum())
+    ax.set_title(
+        f"{c.label}: evidence against support, {int(thin.sum()):,} thin tokens ringed\n"
+        f"top {MAP_LABELS} each way by {LENS_TITLES[review.lens]} named"
+        + (f"; {missing:,} tokens without support not drawn" if missing else ""),
+        fontsize=10,
+    )
+    ax.text(0.99, 0.01, f"dashed: strong (x{np.exp(t.strong_log_odds):.3g}); dotted: thin limit ({t.thin_below:g})",
+            transform=ax.transAxes, ha="right", va="bottom", fontsize=7, color=NEUTRAL.shade(1.0))
+    ax.grid(alpha=0.25)
+    ax.legend(fontsize=8, loc="upper left", markerscale=1.5)
+    _footer(fig, review)
+    return png_bytes(fig)
+
+
+def _support_unit(review: VocabReview) -> str:
+    if review.variant == "bernoulli" or review.feature_kind == "binary":
+        return "messages containing it"
+    return "summed TF-IDF weights" if review.feature_kind == "tfidf" else "occurrences"
 
 
 def bar_chart(review: VocabReview, index: int) -> bytes:
@@ -116,11 +190,12 @@ def _slug(name: str) -> str:
 
 
 def draw_all(review: VocabReview) -> dict[str, bytes]:
-    """File name -> PNG bytes: for each comparison, its bar chart and a word cloud per side."""
+    """File name -> PNG bytes: for each comparison, its bar chart, support map and a word cloud per side."""
     pictures = {}
     for i, c in enumerate(review.contrasts):
         pair = f"{_slug(c.target)}_vs_{_slug(c.other)}"
         pictures[f"bars_{pair}.png"] = bar_chart(review, i)
+        pictures[f"support_{pair}.png"] = support_map(review, i)
         pictures[f"cloud_{pair}_for_{_slug(c.target)}.png"] = word_cloud(review, i, "for")
         pictures[f"cloud_{pair}_for_{_slug(c.other)}.png"] = word_cloud(review, i, "against")
     return pictures
