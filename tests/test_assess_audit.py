@@ -323,3 +323,38 @@ def test_pictures_include_the_slices(files, capsys, tmp_path):
     assert names == ["precision_recall.png", "reliability.png", "roc.png", "scores.png", "slices.png"]
     for name in names:
         assert Image.open(tmp_path / name).size[0] > 600
+
+
+# Table structure rather than terms: what a column counts or where a row sits.
+STRUCTURE = {"class", "messages", "total", "id", "bin", "to", "chosen by", "positive class", "positive", "positives",
+             "negatives", "true \\ decided"}
+
+
+def test_assess_screen_terms_are_in_the_glossary(files, monkeypatch):
+    import glossary
+    from explain.present import assessment as present
+
+    headings = []
+    real = present._emit
+
+    def spy(console, title, columns, rows, **kw):
+        headings.extend(columns)
+        return real(console, title, columns, rows, **kw)
+
+    monkeypatch.setattr(present, "_emit", spy)
+    model = load_model(files / "model.skops", normal_class="ok")
+    messages = read_messages(files / "held.csv", "text", "label", "message")
+    X = model.featurizer.transform(messages.texts)
+    truth = class_indices(model.view, messages.labels)
+    oos = out_of_sample_probabilities(model.unfitted_copy(), messages.texts, truth, model.classes, 3)
+    result = assess(model.view, X, messages.labels, ids=messages.ids, costs=(10, 1), base_rate=0.01,
+                    slices=[slicing.by_length(messages.texts)],
+                    label_errors=label_errors(model.view, X, truth, messages.ids, oos, folds=3))
+    render(result, Console(file=__import__("io").StringIO(), width=120, no_color=True))
+    assert len(headings) > 40
+    names = set(result.classes) | {"normal", "flagged"} | {f"{100 * q:g} %" for q in result.scores.quantile_levels}
+    for heading in set(headings):
+        h = re.sub(r" \(.*\)$", "", heading)
+        h = re.sub(r"^mean | (>=|from)$", "", h)
+        ok = h in STRUCTURE or h in names or glossary.is_term(h) or (h.endswith("s") and glossary.is_term(h[:-1]))
+        assert ok, heading

@@ -201,7 +201,7 @@ def _base_rates(result: Assessment, console: Console) -> None:
     rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
         rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
-    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"share ({_level(result)} Wilson interval)"], rows)
+    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"base rate ({_level(result)} Wilson interval)"], rows)
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
@@ -290,7 +290,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
         console.print("each threshold exactly, to reproduce its row:")
         for line in exact:
             console.print(line, soft_wrap=True)
-    columns = ["chosen by", "flagged", "false alarms", "missed"] + ([] if result.costs is None else ["cost / message"])
+    columns = ["chosen by", "flagged", "false alarms", "missed"] + ([] if result.costs is None else ["expected cost"])
     _emit(console, "per 10,000 messages at the test-set base rate (measured)", columns, expected)
     if projected:
         _emit(
@@ -329,7 +329,7 @@ def _calibration(result: Assessment, console: Console) -> None:
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
         for b in range(cal.n_bins)
     ]
-    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds from", "to", "mean P(flag)", "observed share flagged-class"], rows)
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "flag log-odds from", "to", "mean P(flag)", "observed share flagged-class"], rows)
     s = result.scores
     rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
     _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
@@ -347,7 +347,7 @@ def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, 
          Text(_tokens(m.toward_flag)), Text(_tokens(m.toward_normal))]
         for m in rows
     ]
-    _emit(console, heading, ["id", "true", "decided", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
+    _emit(console, heading, ["id", "true class", "decided class", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
           right_from=3, wrap=("toward flagged", "toward normal"))
 
 
@@ -355,7 +355,7 @@ def _drivers(title: str, drivers, console: Console) -> None:
     if not drivers:
         return
     rows = [[Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped)] for d in drivers]
-    _emit(console, title, ["token", "summed evidence", "errors pushed", "errors tipped"], rows)
+    _emit(console, f"{title}; evidence summed over the errors", ["token", "evidence", "pushed", "tipped"], rows)
 
 
 def _errors(result: Assessment, console: Console) -> None:
@@ -385,7 +385,7 @@ def _slices(result: Assessment, console: Console) -> None:
         for s in rep.slices
     ]
     _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
-          ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p"], rows)
+          ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p-value"], rows)
     _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
     if rep.differing:
         _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
@@ -406,7 +406,7 @@ def _label_errors(result: Assessment, console: Console) -> None:
         for s in le.suspected
     ]
     _emit(console, f"suspected label errors: {len(le.suspected)} of {le.n_messages} messages",
-          ["id", "label", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
+          ["id", "true class", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
           wrap=("toward favoured",))
     _say(console, 
         f"found by {le.method} on out-of-sample probabilities from {le.folds} refits of the model's own pipeline "
