@@ -358,3 +358,42 @@ def test_assess_screen_terms_are_in_the_glossary(files, monkeypatch):
         h = re.sub(r"^mean | (>=|from)$", "", h)
         ok = h in STRUCTURE or h in names or glossary.is_term(h) or (h.endswith("s") and glossary.is_term(h[:-1]))
         assert ok, heading
+
+
+# --- 1. the shared decision rule, and why -----------------------------------------------------
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(-50, 50), min_size=6, max_size=6), st.floats(-40, 40), st.floats(0.001, 0.999))
+def test_decision_rule_flags_at_log_odds_exactly(values, L, p):
+    from scipy.special import logit
+
+    from explain.model.decision import DecisionRule
+
+    jll = np.array(values).reshape(2, 3)
+    rule = DecisionRule(3, 1, log_odds=L)
+    flagged = rule.flag_log_odds(jll) >= L
+    assert ((rule.decide(jll) != 1) == flagged).all()
+    # at its own score a message is flagged, one float above it is not
+    own = rule.flag_log_odds(jll)[0]
+    assert DecisionRule(3, 1, log_odds=own).decide(jll)[0] != 1
+    assert DecisionRule(3, 1, log_odds=np.nextafter(own, np.inf)).decide(jll)[0] == 1
+    by_probability = DecisionRule(3, 1, threshold=p)
+    assert by_probability.threshold_log_odds == logit(p)
+    assert (by_probability.decide(jll) == DecisionRule(3, 1, log_odds=float(logit(p))).decide(jll)).all()
+
+
+def test_why_takes_the_exact_threshold(files, capsys):
+    from explain.analysis.batch import score_texts
+
+    model = load_model(files / "model.skops", normal_class="ok")
+    text = (ROOT / "demo_corpus" / "examples" / "parcel_fee.txt").read_text(encoding="utf-8")
+    own = float(score_texts(model, [text]).flag_log_odds[0])
+    decisions = []
+    for L in (own, np.nextafter(own, np.inf)):
+        code = run(["why", str(files / "model.skops"), "--file", str(ROOT / "demo_corpus" / "examples" / "parcel_fee.txt"),
+                    "--threshold-log-odds", repr(float(L)), "--format", "json"])
+        out, err = capsys.readouterr()
+        assert code == 0, err
+        decisions.append(json.loads(out)["decision"])
+    assert decisions[0] != "ok" and decisions[1] == "ok"

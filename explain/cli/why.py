@@ -54,6 +54,9 @@ def why(
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds", help="Flag when log P(not normal) - log P(normal) >= L, exactly (as assess prints it)."
+    ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     output_format: str = typer.Option("text", "--format", help="text | json"),
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
@@ -71,7 +74,7 @@ def why(
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    explanation = explain_message(loaded, message, threshold)
+    explanation = explain_message(loaded, message, threshold, threshold_log_odds)
     if output_format == "json":
         sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2) + "\n")
     else:
