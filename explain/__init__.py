@@ -41,6 +41,10 @@ _PUBLIC = {
     "read_watchlist": "explain.analysis.risk",
     "assess": "explain.analysis.assessment",
     "Assessment": "explain.analysis.assessment",
+    "project_to_base_rate": "explain.analysis.rates",
+    "slice_report": "explain.analysis.slices",
+    "label_errors": "explain.analysis.label_errors",
+    "out_of_sample_probabilities": "explain.analysis.label_errors",
     "wilson_interval": "explain.analysis.stats",
     "delong_auc": "explain.analysis.stats",
 }
