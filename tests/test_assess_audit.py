@@ -257,8 +257,11 @@ def full_result(files):
     messages = read_messages(files / "held.csv", "text", "label", "message")
     frame = pd.read_csv(files / "held.csv", dtype=str, keep_default_na=False)
     groups = [slicing.by_length(messages.texts), slicing.by_period(frame.sent_at, "sent_at", "week")]
-    return assess(model.view, model.featurizer.transform(messages.texts), messages.labels, ids=messages.ids,
-                  costs=(10, 1), base_rate=0.01, slices=groups)
+    X = model.featurizer.transform(messages.texts)
+    truth = class_indices(model.view, messages.labels)
+    oos = out_of_sample_probabilities(model.unfitted_copy(), messages.texts, truth, model.classes, 3)
+    return assess(model.view, X, messages.labels, ids=messages.ids, costs=(10, 1), base_rate=0.01, slices=groups,
+                  label_errors=label_errors(model.view, X, truth, messages.ids, oos, folds=3))
 
 
 def test_json_keys_are_snake_case(files):
@@ -280,8 +283,10 @@ def test_tables_fit_without_splitting_a_number(files, width):
     lines = buffer.getvalue().splitlines()
     too_long = [line for line in lines if len(line.rstrip()) > width]
     assert not too_long
-    # no interval opened on one line and closed on the next
+    assert "…" not in "".join(lines)  # nothing cut short
+    # no interval opened on one line and closed on the next; no evidence parted from its token
     for line in lines:
+        assert not re.match(r"^\s*[-+]\d+\.\d\d(,|$)", line), line
         assert not OPENED.search(line.rstrip(" │┃")), line
         assert not CLOSING.match(line.strip("│┃ ")), line
     # every rate of the decision in use, and every projected precision, appears whole in the text
@@ -354,7 +359,7 @@ def test_assess_screen_terms_are_in_the_glossary(files, monkeypatch):
     assert len(headings) > 40
     names = set(result.classes) | {"normal", "flagged"} | {f"{100 * q:g} %" for q in result.scores.quantile_levels}
     for heading in set(headings):
-        h = re.sub(r" \(.*\)$", "", heading)
+        h = re.sub(r" \(.*\)$", "", heading.replace("\n", " "))
         h = re.sub(r"^mean | (>=|from)$", "", h)
         ok = h in STRUCTURE or h in names or glossary.is_term(h) or (h.endswith("s") and glossary.is_term(h[:-1]))
         assert ok, heading

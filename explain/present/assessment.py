@@ -145,11 +145,16 @@ def _plain_text(cell) -> str:
     return cell.plain if isinstance(cell, Text) else str(cell)
 
 
+def _widest_line(text: str) -> int:
+    return max(cell_len(line) for line in text.split("\n"))
+
+
 def _widest_word(text: str) -> int:
     return max((cell_len(w) for w in text.split()), default=0)
 
 
-_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \([-+\d.]+ to [-+\d.]+\)|[-+]?[\d.]+ %|1 - [\d.e+-]+")
+# what prose never breaks: an interval, a percentage, "1 - 3.2e-10", a token with its evidence
+_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \([-+\d.]+ to [-+\d.]+\)|[-+]?[\d.]+ %|1 - [\d.e+-]+|[^\s,]+ [-+]\d+\.\d+")
 _NBSP = "\u00a0"
 
 
@@ -157,15 +162,20 @@ def _say(console: Console, text: str, style: str | None = None) -> None:
     """Print prose wrapped to the console between words, never inside a figure or an interval."""
     # textwrap breaks only at ASCII whitespace: no-break spaces hold each figure together
     glued = _FIGURE.sub(lambda m: m.group(0).replace(" ", _NBSP), text)
-    for line in textwrap.wrap(glued, width=console.width, break_long_words=False, break_on_hyphens=False):
+    indent = " " * (len(text) - len(text.lstrip(" ")) + 2)
+    lines = textwrap.wrap(glued, width=console.width, break_long_words=False, break_on_hyphens=False,
+                          subsequent_indent=indent if indent.strip(" ") == "" and len(indent) > 2 else "")
+    for line in lines:
         console.print(Text(line.replace(_NBSP, " "), style=style or ""), soft_wrap=True)
 
 
-def _emit(console: Console, title: str | None, columns, rows, *, right_from: int = 1, wrap=()) -> None:
+def _emit(console: Console, title: str | None, columns, rows, *, right_from: int = 1, wrap=(), left=()) -> None:
     """Print a table whose numbers never break; stacked when it cannot fit.
 
     Columns from ``right_from`` on hold figures (right-aligned); only the
-    columns named in ``wrap`` (words, tokens) may wrap, between words.
+    columns named in ``wrap`` (sentences) may wrap, between words; those in
+    ``left`` are left-aligned whatever their place. A
+    heading may carry line breaks (``"average\\nprecision"``) to stay narrow.
     When even that does not fit the console, each row is printed as a block:
     its first cell, then ``column: value`` lines.
     """
@@ -173,15 +183,19 @@ def _emit(console: Console, title: str | None, columns, rows, *, right_from: int
     need = 1
     for i, name in enumerate(columns):
         cells = [_plain_text(r[i]) for r in rows] if rows else [""]
-        width = max(_widest_word(c) if wrapping[i] else cell_len(c) for c in cells)
-        need += max(width, _widest_word(name)) + 3
+        width = max(_widest_word(c) if wrapping[i] else _widest_line(c) for c in cells)
+        # a column that does not wrap does not wrap its heading either, except at the breaks it carries
+        heading = _widest_word(name) if wrapping[i] else _widest_line(name)
+        need += max(width, heading) + 3
     if title:
         _say(console, title, "bold")
     if need <= console.width:
         table = Table(header_style="bold")
         for i, name in enumerate(columns):
             table.add_column(
-                name, justify="right" if i >= right_from and name not in wrap else "left", no_wrap=not wrapping[i]
+                name,
+                justify="right" if i >= right_from and name not in wrap and name not in left else "left",
+                no_wrap=not wrapping[i],
             )
         for r in rows:
             table.add_row(*r)
@@ -190,7 +204,7 @@ def _emit(console: Console, title: str | None, columns, rows, *, right_from: int
     for r in rows:
         _say(console, f"  {_plain_text(r[0])}", "bold")
         for name, cell in zip(columns[1:], r[1:]):
-            _say(console, f"    {name}: {_plain_text(cell)}")
+            _say(console, f"    {name.replace(chr(10), ' ')}: {_plain_text(cell).replace(chr(10), ', ')}")
 
 
 # --- sections -------------------------------------------------------------------------
@@ -243,7 +257,7 @@ def _ranking(result: Assessment, console: Console) -> None:
     _emit(
         console,
         f"ranking quality (AUC with {_level(result)} DeLong interval)",
-        ["positive", "positives", "negatives", "AUC", "average precision"],
+        ["positive", "positives", "negatives", "AUC", "average\nprecision"],
         rows,
     )
 
@@ -279,7 +293,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
         if math.isfinite(f.threshold_log_odds):
             exact.append(f"  {point_label(p)}: --threshold-log-odds {_exact(f.threshold_log_odds)}")
     _emit(console, "operating points",
-          ["chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "false-alarm rate"], rows,
+          ["chosen by", "log-odds >=", "P(flag)\n>=", "precision", "recall", "false-alarm\nrate"], rows,
           wrap=("log-odds >=",))
     _say(console, 
         "a message is flagged when its flag log-odds (every flagged class together against the normal class) is "
@@ -290,7 +304,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
         console.print("each threshold exactly, to reproduce its row:")
         for line in exact:
             console.print(line, soft_wrap=True)
-    columns = ["chosen by", "flagged", "false alarms", "missed"] + ([] if result.costs is None else ["expected cost"])
+    columns = ["chosen by", "flagged", "false\nalarms", "missed"] + ([] if result.costs is None else ["expected\ncost"])
     _emit(console, "per 10,000 messages at the test-set base rate (measured)", columns, expected)
     if projected:
         _emit(
@@ -329,14 +343,15 @@ def _calibration(result: Assessment, console: Console) -> None:
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
         for b in range(cal.n_bins)
     ]
-    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "flag log-odds from", "to", "mean P(flag)", "observed share flagged-class"], rows)
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class"], rows)
     s = result.scores
     rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
     _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
 
 
 def _tokens(pushes) -> str:
-    return ", ".join(f"{shown(p.token)} {p.evidence:+.2f}" for p in pushes) or "-"
+    """One token and its evidence a line, so that no pair is ever parted."""
+    return "\n".join(f"{shown(p.token)} {p.evidence:+.2f}" for p in pushes) or "-"
 
 
 def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, console: Console) -> None:
@@ -347,8 +362,8 @@ def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, 
          Text(_tokens(m.toward_flag)), Text(_tokens(m.toward_normal))]
         for m in rows
     ]
-    _emit(console, heading, ["id", "true class", "decided class", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
-          right_from=3, wrap=("toward flagged", "toward normal"))
+    _emit(console, heading, ["id", "true\nclass", "decided\nclass", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
+          right_from=3, left=("toward flagged", "toward normal"))
 
 
 def _drivers(title: str, drivers, console: Console) -> None:
@@ -385,7 +400,7 @@ def _slices(result: Assessment, console: Console) -> None:
         for s in rep.slices
     ]
     _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
-          ["slice", "messages", "false-alarm rate", "miss rate", "adjusted p-value"], rows)
+          ["slice", "messages", "false-alarm\nrate", "miss rate", "adjusted\np-value"], rows)
     _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
     if rep.differing:
         _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
@@ -406,8 +421,8 @@ def _label_errors(result: Assessment, console: Console) -> None:
         for s in le.suspected
     ]
     _emit(console, f"suspected label errors: {len(le.suspected)} of {le.n_messages} messages",
-          ["id", "true class", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
-          wrap=("toward favoured",))
+          ["id", "true\nclass", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
+          left=("toward favoured",))
     _say(console, 
         f"found by {le.method} on out-of-sample probabilities from {le.folds} refits of the model's own pipeline "
         "(stratified folds); P(label) and log-odds (favoured class against the label) are out-of-sample; the "
