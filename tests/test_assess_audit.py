@@ -402,3 +402,24 @@ def test_why_takes_the_exact_threshold(files, capsys):
         assert code == 0, err
         decisions.append(json.loads(out)["decision"])
     assert decisions[0] != "ok" and decisions[1] == "ok"
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--slice-by", "house"], "held.csv has no column 'house'; columns found: message, sent_at, text, label"),
+    (["--slice-by", "message"], "column 'message' has 3000 distinct values, more than 60 slices"),
+    (["--slice-by", "sent_at:fortnight"], "held.csv has no column 'sent_at:fortnight'"),
+    (["--base-rate", "0"], "the base rate must be a share strictly between 0 and 1, got 0"),
+    (["--base-rate", "150%"], "--base-rate must be between 0 and 1"),
+    (["--label-errors", "--folds", "1"], "--folds must be at least 2, got 1"),
+    (["--label-errors", "--folds", "5000"], "5000 folds need at least 5000 labelled messages of every class"),
+    (["--watchlist", "no-such-file.txt"], "cannot read the watchlist no-such-file.txt"),
+    (["--id-col", "nope"], "held.csv has no column 'nope'"),
+    (["--threshold-log-odds", "nan"], "the threshold log-odds must be a number, got nan"),
+])
+def test_bad_options_end_in_one_error_line(files, capsys, extra, message):
+    code = run(["assess", str(files / "model.skops"), str(files / "held.csv"), *COLUMNS, "--id-col", "message", *extra]
+               if "--id-col" not in extra else
+               ["assess", str(files / "model.skops"), str(files / "held.csv"), *COLUMNS, *extra])
+    out, err = capsys.readouterr()
+    assert code == 2 and out == ""
+    assert err.startswith("error: ") and message in err and err.count("\n") == 1, err
