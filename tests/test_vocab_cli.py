@@ -123,7 +123,7 @@ def test_text_output_names_settings_and_both_sides(files, capsys, tmp_path):
     assert "2x2 tables (chi-square, G2, MI) count token occurrences" in flat
     assert "advert vs ok" in flat and "scam vs ok" in flat
     assert "strongest 5 for scam" in flat and "strongest 5 for ok" in flat
-    assert "thin: strong on less than 10 of support" in flat
+    assert "thin: strong with support below 10 (both sides together)" in flat
     assert "roma" in flat and "not in the vocabulary" in flat
 
 
@@ -163,14 +163,18 @@ def test_pictures_are_png_at_print_resolution_and_deterministic(files, capsys, t
     code, out, err = vocab_cli(capsys, files / "model.skops", "--class", "scam", "--top", "10", "--images", images)
     assert code == 0, err
     names = sorted(p.name for p in images.iterdir())
-    assert names == ["bars_scam_vs_ok.png", "cloud_scam_vs_ok_for_ok.png", "cloud_scam_vs_ok_for_scam.png"]
+    assert names == ["bars_scam_vs_ok.png", "cloud_scam_vs_ok_for_ok.png", "cloud_scam_vs_ok_for_scam.png",
+                     "support_scam_vs_ok.png"]
     for name in names:
         with Image.open(images / name) as im:
             assert im.format == "PNG" and min(im.info["dpi"]) >= 150
-    review = review_vocabulary(load_model(files / "model.skops").view, target="scam", top=10)
+    model = load_model(files / "model.skops")
+    review = review_vocabulary(model.view, target="scam", top=10,
+                               analyzer=lambda text: model.featurizer.occurrences(text, with_spans=False).tokens)
     # the same review always gives the same bytes (seeded layout, no time stamps)
     assert pictures.word_cloud(review, 0, "for") == (images / "cloud_scam_vs_ok_for_scam.png").read_bytes()
     assert pictures.bar_chart(review, 0) == (images / "bars_scam_vs_ok.png").read_bytes()
+    assert pictures.support_map(review, 0) == (images / "support_scam_vs_ok.png").read_bytes()
 
 
 @pytest.fixture

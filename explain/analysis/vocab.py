@@ -160,7 +160,7 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
     if documents is not None:
         return CountSource(
             "documents",
-            f"messages containing each token, counted in the labelled file {documents.source} "
+            f"counted in the labelled file {documents.source} "
             f"({int(documents.messages.sum()):,} messages)" + (f"; {documents.rows_note}" if documents.rows_note else ""),
         )
     if view.feature_kind == "binary":

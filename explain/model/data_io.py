@@ -10,6 +10,9 @@ Data files are untrusted. The policy:
 - A missing column is named together with the columns that were found; an
   empty file or a file with no rows is refused; missing texts become empty
   strings; missing labels are refused (naming the first row).
+- Ids come from the id column (``id_col``, default ``id`` when present) or
+  are data row numbers from 1; a blank or repeated id is refused, naming the
+  row, so that every figure about a message names exactly one row.
 """
 
 from __future__ import annotations

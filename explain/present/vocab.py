@@ -333,13 +333,13 @@ def _header(review: VocabReview, console: Console) -> None:
     say(f"Ranked by {LENS_TITLES[review.lens]}; positive values favour the first class of each comparison.")
     say(
         f"2x2 tables (chi-square, G2, MI) count {_COUNT_WORDS[review.counts.kind]}: {review.counts.reason}. "
-        "Chi-square and G2 carry no sign; direction names the class the token goes with."
+        "Chi-square and G2 carry no sign: each table lists the tokens that go with the class it names."
     )
     prior = "the pooled counts of the two sides" if review.prior_scale is None else f"scale a0 = {review.prior_scale:g}"
     say(f"z-score prior: {prior}.")
     say(
         f"Strong: one occurrence changes the odds at least {math.exp(t.strong_log_odds):.3g}-fold "
-        f"(|ratio| >= {t.strong_log_odds:.3g}); thin: strong on less than {t.thin_below:g} of support; "
+        f"(|ratio| >= {t.strong_log_odds:.3g}); thin: strong with support below {t.thin_below:g} (both sides together); "
         "watchlist-strong: a watchlist token strong toward a flagged class."
     )
 

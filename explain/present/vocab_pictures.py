@@ -125,13 +125,12 @@ def support_map(review: VocabReview, index: int) -> bytes:
     if t.thin_below > 0:
         ax.axvline(t.thin_below, color=NEUTRAL.base, ls=":", lw=0.8)
     ax.axhline(0, color=NEUTRAL.base, lw=0.5)
-    labelled = [*c.top(review.lens, MAP_LABELS, "for"), *c.top(review.lens, MAP_LABELS, "against")]
-    for j in labelled:
-        if placed[j]:
-            ax.annotate(shown(review.tokens[j]), (support[j], c.ratio[j]), xytext=(4, 2), textcoords="offset points",
-                        fontsize=7, color=INK)
     ax.set_xscale("log")
-    ax.set_xlabel(f"support: training {_support_unit(review)} of {c.target} and {c.other} together (log scale)")
+    ax.margins(y=0.12)  # room for labels stacked above the highest points
+    labelled = [j for j in (*c.top(review.lens, MAP_LABELS, "for"), *c.top(review.lens, MAP_LABELS, "against"))
+                if placed[j]]
+    _label_points(ax, [(support[j], c.ratio[j], shown(review.tokens[j])) for j in labelled])
+    ax.set_xlabel(f"support: {_support_unit(review)} in the training messages of {c.target} and {c.other} (log scale)")
     ax.set_ylabel(f"ratio: log-odds per occurrence, + toward {c.target}")
     missing = int((~placed).sum())
     ax.set_title(
@@ -148,9 +147,25 @@ def support_map(review: VocabReview, index: int) -> bytes:
     return png_bytes(fig)
 
 
+def _label_points(ax, points) -> None:
+    """Name each (x, y, text) point, moving a label up until it overlaps no label placed before it."""
+    ax.get_xlim(), ax.get_ylim()  # settle the limits, so data positions map to points
+    to_points = 72.0 / ax.figure.dpi
+    taken: list[tuple[float, float, float, float]] = []
+    line = 9.0  # points: a 7-point label's height with spacing
+    for x, y, text in sorted(points, key=lambda p: (-p[1], p[0])):
+        px, py = ax.transData.transform((x, y)) * to_points
+        width, lift = 4.2 * len(text) + 4, 0.0
+        while any(px < r and px + width > l and py + lift < t and py + lift + line > b for l, b, r, t in taken):
+            lift -= line if y < 0 else -line
+        taken.append((px, py + lift, px + width, py + lift + line))
+        ax.annotate(text, (x, y), xytext=(4, 2 + lift), textcoords="offset points", fontsize=7, color=INK,
+                    arrowprops=None if lift == 0 else dict(arrowstyle="-", lw=0.4, color=NEUTRAL.base))
+
+
 def _support_unit(review: VocabReview) -> str:
     if review.variant == "bernoulli" or review.feature_kind == "binary":
-        return "messages containing it"
+        return "messages containing the token"
     return "summed TF-IDF weights" if review.feature_kind == "tfidf" else "occurrences"
 
 
@@ -173,15 +188,17 @@ def bar_chart(review: VocabReview, index: int) -> bytes:
         ax.set_ylim(rows - 0.5, -0.5)
         top_value = float(strength.max()) if len(picked) else 1.0
         for y, j, s in zip(positions, picked, strength):
-            ax.text(s + 0.01 * top_value, y, f"{values[j]:.3g}", va="center", fontsize=7)
+            # chi-square and G2 are unsigned: the panel's title says which side
+            ax.text(s + 0.01 * top_value, y, f"{getattr(c, lens)[j]:.3g}", va="center", fontsize=7)
         ax.set_xlim(0, 1.15 * top_value)
-        ax.set_xlabel(f"|{LENS_TITLES[lens]}|")
+        ax.set_xlabel(LENS_TITLES[lens] if lens in ("chi2", "g2") else f"|{LENS_TITLES[lens]}|")
         ax.set_title(f"for {owner} (against {opponent})", fontsize=10)
         ax.grid(axis="x", alpha=0.3)
         if not len(picked):
             ax.text(0.5, 0.5, f"no token points to {owner}", transform=ax.transAxes, ha="center", color=NEUTRAL.base)
     fig.suptitle(f"{c.label}: top {review.top} by {LENS_TITLES[lens]}", fontsize=11)
     fig.tight_layout()
+    _footer(fig, review)
     return png_bytes(fig)
 
 
