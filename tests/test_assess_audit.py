@@ -92,16 +92,20 @@ def test_threshold_and_log_odds_together_are_refused(files, capsys):
 
 
 def test_projection_matches_a_published_worked_example():
-    # Gigerenzer & Hoffrage 1995, Psychological Review 102(4), the mammography problem (from memory):
-    # prevalence 1 %, sensitivity 80 %, false-positive rate 9.6 % -> P(disease | positive) 7.8 %
-    recall = Rate(0.8, 0.8, 0.8, 80, 100)
-    fpr = Rate(0.096, 0.096, 0.096, 96, 1000)
+    # Gigerenzer, Gaissmaier, Kurz-Milcke, Schwartz & Woloshin 2007, "Helping doctors and patients make sense
+    # of health statistics", Psychological Science in the Public Interest 8(2), the screening question posed
+    # to gynecologists: prevalence 1 %, sensitivity 90 %, false-positive rate 9 %; in natural frequencies,
+    # of 1,000 women 10 are ill and 9 of them test positive, 89 of the 990 others test positive too, so
+    # about 1 in 10 positives (9 of 98) is ill (figures as quoted in public write-ups of the course).
+    recall = Rate(0.9, 0.9, 0.9, 9, 10)
+    fpr = Rate(0.09, 0.09, 0.09, 89, 990)
     p = project_to_base_rate(recall, fpr, 0.01)
-    assert round(p.precision.value, 3) == 0.078
+    assert round(p.precision.value, 2) == round(9 / 98, 2) == 0.09
+    assert round(p.false_alarms_per_10k.value / 10) == 89  # per 1,000
+    assert round(p.flagged_per_10k.value / 10) == 98
     # Bayes' rule written out: P(abuse | flagged) = P(flagged | abuse) P(abuse) / P(flagged)
-    assert p.precision.value == pytest.approx(0.8 * 0.01 / (0.8 * 0.01 + 0.096 * 0.99), rel=1e-15)
-    assert p.false_alarms_per_10k.value == pytest.approx(10_000 * 0.99 * 0.096)
-    assert p.missed_per_10k.value == pytest.approx(10_000 * 0.01 * 0.2)
+    assert p.precision.value == pytest.approx(0.9 * 0.01 / (0.9 * 0.01 + 0.09 * 0.99), rel=1e-15)
+    assert p.missed_per_10k.value == pytest.approx(10_000 * 0.01 * 0.1)
 
 
 @settings(max_examples=80, deadline=None)

@@ -162,13 +162,15 @@ def project_to_base_rate(recall: Rate, false_positive_rate: Rate, base_rate: flo
 
     Examples
     --------
-    A screening test with recall 80 % and false-positive rate 9.6 % at a
-    prevalence of 1 % (the worked example of Gigerenzer & Hoffrage 1995,
-    Psychological Review 102(4)):
+    A screening test with recall 90 % and false-positive rate 9 % at a
+    prevalence of 1 % flags 98 of every 1,000, of whom 9 are truly positive
+    (the worked example of Gigerenzer et al. 2007, "Helping doctors and
+    patients make sense of health statistics", Psychological Science in the
+    Public Interest 8(2)):
 
-    >>> p = project_to_base_rate(Rate(0.8, 0.8, 0.8, 80, 100), Rate(0.096, 0.096, 0.096, 96, 1000), 0.01)
-    >>> round(p.precision.value, 4)
-    0.0776
+    >>> p = project_to_base_rate(Rate(0.9, 0.9, 0.9, 9, 10), Rate(0.09, 0.09, 0.09, 89, 990), 0.01)
+    >>> round(p.precision.value, 3), round(p.flagged_per_10k.value)
+    (0.092, 981)
     """
     p = float(base_rate)
 
