@@ -142,7 +142,7 @@ def test_unmeetable_target_is_a_note_not_a_failure(files, capsys):
         capsys, files / "model.skops", files / "planted.csv", "--text-col", "text", "--label-col", "label",
         "--normal-class", "ok", "--target-fpr", "0",
     )
-    assert code == 0 and "not met: no threshold keeps the false-positive rate at or below 0 %" in " ".join(text.split())
+    assert code == 0 and "not met: no threshold keeps the false-alarm rate at or below 0 %" in " ".join(text.split())
 
 
 BAD = [

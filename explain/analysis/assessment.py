@@ -200,6 +200,41 @@ def _class_parts(classes, truth, decided, jll, normal, confidence, notes: list) 
     return _ClassParts(confusion, class_metrics, rate_of(int(np.trace(counts)), n, confidence), class_ranking, base_rates)
 
 
+def _decision_in_use(rule: DecisionRule, jll: np.ndarray, scores: np.ndarray, best_flagged: np.ndarray,
+                     given_as_probability: bool):
+    """(decision in words, margin per message, its scale, the in-use threshold in log-odds).
+
+    See :class:`~explain.analysis.error_review.ReviewedMessage` for the margin.
+    The most probable class with more than one flagged class has no single
+    threshold on the flag log-odds: NaN.
+    """
+    normal = rule.normal_index
+    if rule.threshold is None:
+        margin = jll[np.arange(len(jll)), best_flagged] - jll[:, normal]
+        in_use = 0.0 if rule.n_classes == 2 else float("nan")
+        return "most probable class", margin, "strongest flagged class against normal", in_use
+    exact = f"flag log-odds >= {rule.threshold_log_odds!r}"
+    decision = f"flag when P(flag) >= {rule.threshold:g}, that is {exact}" if given_as_probability else f"flag when {exact}"
+    return decision, scores - rule.threshold_log_odds, "flag log-odds", rule.threshold_log_odds
+
+
+def _operating_points(scores, flag_truth, in_use_counts, in_use_threshold, target_fpr, target_recall,
+                      how: FigureSettings, notes: list) -> tuple[OperatingPoint, ...]:
+    """The decision in use, then the thresholds chosen by target and by cost; unmet targets go to ``notes``."""
+    sw = sweep(scores, flag_truth)
+    tp, fp = in_use_counts
+    points = (
+        OperatingPoint("in use", None, True, None,
+                       threshold_figures(in_use_threshold, tp, fp, sw.n_positive, sw.n_negative, how)),
+        *(fpr_point(sw, t, how) for t in target_fpr),
+        *(recall_point(sw, t, how) for t in target_recall),
+        *(() if how.costs is None else cost_points(sw, how)),
+    )
+    wording = {"fpr": "false-alarm rate at most", "recall": "recall at least"}
+    notes.extend(f"target {wording[p.kind]} {percent(p.target)} not met: {p.note}" for p in points if not p.met)
+    return points
+
+
 def assess(
     view: ModelView,
     X,
@@ -272,7 +307,7 @@ def assess(
     n = len(truth)
     if n != X.shape[0]:
         raise NbledgerError(f"{n} labels for {X.shape[0]} messages")
-    target_fpr = _check_targets("false-positive rates", target_fpr)
+    target_fpr = _check_targets("false-alarm rates", target_fpr)
     target_recall = _check_targets("recalls", target_recall)
     costs = _check_costs(costs)
     if not 0.0 < confidence < 1.0:
@@ -313,40 +348,17 @@ def assess(
         (tn, fp), (fn, tp) = flag_confusion.counts
         flag_metrics = binary_metrics(FLAGGED, tp, fp, fn, tn, confidence)
         best_flagged = rule.flagged_indices[np.argmax(evidence.jll[:, rule.flagged_indices], axis=1)]
-        if rule.threshold is None:
-            decision = "most probable class"
-            margin = evidence.jll[np.arange(n), best_flagged] - evidence.jll[:, normal]
-            margin_scale = "strongest flagged class against normal"
-            in_use_threshold = 0.0 if len(classes) == 2 else float("nan")
-        else:
-            exact = f"flag log-odds >= {rule.threshold_log_odds!r}"
-            decision = (
-                f"flag when P(flag) >= {rule.threshold:g}, that is {exact}"
-                if threshold is not None
-                else f"flag when {exact}"
-            )
-            margin = scores - rule.threshold_log_odds
-            margin_scale = "flag log-odds"
-            in_use_threshold = rule.threshold_log_odds
+        decision, margin, margin_scale, in_use_threshold = _decision_in_use(
+            rule, evidence.jll, scores, best_flagged, given_as_probability=threshold is not None
+        )
         if 0 < flag_truth.sum() < n:
             flag_ranking = ranking_quality(FLAGGED, scores, flag_truth, confidence)
         else:
             only = classes[normal] if flag_truth.sum() == 0 else "flagged classes"
             notes.append(f"AUC and precision-recall curve undefined: the data hold only {only} messages")
-        sw = sweep(scores, flag_truth)
-        how = FigureSettings(costs, confidence, base_rate)
-        in_use = OperatingPoint(
-            "in use", None, True, None, threshold_figures(in_use_threshold, tp, fp, sw.n_positive, sw.n_negative, how)
-        )
-        points = (
-            in_use,
-            *(fpr_point(sw, t, how) for t in target_fpr),
-            *(recall_point(sw, t, how) for t in target_recall),
-            *(() if costs is None else cost_points(sw, how)),
-        )
-        wording = {"fpr": "false-positive rate at most", "recall": "recall at least"}
-        notes.extend(
-            f"target {wording[p.kind]} {percent(p.target)} not met: {p.note}" for p in points if not p.met
+        points = _operating_points(
+            scores, flag_truth, (int(tp), int(fp)), in_use_threshold, target_fpr, target_recall,
+            FigureSettings(costs, confidence, base_rate), notes,
         )
         calibration = calibration_of(scores, flag_truth, n_bins, confidence)
         scores_dist = score_distribution(classes, truth, scores, in_use_threshold)

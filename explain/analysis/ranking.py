@@ -211,14 +211,14 @@ def percent(x: float) -> str:
 
 def fpr_point(sw: Sweep, target: float, how: FigureSettings) -> OperatingPoint:
     if sw.n_negative == 0:
-        return OperatingPoint("fpr", target, False, "no normal messages in the data: the false-positive rate is undefined", None)
+        return OperatingPoint("fpr", target, False, "no normal messages in the data: the false-alarm rate is undefined", None)
     i = int(np.flatnonzero(sw.fp / sw.n_negative <= target)[-1])
     if i == 0:
         return OperatingPoint(
             "fpr",
             target,
             False,
-            f"no threshold keeps the false-positive rate at or below {percent(target)} and flags anything",
+            f"no threshold keeps the false-alarm rate at or below {percent(target)} and flags anything",
             None,
         )
     return OperatingPoint("fpr", target, True, None, _at(sw, i, how))

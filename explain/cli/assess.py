@@ -69,7 +69,7 @@ def assess(
     folds: int = typer.Option(5, "--folds", help="Folds for --label-errors."),
     id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding the message id (default: id, if present)."),
     target_fpr: Optional[List[str]] = typer.Option(
-        None, "--target-fpr", help="False-positive rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
+        None, "--target-fpr", help="False-alarm rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
     ),
     target_recall: Optional[List[str]] = typer.Option(
         None, "--target-recall", help="Recall to reach, e.g. 95% (repeatable; default 90%, 95%, 99%)."
