@@ -427,3 +427,23 @@ def test_bad_options_end_in_one_error_line(files, capsys, extra, message):
     out, err = capsys.readouterr()
     assert code == 2 and out == ""
     assert err.startswith("error: ") and message in err and err.count("\n") == 1, err
+
+
+def test_the_refitted_copy_has_the_models_own_settings(tmp_path):
+    from sklearn.feature_extraction.text import CountVectorizer, TfidfTransformer
+    from sklearn.naive_bayes import ComplementNB
+    from sklearn.pipeline import Pipeline
+    from skops.io import dump
+
+    frame = pd.read_csv(DEMO, dtype=str, keep_default_na=False).iloc[:600]
+    original = Pipeline([("v", CountVectorizer(ngram_range=(1, 2), min_df=2, lowercase=False)),
+                         ("t", TfidfTransformer(sublinear_tf=True)), ("c", ComplementNB(alpha=0.3, norm=True))])
+    original.fit(frame.text, frame.label)
+    dump(original, tmp_path / "m.skops")
+    model = load_model(tmp_path / "m.skops", trust=[])
+    copy = model.unfitted_copy()
+    steps = [s for _, s in copy.steps]
+    assert [type(s) for s in steps] == [type(s) for _, s in original.steps]
+    for mine, theirs in zip(steps, (s for _, s in original.steps)):
+        assert mine.get_params() == theirs.get_params()
+        assert not hasattr(mine, "vocabulary_") and not hasattr(mine, "idf_") and not hasattr(mine, "classes_")
