@@ -183,8 +183,13 @@ def test_a_slice_that_differs_is_named():
     decided[:40] = True
     values = np.where(np.arange(400) < 40, "b", "a")
     report = slicing.slice_report([slicing.by_values(values, "house")], truth, decided, 0.95)
-    assert [s.name for s in report.differing] == ["a", "b"] or [s.name for s in report.differing] == ["b", "a"]
+    assert sorted(s.name for s in report.differing) == ["a", "b"]
     assert all(s.adjusted_p_value < 1e-10 for s in report.differing)
+    # with no difference, none differs but the closest are still named
+    calm = slicing.slice_report([slicing.by_values(values, "house")], truth, np.zeros(400, dtype=bool), 0.95)
+    assert calm.differing == () and sorted(s.name for s in calm.most_different) == ["a", "b"]
+    assert all(s.adjusted_p_value == 1.0 for s in calm.most_different)
+
 
 
 def test_a_date_column_with_non_dates_is_one_error(files, capsys):

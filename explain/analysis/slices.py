@@ -31,6 +31,8 @@ from explain.errors import NbledgerError
 LENGTH_EDGES = (0, 50, 100, 200, 400)
 #: A column with more distinct values than this is not a slicing column.
 MAX_SLICES = 60
+#: How many of the slices that differ most are named even when none passes the test.
+SHOWN_CLOSEST = 3
 PERIODS = ("month", "week")
 TEST = (
     "Fisher's exact test of each slice's false-alarm rate against the rest (two-sided, scipy.stats.fisher_exact); "
@@ -68,13 +70,18 @@ class Slice:
 
 @dataclass(frozen=True)
 class SliceReport:
-    """Every slice, by group; the slices that differ, most significant first."""
+    """Every slice, by group; the slices that differ, most significant first.
+
+    ``most_different`` holds the :data:`SHOWN_CLOSEST` tested slices with the
+    smallest adjusted p-values, whether or not they pass ``alpha``.
+    """
 
     test: str
     alpha: float
     overall_false_alarm_rate: Rate
     slices: tuple[Slice, ...]
     differing: tuple[Slice, ...]
+    most_different: tuple[Slice, ...] = ()
 
 
 def by_values(values, column: str) -> SliceGroup:
@@ -161,11 +168,12 @@ def slice_report(
     if tested.any():
         adjusted[tested] = false_discovery_control(p_values[tested], method="bh")
     slices = tuple(Slice(*row, float(a)) for row, a in zip(rows, adjusted))
-    differing = sorted(
-        (s for s in slices if s.adjusted_p_value < alpha), key=lambda s: (s.adjusted_p_value, s.group, s.name)
+    ranked = sorted(
+        (s for s in slices if np.isfinite(s.adjusted_p_value)), key=lambda s: (s.adjusted_p_value, s.p_value, s.group, s.name)
     )
+    differing = tuple(s for s in ranked if s.adjusted_p_value < alpha)
     overall = rate_of(int(false_alarm.sum()), int(normal.sum()), confidence)
-    return SliceReport(TEST, alpha, overall, slices, tuple(differing))
+    return SliceReport(TEST, alpha, overall, slices, differing, tuple(ranked[:SHOWN_CLOSEST]))
 
 
 def parse_slice_spec(spec: str) -> tuple[str, str | None]:

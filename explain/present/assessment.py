@@ -402,13 +402,15 @@ def _slices(result: Assessment, console: Console) -> None:
     _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
           ["slice", "messages", "false-alarm\nrate", "miss rate", "adjusted\np-value"], rows)
     _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
+    shown_slices = rep.differing or rep.most_different
     if rep.differing:
         _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
-        for s in rep.differing:
-            _say(console, f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
-                          f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
     else:
-        _say(console, f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}")
+        _say(console, f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}; "
+                      "the closest:")
+    for s in shown_slices:
+        _say(console, f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
+                      f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
 
 
 def _label_errors(result: Assessment, console: Console) -> None:
