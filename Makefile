@@ -47,7 +47,8 @@ demo: install
 		--watchlist demo_corpus/examples/watchlist.txt --redact --top 15 --images $(OUT)/vocab
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --format json --out $(OUT)/vocab.json
 	$(BIN)/nbledger assess $(OUT)/tideway.skops $(OUT)/test.csv --text-col text --label-col label \
-		--costs 10:1 --images $(OUT)/assess
+		--costs 10:1 --base-rate 1% --slice-by sent_at:month --watchlist demo_corpus/examples/watchlist.txt \
+		--label-errors --images $(OUT)/assess
 	$(BIN)/nbledger assess $(OUT)/tideway.skops $(OUT)/test.csv --text-col text --label-col label \
 		--format json --out $(OUT)/assess.json
 	@echo "demo outputs are in $(OUT)/"

@@ -89,12 +89,12 @@ def test_text_output_puts_base_rates_first(files, capsys):
         "--normal-class", "ok", "--threshold", "0.9",
     )
     assert code == 0, err
-    order = ["base rates", "confusion matrix", "flagged versus normal", "metrics at the decision in use",
-             "ranking quality", "operating points", "calibration: Brier", "false alarms (", "missed abuse (",
+    order = ["base rates", "confusion matrix", "flagged versus normal", "rates at the decision in use",
+             "ranking quality", "operating points", "calibration: Brier", "false alarms (", "missed (",
              "borderline", "what drives"]
     positions = [out.find(h) for h in order]
     assert -1 not in positions and positions == sorted(positions)
-    assert "flag when P(not ok) >= 0.9" in out
+    assert "flag when P(flag) >= 0.9, that is flag log-odds >= 2.1972245773362196" in out
 
 
 def test_out_file_and_pictures(files, capsys, tmp_path):
@@ -142,7 +142,7 @@ def test_unmeetable_target_is_a_note_not_a_failure(files, capsys):
         capsys, files / "model.skops", files / "planted.csv", "--text-col", "text", "--label-col", "label",
         "--normal-class", "ok", "--target-fpr", "0",
     )
-    assert code == 0 and "not met: no threshold keeps the false-positive rate at or below 0 %" in " ".join(text.split())
+    assert code == 0 and "not met: no threshold keeps the false-alarm rate at or below 0 %" in " ".join(text.split())
 
 
 BAD = [

@@ -392,7 +392,7 @@ def test_unreachable_target_is_reported_not_raised():
     result = assess(view, X, y, target_fpr=[0.0], target_recall=[0.9])
     (fpr_point,) = [p for p in result.operating_points if p.kind == "fpr"]
     assert not fpr_point.met and fpr_point.figures is None
-    assert any("target false-positive rate at most 0 % not met" in note for note in result.notes)
+    assert any("target false-alarm rate at most 0 % not met" in note for note in result.notes)
 
 
 def test_bad_targets_and_costs_are_refused():

@@ -128,14 +128,20 @@ class Explanation:
         return sorted(chosen, key=lambda t: t.evidence)[:n]
 
 
-def explain_message(model, text: str, threshold: float | None = None) -> Explanation:
-    """The exact per-token account of ``text`` under a loaded model."""
+def explain_message(
+    model, text: str, threshold: float | None = None, threshold_log_odds: float | None = None
+) -> Explanation:
+    """The exact per-token account of ``text`` under a loaded model.
+
+    The threshold is a probability of not normal (``threshold``) or, exactly,
+    flag log-odds (``threshold_log_odds``, as ``assess`` prints them).
+    """
     if not isinstance(text, str):
         raise NbledgerError("the message must be text")
     if not text.strip():
         raise NbledgerError("the message is empty")
     view, featurizer = model.view, model.featurizer
-    rule = DecisionRule.for_view(view, threshold)
+    rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     occ = featurizer.occurrences(text)
     x = view.prepare(featurizer.transform([text]))
     jll = view.joint_log_likelihood(x)[0]
@@ -177,7 +183,7 @@ def explain_message(model, text: str, threshold: float | None = None) -> Explana
         baseline=float(view.baseline[a] - view.baseline[b]),
         baseline_prior=float(view.prior[a] - view.prior[b]),
         baseline_absence=float(view.absence[a] - view.absence[b]),
-        threshold=threshold,
+        threshold=rule.threshold,
         normal_class=None if rule.normal_index is None else str(view.classes[rule.normal_index]),
         flag_probability=flag,
         decision=str(view.classes[decision]),

@@ -304,6 +304,7 @@ def ledger_of(
     text: str,
     threshold: float | None = None,
     *,
+    threshold_log_odds: float | None = None,
     message_id: str | None = None,
     documents: DocumentCounts | None = None,
     watchlist: Watchlist | None = None,
@@ -317,7 +318,9 @@ def ledger_of(
     (:class:`explain.analysis.mail_facts.MailFacts`) says what was read when
     ``text`` came from a raw e-mail; it travels on the explanation.
     """
-    expl = explain_message(model, text, threshold)
+    expl = explain_message(model, text, threshold, threshold_log_odds)
+    if threshold_log_odds is not None:
+        threshold = expl.threshold  # expit of it, for display; the line below stays exact
     if mail is not None:
         expl = replace(expl, mail=mail)
     view, featurizer = model.view, model.featurizer
@@ -363,7 +366,10 @@ def ledger_of(
         ratio = view.weights[top_credit, cols] - view.weights[debit, cols]
     closing = float(balance(expl.jll[None, :])[0])
 
-    line = 0.0 if threshold is None else float(logit(threshold))
+    if threshold is None:
+        line = 0.0
+    else:
+        line = float(threshold_log_odds) if threshold_log_odds is not None else float(logit(threshold))
     inclusive = threshold is not None or credit[0] < debit
 
     def credit_side_of(x) -> np.ndarray:

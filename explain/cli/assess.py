@@ -55,8 +55,26 @@ def assess(
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds",
+        help="Flag when log P(not normal) - log P(normal) >= L, exactly (as printed for each operating point).",
+    ),
+    base_rate: Optional[str] = typer.Option(
+        None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: project the figures to it."
+    ),
+    slice_by: Optional[List[str]] = typer.Option(
+        None, "--slice-by", help="Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month)."
+    ),
+    watchlist: Optional[Path] = typer.Option(
+        None, "--watchlist", help="UTF-8 file of terms (one a line, # comments): error rates of messages holding each."
+    ),
+    label_errors: bool = typer.Option(
+        False, "--label-errors", help="List messages whose label may be wrong (refits the model's pipeline on folds of DATA)."
+    ),
+    folds: int = typer.Option(5, "--folds", help="Folds for --label-errors."),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding the message id (default: id, if present)."),
     target_fpr: Optional[List[str]] = typer.Option(
-        None, "--target-fpr", help="False-positive rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
+        None, "--target-fpr", help="False-alarm rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
     ),
     target_recall: Optional[List[str]] = typer.Option(
         None, "--target-recall", help="Recall to reach, e.g. 95% (repeatable; default 90%, 95%, 99%)."
@@ -77,8 +95,9 @@ def assess(
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
     label: Optional[str] = LABEL,
 ):
-    """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
-    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
+    """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
+    from explain.analysis import slices as slicing
+    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL, class_indices
     from explain.analysis.assessment import assess as run_assessment
     from explain.present.assessment import render, to_json
 
@@ -89,16 +108,45 @@ def assess(
         DEFAULT_TARGET_RECALL if not target_recall else tuple(parse_fraction(t, "--target-recall") for t in target_recall)
     )
     cost_pair = parse_costs(costs)
+    prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
+    if threshold is not None and threshold_log_odds is not None:
+        fail("give --threshold or --threshold-log-odds, not both")
+    if folds < 2:
+        fail(f"--folds must be at least 2, got {folds}")
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
     mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail), data)
+    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col), data)
+    X = loaded.featurizer.transform(messages.texts)
+    groups = [slicing.by_length(messages.texts)] if (slice_by or watchlist) else []
+    for spec in slice_by or ():
+        from explain.model.data_io import read_column
+
+        column, period = slicing.parse_slice_spec(spec)
+        values = read_column(data, column)
+        groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))
+    if watchlist is not None:
+        from explain.analysis.risk import read_watchlist
+
+        groups.append(slicing.by_terms(messages.texts, read_watchlist(watchlist).terms))
+    suspected = None
+    if label_errors:
+        from explain.analysis.label_errors import label_errors as find_label_errors
+        from explain.analysis.label_errors import out_of_sample_probabilities
+
+        truth = class_indices(loaded.view, messages.labels)
+        probabilities = out_of_sample_probabilities(loaded.unfitted_copy(), messages.texts, truth, loaded.classes, folds)
+        suspected = find_label_errors(loaded.view, X, truth, messages.ids, probabilities, folds=folds)
     result = run_assessment(
         loaded.view,
-        loaded.featurizer.transform(messages.texts),
+        X,
         messages.labels,
         threshold=threshold,
+        threshold_log_odds=threshold_log_odds,
+        base_rate=prevalence,
+        slices=groups,
+        label_errors=suspected,
         ids=messages.ids,
         target_fpr=fprs,
         target_recall=recalls,

@@ -164,6 +164,9 @@ def why(
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds", help="Flag when log P(not normal) - log P(normal) >= L, exactly (as assess prints it)."
+    ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
@@ -199,6 +202,8 @@ def why(
         fail("give the message as TEXT, with --file, or from --data, not several")
     if message_id is not None and ids is not None:
         fail("give --id or --ids, not both")
+    if threshold is not None and threshold_log_odds is not None:
+        fail("give --threshold or --threshold-log-odds, not both")
     terms = read_watchlist(watchlist) if watchlist is not None else None
 
     loaded = load_model_or_fail(
@@ -221,7 +226,8 @@ def why(
     ledgers = []
     for mid, message, mail in chosen:
         ledger = ledger_of(
-            loaded, message, threshold, message_id=mid, documents=documents, watchlist=terms, mail=mail
+            loaded, message, threshold, threshold_log_odds=threshold_log_odds,
+            message_id=mid, documents=documents, watchlist=terms, mail=mail,
         )
         ledgers.append(redacted(ledger) if redact else ledger)
 

@@ -88,14 +88,8 @@ def decode_utf8(raw: bytes) -> tuple[str, int]:
     return text.removeprefix("\ufeff"), replaced
 
 
-def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
-    """Read messages (and labels) from a data file; see the module policy.
-
-    ``id_col`` names the column of message ids; without it the column ``id``
-    is used when the file has one, else data row numbers from 1. A missing id is
-    refused; repeated ids are allowed and counted in ``notes`` (commands that
-    pick messages by id use the first).
-    """
+def _read_columns(path) -> tuple[dict, int, str]:
+    """(columns by name, replaced characters, SHA-256 of the file) of a data file."""
     path = Path(path)
     fmt, gzipped = data_format(path)
     if not path.is_file():
@@ -114,6 +108,28 @@ def read_messages(path, text_col: str, label_col: str | None = None, id_col: str
     else:
         text, replaced = decode_utf8(raw)
         columns = _csv_columns(text, path.name) if fmt == "csv" else _jsonl_columns(text, path.name)
+    return columns, replaced, digest
+
+
+def read_column(path, column: str) -> list:
+    """The values of one column of a data file, in file order (for slicing)."""
+    columns, _, _ = _read_columns(path)
+    if column not in columns:
+        found = ", ".join(map(str, columns)) or "none"
+        raise NbledgerError(f"{Path(path).name} has no column {column!r}; columns found: {found}")
+    return columns[column]
+
+
+def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
+    """Read messages (and labels) from a data file; see the module policy.
+
+    ``id_col`` names the column of message ids; without it the column ``id``
+    is used when the file has one, else data row numbers from 1. A missing id is
+    refused; repeated ids are allowed and counted in ``notes`` (commands that
+    pick messages by id use the first).
+    """
+    path = Path(path)
+    columns, replaced, digest = _read_columns(path)
     wanted = [c for c in (text_col, label_col, id_col) if c is not None]
     missing = [c for c in wanted if c not in columns]
     if missing:

@@ -15,7 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import logit, logsumexp
+from scipy.special import expit, logit, logsumexp
 
 from explain.errors import NbledgerError
 
@@ -34,27 +34,41 @@ class DecisionRule:
     threshold : float or None
         Probability of not-normal at or above which a message is flagged;
         None means argmax.
+    log_odds : float or None
+        The same threshold as log-odds, given exactly instead of
+        ``threshold`` (which then becomes ``expit(log_odds)``, for display).
+        Decisions always compare log-odds with ``threshold_log_odds``, so a
+        threshold printed as log-odds and typed back flags the same messages.
     """
 
     n_classes: int
     normal_index: int | None = None
     threshold: float | None = None
+    log_odds: float | None = None
 
     def __post_init__(self):
-        if self.threshold is not None:
+        if self.threshold is not None and self.log_odds is not None:
+            raise NbledgerError("give the threshold as a probability or as log-odds, not both")
+        if self.log_odds is not None:
+            if np.isnan(self.log_odds):
+                raise NbledgerError("the threshold log-odds must be a number, got nan")
+            object.__setattr__(self, "threshold", float(expit(self.log_odds)))
+        elif self.threshold is not None:
             if not 0.0 <= self.threshold <= 1.0 or np.isnan(self.threshold):
                 raise NbledgerError(f"threshold must be a probability in [0, 1], got {self.threshold}")
+            object.__setattr__(self, "log_odds", float(logit(self.threshold)))
+        if self.threshold is not None:
             if self.normal_index is None:
                 raise NbledgerError(
                     "a threshold needs a normal class: name it with --normal-class"
                 )
 
     @classmethod
-    def for_view(cls, view, threshold: float | None = None) -> "DecisionRule":
+    def for_view(cls, view, threshold: float | None = None, log_odds: float | None = None) -> "DecisionRule":
         normal = view.normal_index
         if normal is None and view.n_classes == 2:
             normal = 0
-        return cls(view.n_classes, normal, threshold)
+        return cls(view.n_classes, normal, threshold, log_odds)
 
     @property
     def flagged_indices(self) -> np.ndarray:
@@ -62,7 +76,7 @@ class DecisionRule:
 
     @property
     def threshold_log_odds(self) -> float | None:
-        return None if self.threshold is None else float(logit(self.threshold))
+        return self.log_odds
 
     def flag_log_odds(self, jll: np.ndarray) -> np.ndarray:
         """``log P(not normal) - log P(normal)`` per row; needs a normal class."""

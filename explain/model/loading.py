@@ -45,10 +45,20 @@ class LoadedModel:
     sha256: str
     file_format: str
     card: dict | None = None
+    classifier: object = None
 
     @property
     def classes(self):
         return self.view.classes
+
+    def unfitted_copy(self):
+        """A new, unfitted pipeline with the same steps and settings (:func:`sklearn.base.clone`)."""
+        from sklearn.base import clone
+        from sklearn.pipeline import make_pipeline
+
+        vectorizer, tfidf = self.featurizer.vectorizer, self.featurizer.tfidf
+        steps = [vectorizer] + ([] if tfidf is None or tfidf is vectorizer else [tfidf]) + [self.classifier]
+        return make_pipeline(*(clone(step) for step in steps))
 
 
 def sha256_of(path: Path) -> str:
@@ -216,4 +226,4 @@ def load_model(
     if normal_class is None and card is not None:
         normal_class = (card.get("settings") or {}).get("normal_class")
     view = view_of(classifier, featurizer.tokens, featurizer.feature_kind, normal_class)
-    return LoadedModel(view, featurizer, path, digest, kind, card)
+    return LoadedModel(view, featurizer, path, digest, kind, card, classifier)

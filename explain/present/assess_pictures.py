@@ -1,7 +1,9 @@
 """Pictures of an :class:`~explain.analysis.assessment.Assessment` (PNG, matplotlib Agg).
 
-ROC curve, precision-recall curve, reliability diagram and the score
-distribution per class on the log-odds scale. Everything drawn is read from
+ROC curve (operating points labelled, the threshold in use marked),
+precision-recall curve, reliability diagram on the log-odds scale, the score
+distribution per class as shares of each class, and false-alarm rates per
+slice. Everything drawn is read from
 the result; nothing is recomputed. Colours and the PNG writer are the
 project's (:mod:`explain.present.vocab_pictures`), so a class looks the same in every picture.
 """
@@ -11,7 +13,8 @@ from __future__ import annotations
 import numpy as np
 from matplotlib.figure import Figure
 
-from explain.analysis.assessment import Assessment
+from explain.analysis.assessment import FLAGGED, Assessment
+from explain.present.assessment import point_label
 from explain.present.drawing import INK, NEUTRAL, PALETTE, line_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold).
@@ -29,12 +32,17 @@ def _rankings(result: Assessment):
 
 def _auc_label(r) -> str:
     if np.isfinite(r.auc.variance):
-        return f"{r.positive}: AUC {r.auc.auc:.3f} [{r.auc.low:.3f}, {r.auc.high:.3f}]"
-    return f"{r.positive}: AUC {r.auc.auc:.3f}"
+        return f"{r.positive}: AUC {r.auc.auc:.4f} ({r.auc.low:.4f} to {r.auc.high:.4f})"
+    return f"{r.positive}: AUC {r.auc.auc:.4f}"
 
 
 def roc_picture(result: Assessment) -> bytes:
-    """ROC curves; the right panel stretches the low false-positive rates an auditor cares about."""
+    """ROC curves; the right panel stretches the low false-alarm rates an auditor cares about.
+
+    The AUC's DeLong interval is in the legend (it bounds the area, not the
+    curve, so no band is drawn); each operating point is a dot labelled with
+    how it was chosen and its threshold log-odds, the threshold in use a star.
+    """
     fig = Figure(figsize=(10, 4.6))
     linear, logx = fig.subplots(1, 2)
     colours = _colours(result)
@@ -45,22 +53,32 @@ def roc_picture(result: Assessment) -> bytes:
     chance = np.linspace(1e-4, 1, 200)
     for ax in (linear, logx):
         ax.plot(chance, chance, color=NEUTRAL.base, ls=":", lw=1, label="chance")
-        ax.set_ylabel("true-positive rate (recall)")
+        ax.set_ylabel("recall")
         ax.set_ylim(0, 1.01)
         ax.grid(alpha=0.3)
     linear.set_xlim(0, 1)
-    linear.set_xlabel("false-positive rate")
-    linear.set_title(f"ROC ({100 * result.confidence:g} % DeLong intervals)")
+    linear.set_xlabel("false-alarm rate")
+    linear.set_title(f"ROC curve (legend: AUC, {100 * result.confidence:g} % DeLong interval)")
     logx.set_xscale("log")
     logx.set_xlim(1e-4, 1)
-    logx.set_xlabel("false-positive rate (log scale)")
-    logx.set_title("the same, low false-positive rates stretched")
-    chosen = [p.figures for p in result.operating_points if p.kind in ("fpr", "recall") and p.figures is not None]
-    if chosen:
-        x = [f.false_positive_rate.value for f in chosen]
-        y = [f.recall.value for f in chosen]
+    logx.set_xlabel("false-alarm rate (log scale)")
+    logx.set_title("the same, low false-alarm rates stretched")
+    key = []
+    for p in (p for p in result.operating_points if p.figures is not None):
+        f = p.figures
+        in_use = p.kind == "in use"
         for ax in (linear, logx):
-            ax.plot(x, y, "o", color=MARK, ms=5, label="operating points by target (flagged)")
+            ax.plot(f.false_positive_rate.value, f.recall.value, "*" if in_use else "o", color=MARK,
+                    ms=11 if in_use else 5, zorder=5, label="threshold in use" if in_use and ax is linear else None)
+        if in_use:
+            continue
+        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {f.threshold_log_odds:.2f}")
+        # numbers, not names, beside the dots: operating points crowd together near the top left
+        logx.annotate(str(len(key)), (max(f.false_positive_rate.value, 1e-4), f.recall.value), fontsize=7,
+                      xytext=(3, -9), textcoords="offset points", color=MARK)
+    if key:
+        logx.text(1.03, 1.0, "operating points\n" + "\n".join(key), transform=logx.transAxes, fontsize=7,
+                  va="top", family="monospace", color=MARK)
     linear.legend(loc="lower right", fontsize=8)
     return png_bytes(fig)
 
@@ -85,37 +103,47 @@ def precision_recall_picture(result: Assessment) -> bytes:
 
 
 def reliability_picture(result: Assessment) -> bytes:
-    """Observed share flagged against mean predicted probability, per equal-count bin."""
+    """Observed against predicted, both as log-odds of a flagged class, per equal-count bin.
+
+    On the probability scale most naive Bayes bins sit on top of each other
+    near 0 and 1; on the log-odds scale they spread out. A bin whose observed
+    share is 0 or 1 has infinite observed log-odds: it is drawn at the edge
+    of the plot as an open triangle.
+    """
     cal = result.calibration
-    fig = Figure(figsize=(6, 5))
+    fig = Figure(figsize=(6.4, 5))
     ax = fig.subplots()
-    ax.plot([0, 1], [0, 1], color=NEUTRAL.base, ls=":", lw=1, label="perfectly calibrated")
+    x = np.asarray(cal.mean_predicted_log_odds)
+    y, y_lo, y_hi = (np.asarray(a) for a in (cal.observed_log_odds, cal.observed_log_odds_low, cal.observed_log_odds_high))
+    finite = np.concatenate([x[np.isfinite(x)], y[np.isfinite(y)], y_lo[np.isfinite(y_lo)], y_hi[np.isfinite(y_hi)]])
+    span = (finite.min() - 1, finite.max() + 1) if len(finite) else (-5, 5)
+    ax.plot(span, span, color=NEUTRAL.base, ls=":", lw=1, label="perfectly calibrated")
     family = PALETTE[0]
-    errors = np.vstack([cal.observed - cal.observed_low, cal.observed_high - cal.observed])
+    shown, lo, hi = (np.clip(a, *span) for a in (y, y_lo, y_hi))
     ax.errorbar(
-        cal.mean_predicted,
-        cal.observed,
-        yerr=errors,
-        fmt="o-",
-        color=family.base,
-        ecolor=family.shade(0.2),
-        capsize=3,
-        label=f"bins of about {int(np.median(cal.counts))} messages ({100 * result.confidence:g} % Wilson intervals)",
+        x, shown, yerr=np.vstack([shown - lo, hi - shown]), fmt="none", ecolor=family.shade(0.2), capsize=3,
     )
-    ax.set_xlim(-0.02, 1.02)
-    ax.set_ylim(-0.02, 1.02)
-    ax.set_xlabel(f"mean predicted P(not {result.normal_class})")
-    ax.set_ylabel("observed share not normal")
+    edge = ~np.isfinite(y)
+    ax.plot(x[~edge], shown[~edge], "o-", color=family.base,
+            label=f"bins of about {int(np.median(cal.counts))} messages ({100 * result.confidence:g} % Wilson intervals)")
+    if edge.any():
+        ax.plot(x[edge], shown[edge], "v" if np.all(y[edge] < 0) else "^", mfc="none", color=family.base,
+                label="observed share 0 or 1 (drawn at the edge)")
+    ax.set_xlim(*span)
+    ax.set_ylim(*span)
+    ax.set_xlabel("mean P(flag), as flag log-odds")
+    ax.set_ylabel("observed share flagged-class, as log-odds")
     ax.set_title(
-        f"reliability: Brier {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f}"
+        f"reliability: Brier {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f}",
+        fontsize=10,
     )
     ax.grid(alpha=0.3)
-    ax.legend(loc="upper left", fontsize=8)
+    ax.legend(loc="upper left", fontsize=7)
     return png_bytes(fig)
 
 
 def score_picture(result: Assessment) -> bytes:
-    """Histogram of flag log-odds per true class, with the threshold in use."""
+    """Flag log-odds per true class, each class's messages as shares, with the threshold in use."""
     s = result.scores
     fig = Figure(figsize=(8, 4.6))
     ax = fig.subplots()
@@ -123,16 +151,39 @@ def score_picture(result: Assessment) -> bytes:
     for c, name in enumerate(s.classes):
         if s.counts[c].sum() == 0:
             continue
-        ax.stairs(s.counts[c], s.edges, color=colours[name], lw=1.8, label=name)
+        ax.stairs(s.shares[c], s.edges, color=colours[name], lw=1.8, label=f"{name} ({s.counts[c].sum()} messages)")
     if np.isfinite(s.threshold_log_odds):
         ax.axvline(s.threshold_log_odds, color=MARK, ls="--", lw=1, label="threshold in use")
     clipped = int(s.below.sum() + s.above.sum())
     note = f" ({clipped} beyond the range counted in the end bins)" if clipped else ""
-    ax.set_xlabel(f"log P(not {result.normal_class}) - log P({result.normal_class})")
-    ax.set_ylabel("messages")
-    ax.set_title("scores by true class, log-odds scale" + note, fontsize=10)
+    ax.set_xlabel(f"flag log-odds: log P(flag) - log P({result.normal_class})")
+    ax.set_ylabel("share of the class's messages")
+    ax.set_title("flag log-odds by true class" + note, fontsize=10)
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8)
+    return png_bytes(fig)
+
+
+def slices_picture(result: Assessment) -> bytes:
+    """False-alarm rate per slice with its Wilson interval, the rate over all messages as a line."""
+    rep = result.slices
+    shown = [s for s in rep.slices if s.false_alarm_rate.denominator > 0]
+    fig = Figure(figsize=(7, 1.2 + 0.28 * len(shown)))
+    ax = fig.subplots()
+    y = np.arange(len(shown))[::-1]
+    differs = {(s.group, s.name) for s in rep.differing}
+    for yi, s in zip(y, shown):
+        r = s.false_alarm_rate
+        colour = PALETTE[2].base if (s.group, s.name) in differs else NEUTRAL.shade(0.7)
+        ax.errorbar(100 * r.value, yi, xerr=[[100 * (r.value - r.low)], [100 * (r.high - r.value)]], fmt="o",
+                    color=colour, capsize=2, ms=4)
+    overall = rep.overall_false_alarm_rate
+    ax.axvline(100 * overall.value, color=MARK, ls="--", lw=1, label=f"all messages {100 * overall.value:.2f} %")
+    ax.set_yticks(y, [f"{s.group}: {s.name}" for s in shown], fontsize=7)
+    ax.set_xlabel(f"false-alarm rate, % ({100 * result.confidence:g} % Wilson intervals)")
+    ax.set_title(f"false-alarm rate per slice (differing at adjusted p < {rep.alpha:g} in colour)", fontsize=9)
+    ax.grid(alpha=0.3, axis="x")
+    ax.legend(fontsize=7, loc="upper right")
     return png_bytes(fig)
 
 
@@ -145,4 +196,6 @@ def draw_all(result: Assessment) -> dict[str, bytes]:
     if result.calibration is not None:
         pictures["reliability.png"] = reliability_picture(result)
         pictures["scores.png"] = score_picture(result)
+    if result.slices is not None and result.slices.slices:
+        pictures["slices.png"] = slices_picture(result)
     return pictures

@@ -19,20 +19,35 @@ key                 meaning
 Numbers that are not finite become ``null``: an undefined proportion (0/0),
 and the threshold +inf that starts each ROC curve (nothing flagged). Every
 proportion is ``{value, low, high, numerator, denominator}`` with the Wilson
-interval at ``assessment.confidence``. Log-odds are natural logarithms.
+interval at ``assessment.confidence``. Log-odds are natural logarithms, and
+every float is written with all its digits (Python's ``repr``): a
+``threshold_log_odds`` typed back with ``--threshold-log-odds`` flags exactly
+the messages its row counts.
+
+The terminal output uses the glossary's words (``docs/glossary.md``) and its
+one interval style, ``93.7 % (90.6 to 95.8)``: the estimate, then the
+interval in the estimate's unit, the level said once in the heading. A number
+or an interval is never split across lines: a table too wide for the terminal
+is printed stacked, one block per row.
 """
 
 from __future__ import annotations
 
 import dataclasses
 import math
+import re
+import textwrap
 
 import numpy as np
+from rich.cells import cell_len
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.analysis.assessment import Assessment, OperatingPoint, Rate, ReviewedMessage
+from explain.analysis.assessment import Assessment
+from explain.analysis.error_review import ReviewedMessage
+from explain.analysis.ranking import OperatingPoint
+from explain.analysis.rates import Estimate, Rate
 from explain.present.token_display import shown
 
 SCHEMA = "nbledger.assess/1"
@@ -67,18 +82,36 @@ def to_json(result: Assessment, model=None, data=None) -> dict:
 # --- number formats ---------------------------------------------------------------
 
 
+def _digits(x: float) -> int:
+    """One decimal of a percentage, two below 1 % where the small rates an auditor reads live."""
+    return 2 if abs(100 * x) < 1 else 1
+
+
 def _pct(x: float) -> str:
-    return "-" if not math.isfinite(x) else f"{100 * x:.2f} %"
+    return "-" if not math.isfinite(x) else f"{100 * x:.{_digits(x)}f} %"
 
 
 def _interval(value: float, low: float, high: float, n: int) -> str:
+    """A share as ``93.7 % (90.6 to 95.8)``: the one interval style of every screen."""
     if n == 0:
         return "undefined (0/0)"
-    return f"{_pct(value)} [{100 * low:.2f}-{100 * high:.2f}]"
+    d = _digits(min(value, low))
+    return f"{100 * value:.{d}f} % ({100 * low:.{d}f} to {100 * high:.{d}f})"
 
 
 def _rate(r: Rate) -> str:
     return _interval(r.value, r.low, r.high, r.denominator)
+
+
+def _count_interval(e: Estimate) -> str:
+    """A projected count as ``12.3 (9.8 to 15.6)``."""
+    if not math.isfinite(e.value):
+        return "-"
+    return f"{e.value:.1f} ({e.low:.1f} to {e.high:.1f})"
+
+
+def _share_interval(e: Estimate) -> str:
+    return _interval(e.value, e.low, e.high, 1 if math.isfinite(e.value) else 0)
 
 
 def _prob(p: float) -> str:
@@ -96,12 +129,82 @@ def _num(x: float, digits: int = 3) -> str:
     return "-" if x is None or not math.isfinite(x) else f"{x:.{digits}f}"
 
 
-def _table(title: str, *columns: str, right_from: int = 1) -> Table:
-    table = Table(title=title, title_justify="left", title_style="bold", header_style="bold")
+def _exact(x: float) -> str:
+    """A log-odds threshold with every digit, as typed back to ``--threshold-log-odds``."""
+    return repr(float(x))
+
+
+def _level(result: Assessment) -> str:
+    return f"{100 * result.confidence:g} %"
+
+
+# --- tables that fit ------------------------------------------------------------------
+
+
+def _plain_text(cell) -> str:
+    return cell.plain if isinstance(cell, Text) else str(cell)
+
+
+def _widest_line(text: str) -> int:
+    return max(cell_len(line) for line in text.split("\n"))
+
+
+def _widest_word(text: str) -> int:
+    return max((cell_len(w) for w in text.split()), default=0)
+
+
+# what prose never breaks: an interval, a percentage, "1 - 3.2e-10", a token with its evidence
+_FIGURE = re.compile(r"[-+]?[\d.]+(?: %)? \([-+\d.]+ to [-+\d.]+\)|[-+]?[\d.]+ %|1 - [\d.e+-]+|[^\s,]+ [-+]\d+\.\d+")
+_NBSP = "\u00a0"
+
+
+def _say(console: Console, text: str, style: str | None = None) -> None:
+    """Print prose wrapped to the console between words, never inside a figure or an interval."""
+    # textwrap breaks only at ASCII whitespace: no-break spaces hold each figure together
+    glued = _FIGURE.sub(lambda m: m.group(0).replace(" ", _NBSP), text)
+    indent = " " * (len(text) - len(text.lstrip(" ")) + 2)
+    lines = textwrap.wrap(glued, width=console.width, break_long_words=False, break_on_hyphens=False,
+                          subsequent_indent=indent if indent.strip(" ") == "" and len(indent) > 2 else "")
+    for line in lines:
+        console.print(Text(line.replace(_NBSP, " "), style=style or ""), soft_wrap=True)
+
+
+def _emit(console: Console, title: str | None, columns, rows, *, right_from: int = 1, wrap=(), left=()) -> None:
+    """Print a table whose numbers never break; stacked when it cannot fit.
+
+    Columns from ``right_from`` on hold figures (right-aligned); only the
+    columns named in ``wrap`` (sentences) may wrap, between words; those in
+    ``left`` are left-aligned whatever their place. A
+    heading may carry line breaks (``"average\\nprecision"``) to stay narrow.
+    When even that does not fit the console, each row is printed as a block:
+    its first cell, then ``column: value`` lines.
+    """
+    wrapping = [name in wrap for name in columns]
+    need = 1
     for i, name in enumerate(columns):
-        # fold rather than cut: a truncated figure is a wrong figure
-        table.add_column(name, justify="right" if i >= right_from else "left", overflow="fold")
-    return table
+        cells = [_plain_text(r[i]) for r in rows] if rows else [""]
+        width = max(_widest_word(c) if wrapping[i] else _widest_line(c) for c in cells)
+        # a column that does not wrap does not wrap its heading either, except at the breaks it carries
+        heading = _widest_word(name) if wrapping[i] else _widest_line(name)
+        need += max(width, heading) + 3
+    if title:
+        _say(console, title, "bold")
+    if need <= console.width:
+        table = Table(header_style="bold")
+        for i, name in enumerate(columns):
+            table.add_column(
+                name,
+                justify="right" if i >= right_from and name not in wrap and name not in left else "left",
+                no_wrap=not wrapping[i],
+            )
+        for r in rows:
+            table.add_row(*r)
+        console.print(table)
+        return
+    for r in rows:
+        _say(console, f"  {_plain_text(r[0])}", "bold")
+        for name, cell in zip(columns[1:], r[1:]):
+            _say(console, f"    {name.replace(chr(10), ' ')}: {_plain_text(cell).replace(chr(10), ', ')}")
 
 
 # --- sections -------------------------------------------------------------------------
@@ -109,75 +212,60 @@ def _table(title: str, *columns: str, right_from: int = 1) -> Table:
 
 def _base_rates(result: Assessment, console: Console) -> None:
     b = result.base_rates
-    table = _table(f"base rates ({b.n_messages} messages)", "class", "messages", f"share  [{_level(result)} interval]")
-    for name, count, share in zip(b.classes, b.counts, b.shares):
-        table.add_row(Text(name), str(count), _rate(share))
+    rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
-        table.add_row(Text(f"not {result.normal_class}", style="bold"), str(b.flagged.numerator), _rate(b.flagged))
-    console.print(table)
-
-
-def _level(result: Assessment) -> str:
-    return f"{100 * result.confidence:g} %"
+        rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
+    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"base rate ({_level(result)} Wilson interval)"], rows)
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
-    table = _table(title, "true \\ decided", *matrix.labels, "total")
-    for i, name in enumerate(matrix.labels):
-        cells = [
-            f"{matrix.counts[i, j]}  ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))
-        ]
-        table.add_row(Text(name), *cells, str(matrix.counts[i].sum()))
-    console.print(table)
+    rows = [
+        [Text(name), *(f"{matrix.counts[i, j]} ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))),
+         str(matrix.counts[i].sum())]
+        for i, name in enumerate(matrix.labels)
+    ]
+    _emit(console, title, ["true \\ decided", *matrix.labels, "total"], rows)
 
 
 METRICS = (
-    ("precision", "precision"),
-    ("recall (sensitivity)", "recall"),
-    ("specificity", "specificity"),
-    ("false-positive rate", "false_positive_rate"),
-    ("F1", "f1"),
-    ("accuracy", "accuracy"),
+    (("precision", "precision"), ("recall", "recall")),
+    (("specificity", "specificity"), ("false-alarm rate", "false_positive_rate")),
+    (("F1", "f1"), ("accuracy", "accuracy")),
 )
 
 
 def _metrics(result: Assessment, console: Console) -> None:
-    shown = ([result.flag_metrics] if result.flag_metrics is not None else []) + list(result.class_metrics)
-    table = _table(
-        f"metrics at the decision in use, with {_level(result)} Wilson intervals",
-        "positive class",
-        *(m.positive for m in shown),
-    )
-    for label, field in METRICS:
-        table.add_row(label, *(_rate(getattr(m, field)) for m in shown))
-    console.print(table)
-    console.print(f"overall accuracy: {_rate(result.accuracy)}   (on imbalanced traffic, read the rates above instead)")
+    shown_metrics = ([result.flag_metrics] if result.flag_metrics is not None else []) + list(result.class_metrics)
+    for i, pair in enumerate(METRICS):
+        rows = [[Text(m.positive), *(_rate(getattr(m, field)) for _, field in pair)] for m in shown_metrics]
+        title = f"rates at the decision in use, with {_level(result)} Wilson intervals" if i == 0 else None
+        _emit(console, title, ["positive class", *(label for label, _ in pair)], rows)
+    _say(console, f"overall accuracy: {_rate(result.accuracy)} (on imbalanced traffic, read the rates above instead)")
 
 
 def _ranking(result: Assessment, console: Console) -> None:
     rankings = [r for r in (result.flag_ranking, *result.class_ranking) if r is not None]
     if not rankings:
         return
-    table = _table(
-        f"ranking quality (AUC with {_level(result)} DeLong interval)",
-        "positive",
-        "positives",
-        "negatives",
-        "AUC",
-        "interval",
-        "average precision",
-    )
+    rows = []
     for r in rankings:
-        interval = "-" if not math.isfinite(r.auc.variance) else f"[{r.auc.low:.4f}, {r.auc.high:.4f}]"
-        table.add_row(
-            Text(r.positive), str(r.n_positive), str(r.n_negative), f"{r.auc.auc:.4f}", interval, f"{r.average_precision:.4f}"
+        interval = (
+            f"{r.auc.auc:.4f}" if not math.isfinite(r.auc.variance)
+            else f"{r.auc.auc:.4f} ({r.auc.low:.4f} to {r.auc.high:.4f})"
         )
-    console.print(table)
+        rows.append([Text(r.positive), str(r.n_positive), str(r.n_negative), interval, f"{r.average_precision:.4f}"])
+    _emit(
+        console,
+        f"ranking quality (AUC with {_level(result)} DeLong interval)",
+        ["positive", "positives", "negatives", "AUC", "average\nprecision"],
+        rows,
+    )
 
 
-def _point_label(p: OperatingPoint) -> str:
+def point_label(p: OperatingPoint) -> str:
+    """How an operating point was chosen, in a few words (also the pictures' label)."""
     if p.kind == "fpr":
-        return f"FPR <= {100 * p.target:g} %"
+        return f"false alarms <= {100 * p.target:g} %"
     if p.kind == "recall":
         return f"recall >= {100 * p.target:g} %"
     return p.kind
@@ -186,39 +274,53 @@ def _point_label(p: OperatingPoint) -> str:
 def _operating_points(result: Assessment, console: Console) -> None:
     if not result.operating_points:
         return
-    thresholds = _table(
-        "operating points (FPR: false-positive rate)", "chosen by", "log-odds >=", "P(flag) >=", "precision", "recall", "FPR"
-    )
-    columns = ["chosen by", "false alarms", "missed abuse"] + ([] if result.costs is None else ["cost / message"])
-    expected = _table("expected per 10,000 messages at the data's base rate", *columns)
-    for table in (thresholds, expected):
-        table.columns[0].no_wrap = True
+    rows, expected, projected, exact = [], [], [], []
     for p in result.operating_points:
         f = p.figures
         if f is None:
-            thresholds.add_row(Text(_point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", "")
+            rows.append([Text(point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", ""])
             continue
-        thresholds.add_row(
-            Text(_point_label(p)),
-            _num(f.threshold_log_odds),
-            _prob(f.threshold_probability),
-            _pct(f.precision.value),
-            _pct(f.recall.value),
-            _pct(f.false_positive_rate.value),
-        )
-        row = [Text(_point_label(p)), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
+        rows.append([Text(point_label(p)), _num(f.threshold_log_odds), _prob(f.threshold_probability),
+                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_positive_rate.value)])
+        row = [Text(point_label(p)), str(f.tp + f.fp), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))
-        expected.add_row(*row)
-    console.print(thresholds)
-    console.print(
-        "a message is flagged when its log-odds of not being normal is at least the threshold; "
-        "the JSON output carries an interval for every rate. Thresholds chosen by target on this data "
-        "look better here than they will on new traffic: confirm them on messages not used to choose them"
+        expected.append(row)
+        if f.projection is not None:
+            pr = f.projection
+            projected.append([Text(point_label(p)), _share_interval(pr.precision),
+                              _count_interval(pr.false_alarms_per_10k), _count_interval(pr.missed_per_10k)])
+        if math.isfinite(f.threshold_log_odds):
+            exact.append(f"  {point_label(p)}: --threshold-log-odds {_exact(f.threshold_log_odds)}")
+    _emit(console, "operating points",
+          ["chosen by", "log-odds >=", "P(flag)\n>=", "precision", "recall", "false-alarm\nrate"], rows,
+          wrap=("log-odds >=",))
+    _say(console, 
+        "a message is flagged when its flag log-odds (every flagged class together against the normal class) is "
+        "at least the threshold log-odds; the JSON output carries an interval for every rate. Thresholds chosen by target on "
+        "this data look better here than they will on new traffic: confirm them on messages not used to choose them"
     )
-    console.print(expected)
+    if exact:
+        console.print("each threshold exactly, to reproduce its row:")
+        for line in exact:
+            console.print(line, soft_wrap=True)
+    columns = ["chosen by", "flagged", "false\nalarms", "missed"] + ([] if result.costs is None else ["expected\ncost"])
+    _emit(console, "per 10,000 messages at the test-set base rate (measured)", columns, expected)
+    if projected:
+        _emit(
+            console,
+            f"per 10,000 messages at a base rate of {100 * result.base_rate:g} % (a projection: Bayes' rule "
+            f"on the measured recall and false-alarm rate; {_level(result)} Wilson ends carried through)",
+            ["chosen by", "precision", "false alarms", "missed"],
+            projected,
+        )
+        _say(console, 
+            f"projection intervals put the ends of the {_level(result)} Wilson intervals of recall and "
+            "false-alarm rate through Bayes' rule; precision uses both, so its level is at least "
+            f"{100 * (2 * result.confidence - 1):g} %. It assumes the measured rates hold in that traffic"
+        )
     if result.costs is not None:
-        console.print(
+        _say(console, 
             f"costs: a false alarm {result.costs[0]:g}, a missed message {result.costs[1]:g}; "
             "'cost if calibrated' is the threshold that would cost least if the probabilities could be taken at face value"
         )
@@ -235,51 +337,40 @@ def _calibration(result: Assessment, console: Console) -> None:
             f"({cal.n_bins} bins of equal count)",
         )
     )
-    table = _table(None, "bin", "messages", "log-odds from", "to", "mean P(flag)", "observed share flagged  [interval]")
-    for b in range(cal.n_bins):
-        table.add_row(
-            str(b + 1),
-            str(cal.counts[b]),
-            _num(cal.log_odds_low[b], 2),
-            _num(cal.log_odds_high[b], 2),
-            _prob(cal.mean_predicted[b]),
-            _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b]),
-        )
-    console.print(table)
+    rows = [
+        [str(b + 1), str(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
+         _prob(cal.mean_predicted[b]),
+         _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
+        for b in range(cal.n_bins)
+    ]
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class"], rows)
     s = result.scores
-    table = _table("flag log-odds by true class", "class", *(f"{100 * q:g} %" for q in s.quantile_levels))
-    for c, name in enumerate(s.classes):
-        table.add_row(Text(name), *(_num(v, 2) for v in s.quantiles[c]))
-    console.print(table)
+    rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
+    _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
 
 
 def _tokens(pushes) -> str:
-    return ", ".join(f"{shown(p.token)} {p.evidence:+.2f}" for p in pushes) or "-"
+    """One token and its evidence a line, so that no pair is ever parted."""
+    return "\n".join(f"{shown(p.token)} {p.evidence:+.2f}" for p in pushes) or "-"
 
 
 def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, console: Console) -> None:
     heading = title if total is None else f"{title}: {total}" + (f" (showing {len(rows)})" if len(rows) < total else "")
-    table = _table(heading, "id", "true", "decided", "P(flag)", "margin", "toward flagging", "toward normal", right_from=3)
-    for m in rows:
-        table.add_row(
-            Text(m.id),
-            Text(m.true_class),
-            Text(m.decided_class),
-            _prob(m.flag_probability),
-            f"{m.margin:+.2f}",
-            Text(_tokens(m.toward_flag), justify="left"),
-            Text(_tokens(m.toward_normal), justify="left"),
-        )
-    console.print(table)
+    cells = [
+        [Text(m.id + ("\nlabel may be wrong" if m.label_may_be_wrong else "")), Text(m.true_class),
+         Text(m.decided_class), _prob(m.flag_probability), f"{m.margin:+.2f}",
+         Text(_tokens(m.toward_flag)), Text(_tokens(m.toward_normal))]
+        for m in rows
+    ]
+    _emit(console, heading, ["id", "true\nclass", "decided\nclass", "P(flag)", "margin", "toward flagged", "toward normal"], cells,
+          right_from=3, left=("toward flagged", "toward normal"))
 
 
 def _drivers(title: str, drivers, console: Console) -> None:
     if not drivers:
         return
-    table = _table(title, "token", "summed evidence", "errors pushed", "errors tipped")
-    for d in drivers:
-        table.add_row(Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped))
-    console.print(table)
+    rows = [[Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped)] for d in drivers]
+    _emit(console, f"{title}; evidence summed over the errors", ["token", "evidence", "pushed", "tipped"], rows)
 
 
 def _errors(result: Assessment, console: Console) -> None:
@@ -287,13 +378,57 @@ def _errors(result: Assessment, console: Console) -> None:
     if e is None:
         return
     _messages("false alarms (normal messages flagged), most confident first", e.false_alarms, e.n_false_alarms, console)
-    _messages("missed abuse (flagged classes let through), most confident first", e.missed, e.n_missed, console)
+    _messages("missed (flagged-class messages let through), most confident first", e.missed, e.n_missed, console)
     _messages("borderline messages (closest to the threshold)", e.borderline, None, console)
-    _drivers("what drives false alarms (tokens pushing normal messages toward flagging)", e.false_alarm_drivers, console)
-    _drivers("what drives missed abuse (tokens pushing abuse toward normal)", e.missed_drivers, console)
-    console.print(
-        "margin: distance to the threshold on the log-odds scale; evidence compares the most probable flagged "
-        "class with the normal class; 'tipped': the token's evidence alone exceeded the margin"
+    _drivers("what drives false alarms (tokens pushing normal messages toward flagged)", e.false_alarm_drivers, console)
+    _drivers("what drives missed messages (tokens pushing them toward normal)", e.missed_drivers, console)
+    _say(
+        console,
+        f"margin: distance to the decision boundary in log-odds, on the {e.margin_scale} scale; P(flag): every "
+        "flagged class together; evidence compares the strongest flagged class with the normal class; "
+        "'tipped': the token's evidence alone exceeded the margin",
+    )
+
+
+def _slices(result: Assessment, console: Console) -> None:
+    rep = result.slices
+    if rep is None:
+        return
+    rows = [
+        [Text(f"{s.group}: {s.name}"), str(s.n_messages), _rate(s.false_alarm_rate), _rate(s.miss_rate),
+         _num(s.adjusted_p_value, 4)]
+        for s in rep.slices
+    ]
+    _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
+          ["slice", "messages", "false-alarm\nrate", "miss rate", "adjusted\np-value"], rows)
+    _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
+    shown_slices = rep.differing or rep.most_different
+    if rep.differing:
+        _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
+    else:
+        _say(console, f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}; "
+                      "the closest:")
+    for s in shown_slices:
+        _say(console, f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
+                      f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
+
+
+def _label_errors(result: Assessment, console: Console) -> None:
+    le = result.label_errors
+    if le is None:
+        return
+    rows = [
+        [Text(s.id), Text(s.label), Text(s.favoured_class), _prob(s.label_probability), f"{s.log_odds:+.2f}",
+         Text(_tokens(s.toward_favoured))]
+        for s in le.suspected
+    ]
+    _emit(console, f"suspected label errors: {len(le.suspected)} of {le.n_messages} messages",
+          ["id", "true\nclass", "favoured", "P(label)", "log-odds", "toward favoured"], rows, right_from=3,
+          left=("toward favoured",))
+    _say(console, 
+        f"found by {le.method} on out-of-sample probabilities from {le.folds} refits of the model's own pipeline "
+        "(stratified folds); P(label) and log-odds (favoured class against the label) are out-of-sample; the "
+        "label may be right and the filter wrong: look again before relabelling"
     )
 
 
@@ -312,6 +447,12 @@ def render(result: Assessment, console: Console) -> None:
     _ranking(result, console)
     _operating_points(result, console)
     _calibration(result, console)
+    _slices(result, console)
     _errors(result, console)
+    _label_errors(result, console)
+    _say(console, 
+        "error rates are estimates from this data; the figures describe the model, not the truth about any "
+        "message; messages are personal data; decisions stay with trained staff"
+    )
     for note in result.notes:
-        console.print(Text(f"note: {note}", style="italic"))
+        _say(console, f"note: {note}", "italic")
