@@ -1,0 +1,221 @@
+"""The printable report: HTML from the Jinja2 templates, PDF through WeasyPrint.
+
+Nothing here computes a figure. The template reads the JSON twin
+(:mod:`explain.present.report_json`) and the pictures drawn from the same
+:class:`~explain.analysis.report.Report`, so the PDF, the HTML and the JSON
+show the same numbers. The look is the stylesheet ``templates/report.css``
+(CSS Paged Media as WeasyPrint implements it: ``@page`` margin boxes,
+``target-counter()`` for the contents, ``bookmark-level``); the templates
+hold structure only.
+
+The templates live in the top-level ``templates/`` folder of the project;
+the wheel maps that folder into the package as ``explain/templates``
+(``pyproject.toml``), so an installed copy reads its own.
+
+Safe rendering: autoescaping is on for every template, so message texts,
+labels and file names holding HTML, CSS or script appear literally; the
+HTML carries a Content-Security-Policy that allows only inline styles and
+``data:`` images; and WeasyPrint fetches through :class:`SafeFetcher`, which
+allows ``data:`` URIs and files of the package's own templates folder only.
+"""
+
+from __future__ import annotations
+
+import base64
+import logging
+from pathlib import Path
+from urllib.parse import unquote, urlsplit
+
+from explain.analysis.report import Report
+from explain.present.drawing import NEUTRAL, class_colours
+from explain.present.report_json import to_json
+
+#: Tokens listed in each explained message's evidence table; the rest are in the JSON twin.
+EVIDENCE_ROWS = 12
+#: Evidence strength is shown in this many steps of lightness.
+STRENGTH_STEPS = 4
+
+
+def template_dir() -> Path:
+    """The templates folder: inside the installed package, or the checkout's top-level ``templates/``."""
+    here = Path(__file__).resolve().parent.parent
+    installed = here / "templates"
+    return installed if (installed / "report.html.j2").is_file() else here.parent / "templates"
+
+
+def environment():
+    """The Jinja2 environment of the report: autoescaping everywhere, undefined names are errors."""
+    import jinja2
+
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(template_dir())),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate)
+    return env
+
+
+# --- number formats (formatting only: every value comes from the JSON twin) -------
+
+
+def _pct(x, digits: int = 1) -> str:
+    return "–" if x is None else f"{100 * x:.{digits}f} %"
+
+
+def _num(x, digits: int = 3) -> str:
+    return "–" if x is None else f"{x:.{digits}f}"
+
+
+def _count(x) -> str:
+    return "–" if x is None else f"{x:,.0f}"
+
+
+def _rate(r: dict, digits: int = 1) -> str:
+    if r is None or r["denominator"] == 0 or r["value"] is None:
+        return "undefined (0 of 0)"
+    return f"{100 * r['value']:.{digits}f} % [{100 * r['low']:.{digits}f}–{100 * r['high']:.{digits}f}]"
+
+
+# --- pictures ------------------------------------------------------------------------
+
+
+def draw_pictures(report: Report) -> dict[str, bytes]:
+    """Name -> PNG of every picture the report embeds (assessment, then vocabulary)."""
+    from explain.present import assess_pictures, vocab_pictures
+
+    pictures = {}
+    if report.assessment is not None:
+        pictures.update(assess_pictures.draw_all(report.assessment))
+    for i, _ in enumerate(report.vocab.contrasts):
+        pictures[f"bars_{i}.png"] = vocab_pictures.bar_chart(report.vocab, i)
+        pictures[f"cloud_{i}.png"] = vocab_pictures.word_cloud(report.vocab, i, "for")
+    return pictures
+
+
+def data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+# --- the tinted message ----------------------------------------------------------------
+
+
+def tinted_segments(message: dict, colours: dict) -> list[dict]:
+    """The message text cut at its tokens' spans (from the JSON twin), each token with its tint.
+
+    A token pushing toward the decided class (``predicted``) takes that
+    class's colour, one pushing the other way the runner-up's; lightness says
+    strength (``STRENGTH_STEPS`` steps relative to the message's strongest
+    token), and a mark (``+`` toward the decided class, ``-`` against) keeps
+    the direction without colour.
+    """
+    text = message["text"]
+    spans = []
+    for t in message["tokens"]:
+        for start, end in t["spans"] or ():
+            spans.append((start, end, t))
+    spans.sort(key=lambda s: s[0])
+    strongest = max((abs(t["evidence"]) for t in message["tokens"] if t["evidence"] is not None), default=0.0) or 1.0
+    segments, at = [], 0
+    for start, end, t in spans:
+        if start < at:
+            continue  # overlapping n-grams: the first wins
+        if start > at:
+            segments.append({"text": text[at:start]})
+        toward = message["predicted"] if t["evidence"] >= 0 else message["runner_up"]
+        step = max(1, min(STRENGTH_STEPS, round(STRENGTH_STEPS * abs(t["evidence"]) / strongest)))
+        family = colours.get(toward, NEUTRAL)
+        segments.append(
+            {
+                "text": text[start:end],
+                "background": family.shade((step - 1) / (STRENGTH_STEPS - 1) * 0.85),
+                "ink": "#ffffff" if step >= 3 else "#111111",
+                "mark": "+" if t["evidence"] >= 0 else "−",
+                "step": step,
+            }
+        )
+        at = end
+    if at < len(text):
+        segments.append({"text": text[at:]})
+    return segments
+
+
+# --- assembling ----------------------------------------------------------------------
+
+
+def context(report: Report, twin: dict, pictures: dict[str, bytes]) -> dict:
+    """What the template reads: the JSON twin, the pictures as data: URIs, and the class colours."""
+    families = class_colours(report.vocab.classes, report.vocab.normal_class)
+    messages = [
+        {**m, "segments": tinted_segments(m, families) if m["text"] else [], "evidence_rows": EVIDENCE_ROWS}
+        for m in twin["explained_messages"]["messages"]
+    ]
+    return {
+        "r": twin,
+        "messages": messages,
+        "pictures": {name: data_uri(png) for name, png in pictures.items()},
+        "colours": {name: family.base for name, family in families.items()},
+        "missing": dict(twin["sections"]),
+        "evidence_rows": EVIDENCE_ROWS,
+    }
+
+
+def render_html(report: Report, twin: dict | None = None, pictures: dict[str, bytes] | None = None) -> str:
+    """The report as one self-contained HTML file (figures embedded as data: URIs)."""
+    twin = to_json(report) if twin is None else twin
+    pictures = draw_pictures(report) if pictures is None else pictures
+    return environment().get_template("report.html.j2").render(**context(report, twin, pictures))
+
+
+# --- PDF -----------------------------------------------------------------------------
+
+
+def _safe_fetcher_class():
+    from weasyprint.urls import URLFetcher
+
+    class SafeFetcher(URLFetcher):
+        """Fetch ``data:`` URIs and the package's own template files; refuse everything else.
+
+        Remote URLs and ``file:`` references to anything outside the templates
+        folder are never opened, whatever a message, label or file name holds.
+        """
+
+        def __init__(self):
+            super().__init__(allowed_protocols=("data", "file"), allow_redirects=False, timeout=1)
+            self.refused: list[str] = []
+            self.root = template_dir().resolve()
+
+        def fetch(self, url, headers=None):
+            scheme = url.split(":", 1)[0].lower()
+            if scheme == "file":
+                path = Path(unquote(urlsplit(url).path)).resolve()
+                if not path.is_relative_to(self.root):
+                    self.refused.append(url)
+                    raise ValueError(f"refused: {url}")
+            elif scheme != "data":
+                self.refused.append(url)
+                raise ValueError(f"refused: {url}")
+            return super().fetch(url, headers)
+
+    return SafeFetcher
+
+
+def render_pdf(html_text: str, date) -> bytes:
+    """The PDF of the report's HTML; its creation and modification dates are ``date`` (see ``report_date``)."""
+    import weasyprint
+
+    fetcher = _safe_fetcher_class()()
+    # WeasyPrint warns about every refused reference; they are refused on purpose.
+    logging.getLogger("weasyprint").setLevel(logging.ERROR)
+    document = weasyprint.HTML(
+        string=html_text, base_url=template_dir().as_uri() + "/", url_fetcher=fetcher
+    ).render()
+    stamp = date.isoformat()
+    document.metadata.created = stamp
+    document.metadata.modified = stamp
+    return document.write_pdf()
+
+
