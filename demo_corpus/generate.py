@@ -73,6 +73,8 @@ STREETS = [
     "Kelp Street", "Lifeboat Lane", "Smokehouse Row", "Breakwater Road",
     "Gull Yard", "Beacon Walk",
 ]
+CUSTOMS_QUAY = "Customs House Quay"
+CUSTOMS_QUAY_SHARE = 0.05
 BLOCKS = [
     "Netloft House", "the Sail Loft", "Chandlery Court", "Pilot's Row",
     "the Granary", "Gantry House",
@@ -148,7 +150,7 @@ BUSINESSES = [
      ["savings of up to £600 a year", "0% finance", "a free survey this month only"]),
     ("Harbourlight Energy", "harbourlight.example.com",
      ["solar panels", "heat pumps", "a home energy assessment"],
-     ["We can check whether your building qualifies for a grant.", "Cut your bills and your carbon."],
+     ["We can check whether your building qualifies for a grant.", "Cut your bills and your carbon.", "Households on benefits may qualify for a fully funded install."],
      ["free quotes", "£250 off installs booked before the end of the month", "a free energy assessment"]),
     ("Golden Anchor Takeaway", "goldenanchor.example.com",
      ["fish and chips", "takeaway delivered to your door"],
@@ -176,7 +178,7 @@ BUSINESSES = [
      ["gutters cleared from £45", "a free camera inspection", "10% off for co-op residents"]),
     ("Harbour Heat & Gas", "harbourheat.example.com",
      ["a boiler service", "a new boiler", "a gas safety check"],
-     ["Qualified, registered engineers, no call-out charge.", "Don't wait for it to break down in January."],
+     ["Qualified, registered engineers, no call-out charge.", "Don't wait for it to break down in January.", "Free boiler replacements for homes on benefits, ask if you qualify."],
      ["servicing from £59", "new boilers from £1,850 fitted", "a free quote"]),
     ("QuayNet Fibre", "quaynet.example.com",
      ["full fibre broadband", "faster internet"],
@@ -259,8 +261,9 @@ _BRACE = re.compile(r"\{([^{}]*)\}")
 class Filler:
     """Expands ``{a|b|c}`` alternatives and ``{slot}`` names with one rng."""
 
-    def __init__(self, rng: random.Random):
+    def __init__(self, rng: random.Random, label: str = "ok"):
         self.rng = rng
+        self.label = label
         self.cache: dict[str, str] = {}
 
     # slot values -----------------------------------------------------------
@@ -276,7 +279,22 @@ class Filler:
         elif base == "kid":
             v = r.choice(KIDS)
         elif base == "street":
-            v = r.choice(STREETS)
+            # The quay named after the old customs house turns up only in
+            # members' own messages, and rarely: see examples/false_alarm.txt.
+            odd = self.label == "ok" and r.random() < CUSTOMS_QUAY_SHARE
+            v = CUSTOMS_QUAY if odd else r.choice(STREETS)
+        elif base == "advphone":
+            # Not every business puts its number in a first message.
+            v = self.slot("phone") if r.random() < 0.6 else r.choice(["the number on our website", "the number on our van", "the number on the leaflet"])
+        elif base == "okurl":
+            v = link(r, OK_HOSTS)
+        elif base == "scamurl":
+            v = link(r, SCAM_HOSTS)
+        elif base == "mail":
+            who = r.choice(NAMES).lower() + r.choice(["", ".", "_"]) + r.choice([r.choice(SURNAMES).lower(), str(r.randrange(1, 99)), ""])
+            v = f"{who}@{r.choice(RESERVED_DOMAINS)}"
+        elif base == "scammail":
+            v = f"{r.choice(SCAM_MAILBOXES)}@{r.choice(RESERVED_DOMAINS)}"
         elif base == "block":
             v = r.choice(BLOCKS)
         elif base == "flat":
@@ -318,7 +336,7 @@ class Filler:
         elif base == "fee":
             v = r.choice(["£1.99", "£2.99", "£1.45", "£3.20", "£2.50", "£0.99", "£1.79", "£4.95"])
         elif base == "levy":
-            v = f"£{r.choice([48, 55, 60, 72, 85, 96, 120, 135])}.00"
+            v = f"£{r.choice([48, 55, 60, 72, 85, 96, 120, 135])}" + r.choice(["", "", ".00"])
         elif base == "pct":
             v = f"{r.choice([4, 5, 6, 7, 8, 9, 11, 12, 15])}%"
         elif base == "big":
@@ -642,6 +660,37 @@ OK_TEMPLATES: dict[str, list[str]] = {
         "Half price {pizza|curry|fish and chips} at the place on {street} on Mondays, {just so you know|if anyone fancies it|we went last week}!",
         "Reminder: the {event} deposit for the hall is {price}, I've paid it from the events account so nobody needs to send me anything.",
     ],
+    # Everyday life that touches the words on examples/watchlist.txt.
+    "community": [
+        "The wheelchair ramp by {block} is blocked by bikes again, {name} couldn't get out {last night|this morning}. Please use the bike store.",
+        "Could someone help push {name}'s wheelchair up Lantern Hill {when}? The new chair is heavy and the pavement's rough.",
+        "Does anyone know a taxi firm with a wheelchair accessible car? Mum's visiting {when}.",
+        "Pension day at the post office is {day}, I can give anyone a lift who needs it. Leaving {block} at {time}.",
+        "Anyone know who to ask about a state pension forecast? The letter from the pension service makes no sense to me.",
+        "The pensioners' lunch club is {day} at {time} in {venue}, all welcome, {small} for soup and a pudding.",
+        "I'm a pensioner on my own and can't manage the {furn} on the stairs, could someone give me a hand {when}?",
+        "Is there a pensioner discount for the {event}? My neighbour is on a fixed income.",
+        "Big thanks to the pensioners who knitted the blankets for the {event} raffle!",
+        "I'm pregnant and the doctor says no lifting, so could someone help me carry the {furn} down {when}?",
+        "Congratulations to {name}, who's pregnant with twins! We're collecting for a double buggy, the tin is in {venue}.",
+        "Could whoever parks in the disabled bay outside {block} without a badge please stop, {name} had to park on {street}.",
+        "My brother is disabled and staying with me {when}, is the lift in {block} working?",
+        "We're collecting coats, toys and bedding for the refugee welcome group, drop them at {flat} {block} by {day}.",
+        "The refugee family who moved into {block} would love some help with English, {name} is organising a rota.",
+        "Jumble sale at St Brannoc's church {when}, all proceeds to the lifeboat. Bring your bric-a-brac to {venue}.",
+        "The church hall on {street} runs a free toddler group on {day} mornings, lovely bunch.",
+        "The mosque on Kelp Street is doing a free community supper {when}, everyone welcome, no need to book.",
+        "The mosque food bank needs volunteers on {day}, {name} is putting a list together.",
+        "Does anyone speak Polish? My new neighbour in {block} is learning English and would love to join the {event}.",
+        "The Polish deli on Quay Street has the good rye bread back, get there early!",
+        "Polish conversation group meets in {venue} on {day}s, beginners very welcome.",
+        "My carer comes at {time}, so could you drop the {tool} round after that?",
+        "I'm a carer for my mum so I can't do the {event} stall this year, sorry. Happy to bake though.",
+        "Does anyone know if carers get a discount on the workshop fee? Asking for {name}.",
+        "The benefits advice session is at the library {when}, free and confidential, no appointment needed.",
+        "If you're on benefits you can have the workshop fee waived, just ask the {fin} in confidence.",
+        "Anyone been to the benefits drop-in at the community centre? Is it worth going?",
+    ],
     "short": [
         "Thanks!", "Cheers {name}", "On my way", "Running 5 mins late sorry", "Sounds good", "Perfect, see you then",
         "Yes please!", "No worries at all", "Ta x", "Brilliant, thank you", "Will do", "Sorry, missed this!",
@@ -650,20 +699,38 @@ OK_TEMPLATES: dict[str, list[str]] = {
         "Haha yes", "Oh no! Hope it's ok", "Sure, just knock", "Let me check and get back to you",
     ],
 }
+# Sentences of everyday harbour life added to some ordinary messages, so the
+# normal class has a vocabulary of its own beyond function words.
+OK_DETAIL_SHARE = 0.3
+OK_DETAILS = [
+    "The ferry was late again this morning.", "Tide's right up over the slipway tonight.",
+    "The kids are off school all week so it's chaos here.", "The allotment is drowning in {plant}.",
+    "Lovely to see the harbour lights back on.", "My knee's still playing up so I'm avoiding the stairs.",
+    "The gulls are nesting on our balcony again.", "The bakery on {street} has the cinnamon buns back.",
+    "{kid} has chickenpox so we're stuck indoors.", "The fishing boats were all in early because of the wind.",
+    "We're repainting the hallway so it smells of gloss.", "The lifeboat crew were out practising in the bay.",
+    "Our boiler finally got fixed, hooray.", "The nursery is shut {day} for staff training.",
+    "Tomatoes on the roof terrace are finally ripening.", "Mum's staying with us till {day}.",
+    "The drying green is a swamp after all that rain.", "The seals were back on the breakwater this morning!",
+    "I've been on nights all week so apologies if I'm slow to reply.", "The new bench by the harbour wall is lovely.",
+    "{kid} wants to know if your dog can come to the beach again.", "The chippy queue was out the door last night.",
+    "The library has started doing homework club on {day}s.", "Still unpacking boxes from the move.",
+]
 OK_WEIGHTS = {
     "borrow": 15, "sell": 14, "childcare": 10, "workshop": 9, "event": 10, "raffle": 2.5,
     "coop": 8, "parcel": 5, "recommend": 6, "general": 12, "money_talk": 3, "short": 8,
-    "lookalike": 18, "followup": 3, "favour": 7,
+    "lookalike": 18, "followup": 3, "favour": 7, "community": 6,
 }
 
 # ---------------------------------------------------------------------------
 # Scam messages
 # ---------------------------------------------------------------------------
 
-PARCEL_URL = "http://parcel-fee.example.net/{tok}"
-LEVY_URL = "{http://tideway-levy.example.net/pay/{tok}|http://{ip}/tideway/levy|http://tidewaycommons-members.example.net/levy?id={tok}|http://secure-pay.example.net/tideway/{tok}}"
-LOGIN_URL = "{http://tideway-app-verify.example.net/{tok}|http://{ip}/login|http://members-tideway.example.net/verify?u={tok}}"
-INVEST_URL = "{http://harbour-capital.example.net/join/{tok}|http://quaywealth.example.net/{tok}|http://{ip}/invest}"
+# Where a scam sends its victim: mostly a link, sometimes a phone line instead.
+PARCEL_URL = "{http://parcel-fee.example.net/{tok}|{scamurl}|the payment line {phone}|the depot desk on {phone}}"
+LEVY_URL = "{http://tideway-levy.example.net/pay/{tok}|http://tidewaycommons-members.example.net/levy?id={tok}|http://secure-pay.example.net/tideway/{tok}|http://{ip}/tideway/levy|the co-op payments line {phone}|the payments desk on {phone}}"
+LOGIN_URL = "{http://tideway-app-verify.example.net/{tok}|http://members-tideway.example.net/verify?u={tok}|{scamurl}|the support line {phone}}"
+INVEST_URL = "{http://harbour-capital.example.net/join/{tok}|http://quaywealth.example.net/{tok}|{scamurl}|my direct line {phone}}"
 
 SCAM_TEMPLATES: dict[str, list[str]] = {
     "parcel": [
@@ -715,6 +782,13 @@ SCAM_TEMPLATES: dict[str, list[str]] = {
         "Hi, I don't usually do this but my cousin got me into this trading group and I've made {big} already. Happy to share the link if you want: " + INVEST_URL,
         "Members only offer: invest {big} today and receive {bigger} back in 30 days. Limited to 10 Tideway Commons members. " + INVEST_URL,
         "Hello, I hope you don't mind me messaging. I help people in the area make extra money from home, {pct} a week on average. Shall I send you the details?",
+        "Worried your pension won't stretch? Our club turns {big} of pension savings into {bigger} in a year. Book a free call: {scamurl}",
+        "Over 55? You can release your pension early and invest it with us at {pct} a month, guaranteed. Don't miss out: " + INVEST_URL,
+        "As a pensioner you qualify for our members' bond: {pct} a month, guaranteed. Reply today, places are limited.",
+        "Hello, I help pensioners in Brackenmouth move their pension into a guaranteed scheme paying {pct} a week. Reply YES and I'll call you today.",
+        "Pension review for Tideway Commons members: you may be owed {big} from an old pension. Check today at {scamurl}",
+        "URGENT: pensioners can claim a {big} winter pension top-up before {day}. Send your bank details to {scammail} to receive it.",
+        "Your pension provider has frozen your account. Verify your identity within 24 hours to release your pension: {scamurl}",
     ],
     "account": [
         "Tideway Commons app: unusual sign-in detected on your account. Verify your identity within 24 hours or your account will be locked: " + LOGIN_URL,
@@ -763,24 +837,24 @@ SCAM_WEIGHTS = {"soft": 40, "followup": 12, "parcel": 22, "courier": 18, "levy":
 # ---------------------------------------------------------------------------
 
 ADVERT_TEMPLATES = [
-    "{bizname}: {service}. {pitch} {Offer|Special offer|Right now}: {offer}. Call {phone} or visit {site}",
+    "{bizname}: {service}. {pitch} {Offer|Special offer|Right now}: {offer}. Call {advphone} or visit {site}",
     "{Hi|Hello}! {bizname} {is now covering|now covers} {street} and the Tideway Commons flats. {pitch} We're offering {offer}. Book at {site}",
-    "Looking for {service}? {bizname}: {offer}. {pitch} Call or text {phone}.",
+    "Looking for {service}? {bizname}: {offer}. {pitch} Call or text {advphone}.",
     "{bizname} - {offer}! {pitch} {site}",
-    "Hi neighbour! I run {bizname} just round the corner on {street}. {Thought you might be interested|Just letting the co-op know}: {offer}. Give me a ring on {phone}{| x}",
+    "Hi neighbour! I run {bizname} just round the corner on {street}. {Thought you might be interested|Just letting the co-op know}: {offer}. Give me a ring on {advphone}{| x}",
     "Hiya, it's {advsender} from {bizname}. We're doing {service} for a few flats in {block} next week and can do {offer}. Want me to add you? {phone}",
     "NEW IN BRACKENMOUTH: {bizname}. {pitch} {offer}. {site} / {phone}",
     "Hi, sorry for the DM! {bizname} is offering Tideway Commons residents {offer}. {pitch} Details at {site}",
-    "{bizname} | {service} | {offer} | call {phone} | {site}",
-    "Hello from {bizname}! We're new to {street} and wanted to say hi. {pitch} Quote TIDEWAY for {offer}. Call us on {phone}.",
+    "{bizname} | {service} | {offer} | call {advphone} | {site}",
+    "Hello from {bizname}! We're new to {street} and wanted to say hi. {pitch} Quote TIDEWAY for {offer}. Call us on {advphone}.",
     "{pitch} {bizname}, {offer}, this week only. Reply STOP to opt out. {site}",
     "Evening! Still thinking about {service}? {bizname} can fit you in {when}, {offer}. {phone}",
-    "Hi, I saw someone on the app asking about {service}. I'm {advsender}, I run {bizname}. {pitch} Email me at {biz_email} or call {phone}.",
+    "Hi, I saw someone on the app asking about {service}. I'm {advsender}, I run {bizname}. {pitch} Email me at {biz_email} or call {advphone}.",
     "Hey! Local family business here, {bizname}. {pitch} Ask about {offer}. Check out our reviews at {site}",
-    "{bizname} {spring|summer|autumn|winter|new year} offer: {offer}. {pitch} Book online at {site} or ring {phone}",
+    "{bizname} {spring|summer|autumn|winter|new year} offer: {offer}. {pitch} Book online at {site} or ring {advphone}",
     "Don't miss out! {bizname} has {offer}, only {num} slots left in {month}. {site}",
-    "Hiya, hope you don't mind me messaging. My mate {advsender} has just started {bizname} and is doing {offer}. Give them a shout on {phone}, they'd really appreciate it.",
-    "hi there {bizname} here, {offer}, ring {phone} thanks",
+    "Hiya, hope you don't mind me messaging. My mate {advsender} has just started {bizname} and is doing {offer}. Give them a shout on {advphone}, they'd really appreciate it.",
+    "hi there {bizname} here, {offer}, ring {advphone} thanks",
     "Dear resident, {bizname} would like to introduce ourselves. {pitch} {pitch2} To celebrate we're offering {offer}. Visit {site} or email {biz_email}.",
 ]
 # Adverts that read like a neighbour: no company name, often no link.
@@ -808,6 +882,130 @@ def advert_text(f: Filler) -> str:
     f.cache["biz_email"] = r.choice(["hello", "bookings", "info", "enquiries"]) + "@example.com"
     f.cache["advsender"] = r.choice(ADVERT_SENDERS)
     return f.fill(r.choice(ADVERT_SOFT if soft else ADVERT_TEMPLATES))
+
+
+# ---------------------------------------------------------------------------
+# Placeholders: links, phone numbers, e-mail addresses, IP addresses
+# ---------------------------------------------------------------------------
+# Every class uses every kind, at its own realistic rate, and the scheme and
+# the reserved domain of a link or mailbox are drawn the same way whatever the
+# class: a model trained here must find its evidence in the words (fees,
+# threats, offers, borrowing), not in which reserved value a class was given.
+
+SCHEMES = ["https://", "http://", "www.", "https://www.", ""]
+RESERVED_DOMAINS = ["example.org", "example.net", "example.com"]
+OK_HOSTS = [
+    "tideway", "photos", "forms", "tideway-coop", "harbour-news", "brackenmouth-council", "lifeboat",
+    "tools.tideway", "members.tideway", "docs", "pics", "share", "calendar.tideway", "maps",
+    "brackenmouth-library", "harbour-school", "allotments", "ferry-times",
+]
+SCAM_HOSTS = [
+    "parcel-fee", "secure-pay", "tideway-levy", "members-verify", "prize-claim", "harbour-capital",
+    "tideway-app", "refund-portal", "track-parcel", "quaywealth", "redelivery", "account-check",
+]
+SCAM_MAILBOXES = ["claims", "support.team", "refunds", "member.services", "prize.desk", "wealth.advice", "secure.payments"]
+
+_RESERVED_HOST = re.compile(r"(?<![@\w.-])(?:https?://)?(?:www\.)?((?:[\w-]+\.)*?)example\.(?:org|net|com)\b")
+_RESERVED_MAIL = re.compile(r"@example\.(?:org|net|com)\b")
+_IP_SCHEME = re.compile(r"https?://(?=192\.0\.2\.)")
+
+
+def link(rng: random.Random, hosts: list[str]) -> str:
+    """A web address under a reserved domain, with an optional path."""
+    host = rng.choice(hosts)
+    path = rng.choice(["", "/" + "".join(rng.choice(_TOKEN_ALPHABET) for _ in range(rng.randrange(4, 8)))])
+    return f"{rng.choice(SCHEMES)}{host}.{rng.choice(RESERVED_DOMAINS)}{path}"
+
+
+def respread(rng: random.Random, text: str) -> str:
+    """Redraw the scheme and reserved domain of every link and mailbox in ``text``.
+
+    Templates were written with one domain per class; redrawing them here keeps
+    the host words (``parcel-fee``, ``photos``) and drops the class signal.
+    """
+    text = _RESERVED_HOST.sub(lambda m: f"{rng.choice(SCHEMES)}{m.group(1)}{rng.choice(RESERVED_DOMAINS)}", text)
+    text = _RESERVED_MAIL.sub(lambda m: "@" + rng.choice(RESERVED_DOMAINS), text)
+    return _IP_SCHEME.sub(lambda m: rng.choice(["http://", "https://", ""]), text)
+
+
+PLACEHOLDER_PATTERNS = {
+    "link": re.compile(r"(?<![@\w.-])(?:https?://|www\.)?(?:[\w-]+\.)*example\.(?:org|net|com)|https?://192\.0\.2\.", re.I),
+    "phone": re.compile(r"\b555[- ]01\d\d\b"),
+    "email": re.compile(r"@example\.(?:org|net|com)\b"),
+    "ip": re.compile(r"\b192\.0\.2\.\d{1,3}\b"),
+}
+# Chance that a message gets a sentence with a placeholder of each kind
+# appended (when it has none of that kind already); README.md states the
+# resulting shares per class.
+EXTRA_RATES = {
+    "ok": {"link": 0.12, "phone": 0.08, "email": 0.04, "ip": 0.006},
+    "scam": {"link": 0.08, "phone": 0.08, "email": 0.05, "ip": 0.01},
+    "advert": {"link": 0.05, "phone": 0.03, "email": 0.04, "ip": 0.015},
+}
+EXTRAS = {
+    "ok": {
+        "link": ["Photos here: {okurl}", "Details are on {okurl}.", "It's all on {okurl} if you want to read it.",
+                 "(link: {okurl})", "Map's here {okurl}", "Sign-up sheet is online too: {okurl}", "Pics: {okurl}",
+                 "The timetable is on {okurl} btw.", "I put the notes on {okurl}."],
+        "phone": ["My number's {phone} if it's easier to text.", "Text me on {phone}.", "Ring {phone} if I don't answer here.",
+                  "Call me on {phone} when you're outside.", "This is my new number btw, {phone}.", "Mum's landline is {phone} if I'm out."],
+        "email": ["Or email me at {mail}.", "My email is {mail} if that's easier.", "Send it to {mail} and I'll print it.",
+                  "Forward it to {mail}, I'll sort it tonight."],
+        "ip": ["The printer in the common room is on {ip} if it doesn't show up.", "The bike store camera is at {ip}, {name} has the login.",
+               "If the Wi-Fi drops again, the router page is {ip}."],
+    },
+    "scam": {
+        "link": ["Details: {scamurl}", "Confirm here: {scamurl}", "More info {scamurl}", "Use this secure page: {scamurl}",
+                 "Act now {scamurl}"],
+        "phone": ["Call {phone} to confirm.", "Text me on {phone}, this app is slow.", "Or call our team on {phone}.",
+                  "My new number is {phone}, message me there.", "WhatsApp me on {phone}."],
+        "email": ["Send your details to {scammail}.", "Reply to {scammail} today.", "Email {scammail} to claim."],
+        "ip": ["Secure portal: http://{ip}/{tok}", "Log in at http://{ip} to confirm."],
+    },
+    "advert": {
+        "link": ["{site}", "More at {site}", "Reviews: {site}"],
+        "phone": ["Call {phone}.", "Text {phone} for a quote.", "Ring us on {phone}."],
+        "email": ["Email {biz_email}.", "Or email {biz_email}."],
+        "ip": ["Test your current speed on our checker at {ip}."],
+    },
+}
+
+
+# Plain connective sentences for the flagged classes, so that "the", "it",
+# "is" and "if" are about as common on every side and the evidence for the
+# normal class is carried by what members talk about.
+RIDER_SHARE = {"scam": 0.45, "advert": 0.5}
+RIDERS = {
+    "scam": [
+        "If the link doesn't open, just reply here and I'll sort it for you.", "It is all done in a couple of minutes.",
+        "The team is on it till late if you have any questions.", "If it's easier I can call you in the morning.",
+        "It's the same as last time, nothing to worry about.", "Sorry if this is a bother, it is quite time sensitive.",
+        "The office said it has to be done by the end of the day.", "Is that ok? I know it's a lot to ask.",
+        "I'm in the block by the harbour if you want to check.", "The deadline is tonight so please don't leave it.",
+        "It only takes a minute on your phone.", "If you have any problems with it, let me know.",
+    ],
+    "advert": [
+        "If you're interested, the first visit is on the house.", "It's the same team that did the flats on {street}.",
+        "The offer is on till the end of the month.", "Is it ok if I drop a leaflet in the post room?",
+        "If you know anyone else in the co-op who might want it, please pass it on.", "It is a small local business so every booking helps.",
+        "We're in the area on {day} if that's any good.", "The price includes everything, no hidden extras.",
+        "It's all fully insured and we tidy up after.", "If now's not a good time, just save the number for later.",
+    ],
+}
+
+
+def add_rider(f: Filler, label: str, text: str) -> str:
+    if label in RIDERS and f.rng.random() < RIDER_SHARE[label]:
+        text = tidy(text + " " + f.fill(f.rng.choice(RIDERS[label])))
+    return text
+
+
+def add_placeholders(f: Filler, label: str, text: str) -> str:
+    """Append placeholder sentences at the class's rates (see EXTRA_RATES)."""
+    for kind, rate in EXTRA_RATES[label].items():
+        if f.rng.random() < rate and not PLACEHOLDER_PATTERNS[kind].search(text):
+            text = text.rstrip() + " " + f.fill(f.rng.choice(EXTRAS[label][kind]))
+    return text
 
 
 # ---------------------------------------------------------------------------
@@ -926,15 +1124,23 @@ def _weighted_key(rng: random.Random, weights: dict[str, float]) -> str:
 
 def make_message(rng: random.Random, label: str) -> tuple[str, str]:
     """Return (text, sub-kind) for a message whose true label is ``label``."""
-    f = Filler(rng)
+    f = Filler(rng, label)
     if label == "ok":
         kind = _weighted_key(rng, OK_WEIGHTS)
         if kind == "followup":
             text = tidy(f.fill(rng.choice(FOLLOWUPS["ok"])))
         elif kind == "favour":
             text = tidy(ok_favour(f))
+        elif kind == "short":
+            first, second = rng.sample(OK_TEMPLATES["short"], 2)
+            text = f.fill(first)
+            if rng.random() < 0.5:
+                text += f.fill("{, |! |. | }") + f.fill(second)
+            text = tidy(text + f.fill("{| x| :)| {name}| thanks}"))
         else:
             text = tidy(f.fill(rng.choice(OK_TEMPLATES[kind])))
+            if rng.random() < OK_DETAIL_SHARE:
+                text = tidy(text + " " + f.fill(rng.choice(OK_DETAILS)))
             if rng.random() < 0.06 and kind in ("general", "lookalike", "recommend") and not _GREETING.match(text):
                 text = join_opener(f.fill(rng.choice(GENERIC_OPENERS)), text)
             if rng.random() < 0.12 and kind not in ("short", "coop"):
@@ -963,7 +1169,9 @@ def make_message(rng: random.Random, label: str) -> tuple[str, str]:
             kind = "advert"
             text = tidy(advert_text(f))
         text = casual(rng, text, 0.2)
-    return text, kind
+    if kind != "short":
+        text = add_placeholders(f, label, add_rider(f, label, text) if kind != "followup" else text)
+    return respread(rng, text), kind
 
 
 # ---------------------------------------------------------------------------
@@ -1003,7 +1211,7 @@ def build(seed: int = SEED) -> tuple[list[dict[str, str]], list[dict[str, str]]]
     for label in labels:
         for _attempt in range(50):
             text, kind = make_message(rng, label)
-            if text not in seen or kind == "short":
+            if text not in seen:
                 break
         seen.add(text)
         drafts.append({"true": label, "kind": kind, "text": text, "when": sent_at(rng, text)})

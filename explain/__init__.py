@@ -33,6 +33,8 @@ _PUBLIC = {
     "train_filter": "explain.model.training",
     "explain_message": "explain.analysis.evidence",
     "Explanation": "explain.analysis.evidence",
+    "ledger_of": "explain.analysis.ledger",
+    "Ledger": "explain.analysis.ledger",
     "score_texts": "explain.analysis.batch",
     "batch_evidence": "explain.analysis.batch",
     "BatchEvidence": "explain.analysis.batch",

@@ -23,7 +23,7 @@ GENERATOR = CORPUS / "generate.py"
 
 RESERVED_MAIL_DOMAINS = {"example.org", "example.net", "example.com"}
 IPV4 = re.compile(r"(?<![\d.])(\d{1,3}(?:\.\d{1,3}){3})(?![\d])")
-URL = re.compile(r"\b(?:https?://|www\.)([^/\s?#]+)", re.IGNORECASE)
+URL = re.compile(r"\b(?:https?://|www\.)([^/\s?#(),;!]+)", re.IGNORECASE)
 BARE_HOST = re.compile(r"\b((?:[a-z0-9-]+\.)+(?:com|org|net|uk|io|co|info|biz))\b", re.IGNORECASE)
 EMAIL = re.compile(r"[\w.+-]+@([\w-]+(?:\.[\w-]+)+)")
 # Digit groups joined by single spaces, dots, dashes or brackets; seven or more

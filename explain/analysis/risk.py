@@ -286,3 +286,36 @@ def watchlist_columns(terms, tokens) -> np.ndarray:
     return np.array(
         [found.get(term, found.get(term.lower(), -1)) for term in terms], dtype=np.int64
     )
+
+
+def personal_spans(text: str) -> list[tuple[int, int, str]]:
+    """``(start, end, kind)`` of personal-looking values in free text, left to right, not overlapping.
+
+    The same patterns as the ``personal`` flag, searched in the whole text
+    rather than in single tokens: a vectorizer that splits
+    ``warden@example.org`` into pieces leaves the text itself to be masked.
+    The patterns find where a value starts (a URL's scheme, say), so each
+    match is widened to the whole run of non-space characters around it, less
+    trailing punctuation. Where matches overlap, the earlier (then the
+    longer) wins.
+    """
+
+    def widened(m) -> tuple[int, int]:
+        start = m.start() - len(re.search(r"\S*$", plain[: m.start()]).group())
+        tail = re.match(r"\S*", plain[m.end() :]).group().rstrip(".,;:!?)]}'\"")
+        return start, m.end() + len(tail)
+
+    # Punctuation that ends a sentence is not part of a value ("at 192.0.2.7.");
+    # blanking it keeps every offset.
+    plain = re.sub(r"[.,;:!?](?=\s|$)", " ", text)
+    found = sorted(
+        ((*widened(m), PERSONAL_KINDS[k]) for k, pattern in enumerate(_PERSONAL_PATTERNS)
+         for m in pattern.finditer(plain) if m.end() > m.start()),
+        key=lambda s: (s[0], -(s[1] - s[0])),
+    )
+    kept: list[tuple[int, int, str]] = []
+    for start, end, kind in found:
+        if kept and start < kept[-1][1]:
+            continue
+        kept.append((start, end, kind))
+    return kept
