@@ -11,14 +11,14 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from explain.analysis.assessment import Assessment, assess
 from explain.analysis.batch import batch_evidence
-from explain.analysis.evidence import Explanation, explain_message
-from explain.analysis.redaction import MODES, mask_text, redact_assessment, redact_explanation
+from explain.analysis.ledger import Ledger, ledger_of, redacted
+from explain.analysis.redaction import MODES, mask_value, redact_assessment, withhold_text
 from explain.analysis.risk import Watchlist
 from explain.analysis.vocab import VocabReview, review_vocabulary
 from explain.errors import NbledgerError
@@ -50,14 +50,6 @@ class ReportSettings:
             raise NbledgerError(f"--max-messages must be at least 1, got {self.max_messages}")
         if self.threshold is not None and not 0.0 < self.threshold < 1.0:
             raise NbledgerError(f"--threshold must be a probability between 0 and 1, got {self.threshold}")
-
-
-@dataclass(frozen=True)
-class ExplainedMessage:
-    """One message of the *explained messages* section: its id and its account (redacted as settings say)."""
-
-    id: str
-    explanation: Explanation
 
 
 @dataclass(frozen=True)
@@ -149,7 +141,8 @@ class Report:
 
     ``assessment`` is None without labelled data; ``explained_source`` says
     where the explained messages came from (``"file"``: ``--explain``;
-    ``"sample"``: flagged messages of the labelled data; None: neither).
+    ``"sample"``: flagged messages of the labelled data; None: neither);
+    ``explained`` holds their ledgers, redacted as the settings say.
     ``date`` is ``SOURCE_DATE_EPOCH`` when set (reproducible builds), else now (UTC).
     """
 
@@ -163,7 +156,7 @@ class Report:
     vocab: VocabReview
     assessment: Assessment | None
     headline: Headline | None
-    explained: tuple[ExplainedMessage, ...]
+    explained: tuple[Ledger, ...]
     explained_source: str | None
     explained_total: int
     versions: dict
@@ -209,6 +202,14 @@ def flagged_sample(model, texts, threshold: float | None, n: int) -> np.ndarray:
     return ranked[np.unique(np.linspace(0, len(ranked) - 1, n).round().astype(int))]
 
 
+def _redacted_ledger(ledger: Ledger, mode: str) -> Ledger:
+    if mode == "none":
+        return ledger
+    masked = redacted(ledger)
+    masked = withhold_text(masked) if mode == "bodies" else masked
+    return replace(masked, message_id=None if ledger.message_id is None else mask_value(ledger.message_id))
+
+
 def build_report(
     model,
     *,
@@ -252,9 +253,8 @@ def build_report(
         source, texts, ids, rows = None, [], [], np.arange(0)
     total = len(texts) if source == "file" else len(rows)
     explained = tuple(
-        ExplainedMessage(
-            id=str(ids[i]) if redact == "none" else mask_text(str(ids[i]))[0],
-            explanation=redact_explanation(explain_message(model, texts[i], settings.threshold), redact),
+        _redacted_ledger(
+            ledger_of(model, texts[i], settings.threshold, message_id=str(ids[i]), watchlist=watchlist), redact
         )
         for i in rows[: settings.max_messages]
         if texts[i].strip()

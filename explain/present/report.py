@@ -30,8 +30,6 @@ from explain.analysis.report import Report
 from explain.present.drawing import NEUTRAL, class_colours
 from explain.present.report_json import to_json
 
-#: Tokens listed in each explained message's evidence table; the rest are in the JSON twin.
-EVIDENCE_ROWS = 12
 #: Evidence strength is shown in this many steps of lightness.
 STRENGTH_STEPS = 4
 
@@ -104,37 +102,29 @@ def data_uri(png: bytes) -> str:
 
 
 def tinted_segments(message: dict, colours: dict) -> list[dict]:
-    """The message text cut at its tokens' spans (from the JSON twin), each token with its tint.
+    """A ledger's text cut at its entries' spans (from the JSON twin), each entry's words with their tint.
 
-    A token pushing toward the decided class (``predicted``) takes that
-    class's colour, one pushing the other way the runner-up's; lightness says
-    strength (``STRENGTH_STEPS`` steps relative to the message's strongest
-    token), and a mark (``+`` toward the decided class, ``-`` against) keeps
-    the direction without colour.
+    A word takes the colour of the class its entry pushes toward (``toward``);
+    lightness says strength (``STRENGTH_STEPS`` steps relative to the
+    message's largest entry); a mark (▲ credit, ▼ debit) keeps the direction
+    without colour.
     """
     text = message["text"]
-    spans = []
-    for t in message["tokens"]:
-        for start, end in t["spans"] or ():
-            spans.append((start, end, t))
-    spans.sort(key=lambda s: s[0])
-    strongest = max((abs(t["evidence"]) for t in message["tokens"] if t["evidence"] is not None), default=0.0) or 1.0
+    spans = sorted(((start, end, e) for e in message["entries"] for start, end in e["spans"]), key=lambda s: s[:2])
+    largest = max((abs(e["amount"]) for e in message["entries"]), default=0.0) or 1.0
     segments, at = [], 0
-    for start, end, t in spans:
+    for start, end, e in spans:
         if start < at:
             continue  # overlapping n-grams: the first wins
         if start > at:
             segments.append({"text": text[at:start]})
-        toward = message["predicted"] if t["evidence"] >= 0 else message["runner_up"]
-        step = max(1, min(STRENGTH_STEPS, round(STRENGTH_STEPS * abs(t["evidence"]) / strongest)))
-        family = colours.get(toward, NEUTRAL)
+        step = max(1, min(STRENGTH_STEPS, round(STRENGTH_STEPS * abs(e["amount"]) / largest)))
         segments.append(
             {
                 "text": text[start:end],
-                "background": family.shade((step - 1) / (STRENGTH_STEPS - 1) * 0.85),
+                "background": colours.get(e["toward"], NEUTRAL).shade((step - 1) / (STRENGTH_STEPS - 1) * 0.85),
                 "ink": "#ffffff" if step >= 3 else "#111111",
-                "mark": "+" if t["evidence"] >= 0 else "−",
-                "step": step,
+                "mark": "▲" if e["amount"] > 0 else "▼",
             }
         )
         at = end
@@ -150,7 +140,7 @@ def context(report: Report, twin: dict, pictures: dict[str, bytes]) -> dict:
     """What the template reads: the JSON twin, the pictures as data: URIs, and the class colours."""
     families = class_colours(report.vocab.classes, report.vocab.normal_class)
     messages = [
-        {**m, "segments": tinted_segments(m, families) if m["text"] else [], "evidence_rows": EVIDENCE_ROWS}
+        {**m, "segments": tinted_segments(m, families) if m["text"] else []}
         for m in twin["explained_messages"]["messages"]
     ]
     return {
@@ -159,7 +149,6 @@ def context(report: Report, twin: dict, pictures: dict[str, bytes]) -> dict:
         "pictures": {name: data_uri(png) for name, png in pictures.items()},
         "colours": {name: family.base for name, family in families.items()},
         "missing": dict(twin["sections"]),
-        "evidence_rows": EVIDENCE_ROWS,
     }
 
 
