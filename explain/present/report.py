@@ -159,6 +159,25 @@ def render_html(report: Report, twin: dict | None = None, pictures: dict[str, by
     return environment().get_template("report.html.j2").render(**context(report, twin, pictures))
 
 
+def render_sheet_html(ledger, facts, *, date, redaction: str, paper: str = "a4") -> str:
+    """The one-page sheet of one decision (a :class:`~explain.analysis.ledger.Ledger`, redacted as ``redaction`` says)."""
+    import dataclasses
+
+    from explain.analysis.report import versions
+    from explain.present.report_json import _finite, ledger_json
+
+    msg = _finite(ledger_json(ledger))
+    families = class_colours(ledger.classes, ledger.normal_class)
+    return environment().get_template("sheet.html.j2").render(
+        msg={**msg, "segments": tinted_segments(msg, families) if msg["text"] else []},
+        m=_finite(dataclasses.asdict(facts)),
+        date=date.isoformat(),
+        redaction=redaction,
+        paper=paper,
+        versions=versions(),
+    )
+
+
 # --- PDF -----------------------------------------------------------------------------
 
 
