@@ -406,10 +406,7 @@ def ledger_of(
 
     normal_name = None if normal is None else classes[normal]
     if threshold is None:
-        method = (
-            f"log-odds of {classes[credit[0]]} against {classes[debit]}: "
-            f"jll[{classes[credit[0]]}] - jll[{classes[debit]}] (joint log-likelihoods)"
-        )
+        method = f"log-odds of {classes[credit[0]]} against {classes[debit]} = jll[{classes[credit[0]]}] - jll[{classes[debit]}]"
         credit_name = classes[credit[0]]
     elif additive:
         method = f"log P(not {normal_name}) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"

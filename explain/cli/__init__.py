@@ -45,11 +45,11 @@ def warn(message: str) -> None:
     err_console.print(f"warning: {message}", markup=False, soft_wrap=True)
 
 
-def read_messages_or_fail(data: Path, text_col: str, label_col: str | None = None):
+def read_messages_or_fail(data: Path, text_col: str, label_col: str | None = None, id_col: str | None = None):
     """Read a data file; say how many invalid UTF-8 sequences were replaced."""
     from explain.model.data_io import read_messages
 
-    messages = read_messages(data, text_col, label_col)
+    messages = read_messages(data, text_col, label_col, id_col)
     if messages.replaced_chars:
         warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
     return messages

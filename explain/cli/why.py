@@ -1,19 +1,22 @@
-"""``nbledger why``: the exact account of one message's score."""
+"""``nbledger why``: one message's decision told as a ledger."""
 
 from __future__ import annotations
 
-import json
+import datetime as _dt
+import os
 import sys
 from pathlib import Path
 from typing import List, Optional
 
 import typer
+from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, warn
+from explain.cli import app, console, fail, load_model_or_fail, read_messages_or_fail, warn
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
 MAX_MESSAGE_BYTES = 1024 * 1024
+COLOR_CHOICES = ("auto", "always", "never")
 
 
 def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MESSAGE_BYTES) -> str:
@@ -31,7 +34,7 @@ def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MES
         raw = file.read_bytes()
     elif text == "-" or text is None:
         if text is None and sys.stdin.isatty():
-            fail("give the message as TEXT, with --file F, or on standard input with -")
+            fail("give the message as TEXT, with --file F, on standard input with -, or --data F --id ID")
         raw = sys.stdin.buffer.read(limit + 1)
         if len(raw) > limit:
             fail(too_big)
@@ -45,34 +48,140 @@ def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MES
     return decoded
 
 
+def record_date() -> str:
+    """The date of a record: ``SOURCE_DATE_EPOCH`` when set (reproducible builds), else now, in UTC."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None:
+        try:
+            moment = _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            fail(f"SOURCE_DATE_EPOCH must be whole seconds since 1970, got {epoch!r}")
+    else:
+        moment = _dt.datetime.now(_dt.timezone.utc)
+    return moment.replace(microsecond=0).isoformat().replace("+00:00", "Z")
+
+
+def read_id_list(path: Path) -> list[str]:
+    """Ids one a line; blank lines and lines starting with # are skipped."""
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except OSError as exc:
+        fail(f"cannot read the id list {path}: {exc.strerror or exc}")
+    except UnicodeDecodeError:
+        fail(f"the id list {path} is not UTF-8 text")
+    ids = [line.strip() for line in text.splitlines() if line.strip() and not line.strip().startswith("#")]
+    if not ids:
+        fail(f"the id list {path} has no ids")
+    return ids
+
+
+def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, str]]:
+    """``(id, text)`` of each wanted id; the first of duplicate ids is taken, with a warning."""
+    first: dict[str, int] = {}
+    repeats: dict[str, int] = {}
+    for row, mid in enumerate(messages.ids):
+        if mid in first:
+            repeats[mid] = repeats.get(mid, 1) + 1
+        else:
+            first[mid] = row
+    missing = [m for m in wanted if m not in first]
+    if missing:
+        more = f" (and {len(missing) - 1} more wanted ids)" if len(missing) > 1 else ""
+        fail(f"no message with id {missing[0]!r} in {source}{more}; it has {len(first):,} distinct ids")
+    for mid in dict.fromkeys(wanted):
+        if mid in repeats:
+            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {first[mid] + 1})")
+    return [(mid, messages.texts[first[mid]]) for mid in wanted]
+
+
+def console_for(color: str) -> Console:
+    """The terminal console under ``--color`` (auto honours NO_COLOR and a non-terminal output)."""
+    if color == "never":
+        return Console(highlight=False, no_color=True, color_system=None)
+    if color == "always":
+        return Console(highlight=False, force_terminal=True, no_color=False)
+    return console
+
+
 @app.command()
 def why(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     text: Optional[str] = typer.Argument(None, help="The message, or - to read standard input."),
     file: Optional[Path] = typer.Option(None, "--file", "-f", help="Read the message from this file."),
-    top: int = typer.Option(10, "--top", min=1, help="Tokens to list for and against."),
+    data: Optional[Path] = typer.Option(None, "--data", help="Data file (.csv, .jsonl, .parquet) holding the message."),
+    text_col: str = typer.Option("text", "--text-col", help="Column of --data holding the text."),
+    id_col: str = typer.Option("id", "--id-col", help="Column of --data holding message ids."),
+    message_id: Optional[str] = typer.Option(None, "--id", help="Explain the message of --data with this id."),
+    ids: Optional[Path] = typer.Option(None, "--ids", help="File of ids (one a line): explain each into one output."),
+    label_col: Optional[str] = typer.Option(
+        None, "--label-col", help="Column of --data holding classes: support then counts training-like messages."
+    ),
+    top: int = typer.Option(10, "--top", min=1, help="Largest entries to keep when a long message is folded."),
     threshold: Optional[float] = typer.Option(
         None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    output_format: str = typer.Option("text", "--format", help="text | json"),
+    output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
+    redact: bool = typer.Option(False, "--redact", help="Mask personal-looking values in the text and the entries."),
+    watchlist: Optional[Path] = typer.Option(None, "--watchlist", help="Terms to flag as watchlist (one a line)."),
+    color: str = typer.Option("auto", "--color", help="auto | always | never (auto honours NO_COLOR)."),
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
     max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
 ):
-    """Why did the filter score this message the way it did?"""
-    from explain.analysis.evidence import explain_message
-    from explain.present.why import render, to_json
+    """Why did the filter decide this message the way it did? Told as a ledger."""
+    from explain.analysis.ledger import ledger_of, redacted
+    from explain.analysis.risk import read_watchlist
+    from explain.present.why import WRITERS, render
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
-    message = read_message(text, file, max_bytes)
+    if color not in COLOR_CHOICES:
+        fail(f"--color must be auto, always or never, got {color!r}")
+    if out is not None and out.suffix.lower() not in WRITERS:
+        fail(f"--out must end in {', '.join(WRITERS)}; got {out.name!r}")
+    if (message_id is not None or ids is not None) and data is None:
+        fail("--id and --ids pick messages of a data file: give it with --data")
+    if data is not None and message_id is None and ids is None:
+        fail("--data needs --id ID or --ids FILE to pick the messages to explain")
+    if data is not None and (text is not None or file is not None):
+        fail("give the message as TEXT, with --file, or from --data, not several")
+    if message_id is not None and ids is not None:
+        fail("give --id or --ids, not both")
+    terms = read_watchlist(watchlist) if watchlist is not None else None
+
+    if data is not None:
+        wanted = read_id_list(ids) if ids is not None else [message_id]
+        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+        chosen = pick_messages(messages, wanted, data.name)
+    else:
+        messages = None
+        chosen = [(None, read_message(text, file, max_bytes))]
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    explanation = explain_message(loaded, message, threshold)
-    if output_format == "json":
-        sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2) + "\n")
+    documents = None
+    if messages is not None and label_col is not None:
+        from explain.analysis.vocab import document_counts
+
+        documents = document_counts(loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name)
+    ledgers = []
+    for mid, message in chosen:
+        ledger = ledger_of(loaded, message, threshold, message_id=mid, documents=documents, watchlist=terms)
+        ledgers.append(redacted(ledger) if redact else ledger)
+
+    date = record_date()
+    if out is not None:
+        from explain.output_files import write_atomic
+
+        write_atomic(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
+    elif output_format == "json":
+        sys.stdout.write(WRITERS[".json"](ledgers, date=date, top=top))
     else:
-        render(explanation, console, top)
+        screen = console_for(color)
+        for n, ledger in enumerate(ledgers):
+            if n:
+                screen.rule()
+            render(ledger, screen, top, date)

@@ -79,8 +79,12 @@ def decode_utf8(raw: bytes) -> tuple[str, int]:
     return text.removeprefix("\ufeff"), replaced
 
 
-def read_messages(path, text_col: str, label_col: str | None = None) -> Messages:
-    """Read messages (and labels) from a data file; see the module policy."""
+def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
+    """Read messages (and labels) from a data file; see the module policy.
+
+    Ids come from ``id_col`` when named (it must exist), else from a column
+    ``id`` when there is one, else are row numbers from 1.
+    """
     path = Path(path)
     fmt, gzipped = data_format(path)
     if not path.is_file():
@@ -99,7 +103,7 @@ def read_messages(path, text_col: str, label_col: str | None = None) -> Messages
     else:
         text, replaced = decode_utf8(raw)
         columns = _csv_columns(text, path.name) if fmt == "csv" else _jsonl_columns(text, path.name)
-    wanted = [c for c in (text_col, label_col) if c is not None]
+    wanted = [c for c in (text_col, label_col, id_col) if c is not None]
     missing = [c for c in wanted if c not in columns]
     if missing:
         found = ", ".join(map(str, columns)) or "none"
@@ -118,7 +122,7 @@ def read_messages(path, text_col: str, label_col: str | None = None) -> Messages
                 f"{path.name}: {len(gaps)} rows have no {label_col!r} (first at data row {gaps[0] + 1})"
             )
         labels = np.asarray([str(v).strip() for v in values], dtype=object)
-    ids = columns.get("id")
+    ids = columns.get("id" if id_col is None else id_col)
     ids = (
         np.asarray([str(i) for i in ids], dtype=object)
         if ids is not None

@@ -1,70 +1,81 @@
-"""Presenting an :class:`~explain.analysis.evidence.Explanation`: terminal and JSON.
+"""Presenting a :class:`~explain.analysis.ledger.Ledger`: the terminal ledger and JSON.
 
-Nothing here computes a score; every figure comes from the explanation.
+Nothing here computes a score; every figure comes from the ledger.
 
-JSON schema (``nbledger why --format json``), schema version 1:
+The terminal ledger
+-------------------
+A head (message id, model fingerprint and card date, the date of the
+record), the decision and what the balance is; then the book itself in
+debit and credit columns: the opening balance (class priors, and
+BernoulliNB's absent words as their own line), one entry per word in the
+order the words first appear, each with its running balance, and under a
+double rule the closing balance with the decision rule applied to it. Long
+messages show their largest entries and fold the others, between them, into
+lines that keep the running balance right. Each word is tinted by
+:mod:`explain.present.tint` and always carries its ▲/▼ mark.
 
-=====================  ==========================================================
-key                    meaning
-=====================  ==========================================================
-``schema``             ``"nbledger.why/1"``
-``model``              ``{path, sha256}`` of the model file
-``classes``            class labels in the model's order
-``predicted``          most probable class (scikit-learn's ``predict``)
-``runner_up``          second most probable class
-``probabilities``      class -> posterior probability (``predict_proba``)
-``log_odds``           ``jll[predicted] - jll[runner_up]`` (natural log)
-``baseline``           ``b[predicted] - b[runner_up]``: prior + absence evidence
-``baseline_prior``     the log-prior part of ``baseline``
-``baseline_absence``   BernoulliNB's absent-token part of ``baseline`` (else 0)
-``threshold``          threshold on P(not normal), or null for argmax
-``normal_class``       the class that lets a message through, or null
-``flag_probability``   P(not normal), or null without a normal class
-``decision``           the class decided under the threshold (or argmax)
-``tokens``             list of ``{token, occurrences, value, per_unit, evidence,
-                       odds_factor, spans}``; ``baseline + sum(evidence) ==
-                       log_odds``; ``spans`` are ``[start, end)`` character
-                       offsets into the message, ``null`` when unknown
-``spans_note``         why spans are unknown, or null
-``unknown_tokens``     list of ``{token, count}``: not in the vocabulary, no effect
-``flip_set``           list of ``{token, occurrences}`` whose removal changes
-                       the decision (empty when none can)
-``flip_exact``         true when the flip set is the proven minimum
-``flip_method``        ``"exact"`` or ``"greedy"``
-``flip_decision``      the decision after the removals, or null
-``flip_reason``        why the flip set is empty, or null
-``feature_kind``       ``counts``, ``binary`` or ``tfidf``
-``variant``            ``multinomial``, ``complement`` or ``bernoulli``
-=====================  ==========================================================
+JSON schema (``nbledger why --format json``)
+--------------------------------------------
+Schema ``nbledger.why/2`` keeps every key of ``nbledger.why/1`` with its
+meaning (listed in the README) and adds ``message_id``, ``date``,
+``card_date``, ``redacted`` and ``ledger`` (see :func:`to_json`).
 """
 
 from __future__ import annotations
 
 import math
 
+from rich import box
 from rich.console import Console
 from rich.table import Table
 from rich.text import Text
 
-from explain.analysis.evidence import Explanation
+from explain.analysis.ledger import Ledger
+from explain.present.drawing import class_colours
+from explain.present.tint import MARKS, tint
 from explain.present.token_display import shown
+from explain.present.wording import (
+    amount,
+    flip_sentence,
+    folded,
+    odds_factor,
+    plural,
+    probability,
+)
 
-SCHEMA = "nbledger.why/1"
-
-# Our own two-hue scale, chosen to stay apart for the common colour-vision
-# deficiencies: warm amber for evidence toward the predicted class, deep blue
-# for evidence against it; three strengths each (weak, medium, strong).
-TOWARD = ("#f6d8a8", "#eaa24b", "#b8610f")
-AGAINST = ("#c9daf2", "#7da3d9", "#2f5c9e")
+SCHEMA = "nbledger.why/2"
 DISPLAY_LIMIT = 4000
-FLIP_SHOWN = 20
+#: Messages with more entries than this show their largest and fold the rest.
+SHOW_ALL = 40
+UNKNOWN_SHOWN = 15
+CAUTION = (
+    "This ledger describes what the model computed, not whether the message is truly what it "
+    "was taken for; error rates are estimates. The message is personal data. Decisions stay "
+    "with trained staff, under local law and qualified advice."
+)
+SUPPORT_WORDS = {
+    "documents": "training messages holding the word",
+    "occurrences": "training occurrences of the word",
+    "tfidf-weights": "summed TF-IDF weights of the word in training",
+}
 
 
-def to_json(expl: Explanation, model=None) -> dict:
-    """The documented JSON object of one explanation."""
+# --- JSON -----------------------------------------------------------------
+
+
+def _finite(x: float) -> float | None:
+    return x if math.isfinite(x) else None
+
+
+def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
+    """The documented JSON object: the ``nbledger.why/1`` keys and the ledger's keys beside them."""
+    expl = ledger.explanation
+    spans_known = expl.spans_note is None
+    summary = ledger.summary(top)
+    index = {id(e): i for i, e in enumerate(ledger.entries)}
     return {
         "schema": SCHEMA,
-        "model": None if model is None else {"path": str(model.path), "sha256": model.sha256},
+        "model": None if ledger.model_path is None else {"path": ledger.model_path, "sha256": ledger.model_sha256},
         "classes": list(expl.classes),
         "predicted": expl.predicted,
         "runner_up": expl.runner_up,
@@ -85,7 +96,7 @@ def to_json(expl: Explanation, model=None) -> dict:
                 "per_unit": t.per_unit,
                 "evidence": t.evidence,
                 "odds_factor": _finite(t.odds_factor),
-                "spans": [list(s) for s in t.spans] if expl.spans_note is None else None,
+                "spans": [list(s) for s in t.spans] if spans_known else None,
             }
             for t in sorted(expl.tokens, key=lambda t: -abs(t.evidence))
         ],
@@ -98,116 +109,339 @@ def to_json(expl: Explanation, model=None) -> dict:
         "flip_reason": expl.flip.reason,
         "feature_kind": expl.feature_kind,
         "variant": expl.variant,
+        # nbledger.why/2 adds:
+        "message_id": ledger.message_id,
+        "date": date,
+        "card_date": ledger.card_date,
+        "redacted": ledger.redacted,
+        "ledger": {
+            "credit_side": ledger.credit_side,
+            "credit_classes": list(ledger.credit_classes),
+            "debit_class": ledger.debit_class,
+            "balance_method": ledger.balance_method,
+            "exact": ledger.exact,
+            "rule": ledger.rule,
+            "decision_line": _finite(ledger.decision_line),
+            "line_inclusive": ledger.line_inclusive,
+            "opening_prior": ledger.opening_prior,
+            "opening_absence": ledger.opening_absence,
+            "opening": ledger.opening,
+            "entries": [
+                {
+                    "token": e.token,
+                    "occurrences": e.occurrences,
+                    "value": e.value,
+                    "amount": e.amount,
+                    "per_occurrence": e.per_occurrence,
+                    "direction": e.direction,
+                    "toward": e.toward,
+                    "balance_after": e.balance_after,
+                    "spans": [list(s) for s in e.spans] if spans_known else None,
+                    "support": dict(zip(ledger.classes, e.support)),
+                    "flags": list(e.flags),
+                    "exact": e.exact,
+                }
+                for e in ledger.entries
+            ],
+            "closing": ledger.closing,
+            "credit_wins": ledger.credit_wins,
+            "tipped_at": ledger.tipped_at,
+            "largest": [index[id(e)] for e in summary.largest],
+            "folded_count": summary.folded_count,
+            "folded_total": summary.folded_total,
+            "support_kind": ledger.support_kind,
+            "support_source": ledger.support_source,
+            "disguised": [
+                {"token": u.token, "count": u.count, "looks_like": u.looks_like, "avoided": u.avoided}
+                for u in ledger.disguised
+            ],
+            "flip_sentence": flip_sentence(ledger.flip),
+        },
     }
 
 
-def _finite(x: float) -> float | None:
-    return x if math.isfinite(x) else None
+# --- terminal ---------------------------------------------------------------
 
 
-def _strength(evidence: float, scale: float) -> int:
-    share = abs(evidence) / scale if scale > 0 else 0
-    return 0 if share < 1 / 3 else 1 if share < 2 / 3 else 2
+def colour_mode(console: Console) -> str:
+    """``"shades"`` (256 colours or more), ``"weights"`` (16 colours) or ``"none"``."""
+    if console.no_color or console.color_system is None:
+        return "none"
+    return "shades" if console.color_system in ("256", "truecolor") else "weights"
 
 
-def tinted_text(expl: Explanation, limit: int = DISPLAY_LIMIT) -> Text:
-    """The message with each token's characters tinted by direction and strength."""
-    shown = expl.text[:limit]
-    text = Text(shown)
-    if expl.spans_note is not None:
+def _style(entry, largest: float, mode: str, families) -> str:
+    """The rich style of an entry's word: a shade (256+ colours), a weight (16 colours) or nothing."""
+    family = families[entry.toward]
+    look = tint(entry.direction, family, entry.per_occurrence, largest)
+    if mode == "shades":
+        return f"{look.foreground} on {look.background}"
+    if mode == "weights":
+        return f"{family.base} {('dim', '', 'bold')[look.level]}".strip()
+    return ""
+
+
+def _word(entry, largest: float, mode: str, families) -> Text:
+    word = Text(MARKS[entry.direction] + " ")
+    word.append(shown(entry.token), style=_style(entry, largest, mode, families))
+    return word
+
+
+def _support(entry, ledger: Ledger) -> str:
+    c, d = ledger.classes.index(_credit_class(ledger)), ledger.classes.index(ledger.debit_class)
+
+    def n(x: float) -> str:
+        return f"{x:,.0f}" if ledger.support_kind != "tfidf-weights" else f"{x:,.1f}"
+
+    return f"{n(entry.support[c])}/{n(entry.support[d])}"
+
+
+def _credit_class(ledger: Ledger) -> str:
+    """The class credits are drawn in: the credit class, or the most probable flagged class."""
+    if len(ledger.credit_classes) == 1:
+        return ledger.credit_classes[0]
+    probs = dict(zip(ledger.classes, ledger.probabilities))
+    return max(ledger.credit_classes, key=lambda c: probs[c])
+
+
+def _rows(ledger: Ledger, top: int):
+    """Entries to show, with ``(count, total, balance_after)`` folds standing between them."""
+    entries = ledger.entries
+    if len(entries) <= max(SHOW_ALL, top):
+        return list(entries)
+    keep = {id(e) for e in ledger.summary(top).largest}
+    rows, run = [], []
+    for e in entries:
+        if id(e) in keep:
+            if run:
+                rows.append((len(run), math.fsum(r.amount for r in run), run[-1].balance_after))
+                run = []
+            rows.append(e)
+        else:
+            run.append(e)
+    if run:
+        rows.append((len(run), math.fsum(r.amount for r in run), run[-1].balance_after))
+    return rows
+
+
+def _head(ledger: Ledger, date: str | None) -> list[Text]:
+    title = Text("LEDGER OF ONE DECISION", style="bold")
+    if ledger.message_id is not None:
+        title.append(f"   message {ledger.message_id}")
+    if date is not None:
+        title.append(f"   recorded {date}")
+    lines = [title]
+    if ledger.model_path is not None:
+        name = ledger.model_path.replace("\\", "/").rsplit("/", 1)[-1]
+        card = f"card of {ledger.card_date}" if ledger.card_date else "no model card"
+        lines.append(Text(f"model {name} ({card})"))
+        lines.append(Text(f"sha256 {ledger.model_sha256}"))
+    if ledger.redacted:
+        lines.append(Text("personal-looking values are masked ([e-mail 1], [phone 2] ...)"))
+    return lines
+
+
+def _probability_line(ledger: Ledger) -> str:
+    probs = dict(zip(ledger.classes, ledger.probabilities))
+    if ledger.normal_class is not None and ledger.flag_probability is not None:
+        return f"P(not {ledger.normal_class}) = " + probability(
+            ledger.flag_probability, probs[ledger.normal_class]
+        )
+    top = ledger.explanation.predicted
+    return f"P({top}) = {probability(probs[top])}"
+
+
+def _rule_line(ledger: Ledger) -> str:
+    if ledger.rule == "threshold":
+        return (
+            f"rule: flag when P(not {ledger.normal_class}) >= {ledger.threshold:g}, that is when the "
+            f"balance is at least logit({ledger.threshold:g}) = {ledger.decision_line:+.2f}"
+        )
+    tie = "or equal to " if ledger.line_inclusive else ""
+    return f"rule: the most probable class; {ledger.credit_side} when the balance is above {tie}0"
+
+
+def _legend(ledger: Ledger, rows, mode: str, families) -> Text:
+    shown_directions = {r.direction for r in rows if not isinstance(r, tuple)}
+    legend = Text()
+    for direction, side in (("credit", _credit_class(ledger)), ("debit", ledger.debit_class)):
+        if direction not in shown_directions:
+            continue
+        if legend:
+            legend.append("   ")
+        legend.append(f"{MARKS[direction]} {direction}, toward {side}")
+        if mode != "none":
+            legend.append(f" ({families[side].name})", style=families[side].base)
+    if "even" in shown_directions:
+        legend.append(f"   {MARKS['even']} no effect either way")
+    if mode == "shades":
+        legend.append("; darker is stronger")
+    elif mode == "weights":
+        legend.append("; bold is stronger, faint weaker")
+    return legend
+
+
+def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = None) -> None:
+    """Print the ledger for a person at a terminal (or into a plain-text record)."""
+    mode = colour_mode(console)
+    families = class_colours(ledger.classes, ledger.normal_class)
+    if ledger.credit_side not in families:
+        families[ledger.credit_side] = families[_credit_class(ledger)]
+    for line in _head(ledger, date):
+        console.print(line)
+    decision = Text("decision ", style="bold")
+    decision.append(ledger.decision, style="bold")
+    decision.append(f"   {_probability_line(ledger)}")
+    console.print(decision)
+    console.print(Text(f"balance = {ledger.balance_method}"))
+    console.print()
+
+    rows = _rows(ledger, top)
+    largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
+    table = Table(
+        box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True, header_style="bold", padding=(0, 1)
+    )
+    table.add_column("#", justify="right")
+    table.add_column("word", overflow="fold", min_width=16, max_width=24)
+    table.add_column("n", justify="right")
+    table.add_column("each", justify="right")
+    table.add_column("debit", justify="right")
+    table.add_column("credit", justify="right")
+    table.add_column("balance", justify="right")
+    table.add_column("seen", justify="right")
+    flagged = any(e.flags for e in ledger.entries)
+    if flagged:
+        table.add_column("flags", overflow="fold")
+
+    def money(x: float) -> tuple[str, str]:
+        return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
+
+    running = ledger.opening_prior
+    table.add_row("", Text("opening: priors", style="italic"), "", "", *money(ledger.opening_prior), f"{running:+.2f}")
+    if ledger.variant == "bernoulli":
+        running = ledger.opening
+        table.add_row("", Text("opening: absent words", style="italic"), "", "", *money(ledger.opening_absence), f"{running:+.2f}")
+    table.add_section()
+    number = {id(e): i for i, e in enumerate(ledger.entries)}
+    for row in rows:
+        if isinstance(row, tuple):
+            count, total, after = row
+            table.add_row("", Text(f"… {folded(count, total)}", style="italic"), "", "", *money(total), f"{after:+.2f}")
+            continue
+        i = number[id(row)]
+        tipped = " ◀" if i == ledger.tipped_at else ""
+        table.add_row(
+            str(i + 1),
+            _word(row, largest, mode, families),
+            str(row.occurrences),
+            amount(row.per_occurrence),
+            *money(row.amount),
+            f"{row.balance_after:+.2f}{tipped}",
+            _support(row, ledger),
+            *([", ".join(row.flags)] if flagged else []),
+        )
+    if not rows:
+        table.add_row("", Text("(no word the model knows)", style="italic"))
+    console.print(table)
+    width = min(console.width, 80)
+    console.print("═" * width)
+    side = ledger.credit_side if ledger.credit_wins else ledger.debit_class
+    closing = Text("closing balance ", style="bold")
+    closing.append(f"{ledger.closing:+.2f}", style="bold")
+    closing.append(f"   odds {odds_factor(ledger.closing)} for {side}")
+    console.print(closing)
+    console.print(Text(_rule_line(ledger) + f"; decision: {ledger.decision}"))
+    console.print(_legend(ledger, rows, mode, families))
+    notes = []
+    if ledger.tipped_at is not None:
+        e = ledger.entries[ledger.tipped_at]
+        notes.append(
+            f"◀ the balance crosses the decision line at '{shown(e.token)}' (entry {ledger.tipped_at + 1}) "
+            f"and stays on the {side} side."
+        )
+    else:
+        notes.append(f"The opening balance is already on the {side} side and no entry takes it across.")
+    if not ledger.exact:
+        notes.append("Entries are approximate shares: each is the change it makes where it first appears.")
+    notes.append(f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {_credit_class(ledger)}/{ledger.debit_class}"
+                 + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + ".")
+    if len(rows) < len(ledger.entries):
+        s = ledger.summary(top)
+        notes.append(
+            f"Largest {plural(len(s.largest), 'entry', 'entries')} shown; "
+            f"{folded(s.folded_count, s.folded_total)} are folded between them."
+        )
+    for note in notes:
+        console.print(Text(note, style="dim" if mode != "none" else ""))
+    console.print()
+
+    for u in ledger.disguised:
+        console.print(Text(
+            f"disguised word: '{shown(u.token)}' looks like '{shown(u.looks_like)}' (Unicode look-alike "
+            f"letters, UTS #39); written plainly it would have moved the balance {amount(u.avoided)}."
+        ))
+    plain_unknown = [u for u in ledger.unknown if u.looks_like is None]
+    if plain_unknown:
+        names = ", ".join(shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN])
+        more = len(plain_unknown) - UNKNOWN_SHOWN
+        console.print(Text(
+            f"not in the vocabulary (no effect): {names}" + (f" and {plural(more, 'more word')}" if more > 0 else "")
+        ))
+    console.print(Text(flip_sentence(ledger.flip)))
+    console.print()
+    console.print(Text("message", style="bold"))
+    console.print(tinted_text(ledger, mode, families))
+    if len(ledger.text) > DISPLAY_LIMIT:
+        console.print(f"[... {len(ledger.text) - DISPLAY_LIMIT:,} more characters not shown; the ledger covers them all]", markup=False)
+    if ledger.spans_note is not None:
+        console.print(Text(f"(not tinted: {ledger.spans_note})"))
+    console.print()
+    console.print(Text(CAUTION, style="dim" if mode != "none" else ""))
+
+
+def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT) -> Text:
+    """The message with each known word tinted like its entry (weaker first, so stronger tints win overlaps)."""
+    text = Text(ledger.text[:limit])
+    if mode == "none" or ledger.spans_note is not None:
         return text
-    scale = max((abs(t.evidence) / max(t.occurrences, 1) for t in expl.tokens), default=0.0)
-    # Weaker first, so that where n-grams overlap the stronger tint is on top.
-    for t in sorted(expl.tokens, key=lambda t: abs(t.evidence)):
-        per_occurrence = t.evidence / max(t.occurrences, 1)
-        palette = TOWARD if per_occurrence > 0 else AGAINST
-        level = _strength(per_occurrence, scale)
-        style = f"{'white' if level == 2 else 'black'} on {palette[level]}"
-        for start, end in t.spans:
-            if start < len(shown):
-                text.stylize(style, start, min(end, len(shown)))
+    largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
+    for e in sorted(ledger.entries, key=lambda e: abs(e.per_occurrence)):
+        style = _style(e, largest, mode, families)
+        for start, end in e.spans:
+            if start < limit:
+                text.stylize(style, start, min(end, limit))
     return text
 
 
-def _signed(x: float) -> str:
-    return f"{x:+.3f}"
+
+# --- records (--out) ----------------------------------------------------------
+
+#: Width of a plain-text record, the width the terminal ledger is designed for.
+RECORD_WIDTH = 80
+SET_SCHEMA = "nbledger.why-set/2"
 
 
-def _odds(f: float) -> str:
-    if not math.isfinite(f) or f == 0:
-        return "-"
-    return f"x{f:.3g}" if f >= 1 else f"/{1 / f:.3g}"
+def text_record(ledgers, *, date: str, top: int = 10) -> str:
+    """The terminal ledger of each message as plain text, one after another (form feed between)."""
+    import io
+
+    parts = []
+    for ledger in ledgers:
+        buffer = io.StringIO()
+        render(ledger, Console(file=buffer, width=RECORD_WIDTH, no_color=True, highlight=False), top, date)
+        parts.append(buffer.getvalue())
+    return "\f\n".join(parts)
 
 
-def render(expl: Explanation, console: Console, top: int = 10) -> None:
-    """Print the explanation for a person at a terminal."""
-    head = Text()
-    head.append("decision: ", style="bold")
-    head.append(expl.decision, style="bold")
-    if expl.threshold is not None:
-        head.append(
-            f"   (flagged when P(not {expl.normal_class}) >= {expl.threshold:g}; "
-            f"here {expl.flag_probability:.4f})"
-        )
-    elif expl.normal_class is not None and expl.flag_probability is not None:
-        head.append(f"   (most probable class; P(not {expl.normal_class}) = {expl.flag_probability:.4f})")
-    else:
-        head.append("   (most probable class)")
-    console.print(head)
+def json_record(ledgers, *, date: str, top: int = 10) -> str:
+    """One ``nbledger.why/2`` object, or for several messages ``{schema, messages: [...]}``."""
+    import json
 
-    probs = Table(show_header=True, header_style="bold", box=None, pad_edge=False)
-    probs.add_column("class")
-    probs.add_column("probability", justify="right")
-    probs.add_column("")
-    for c, p in sorted(zip(expl.classes, expl.probabilities), key=lambda cp: -cp[1]):
-        probs.add_row(Text(c), f"{p:.4f}", "#" * int(round(p * 30)))
-    console.print(probs)
-    console.print()
+    docs = [to_json(ledger, date=date, top=top) for ledger in ledgers]
+    doc = docs[0] if len(docs) == 1 else {"schema": SET_SCHEMA, "date": date, "messages": docs}
+    return json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
 
-    console.print(
-        Text.assemble(("message", "bold"), f"  (amber: toward {expl.predicted}, blue: toward {expl.runner_up}; darker is stronger)")
-    )
-    console.print(tinted_text(expl))
-    if len(expl.text) > DISPLAY_LIMIT:
-        console.print(f"[... {len(expl.text) - DISPLAY_LIMIT} more characters not shown; the evidence covers all of them]")
-    if expl.spans_note is not None:
-        console.print(f"(no tinting: {expl.spans_note})")
-    console.print()
 
-    for side, title in (("for", f"toward {expl.predicted}"), ("against", f"toward {expl.runner_up}")):
-        rows = expl.strongest(top, side)
-        table = Table(title=f"strongest evidence {title}", title_justify="left", header_style="bold")
-        table.add_column("token")
-        table.add_column("count", justify="right")
-        table.add_column("value", justify="right")
-        table.add_column("evidence (log-odds)", justify="right")
-        table.add_column("odds", justify="right")
-        for t in rows:
-            table.add_row(Text(shown(t.token)), str(t.occurrences), f"{t.value:.4g}", _signed(t.evidence), _odds(t.odds_factor))
-        if not rows:
-            table.add_row("(none)", "", "", "", "")
-        console.print(table)
-
-    rest = expl.evidence_sum
-    console.print(
-        f"log-odds {expl.predicted} vs {expl.runner_up}: baseline {_signed(expl.baseline)}"
-        + (f" (prior {_signed(expl.baseline_prior)}, absent tokens {_signed(expl.baseline_absence)})" if expl.variant == "bernoulli" else "")
-        + f" + evidence of {len(expl.tokens)} tokens {_signed(rest)} = {_signed(expl.log_odds)}"
-        f"  (odds {_odds(math.exp(min(expl.log_odds, 700)))})"
-    )
-    if expl.unknown_tokens:
-        names = ", ".join(shown(t) + (f" x{n}" if n > 1 else "") for t, n in expl.unknown_tokens[:15])
-        more = len(expl.unknown_tokens) - 15
-        console.print(
-            f"not in the vocabulary (no effect): {names}" + (f" and {more} more" if more > 0 else ""),
-            markup=False,
-        )
-    flip = expl.flip
-    if flip.removals:
-        items = ", ".join(f"'{shown(t)}'" + (f" x{n}" if n > 1 else "") for t, n in flip.removals[:FLIP_SHOWN])
-        if len(flip.removals) > FLIP_SHOWN:
-            items += f" and {len(flip.removals) - FLIP_SHOWN} more tokens ({flip.size} occurrences in all; the JSON lists them)"
-        label = "the smallest such set" if flip.exact else "found greedily, re-scored exactly; may not be the smallest"
-        console.print(f"removing {items} changes the decision to {flip.new_decision} ({label})", markup=False)
-    else:
-        console.print(f"no removal of tokens changes the decision: {flip.reason}", markup=False)
+#: Record writers by file suffix: ``writer(ledgers, *, date, top) -> str | bytes``.
+#: The printable report registers ``.html`` and ``.pdf`` here.
+WRITERS = {".txt": text_record, ".json": json_record}

@@ -1,0 +1,55 @@
+"""How an entry is tinted and marked, the same on the terminal, in HTML and on paper.
+
+An entry is drawn in the colour family of the class it pushes toward
+(:func:`explain.present.drawing.class_colours`: the normal class is the
+neutral grey), darker for stronger evidence, and always carries a mark that
+needs no colour: ``▲`` for a credit, ``▼`` for a debit, ``·`` for an entry of
+exactly 0. Strength has three levels by the entry's evidence per occurrence
+against the largest in the message (below a third, below two thirds,
+above); where colours cannot show lightness (16-colour terminals turn light
+shades into bright colours that read *stronger*), the levels are shown by
+type weight instead: faint, plain, bold.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from matplotlib.colors import to_rgb
+
+from explain.present.drawing import ColourFamily
+
+MARKS = {"credit": "▲", "debit": "▼", "even": "·"}
+LEVEL_NAMES = ("weak", "medium", "strong")
+# Where in a family's range (0 light .. 1 dark) each level sits.
+_SHADES = (0.15, 0.55, 0.95)
+
+
+@dataclass(frozen=True)
+class Tint:
+    """One entry's look: its mark, strength level, background and text colours (hex)."""
+
+    mark: str
+    level: int
+    background: str
+    foreground: str
+
+    @property
+    def level_name(self) -> str:
+        return LEVEL_NAMES[self.level]
+
+
+def level(size: float, largest: float) -> int:
+    """0, 1 or 2: the strength of ``size`` against the ``largest`` in the message."""
+    share = abs(size) / largest if largest > 0 else 0.0
+    return 0 if share < 1 / 3 else 1 if share < 2 / 3 else 2
+
+
+def tint(direction: str, family: ColourFamily, size: float, largest: float) -> Tint:
+    """The tint of an entry pushing toward a class drawn in ``family``."""
+    n = level(size, largest)
+    background = family.shade(_SHADES[n])
+    r, g, b = to_rgb(background)
+    # WCAG 2.x relative luminance, rounded: dark text on light shades, white on dark.
+    luminance = 0.2126 * r**2.2 + 0.7152 * g**2.2 + 0.0722 * b**2.2
+    return Tint(MARKS[direction], n, background, "#1a1a1a" if luminance > 0.25 else "#ffffff")
