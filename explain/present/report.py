@@ -27,11 +27,11 @@ from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
 from explain.analysis.report import Report
+from explain.present import wording
 from explain.present.drawing import NEUTRAL, class_colours
 from explain.present.report_json import to_json
+from explain.present.tint import tint
 
-#: Evidence strength is shown in this many steps of lightness.
-STRENGTH_STEPS = 4
 
 
 def template_dir() -> Path:
@@ -53,7 +53,10 @@ def environment():
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate)
+    env.filters.update(
+        pct=_pct, num=_num, count=_count, rate=_rate, amount=wording.amount, odds=wording.odds_factor,
+        probability=wording.probability_of_log_odds, prob=wording.probability,
+    )
     return env
 
 
@@ -102,31 +105,24 @@ def data_uri(png: bytes) -> str:
 
 
 def tinted_segments(message: dict, colours: dict) -> list[dict]:
-    """A ledger's text cut at its entries' spans (from the JSON twin), each entry's words with their tint.
+    """A ledger's text (from the JSON twin) cut at its entries' spans, each entry's words with its tint.
 
-    A word takes the colour of the class its entry pushes toward (``toward``);
-    lightness says strength (``STRENGTH_STEPS`` steps relative to the
-    message's largest entry); a mark (▲ credit, ▼ debit) keeps the direction
-    without colour.
+    The tint is the one of every screen (:mod:`explain.present.tint`): the
+    colour of the class the entry pushes toward, darker for stronger, and a
+    mark (▲ credit, ▼ debit) that needs no colour.
     """
-    text = message["text"]
-    spans = sorted(((start, end, e) for e in message["entries"] for start, end in e["spans"]), key=lambda s: s[:2])
-    largest = max((abs(e["amount"]) for e in message["entries"]), default=0.0) or 1.0
+    text, entries = message["text"], message["ledger"]["entries"]
+    largest = max((abs(e["per_occurrence"]) for e in entries), default=0.0)
+    spans = sorted(((a, b, e) for e in entries for a, b in e["spans"] or ()), key=lambda s: s[:2])
     segments, at = [], 0
     for start, end, e in spans:
         if start < at:
             continue  # overlapping n-grams: the first wins
         if start > at:
             segments.append({"text": text[at:start]})
-        step = max(1, min(STRENGTH_STEPS, round(STRENGTH_STEPS * abs(e["amount"]) / largest)))
-        segments.append(
-            {
-                "text": text[start:end],
-                "background": colours.get(e["toward"], NEUTRAL).shade((step - 1) / (STRENGTH_STEPS - 1) * 0.85),
-                "ink": "#ffffff" if step >= 3 else "#111111",
-                "mark": "▲" if e["amount"] > 0 else "▼",
-            }
-        )
+        look = tint(e["direction"], colours.get(e["toward"], NEUTRAL), e["per_occurrence"], largest)
+        segments.append({"text": text[start:end], "background": look.background, "ink": look.foreground,
+                         "mark": look.mark, "level": look.level_name})
         at = end
     if at < len(text):
         segments.append({"text": text[at:]})

@@ -19,6 +19,7 @@ import numpy as np
 from explain.analysis.report import Report
 from explain.present import assessment as assessment_json
 from explain.present import vocab as vocab_json
+from explain.present import why as why_json
 
 SCHEMA = "nbledger.report/1"
 
@@ -87,34 +88,11 @@ LEDGER_ROWS = 14
 
 
 def ledger_json(ledger) -> dict:
-    """One explained message: its ledger field for field (texts and tokens as redacted), and the entries to list."""
-    fields = _without(
-        {f.name: getattr(ledger, f.name) for f in dataclasses.fields(ledger)},
-        "explanation", "flip", "entries", "unknown", "probabilities", "model_path", "text", "message_id",
-    )
-    summary = ledger.summary(LEDGER_ROWS) if len(ledger.entries) > LEDGER_ROWS else None
-    position = {id(e): i for i, e in enumerate(ledger.entries)}
+    """One explained message: ``nbledger why``'s own JSON of its ledger, with the (redacted) text beside it."""
     return {
         "id": ledger.message_id,
         "text": ledger.text or None,
-        **fields,
-        "probabilities": dict(zip(ledger.classes, ledger.probabilities)),
-        "entries": [
-            {**dataclasses.asdict(e), "support": dict(zip(ledger.classes, e.support))} for e in ledger.entries
-        ],
-        "listed": None if summary is None else {
-            "entries": sorted(position[id(e)] for e in summary.largest),
-            "folded_count": summary.folded_count,
-            "folded_total": summary.folded_total,
-        },
-        "unknown": [dataclasses.asdict(u) for u in ledger.unknown],
-        "flip": {
-            "removals": [{"token": t, "occurrences": n} for t, n in ledger.flip.removals],
-            "exact": ledger.flip.exact,
-            "method": ledger.flip.method,
-            "new_decision": ledger.flip.new_decision,
-            "reason": ledger.flip.reason,
-        },
+        **_without(why_json.to_json(ledger, top=LEDGER_ROWS), "schema", "model", "date", "message_id"),
     }
 
 
