@@ -136,7 +136,7 @@ def report(
         pictures = draw_pictures(result)
         step("rendering the PDF")
         page = render_html(result, twin, pictures)
-        pdf = render_pdf(page, result.date)
+        pdf = render_pdf(page, result.date.isoformat())
         step("writing the files")
         contents = {out: pdf, html: page, json_out: dumps(result)}
         # Every output is written to a temporary file first; all are renamed only once all are written.

@@ -155,23 +155,32 @@ def render_html(report: Report, twin: dict | None = None, pictures: dict[str, by
     return environment().get_template("report.html.j2").render(**context(report, twin, pictures))
 
 
-def render_sheet_html(ledger, facts, *, date, redaction: str, paper: str = "a4") -> str:
-    """The one-page sheet of one decision (a :class:`~explain.analysis.ledger.Ledger`, redacted as ``redaction`` says)."""
-    import dataclasses
+def sheet_html(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> str:
+    """The one-page sheet of each decision (:class:`~explain.analysis.ledger.Ledger`), one page each, as HTML.
 
-    from explain.analysis.report import versions
+    Everything on it comes from the ledger: the model's fingerprint, the
+    message id, the rule, the tinted text, the entries (the ``top`` largest
+    when there are more), the flip set, and the cautions.
+    """
     from explain.present.report_json import _finite, ledger_json
 
-    msg = _finite(ledger_json(ledger))
-    families = class_colours(ledger.classes, ledger.normal_class)
+    pages = []
+    for ledger in ledgers:
+        msg = _finite(ledger_json(ledger, top))
+        families = class_colours(ledger.classes, ledger.normal_class)
+        pages.append({**msg, "segments": tinted_segments(msg, families) if msg["text"] else [],
+                      "model_file": Path(ledger.model_path).name if ledger.model_path else None,
+                      "model_sha256": ledger.model_sha256})
+    from explain import __version__
+
     return environment().get_template("sheet.html.j2").render(
-        msg={**msg, "segments": tinted_segments(msg, families) if msg["text"] else []},
-        m=_finite(dataclasses.asdict(facts)),
-        date=date.isoformat(),
-        redaction=redaction,
-        paper=paper,
-        versions=versions(),
+        pages=pages, date=date, paper=paper, version=__version__
     )
+
+
+def sheet_pdf(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> bytes:
+    """:func:`sheet_html` printed to PDF."""
+    return render_pdf(sheet_html(ledgers, date=date, top=top, paper=paper), date)
 
 
 # --- PDF -----------------------------------------------------------------------------
@@ -207,8 +216,8 @@ def _safe_fetcher_class():
     return SafeFetcher
 
 
-def render_pdf(html_text: str, date) -> bytes:
-    """The PDF of the report's HTML; its creation and modification dates are ``date`` (see ``report_date``)."""
+def render_pdf(html_text: str, date: str) -> bytes:
+    """The PDF of an HTML page; its creation and modification dates are ``date`` (ISO 8601, see ``report_date``)."""
     import weasyprint
 
     fetcher = _safe_fetcher_class()()
@@ -217,9 +226,8 @@ def render_pdf(html_text: str, date) -> bytes:
     document = weasyprint.HTML(
         string=html_text, base_url=template_dir().as_uri() + "/", url_fetcher=fetcher
     ).render()
-    stamp = date.isoformat()
-    document.metadata.created = stamp
-    document.metadata.modified = stamp
+    document.metadata.created = date
+    document.metadata.modified = date
     return document.write_pdf()
 
 

@@ -87,12 +87,12 @@ def to_json(report: Report) -> dict:
 LEDGER_ROWS = 14
 
 
-def ledger_json(ledger) -> dict:
+def ledger_json(ledger, top: int = LEDGER_ROWS) -> dict:
     """One explained message: ``nbledger why``'s own JSON of its ledger, with the (redacted) text beside it."""
     return {
         "id": ledger.message_id,
         "text": ledger.text or None,
-        **_without(why_json.to_json(ledger, top=LEDGER_ROWS), "schema", "model", "date", "message_id"),
+        **_without(why_json.to_json(ledger, top=top), "schema", "model", "date", "message_id"),
     }
 
 
