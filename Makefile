@@ -36,9 +36,12 @@ demo: install
 	$(BIN)/python demo_corpus/split.py --out $(OUT)
 	$(BIN)/nbledger train $(OUT)/train.csv --text-col text --label-col label --normal-class ok \
 		--holdout 0.2 --seed 7 --out $(OUT)/tideway.skops
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/parcel_fee.txt
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/raffle_prize.txt --threshold 0.9
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/parcel_fee.txt --format json > $(OUT)/why_parcel_fee.json
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/clear_scam.txt
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/borderline.txt
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/borderline.txt --threshold 0.9
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/false_alarm.txt
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/watchlist_term.txt
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/clear_scam.txt --format json > $(OUT)/why_clear_scam.json
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --data $(OUT)/train.csv --text-col text --label-col label \
 		--watchlist demo_corpus/examples/watchlist.txt --redact --top 15 --images $(OUT)/vocab
 	$(BIN)/nbledger vocab $(OUT)/tideway.skops --format json --out $(OUT)/vocab.json

@@ -744,6 +744,9 @@ SCAM_TEMPLATES: dict[str, list[str]] = {
         "Hi! Quick one, your parcel is at the post room but there's {fee} unpaid postage on it. You can sort it here " + PARCEL_URL + " {thanks!|cheers}",
         "{parcelfirm} notice: delivery attempt failed. Reschedule for {fee} at " + PARCEL_URL + " before {hr}pm today",
         "hello your parcel is stuck in customs need pay {fee} go to " + PARCEL_URL + " thank you",
+        "Your parcel is being held at customs. A customs charge of {fee} must be paid before delivery: " + PARCEL_URL,
+        "{parcelfirm}: customs clearance for parcel {ref} is incomplete. Pay the {fee} customs fee today at " + PARCEL_URL + " or it will be destroyed.",
+        "Hi, it's the courier. Your parcel got stopped by customs, there's {fee} to pay before I can bring it to {block}. " + PARCEL_URL,
     ],
     "courier": [
         "{Hi|Hello}, is the {furn} still available? I'm {working offshore|away with work|abroad at the moment} so my courier will collect. I'll pay {price} plus extra for your trouble.",
