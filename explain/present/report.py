@@ -78,7 +78,8 @@ def _count(x) -> str:
 def _rate(r: dict, digits: int = 1) -> str:
     if r is None or r["denominator"] == 0 or r["value"] is None:
         return "undefined (0 of 0)"
-    return f"{100 * r['value']:.{digits}f} % [{100 * r['low']:.{digits}f}–{100 * r['high']:.{digits}f}]"
+    # the glossary's one style: the estimate, then the interval in round brackets with "to"
+    return f"{100 * r['value']:.{digits}f} % ({100 * r['low']:.{digits}f} to {100 * r['high']:.{digits}f})"
 
 
 # --- pictures ------------------------------------------------------------------------
