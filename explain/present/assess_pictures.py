@@ -183,7 +183,6 @@ def confusion_picture(result: Assessment) -> bytes:
     ax.tick_params(length=0)
     for spine in ax.spines.values():
         spine.set_visible(False)
-    fig.text(0.5, 0.01, "count, and share of the true class (row)", ha="center", fontsize=8, color=NEUTRAL.base)
     return png_bytes(fig)
 
 
