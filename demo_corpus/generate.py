@@ -5,7 +5,7 @@ Tideway Commons is an invented housing co-operative in the invented harbour
 town of Brackenmouth.  Its members' app carries direct messages; moderators
 sort them into ``ok``, ``scam`` and ``advert``.  Every name, street, business,
 number and address below is made up; personal-looking values come only from
-reserved ranges (example.org / example.net / example.com, 555-0100..555-0199,
+reserved ranges (example.org / example.net / example.com, 555-0100..555-0189,
 192.0.2.0/24).
 
 Usage::
@@ -326,7 +326,9 @@ class Filler:
         elif base == "plant":
             v = r.choice(PLANTS)
         elif base == "phone":
-            v = f"555-01{r.randrange(0, 100):02d}"
+            # 555-0190..0199 stay unused, so tests can plant a number the corpus never holds.
+            n = r.randrange(0, 100)
+            v = f"555-01{n - 10 if n >= 90 else n:02d}"
         elif base == "ip":
             v = f"192.0.2.{r.randrange(1, 255)}"
         elif base == "tok":
@@ -703,18 +705,21 @@ OK_TEMPLATES: dict[str, list[str]] = {
 # normal class has a vocabulary of its own beyond function words.
 OK_DETAIL_SHARE = 0.3
 OK_DETAILS = [
-    "The ferry was late again this morning.", "Tide's right up over the slipway tonight.",
-    "The kids are off school all week so it's chaos here.", "The allotment is drowning in {plant}.",
-    "Lovely to see the harbour lights back on.", "My knee's still playing up so I'm avoiding the stairs.",
-    "The gulls are nesting on our balcony again.", "The bakery on {street} has the cinnamon buns back.",
-    "{kid} has chickenpox so we're stuck indoors.", "The fishing boats were all in early because of the wind.",
-    "We're repainting the hallway so it smells of gloss.", "The lifeboat crew were out practising in the bay.",
-    "Our boiler finally got fixed, hooray.", "The nursery is shut {day} for staff training.",
-    "Tomatoes on the roof terrace are finally ripening.", "Mum's staying with us till {day}.",
-    "The drying green is a swamp after all that rain.", "The seals were back on the breakwater this morning!",
-    "I've been on nights all week so apologies if I'm slow to reply.", "The new bench by the harbour wall is lovely.",
-    "{kid} wants to know if your dog can come to the beach again.", "The chippy queue was out the door last night.",
-    "The library has started doing homework club on {day}s.", "Still unpacking boxes from the move.",
+    "Ferry was late again this morning.", "Tide's right up over our slipway tonight.",
+    "Kids are off school all week so it's chaos here.", "Our allotment is drowning in {plant}.",
+    "Lovely to see harbour lights back on.", "My knee's still playing up so I'm avoiding stairs.",
+    "Gulls are nesting on our balcony again.", "Bakery on {street} has cinnamon buns back.",
+    "{kid} has chickenpox so we're stuck indoors.", "Fishing boats were all in early because of wind.",
+    "We're repainting our hallway so it smells of gloss.", "Lifeboat crew were out practising in our bay.",
+    "Our boiler finally got fixed, hooray.", "Nursery is shut {day} for staff training.",
+    "Tomatoes on our roof terrace are finally ripening.", "Mum's staying with us till {day}.",
+    "Drying green is a swamp after all that rain.", "Seals were back on our breakwater this morning!",
+    "I've been on nights all week so apologies if I'm slow to reply.", "New bench by our harbour wall is lovely.",
+    "{kid} wants to know if your dog can come to Gull Beach again.", "Chippy queue was out of the door last night.",
+    "Library has started doing homework club on {day}s.", "Still unpacking boxes from our move.",
+    "Rain's finally stopped, hooray.", "{kid} lost another tooth today, third this month!",
+    "Choir practice ran late so I'm shattered.", "Grandkids are coming for half term.",
+    "My sourdough starter has gone mad, anyone want some?", "Crab lines are out on Quay steps if your kids fancy it.",
 ]
 OK_WEIGHTS = {
     "borrow": 15, "sell": 14, "childcare": 10, "workshop": 9, "event": 10, "raffle": 2.5,
@@ -977,7 +982,20 @@ EXTRAS = {
 # Plain connective sentences for the flagged classes, so that "the", "it",
 # "is" and "if" are about as common on every side and the evidence for the
 # normal class is carried by what members talk about.
-RIDER_SHARE = {"scam": 0.45, "advert": 0.5}
+RIDER_SHARE = {"scam": 0.5, "advert": 0.5}
+# Riders either flagged class may use: everyday words members use too.
+SHARED_RIDERS = [
+    "{I'll|I will} be {on the phone|at work|out} {all day|till late|this afternoon|on {day}}, so {just message me back here|reply on here|leave me a message}.",
+    "Could you let me know {by the end of the day|before {day}|when you get a minute|{when}}?",
+    "{I've got to|I need to} sort it {before the weekend|by {day}|{when}}, so {the sooner the better|please don't leave it}.",
+    "{It's all on my side|It's all set up on my end}, I just need {to hear back from you|your reply}.",
+    "Sorry, I know it's {a big ask|a bit much|cheeky} {on a weekday|out of the blue|at short notice}.",
+    "{My mum|My brother|{name}|The office} says it's {the same for everyone in the block|how it works now|the usual thing}.",
+    "I'll explain {it all|the rest} when I see you {on {day}|{when}|in the lift}.",
+    "If anyone else {on your floor|in {block}|you know} wants it, I'll do the same for them.",
+    "Don't tell anyone else {in the block|on the app|yet}, it's only for {a few of us|members|people I know}.",
+    "I'll be round {that way|{street}|the harbour} {on {day}|{when}} anyway.",
+]
 RIDERS = {
     "scam": [
         "If the link doesn't open, just reply here and I'll sort it for you.", "It is all done in a couple of minutes.",
@@ -999,7 +1017,9 @@ RIDERS = {
 
 def add_rider(f: Filler, label: str, text: str) -> str:
     if label in RIDERS and f.rng.random() < RIDER_SHARE[label]:
-        text = tidy(text + " " + f.fill(f.rng.choice(RIDERS[label])))
+        text = tidy(text + " " + f.fill(f.rng.choice(RIDERS[label] + SHARED_RIDERS)))
+        if f.rng.random() < 0.2:
+            text = tidy(text + " " + f.fill(f.rng.choice(SHARED_RIDERS)))
     return text
 
 

@@ -164,3 +164,169 @@ def test_naive_bayes_is_good_but_not_perfect(rows):
     model = MultinomialNB().fit(vec.fit_transform(x_tr), y_tr)
     accuracy = model.score(vec.transform(x_te), y_te)
     assert 0.85 <= accuracy <= 0.995, accuracy
+
+
+# --- what a reviewer sees: placeholders everywhere, evidence in the words ------
+
+# One pattern per kind of placeholder, independent of generate.py's own.
+PLACEHOLDER_KINDS = {
+    "link": re.compile(r"(?:https?://|www\.)\S+|(?<![@\w.-])(?:[\w-]+\.)+example\.(?:org|net|com)\b", re.I),
+    "phone": re.compile(r"\b555-01\d\d\b"),
+    "email": re.compile(r"[\w.+-]+@example\.(?:org|net|com)\b", re.I),
+    "ip": re.compile(r"\b192\.0\.2\.\d{1,3}\b"),
+}
+# Share of each class's messages holding each kind (the bounds README.md states).
+PLACEHOLDER_BOUNDS = {
+    "ok": {"link": (0.08, 0.25), "phone": (0.05, 0.20), "email": (0.01, 0.10), "ip": (0.002, 0.03)},
+    "scam": {"link": (0.20, 0.50), "phone": (0.10, 0.35), "email": (0.03, 0.15), "ip": (0.02, 0.12)},
+    "advert": {"link": (0.20, 0.55), "phone": (0.20, 0.55), "email": (0.03, 0.20), "ip": (0.002, 0.06)},
+}
+# Tokens that only say "a placeholder was here"; none may lead a flagged class.
+PLACEHOLDER_TOKENS = {"http", "https", "www", "example", "org", "net", "com", "192", "555"}
+EXAMPLES = CORPUS / "examples"
+
+
+def _by_label(rows) -> dict[str, list[str]]:
+    texts: dict[str, list[str]] = {}
+    for r in rows:
+        texts.setdefault(r["label"], []).append(r["text"])
+    return texts
+
+
+def test_every_placeholder_kind_in_every_class_within_bounds(rows):
+    for label, texts in _by_label(rows).items():
+        for kind, pattern in PLACEHOLDER_KINDS.items():
+            share = sum(bool(pattern.search(t)) for t in texts) / len(texts)
+            lo, hi = PLACEHOLDER_BOUNDS[label][kind]
+            assert lo <= share <= hi, (label, kind, share)
+
+
+def test_link_scheme_and_domain_do_not_name_the_class(rows):
+    for label, texts in _by_label(rows).items():
+        joined = "\n".join(texts).lower()
+        domains = Counter(re.findall(r"example\.(org|net|com)\b", joined))
+        total = sum(domains.values())
+        for tld in ("org", "net", "com"):
+            # an even three-way draw gives a third each; a class owning a domain would not
+            assert 0.25 <= domains[tld] / total <= 0.42, (label, domains)
+        schemes = Counter(re.findall(r"(https://|http://|www\.)", joined))
+        assert all(schemes[s] >= 10 for s in ("https://", "http://", "www.")), (label, schemes)
+
+
+def test_nearly_all_texts_distinct(rows):
+    assert len({r["text"] for r in rows}) / len(rows) >= 0.99
+
+
+def _watchlist_terms() -> list[str]:
+    lines = (EXAMPLES / "watchlist.txt").read_text(encoding="utf-8").splitlines()
+    return [w.strip().lower() for w in lines if w.strip() and not w.startswith("#")]
+
+
+def test_most_watchlist_terms_occur(rows):
+    from sklearn.feature_extraction.text import CountVectorizer
+
+    vocabulary = CountVectorizer().fit([r["text"] for r in rows]).vocabulary_
+    terms = _watchlist_terms()
+    found = [t for t in terms if t in vocabulary]
+    assert len(found) >= 0.8 * len(terms), sorted(set(terms) - set(found))
+
+
+def test_explain_csv_holds_the_four_examples():
+    with (EXAMPLES / "explain.csv").open(encoding="utf-8", newline="") as fh:
+        table = {r["id"]: r["text"] for r in csv.DictReader(fh)}
+    names = ("clear_scam", "borderline", "false_alarm", "watchlist_term")
+    assert table == {
+        "ex-" + n.replace("_", "-"): (EXAMPLES / f"{n}.txt").read_text(encoding="utf-8").strip() for n in names
+    }
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    """The model `make demo` trains (time split, 20 % hold-out, seed 7) and the test split."""
+    from explain import load_model
+    from explain.cli import run
+
+    spec = importlib.util.spec_from_file_location("demo_corpus_split", CORPUS / "split.py")
+    split = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(split)
+    folder = tmp_path_factory.mktemp("demo")
+    with MESSAGES.open(encoding="utf-8", newline="") as fh:
+        reader = csv.DictReader(fh)
+        header, all_rows = reader.fieldnames, list(reader)
+    split.write_csv(folder / "train.csv", header, [r for r in all_rows if r["sent_at"] < split.CUTOFF])
+    test_rows = [r for r in all_rows if r["sent_at"] >= split.CUTOFF]
+    assert run(["train", str(folder / "train.csv"), "--text-col", "text", "--label-col", "label",
+                "--normal-class", "ok", "--holdout", "0.2", "--seed", "7",
+                "--out", str(folder / "tideway.skops")]) == 0
+    return load_model(folder / "tideway.skops"), test_rows
+
+
+def _example(name: str) -> str:
+    return (EXAMPLES / f"{name}.txt").read_text(encoding="utf-8").strip()
+
+
+def _strongest(why, n: int) -> list[str]:
+    return [t.token for t in sorted(why.tokens, key=lambda t: -t.evidence)[:n]]
+
+
+def test_examples_play_their_roles(demo):
+    from explain import explain_message
+
+    model, _ = demo
+    clear = explain_message(model, _example("clear_scam"))
+    assert clear.decision == "scam" and clear.flag_probability > 0.99
+
+    # Near the decision: flagged by the most probable class, let through at 0.9.
+    border = explain_message(model, _example("borderline"))
+    assert border.decision == "scam" and 0.5 < border.flag_probability < 0.95, border.flag_probability
+    assert explain_message(model, _example("borderline"), threshold=0.9).decision == "ok"
+
+    # An ordinary message flagged because the quay's name reads like a parcel scam.
+    alarm = explain_message(model, _example("false_alarm"))
+    assert alarm.decision == "scam" and alarm.flag_probability > 0.5
+    assert "customs" in _strongest(alarm, 2)
+
+    watched = explain_message(model, _example("watchlist_term"))
+    assert watched.decision == "scam"
+    assert set(_strongest(watched, 3)) & set(_watchlist_terms())
+
+
+def test_flagged_evidence_is_content_not_placeholders(demo):
+    from explain import review_vocabulary
+
+    model, _ = demo
+    review = review_vocabulary(model.view, lens="zscore")
+    seen = set()
+    for contrast in review.contrasts:
+        if contrast.target == "ok":
+            continue
+        top = {str(review.tokens[j]) for j in contrast.top("zscore", 15)}
+        assert len(top) == 15 and not top & PLACEHOLDER_TOKENS, (contrast.label, sorted(top))
+        seen.add(contrast.target)
+    assert seen == {"scam", "advert"}
+
+
+def test_some_watchlist_term_carries_flagged_evidence(demo):
+    from explain import review_vocabulary
+
+    model, _ = demo
+    review = review_vocabulary(model.view, lens="zscore")
+    tokens = [str(t) for t in review.tokens]
+    strongest = max(
+        (float(c.zscore[tokens.index(t)]), t, c.label)
+        for c in review.contrasts if c.target != "ok"
+        for t in _watchlist_terms() if t in tokens
+    )
+    assert strongest[0] > 1.96, strongest  # two-sided 5 % for a z-score
+
+
+def test_demo_assessment_is_realistic(demo):
+    # Why a band: see test_naive_bayes_is_good_but_not_perfect.
+    from explain import assess
+
+    model, test_rows = demo
+    texts = [r["text"] for r in test_rows]
+    labels = [r["label"] for r in test_rows]
+    result = assess(model.view, model.featurizer.transform(texts), labels)
+    assert 0.95 <= result.flag_ranking.auc.auc < 0.995, result.flag_ranking.auc.auc
+    assert result.flag_metrics.fp > 0 and result.flag_metrics.fn > 0

@@ -17,6 +17,8 @@ DOCUMENTED_KEYS = {
     "tokens", "spans_note", "unknown_tokens", "flip_set", "flip_exact", "flip_method", "flip_decision",
     "flip_reason", "feature_kind", "variant",
 }
+# nbledger.why/2 only adds keys beside those of nbledger.why/1.
+ADDED_KEYS = {"message_id", "date", "card_date", "redacted", "ledger"}
 MESSAGE = "Your parcel is at the depot: pay the fee at http://parcel-fee.example.net/x today, thanks"
 
 
@@ -41,7 +43,10 @@ def test_json_carries_the_documented_keys_and_adds_up(model, capsys):
     result = nbledger(capsys, "why", model, MESSAGE, "--format", "json", "--threshold", "0.5")
     assert result.code == 0, result.err
     doc = json.loads(result.out)
-    assert set(doc) == DOCUMENTED_KEYS and doc["schema"] == SCHEMA
+    assert set(doc) == DOCUMENTED_KEYS | ADDED_KEYS and doc["schema"] == SCHEMA == "nbledger.why/2"
+    ledger = doc["ledger"]
+    assert math.isclose(ledger["opening"] + sum(e["amount"] for e in ledger["entries"]), ledger["closing"], rel_tol=1e-9)
+    assert ledger["credit_side"] == "not ok" and ledger["debit_class"] == "ok" and not ledger["exact"]
     assert math.isclose(doc["baseline"] + sum(t["evidence"] for t in doc["tokens"]), doc["log_odds"], rel_tol=1e-9)
     assert math.isclose(sum(doc["probabilities"].values()), 1.0, rel_tol=1e-12)
     assert doc["normal_class"] == "ok" and doc["decision"] == doc["predicted"] == "scam"
@@ -59,10 +64,11 @@ def test_terminal_account(model, capsys):
     result = nbledger(capsys, "why", model, MESSAGE, "--top", "3")
     assert result.code == 0
     out = " ".join(result.out.split())  # the console wraps long lines
-    assert out.startswith("decision: scam")
-    assert "strongest evidence toward scam" in out and "baseline" in out
+    assert out.startswith("LEDGER OF ONE DECISION") and "decision scam" in out
+    assert "opening: priors" in out and "closing balance" in out and "rule: the most probable class" in out
+    assert "▲ credit, toward scam" in out
     assert "not in the vocabulary (no effect)" in out
-    assert "changes the decision to" in out and "the smallest such set" in out
+    assert "would change the decision to" in out and "no smaller set does" in out
 
 
 def test_tokens_with_edge_spaces_are_told_apart():

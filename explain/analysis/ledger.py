@@ -39,7 +39,9 @@ opening balance is already on that side and no entry takes it across.
 *Disguised words*: unknown tokens whose Unicode confusable skeleton (UTS
 #39, :mod:`explain.analysis.lookalike`) equals a known token's, with the
 exact change of the balance had the known token been written instead
-(the message re-scored with those occurrences added to its counts).
+(the message re-scored with those occurrences added to its counts). Only
+for word tokens: with character n-grams a look-alike letter changes
+n-grams, not words, and none is reported.
 """
 
 from __future__ import annotations
@@ -406,18 +408,16 @@ def ledger_of(
 
     normal_name = None if normal is None else classes[normal]
     if threshold is None:
-        method = f"log-odds of {classes[credit[0]]} against {classes[debit]} = jll[{classes[credit[0]]}] - jll[{classes[debit]}]"
+        c, d = classes[credit[0]], classes[debit]
+        method = f"log-odds of {c} against {d} = jll[{c}] - jll[{d}]"
         credit_name = classes[credit[0]]
     elif additive:
         method = f"log P(not {normal_name}) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"
         credit_name = classes[credit[0]]
     else:
         names = ", ".join(classes[c] for c in credit)
-        method = (
-            f"log P(not {normal_name}) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]; "
-            "a logsumexp does not split into per-token shares, so each entry is the change it makes "
-            "where it first appears (approximate: its size depends on the order)"
-        )
+        # A logsumexp does not split into per-token shares: the entries say they are approximate.
+        method = f"log P(not {normal_name}) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]"
         credit_name = f"not {normal_name}"
 
     card = getattr(model, "card", None) or {}
@@ -476,7 +476,9 @@ def _unknown(model, occ, expl: Explanation, balance, closing: float) -> tuple[Un
         for token, col, span in zip(occ.tokens, occ.columns, occ.spans):
             if col < 0:
                 spans.setdefault(token, []).append(span)
-    disguises = lookalikes([t for t, _ in expl.unknown_tokens], view.tokens)
+    # Character n-grams are pieces of words: a look-alike piece is no disguised word.
+    words = featurizer.vectorizer.analyzer == "word"
+    disguises = lookalikes([t for t, _ in expl.unknown_tokens], view.tokens) if words else {}
     wanted = set(disguises.values())
     index = {t: j for j, t in enumerate(view.tokens) if t in wanted} if wanted else {}
     counts = occ.counts(view.n_features).toarray()
@@ -503,7 +505,7 @@ def redacted(ledger: Ledger) -> Ledger:
     Values found in the text (:func:`explain.analysis.risk.personal_spans`)
     become numbered placeholders such as ``[e-mail 1]``; a token is masked
     when every occurrence of it overlaps such a value, or when it looks
-    personal itself (the ``personal`` flag). Spans
+    personal itself (the ``personal`` flag); so is a personal-looking message id. Spans
     are moved to the masked text. Amounts and balances are unchanged.
     """
     if ledger.redacted:
@@ -544,7 +546,11 @@ def redacted(ledger: Ledger) -> Ledger:
         unknown_tokens=tuple((mask(t), n) for t, n in expl.unknown_tokens),
         flip=flip,
     )
-    return replace(ledger, text=text, entries=entries, unknown=unknown, flip=flip, redacted=True, explanation=expl)
+    message_id = None if ledger.message_id is None else mask(ledger.message_id)
+    return replace(
+        ledger, text=text, message_id=message_id, entries=entries, unknown=unknown, flip=flip, redacted=True,
+        explanation=expl,
+    )
 
 
 def _masked_text(text: str, marks: list[tuple[int, int, str]]):

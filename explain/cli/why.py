@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 from rich.console import Console
 
-from explain.cli import app, console, fail, load_model_or_fail, read_messages_or_fail, warn
+from explain.cli import app, fail, load_model_or_fail, read_messages_or_fail, warn
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
@@ -90,17 +90,36 @@ def pick_messages(messages, wanted: list[str], source: str) -> list[tuple[str, s
         fail(f"no message with id {missing[0]!r} in {source}{more}; it has {len(first):,} distinct ids")
     for mid in dict.fromkeys(wanted):
         if mid in repeats:
-            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {first[mid] + 1})")
+            row = first[mid] + 1
+            warn(f"id {mid!r} occurs {repeats[mid]} times in {source}; explaining the first (data row {row})")
     return [(mid, messages.texts[first[mid]]) for mid in wanted]
 
 
+def support_labels(loaded, data: Path, label_col: Optional[str]) -> tuple[Optional[str], str]:
+    """The label column that gives message counts of support, and how to name their source.
+
+    When ``data`` is the very file the model card says the model was trained
+    on (same SHA-256), its label column is known without ``--label-col``.
+    """
+    from explain.model.loading import sha256_of
+
+    recorded = (loaded.card or {}).get("data") or {}
+    if data.is_file() and recorded.get("sha256") == sha256_of(data):
+        held_out = " (held-out messages included)" if (loaded.card or {}).get("holdout") else ""
+        return label_col or recorded.get("label_col"), f"{data.name}, the training data of the model card{held_out}"
+    return label_col, data.name
+
+
 def console_for(color: str) -> Console:
-    """The terminal console under ``--color`` (auto honours NO_COLOR and a non-terminal output)."""
-    if color == "never":
-        return Console(highlight=False, no_color=True, color_system=None)
+    """The terminal console under ``--color``.
+
+    ``auto`` styles only a terminal, and nothing at all when ``NO_COLOR`` is
+    set (no colour, and no bold or faint either: no escape codes).
+    """
     if color == "always":
         return Console(highlight=False, force_terminal=True, no_color=False)
-    return console
+    plain = color == "never" or os.environ.get("NO_COLOR", "") != ""
+    return Console(highlight=False, color_system=None if plain else "auto")
 
 
 @app.command()
@@ -141,7 +160,7 @@ def why(
     if color not in COLOR_CHOICES:
         fail(f"--color must be auto, always or never, got {color!r}")
     if out is not None and out.suffix.lower() not in WRITERS:
-        fail(f"--out must end in {', '.join(WRITERS)}; got {out.name!r}")
+        fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
     if (message_id is not None or ids is not None) and data is None:
         fail("--id and --ids pick messages of a data file: give it with --data")
     if data is not None and message_id is None and ids is None:
@@ -152,21 +171,22 @@ def why(
         fail("give --id or --ids, not both")
     terms = read_watchlist(watchlist) if watchlist is not None else None
 
-    if data is not None:
-        wanted = read_id_list(ids) if ids is not None else [message_id]
-        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
-        chosen = pick_messages(messages, wanted, data.name)
-    else:
-        messages = None
-        chosen = [(None, read_message(text, file, max_bytes))]
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
-    documents = None
-    if messages is not None and label_col is not None:
-        from explain.analysis.vocab import document_counts
+    messages = documents = None
+    if data is not None:
+        wanted = read_id_list(ids) if ids is not None else [message_id]
+        label_col, source = support_labels(loaded, data, label_col)
+        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+        chosen = pick_messages(messages, wanted, data.name)
+        if label_col is not None:
+            from explain.analysis.vocab import document_counts
 
-        documents = document_counts(loaded.view, loaded.featurizer.transform(messages.texts), messages.labels, data.name)
+            features = loaded.featurizer.transform(messages.texts)
+            documents = document_counts(loaded.view, features, messages.labels, source)
+    else:
+        chosen = [(None, read_message(text, file, max_bytes))]
     ledgers = []
     for mid, message in chosen:
         ledger = ledger_of(loaded, message, threshold, message_id=mid, documents=documents, watchlist=terms)

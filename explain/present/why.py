@@ -187,8 +187,8 @@ def _word(entry, largest: float, mode: str, families) -> Text:
     return word
 
 
-def _support(entry, ledger: Ledger) -> str:
-    c, d = ledger.classes.index(_credit_class(ledger)), ledger.classes.index(ledger.debit_class)
+def support_cell(entry, ledger: Ledger) -> str:
+    c, d = ledger.classes.index(credit_colour_class(ledger)), ledger.classes.index(ledger.debit_class)
 
     def n(x: float) -> str:
         return f"{x:,.0f}" if ledger.support_kind != "tfidf-weights" else f"{x:,.1f}"
@@ -196,7 +196,7 @@ def _support(entry, ledger: Ledger) -> str:
     return f"{n(entry.support[c])}/{n(entry.support[d])}"
 
 
-def _credit_class(ledger: Ledger) -> str:
+def credit_colour_class(ledger: Ledger) -> str:
     """The class credits are drawn in: the credit class, or the most probable flagged class."""
     if len(ledger.credit_classes) == 1:
         return ledger.credit_classes[0]
@@ -204,7 +204,7 @@ def _credit_class(ledger: Ledger) -> str:
     return max(ledger.credit_classes, key=lambda c: probs[c])
 
 
-def _rows(ledger: Ledger, top: int):
+def ledger_rows(ledger: Ledger, top: int):
     """Entries to show, with ``(count, total, balance_after)`` folds standing between them."""
     entries = ledger.entries
     if len(entries) <= max(SHOW_ALL, top):
@@ -241,7 +241,7 @@ def _head(ledger: Ledger, date: str | None) -> list[Text]:
     return lines
 
 
-def _probability_line(ledger: Ledger) -> str:
+def probability_line(ledger: Ledger) -> str:
     probs = dict(zip(ledger.classes, ledger.probabilities))
     if ledger.normal_class is not None and ledger.flag_probability is not None:
         return f"P(not {ledger.normal_class}) = " + probability(
@@ -251,7 +251,7 @@ def _probability_line(ledger: Ledger) -> str:
     return f"P({top}) = {probability(probs[top])}"
 
 
-def _rule_line(ledger: Ledger) -> str:
+def rule_line(ledger: Ledger) -> str:
     if ledger.rule == "threshold":
         return (
             f"rule: flag when P(not {ledger.normal_class}) >= {ledger.threshold:g}, that is when the "
@@ -261,10 +261,80 @@ def _rule_line(ledger: Ledger) -> str:
     return f"rule: the most probable class; {ledger.credit_side} when the balance is above {tie}0"
 
 
+def money(x: float) -> tuple[str, str]:
+    """The (debit, credit) cells of an amount: its size in the column of its side."""
+    return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
+
+
+def opening_lines(ledger: Ledger) -> list[tuple[str, float, float]]:
+    """``(label, amount, balance after)`` of the opening balance's lines."""
+    lines = [("opening: priors", ledger.opening_prior, ledger.opening_prior)]
+    if ledger.variant == "bernoulli":
+        lines.append(("opening: absent words", ledger.opening_absence, ledger.opening))
+    return lines
+
+
+def decided_side(ledger: Ledger) -> str:
+    return ledger.credit_side if ledger.credit_wins else ledger.debit_class
+
+
+def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
+    """The sentences under the closing balance: where it tipped, exactness, what "seen" counts, folding."""
+    side = decided_side(ledger)
+    notes = []
+    if ledger.tipped_at is not None:
+        e = ledger.entries[ledger.tipped_at]
+        notes.append(
+            f"◀ the balance crosses the decision line at '{shown(e.token)}' (entry {ledger.tipped_at + 1}) "
+            f"and stays on the {side} side."
+        )
+    else:
+        notes.append(f"The opening balance is already on the {side} side and no entry takes it across.")
+    if not ledger.exact:
+        notes.append(
+            "Entries are approximate: a logsumexp over several classes does not split into shares, so each "
+            "entry is the change it makes where it first appears (its size depends on the order, the sum does not)."
+        )
+    notes.append(
+        f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {credit_colour_class(ledger)}/{ledger.debit_class}"
+        + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + "."
+    )
+    if folding:
+        s = ledger.summary(top)
+        notes.append(
+            f"Largest {plural(len(s.largest), 'entry', 'entries')} shown; "
+            f"{folded(s.folded_count, s.folded_total)} are folded between them."
+        )
+    return notes
+
+
+def word_notes(ledger: Ledger) -> list[str]:
+    """Disguised words, unknown words and the flip set, in sentences."""
+    lines = []
+    for u in ledger.disguised:
+        toward = credit_colour_class(ledger) if u.avoided > 0 else ledger.debit_class
+        lines.append(
+            f"disguised word: '{shown(u.token)}' looks like '{shown(u.looks_like)}' (Unicode look-alike "
+            f"letters, UTS #39); written plainly it would have moved the balance {amount(u.avoided)}, "
+            f"toward {toward}."
+        )
+    plain_unknown = [u for u in ledger.unknown if u.looks_like is None]
+    if plain_unknown:
+        names = ", ".join(
+            shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN]
+        )
+        more = len(plain_unknown) - UNKNOWN_SHOWN
+        lines.append(
+            f"not in the vocabulary (no effect): {names}" + (f" and {plural(more, 'more word')}" if more > 0 else "")
+        )
+    lines.append(flip_sentence(ledger.flip))
+    return lines
+
+
 def _legend(ledger: Ledger, rows, mode: str, families) -> Text:
     shown_directions = {r.direction for r in rows if not isinstance(r, tuple)}
     legend = Text()
-    for direction, side in (("credit", _credit_class(ledger)), ("debit", ledger.debit_class)):
+    for direction, side in (("credit", credit_colour_class(ledger)), ("debit", ledger.debit_class)):
         if direction not in shown_directions:
             continue
         if legend:
@@ -286,17 +356,17 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     mode = colour_mode(console)
     families = class_colours(ledger.classes, ledger.normal_class)
     if ledger.credit_side not in families:
-        families[ledger.credit_side] = families[_credit_class(ledger)]
+        families[ledger.credit_side] = families[credit_colour_class(ledger)]
     for line in _head(ledger, date):
         console.print(line)
     decision = Text("decision ", style="bold")
     decision.append(ledger.decision, style="bold")
-    decision.append(f"   {_probability_line(ledger)}")
+    decision.append(f"   {probability_line(ledger)}")
     console.print(decision)
     console.print(Text(f"balance = {ledger.balance_method}"))
     console.print()
 
-    rows = _rows(ledger, top)
+    rows = ledger_rows(ledger, top)
     largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
     table = Table(
         box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True, header_style="bold", padding=(0, 1)
@@ -313,20 +383,15 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     if flagged:
         table.add_column("flags", overflow="fold")
 
-    def money(x: float) -> tuple[str, str]:
-        return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
-
-    running = ledger.opening_prior
-    table.add_row("", Text("opening: priors", style="italic"), "", "", *money(ledger.opening_prior), f"{running:+.2f}")
-    if ledger.variant == "bernoulli":
-        running = ledger.opening
-        table.add_row("", Text("opening: absent words", style="italic"), "", "", *money(ledger.opening_absence), f"{running:+.2f}")
+    for label, change, after in opening_lines(ledger):
+        table.add_row("", Text(label, style="italic"), "", "", *money(change), f"{after:+.2f}")
     table.add_section()
     number = {id(e): i for i, e in enumerate(ledger.entries)}
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
-            table.add_row("", Text(f"… {folded(count, total)}", style="italic"), "", "", *money(total), f"{after:+.2f}")
+            label = Text(f"… {folded(count, total)}", style="italic")
+            table.add_row("", label, "", "", *money(total), f"{after:+.2f}")
             continue
         i = number[id(row)]
         tipped = " ◀" if i == ledger.tipped_at else ""
@@ -337,62 +402,31 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
             amount(row.per_occurrence),
             *money(row.amount),
             f"{row.balance_after:+.2f}{tipped}",
-            _support(row, ledger),
+            support_cell(row, ledger),
             *([", ".join(row.flags)] if flagged else []),
         )
     if not rows:
         table.add_row("", Text("(no word the model knows)", style="italic"))
     console.print(table)
-    width = min(console.width, 80)
-    console.print("═" * width)
-    side = ledger.credit_side if ledger.credit_wins else ledger.debit_class
+    console.print("═" * min(console.measure(table).maximum, console.width))
+    side = decided_side(ledger)
     closing = Text("closing balance ", style="bold")
     closing.append(f"{ledger.closing:+.2f}", style="bold")
     closing.append(f"   odds {odds_factor(ledger.closing)} for {side}")
     console.print(closing)
-    console.print(Text(_rule_line(ledger) + f"; decision: {ledger.decision}"))
+    console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
     console.print(_legend(ledger, rows, mode, families))
-    notes = []
-    if ledger.tipped_at is not None:
-        e = ledger.entries[ledger.tipped_at]
-        notes.append(
-            f"◀ the balance crosses the decision line at '{shown(e.token)}' (entry {ledger.tipped_at + 1}) "
-            f"and stays on the {side} side."
-        )
-    else:
-        notes.append(f"The opening balance is already on the {side} side and no entry takes it across.")
-    if not ledger.exact:
-        notes.append("Entries are approximate shares: each is the change it makes where it first appears.")
-    notes.append(f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {_credit_class(ledger)}/{ledger.debit_class}"
-                 + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + ".")
-    if len(rows) < len(ledger.entries):
-        s = ledger.summary(top)
-        notes.append(
-            f"Largest {plural(len(s.largest), 'entry', 'entries')} shown; "
-            f"{folded(s.folded_count, s.folded_total)} are folded between them."
-        )
-    for note in notes:
+    for note in ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
         console.print(Text(note, style="dim" if mode != "none" else ""))
     console.print()
-
-    for u in ledger.disguised:
-        console.print(Text(
-            f"disguised word: '{shown(u.token)}' looks like '{shown(u.looks_like)}' (Unicode look-alike "
-            f"letters, UTS #39); written plainly it would have moved the balance {amount(u.avoided)}."
-        ))
-    plain_unknown = [u for u in ledger.unknown if u.looks_like is None]
-    if plain_unknown:
-        names = ", ".join(shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN])
-        more = len(plain_unknown) - UNKNOWN_SHOWN
-        console.print(Text(
-            f"not in the vocabulary (no effect): {names}" + (f" and {plural(more, 'more word')}" if more > 0 else "")
-        ))
-    console.print(Text(flip_sentence(ledger.flip)))
+    for line in word_notes(ledger):
+        console.print(Text(line))
     console.print()
     console.print(Text("message", style="bold"))
     console.print(tinted_text(ledger, mode, families))
     if len(ledger.text) > DISPLAY_LIMIT:
-        console.print(f"[... {len(ledger.text) - DISPLAY_LIMIT:,} more characters not shown; the ledger covers them all]", markup=False)
+        more = len(ledger.text) - DISPLAY_LIMIT
+        console.print(f"[... {more:,} more characters not shown; the ledger covers them all]", markup=False)
     if ledger.spans_note is not None:
         console.print(Text(f"(not tinted: {ledger.spans_note})"))
     console.print()
@@ -400,7 +434,10 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
 
 
 def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT) -> Text:
-    """The message with each known word tinted like its entry (weaker first, so stronger tints win overlaps)."""
+    """The message with each known word tinted like its entry (weaker first, so stronger tints win overlaps).
+
+    Disguised words (unknown, so untinted) are underlined.
+    """
     text = Text(ledger.text[:limit])
     if mode == "none" or ledger.spans_note is not None:
         return text
@@ -410,6 +447,10 @@ def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT)
         for start, end in e.spans:
             if start < limit:
                 text.stylize(style, start, min(end, limit))
+    for u in ledger.disguised:  # unknown to the model, so untinted: underlined, named below the book
+        for start, end in u.spans:
+            if start < limit:
+                text.stylize("underline", start, min(end, limit))
     return text
 
 

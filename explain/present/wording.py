@@ -62,7 +62,7 @@ def odds_factor(log_factor: float) -> str:
         return "beyond any number"
     if size <= math.log(MILLION):
         factor = math.exp(size)
-        return f"x{factor:.2g}" if factor < 10 else f"x{factor:,.0f}"
+        return f"x{factor:.3g}" if factor < 10 else f"x{factor:,.0f}"
     return f"about 10^{round(size / math.log(10))} to 1"
 
 

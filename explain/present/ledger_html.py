@@ -1,0 +1,163 @@
+"""One ledger as an HTML fragment, for the printable report and the one-page sheet.
+
+:func:`ledger_context` turns a :class:`~explain.analysis.ledger.Ledger` into
+already-formatted strings; the template ``templates/partials/ledger.html.j2``
+only lays them out, styled by ``templates/ledger.css``. Include it with the
+context under the name ``lv``::
+
+    {% with lv = ledger_view %}{% include "partials/ledger.html.j2" %}{% endwith %}
+
+The words are those of the terminal ledger (:mod:`explain.present.why`) and
+the tints those of :mod:`explain.present.tint`, so screen and paper agree.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from explain.analysis.ledger import Ledger, redacted
+from explain.present.drawing import class_colours
+from explain.present.tint import MARKS, tint
+from explain.present.token_display import shown
+from explain.present.why import (
+    CAUTION,
+    credit_colour_class,
+    decided_side,
+    ledger_notes,
+    ledger_rows,
+    money,
+    opening_lines,
+    probability_line,
+    rule_line,
+    support_cell,
+    word_notes,
+)
+from explain.present.wording import amount, folded, odds_factor
+
+REDACTIONS = ("none", "personal", "bodies")
+TEMPLATE = "partials/ledger.html.j2"
+STYLESHEET = "ledger.css"
+
+
+def _money(x: float) -> dict:
+    debit, credit = money(x)
+    return {"debit": debit, "credit": credit}
+
+
+def _segments(ledger: Ledger, looks: dict) -> list[dict]:
+    """The text cut at the entries' spans: plain pieces ``{text}``, words ``{text, mark, style, level}``,
+    disguised words ``{text, looks_like}``.
+
+    Where character n-grams overlap, the stronger entry's tint wins the
+    shared characters.
+    """
+    text = ledger.text
+    owner = [None] * len(text)
+    for u in ledger.disguised:
+        for a, b in u.spans:
+            owner[a:b] = [("disguised", u.looks_like)] * (min(b, len(text)) - a)
+    for e in sorted(ledger.entries, key=lambda e: abs(e.per_occurrence)):
+        for a, b in e.spans:
+            owner[a:b] = [e.column] * (min(b, len(text)) - a)
+    segments, at = [], 0
+    while at < len(text):
+        end = at
+        while end < len(text) and owner[end] == owner[at]:
+            end += 1
+        key = owner[at]
+        piece = {"text": text[at:end]}
+        if isinstance(key, tuple):
+            piece["looks_like"] = key[1]
+        elif key is not None:
+            piece.update(looks[key])
+        segments.append(piece)
+        at = end
+    return segments
+
+
+def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, date: str | None = None) -> dict:
+    """Everything the ledger fragment shows, formatted.
+
+    ``redaction``: ``"none"``; ``"personal"`` masks personal-looking values
+    (:func:`explain.analysis.ledger.redacted`); ``"bodies"`` also withholds
+    the message text.
+    """
+    if redaction not in REDACTIONS:
+        raise ValueError(f"redaction must be one of {REDACTIONS}")
+    if redaction != "none":
+        ledger = redacted(ledger)
+    families = class_colours(ledger.classes, ledger.normal_class)
+    credit_class = credit_colour_class(ledger)
+    largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
+
+    def look(e) -> dict:
+        t = tint(e.direction, families[e.toward], e.per_occurrence, largest)
+        return {
+            "mark": t.mark,
+            "direction": e.direction,
+            "level": t.level_name,
+            "style": f"background-color: {t.background}; color: {t.foreground}",
+        }
+
+    looks = {e.column: look(e) for e in ledger.entries}
+    rows = ledger_rows(ledger, top)
+    number = {id(e): i for i, e in enumerate(ledger.entries)}
+    shown_rows = []
+    for row in rows:
+        if isinstance(row, tuple):
+            count, total, after = row
+            shown_rows.append(
+                {"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"}
+            )
+            continue
+        i = number[id(row)]
+        shown_rows.append({
+            "kind": "entry",
+            "number": str(i + 1),
+            "token": shown(row.token),
+            **looks[row.column],
+            "times": str(row.occurrences),
+            "each": amount(row.per_occurrence),
+            **_money(row.amount),
+            "balance": f"{row.balance_after:+.2f}",
+            "tipped": i == ledger.tipped_at,
+            "seen": support_cell(row, ledger),
+            "flags": list(row.flags),
+        })
+    opening = [
+        {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)
+    ]
+    directions = {r["direction"] for r in shown_rows if r["kind"] == "entry"}
+    legend = [
+        {"mark": MARKS[d], "text": f"{d}, toward {side}", "swatch": families[side].shade(0.55)}
+        for d, side in (("credit", credit_class), ("debit", ledger.debit_class))
+        if d in directions
+    ]
+    model_name = None if ledger.model_path is None else Path(ledger.model_path).name
+    return {
+        "message_id": ledger.message_id,
+        "date": date,
+        "model_file": model_name,
+        "model_sha256": ledger.model_sha256,
+        "card_date": ledger.card_date,
+        "redaction": redaction,
+        "decision": ledger.decision,
+        "probability": probability_line(ledger),
+        "balance_method": ledger.balance_method,
+        "credit_label": credit_class if len(ledger.credit_classes) == 1 else ledger.credit_side,
+        "debit_label": ledger.debit_class,
+        "seen_label": f"{credit_class}/{ledger.debit_class}",
+        "has_flags": any(r.get("flags") for r in shown_rows),
+        "opening": opening,
+        "rows": shown_rows,
+        "closing": f"{ledger.closing:+.2f}",
+        "closing_odds": f"odds {odds_factor(ledger.closing)} for {decided_side(ledger)}",
+        "rule": rule_line(ledger),
+        "legend": legend,
+        "notes": ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top),
+        "word_notes": word_notes(ledger),
+        "segments": [] if redaction == "bodies" else _segments(ledger, looks),
+        "text_withheld": redaction == "bodies",
+        "spans_note": ledger.spans_note,
+        "caution": CAUTION,
+    }
