@@ -28,9 +28,8 @@ from urllib.parse import unquote, urlsplit
 
 from explain.analysis.report import Report
 from explain.present import wording
-from explain.present.drawing import NEUTRAL, class_colours
-from explain.present.report_json import to_json
-from explain.present.tint import tint
+from explain.present.drawing import class_colours
+from explain.present.report_json import LEDGER_ROWS, to_json
 
 
 
@@ -102,47 +101,23 @@ def data_uri(png: bytes) -> str:
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
 
 
-# --- the tinted message ----------------------------------------------------------------
-
-
-def tinted_segments(message: dict, colours: dict) -> list[dict]:
-    """A ledger's text (from the JSON twin) cut at its entries' spans, each entry's words with its tint.
-
-    The tint is the one of every screen (:mod:`explain.present.tint`): the
-    colour of the class the entry pushes toward, darker for stronger, and a
-    mark (▲ credit, ▼ debit) that needs no colour.
-    """
-    text, entries = message["text"], message["ledger"]["entries"]
-    largest = max((abs(e["per_occurrence"]) for e in entries), default=0.0)
-    spans = sorted(((a, b, e) for e in entries for a, b in e["spans"] or ()), key=lambda s: s[:2])
-    segments, at = [], 0
-    for start, end, e in spans:
-        if start < at:
-            continue  # overlapping n-grams: the first wins
-        if start > at:
-            segments.append({"text": text[at:start]})
-        look = tint(e["direction"], colours.get(e["toward"], NEUTRAL), e["per_occurrence"], largest)
-        segments.append({"text": text[start:end], "background": look.background, "ink": look.foreground,
-                         "mark": look.mark, "level": look.level_name})
-        at = end
-    if at < len(text):
-        segments.append({"text": text[at:]})
-    return segments
-
-
 # --- assembling ----------------------------------------------------------------------
 
 
 def context(report: Report, twin: dict, pictures: dict[str, bytes]) -> dict:
-    """What the template reads: the JSON twin, the pictures as data: URIs, and the class colours."""
+    """What the template reads: the JSON twin, each explained message's ledger view, pictures as data: URIs, colours."""
+    from explain.present.ledger_html import ledger_context
+
     families = class_colours(report.vocab.classes, report.vocab.normal_class)
-    messages = [
-        {**m, "segments": tinted_segments(m, families) if m["text"] else []}
-        for m in twin["explained_messages"]["messages"]
+    redaction = report.settings.redact
+    views = [
+        # the cover carries the model's fingerprint once for the whole report
+        {**ledger_context(ledger, redaction, top=LEDGER_ROWS), "model_file": None}
+        for ledger in report.explained
     ]
     return {
         "r": twin,
-        "messages": messages,
+        "ledgers": views,
         "pictures": {name: data_uri(png) for name, png in pictures.items()},
         "colours": {name: family.base for name, family in families.items()},
         "missing": dict(twin["sections"]),
@@ -157,26 +132,19 @@ def render_html(report: Report, twin: dict | None = None, pictures: dict[str, by
 
 
 def sheet_html(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> str:
-    """The one-page sheet of each decision (:class:`~explain.analysis.ledger.Ledger`), one page each, as HTML.
+    """The one-page sheet of each decision (:class:`~explain.analysis.ledger.Ledger`), a page each, as HTML.
 
-    Everything on it comes from the ledger: the model's fingerprint, the
+    Everything on it comes from the ledger, through the ledger fragment
+    (``templates/partials/ledger.html.j2``): the model's fingerprint, the
     message id, the rule, the tinted text, the entries (the ``top`` largest
-    when there are more), the flip set, and the cautions.
+    when there are more), the flip set, and the caution.
     """
-    from explain.present.report_json import _finite, ledger_json
-
-    pages = []
-    for ledger in ledgers:
-        msg = _finite(ledger_json(ledger, top))
-        families = class_colours(ledger.classes, ledger.normal_class)
-        pages.append({**msg, "segments": tinted_segments(msg, families) if msg["text"] else [],
-                      "model_file": Path(ledger.model_path).name if ledger.model_path else None,
-                      "model_sha256": ledger.model_sha256})
     from explain import __version__
+    from explain.present.ledger_html import ledger_context
 
-    return environment().get_template("sheet.html.j2").render(
-        pages=pages, date=date, paper=paper, version=__version__
-    )
+    views = [ledger_context(ledger, "personal" if ledger.redacted else "none", top=top, date=date) for ledger in ledgers]
+    return environment().get_template("sheet.html.j2").render(ledgers=views, date=date, paper=paper,
+                                                              version=__version__)
 
 
 def sheet_pdf(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> bytes:
