@@ -43,6 +43,9 @@ _PUBLIC = {
     "read_watchlist": "explain.analysis.risk",
     "assess": "explain.analysis.assessment",
     "Assessment": "explain.analysis.assessment",
+    "build_report": "explain.analysis.report",
+    "Report": "explain.analysis.report",
+    "ReportSettings": "explain.analysis.report",
     "wilson_interval": "explain.analysis.stats",
     "delong_auc": "explain.analysis.stats",
 }
