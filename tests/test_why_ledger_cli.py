@@ -217,3 +217,12 @@ def test_support_counts_training_messages_when_data_is_the_cards_training_file(d
     # Counted by hand in ROWS: messages holding "fee" per class.
     expected = {c: sum(1 for _, t, l in ROWS if l == c and "fee" in t.split()) for c in ("advert", "ok", "scam")}
     assert fee["support"] == expected
+
+
+def test_watchlist_terms_are_flagged_beside_their_entries(demo, capsys, tmp_path):
+    terms = tmp_path / "watch.txt"
+    terms.write_text("# words a fairness review looks at\nLadder\n")
+    doc = json.loads(nbledger(capsys, "why", demo[0], "can I borrow your ladder", "--watchlist", terms,
+                              "--format", "json").out)
+    flags = {e["token"]: e["flags"] for e in doc["ledger"]["entries"]}
+    assert "watchlist" in flags["ladder"] and "watchlist" not in flags["borrow"]

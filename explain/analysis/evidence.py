@@ -27,6 +27,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
+from scipy.special import expit
 
 from explain.analysis.batch import top_two
 from explain.model.decision import DecisionRule
@@ -157,7 +158,7 @@ def explain_message(model, text: str, threshold: float | None = None) -> Explana
     )
     flag = None
     if rule.normal_index is not None and view.n_classes > 1:
-        flag = float(1.0 / (1.0 + np.exp(-rule.flag_log_odds(jll)[0])))
+        flag = float(expit(rule.flag_log_odds(jll)[0]))  # no overflow for very long messages
     decision = int(rule.decide(jll)[0])
     return Explanation(
         text=text,

@@ -53,7 +53,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.special import logit, logsumexp
 
-from explain.analysis.evidence import Explanation, explain_message
+from explain.analysis.evidence import Explanation, FlipSet, explain_message
 from explain.analysis.lookalike import lookalikes
 from explain.analysis.risk import (
     FLAGS,
@@ -266,7 +266,7 @@ class Ledger:
     flag_probability: float | None
     tipped_at: int | None
     unknown: tuple[Unknown, ...]
-    flip: object
+    flip: FlipSet
     support_kind: str
     support_source: str | None
     model_path: str | None

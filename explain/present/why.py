@@ -390,7 +390,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
-            label = Text(f"… {folded(count, total)}", style="italic")
+            label = Text(f"… {count:,} smaller", style="italic")  # their sum is in its column
             table.add_row("", label, "", "", *money(total), f"{after:+.2f}")
             continue
         i = number[id(row)]
