@@ -352,3 +352,18 @@ def test_a_folder_without_write_permission_is_refused(files, tmp_path, capsys):
         assert "permission" in _bad(capsys, files, tmp_path, "--out", locked / "r.pdf")
     finally:
         locked.chmod(0o700)
+
+
+def test_without_data_each_left_out_section_is_one_line(files, tmp_path, capsys):
+    """No labelled data and nothing to explain: performance, errors and explained messages each say what would add them."""
+    result = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", "--paper", "letter",
+                      "--redact", "bodies", "--out", tmp_path / "bare.pdf")
+    assert result.code == 0, result.err
+    reader = PdfReader(tmp_path / "bare.pdf")
+    assert [round(float(v)) for v in reader.pages[0].mediabox[2:]] == [612, 792]  # US letter, in points
+    text = " ".join(" ".join(p.extract_text() for p in reader.pages).split())
+    assert text.count("Left out: this section needs labelled data") == 3  # summary figures, performance, errors
+    assert "Left out: this section needs messages to explain" in text
+    assert "bodies: no message text is printed" in text
+    for heading in SECTIONS:
+        assert heading in text
