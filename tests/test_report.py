@@ -9,7 +9,6 @@ not only in message texts.
 from __future__ import annotations
 
 import http.server
-import io
 import json
 import os
 import re

@@ -14,8 +14,6 @@ import typer
 
 from explain.cli import app, console, err_console, fail, load_model_or_fail, read_messages_or_fail
 
-SUFFIXES = {"out": ".pdf", "html": ".html", "json": ".json"}
-
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     """Refuse an output path before any work: wrong suffix, missing folder, no write permission."""

@@ -52,10 +52,7 @@ def environment():
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(
-        pct=_pct, num=_num, count=_count, rate=_rate, amount=wording.amount, odds=wording.odds_factor,
-        probability=wording.probability_of_log_odds, prob=wording.probability,
-    )
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds)
     return env
 
 
