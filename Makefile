@@ -8,9 +8,11 @@ BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 OUT := demo_out
 # System libraries WeasyPrint (the PDF report) needs, and fonts for pictures.
-SYSTEM_PACKAGES := libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz0b fonts-dejavu-core
+SYSTEM_PACKAGES := libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz0b fonts-dejavu-core \
+	poppler-utils chromium
+# (poppler-utils: pdftoppm for the README's picture; chromium: the test that opens the HTML twin)
 
-.PHONY: demo test install system-packages benchmark clean
+.PHONY: demo test install system-packages benchmark clean docs-picture
 
 install: $(STAMP)
 
@@ -32,32 +34,21 @@ test: install
 	$(BIN)/python -m pytest -q
 
 demo: install
-	$(BIN)/python demo_corpus/generate.py --check
-	$(BIN)/python demo_corpus/split.py --out $(OUT)
-	$(BIN)/nbledger train $(OUT)/train.csv --text-col text --label-col label --normal-class ok \
-		--holdout 0.2 --seed 7 --out $(OUT)/tideway.skops
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/clear_scam.txt
+	$(BIN)/nbledger demo --out $(OUT)
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/borderline.txt
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/borderline.txt --threshold 0.9
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/false_alarm.txt
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/watchlist_term.txt
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/clear_scam.txt --format json > $(OUT)/why_clear_scam.json
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml
-	$(BIN)/nbledger vocab $(OUT)/tideway.skops --data $(OUT)/train.csv --text-col text --label-col label \
-		--watchlist demo_corpus/examples/watchlist.txt --redact --top 15 --images $(OUT)/vocab
-	$(BIN)/nbledger vocab $(OUT)/tideway.skops --format json --out $(OUT)/vocab.json
-	$(BIN)/nbledger assess $(OUT)/tideway.skops $(OUT)/test.csv --text-col text --label-col label \
-		--costs 10:1 --base-rate 1% --slice-by sent_at:month --watchlist demo_corpus/examples/watchlist.txt \
-		--label-errors --images $(OUT)/assess
-	$(BIN)/nbledger assess $(OUT)/tideway.skops $(OUT)/test.csv --text-col text --label-col label \
-		--format json --out $(OUT)/assess.json
 	@echo "demo outputs are in $(OUT)/"
+
+# The README's picture of the report: its summary page, from the demo's PDF.
+docs-picture: demo
+	pdftoppm -png -r 70 -f 3 -l 3 -singlefile $(OUT)/report.pdf docs/report_summary
 
 benchmark: install
 	$(BIN)/python -m benchmarks.bench_evidence
 	$(BIN)/python -m benchmarks.bench_vocab
 	$(BIN)/python -m benchmarks.bench_assess
 	$(BIN)/python -m benchmarks.bench_email
+	$(BIN)/python -m benchmarks.bench_report
 
 clean:
 	rm -rf $(OUT) .pytest_cache .hypothesis

@@ -334,7 +334,7 @@ def test_pictures_include_the_slices(files, capsys, tmp_path):
     cli(capsys, files / "model.skops", files / "held.csv", *COLUMNS, "--slice-by", "sent_at:week",
         "--images", tmp_path, "--out", tmp_path / "out.txt")
     names = sorted(p.name for p in tmp_path.glob("*.png"))
-    assert names == ["precision_recall.png", "reliability.png", "roc.png", "scores.png", "slices.png"]
+    assert names == ["confusion.png", "precision_recall.png", "reliability.png", "roc.png", "scores.png", "slices.png"]
     for name in names:
         assert Image.open(tmp_path / name).size[0] > 600
 

@@ -106,7 +106,7 @@ def test_out_file_and_pictures(files, capsys, tmp_path):
     assert code == 0, err
     assert out == "" and "base rates" in report.read_text()
     names = sorted(p.name for p in images.iterdir())
-    assert names == ["precision_recall.png", "reliability.png", "roc.png", "scores.png"]
+    assert names == ["confusion.png", "precision_recall.png", "reliability.png", "roc.png", "scores.png"]
     for name in names:
         with Image.open(images / name) as picture:
             assert picture.format == "PNG"
@@ -120,7 +120,7 @@ def test_single_class_data_still_reports(files, capsys, tmp_path):
     )
     assert code == 0, err
     # no ROC or precision-recall picture without abuse to rank
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["reliability.png", "scores.png"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["confusion.png", "reliability.png", "scores.png"]
     got = json.loads(out)["assessment"]
     assert got["flag_ranking"] is None
     assert any("AUC and precision-recall curve undefined: the data hold only ok messages" in n for n in got["notes"])

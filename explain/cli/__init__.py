@@ -150,3 +150,5 @@ def main() -> None:
 from explain.cli import train, why  # noqa: E402,F401
 from explain.cli import assess  # noqa: E402,F401
 from explain.cli import vocab  # noqa: E402,F401
+from explain.cli import report  # noqa: E402,F401
+from explain.cli import demo  # noqa: E402,F401

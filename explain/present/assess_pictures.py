@@ -12,10 +12,11 @@ from __future__ import annotations
 
 import numpy as np
 from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
 
 from explain.analysis.assessment import FLAGGED, Assessment
 from explain.present.assessment import point_label
-from explain.present.drawing import INK, NEUTRAL, PALETTE, line_colours, png_bytes
+from explain.present.drawing import INK, NEUTRAL, PALETTE, class_colours, line_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold).
 MARK = INK
@@ -187,9 +188,46 @@ def slices_picture(result: Assessment) -> bytes:
     return png_bytes(fig)
 
 
+def confusion_picture(result: Assessment) -> bytes:
+    """The confusion matrix as a heat map: each cell shaded by the share of its true class (row), with its count.
+
+    Cells on the diagonal (right decisions) take the neutral family, the others
+    the colour of the class decided, so a reader sees at once where the
+    mistakes go; the count and the row share are written in every cell.
+    """
+    cm = result.confusion
+    labels = list(cm.labels)
+    n = len(labels)
+    colours = class_colours(result.classes, result.normal_class)
+    fig = Figure(figsize=(1.6 + 1.25 * n, 1.0 + 1.05 * n))
+    ax = fig.subplots()
+    for i in range(n):
+        for j in range(n):
+            share = float(cm.row_rates[i, j]) if np.isfinite(cm.row_rates[i, j]) else 0.0
+            family = NEUTRAL if i == j else colours.get(labels[j], NEUTRAL)
+            face = family.shade(share) if share > 0 else "#ffffff"
+            ax.add_patch(Rectangle((j, i), 1, 1, facecolor=face, edgecolor="white", lw=2))
+            ink = "white" if share >= 0.5 else "black"
+            ax.text(j + 0.5, i + 0.42, f"{int(cm.counts[i, j]):,}", ha="center", va="center", fontsize=11, color=ink,
+                    fontweight="bold")
+            ax.text(j + 0.5, i + 0.7, f"{100 * share:.1f} %", ha="center", va="center", fontsize=8, color=ink)
+    ax.set_xlim(0, n)
+    ax.set_ylim(n, 0)
+    ax.set_xticks(np.arange(n) + 0.5, labels)
+    ax.set_yticks(np.arange(n) + 0.5, labels)
+    ax.xaxis.tick_top()
+    ax.xaxis.set_label_position("top")
+    ax.set_xlabel("decided by the filter")
+    ax.set_ylabel("true class")
+    ax.tick_params(length=0)
+    for spine in ax.spines.values():
+        spine.set_visible(False)
+    return png_bytes(fig)
+
+
 def draw_all(result: Assessment) -> dict[str, bytes]:
     """File name -> PNG bytes of every picture the result supports."""
-    pictures = {}
+    pictures = {"confusion.png": confusion_picture(result)}
     if _rankings(result):
         pictures["roc.png"] = roc_picture(result)
         pictures["precision_recall.png"] = precision_recall_picture(result)

@@ -529,3 +529,17 @@ def json_record(ledgers, *, date: str, top: int = 10) -> str:
 #: Record writers by file suffix: ``writer(ledgers, *, date, top) -> str | bytes``.
 #: The printable report registers ``.html`` and ``.pdf`` here.
 WRITERS = {".txt": text_record, ".json": json_record}
+
+
+def _sheet(kind: str):
+    """The one-page sheet of the printable report (:mod:`explain.present.report`), imported when used."""
+
+    def write(ledgers, *, date: str, top: int = 10):
+        from explain.present import report
+
+        return (report.sheet_html if kind == "html" else report.sheet_pdf)(ledgers, date=date, top=top)
+
+    return write
+
+
+WRITERS.update({".html": _sheet("html"), ".pdf": _sheet("pdf")})

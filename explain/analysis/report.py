@@ -1,0 +1,277 @@
+"""Everything the printable report shows, computed once: one frozen result for every presenter.
+
+:func:`build_report` runs the library's own analyses (the vocabulary review,
+the assessment on labelled data, the account of each explained message),
+applies the redaction mode to their results, and returns a :class:`Report`.
+The PDF, its HTML twin and its JSON twin (:mod:`explain.present.report`,
+:mod:`explain.present.report_json`) only read it.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from explain.analysis.assessment import Assessment, assess
+from explain.analysis.batch import batch_evidence
+from explain.analysis.ledger import Ledger, ledger_of, redacted
+from explain.analysis.redaction import MODES, mask_value, redact_assessment, withhold_text
+from explain.analysis.risk import Watchlist
+from explain.analysis.vocab import VocabReview, review_vocabulary
+from explain.errors import NbledgerError
+from explain.model.decision import DecisionRule
+
+#: Messages explained when none are given: a spread of the flagged messages of the data.
+DEFAULT_MAX_MESSAGES = 6
+#: Tokens listed for and against each flagged class in the vocabulary section.
+VOCAB_TOP = 15
+
+
+@dataclass(frozen=True)
+class ReportSettings:
+    """What the reader chose: wording on the cover, redaction, paper and caps."""
+
+    title: str = "Review of a naive Bayes message filter"
+    organisation: str | None = None
+    redact: str = "personal"
+    paper: str = "a4"
+    max_messages: int = DEFAULT_MAX_MESSAGES
+    threshold: float | None = None
+
+    def __post_init__(self):
+        if self.redact not in MODES:
+            raise NbledgerError(f"--redact must be one of {', '.join(MODES)}, got {self.redact!r}")
+        if self.paper not in ("a4", "letter"):
+            raise NbledgerError(f"--paper must be a4 or letter, got {self.paper!r}")
+        if self.max_messages < 1:
+            raise NbledgerError(f"--max-messages must be at least 1, got {self.max_messages}")
+        if self.threshold is not None and not 0.0 < self.threshold < 1.0:
+            raise NbledgerError(f"--threshold must be a probability between 0 and 1, got {self.threshold}")
+
+
+@dataclass(frozen=True)
+class ClassFacts:
+    """One class of the model: its training messages, their share, and the model's log prior."""
+
+    name: str
+    training_messages: float
+    training_share: float
+    log_prior: float
+
+
+@dataclass(frozen=True)
+class ModelFacts:
+    """The model's fingerprint for the cover."""
+
+    file: str
+    sha256: str
+    variant: str
+    feature_kind: str
+    vocabulary_size: int
+    normal_class: str | None
+    classes: tuple[ClassFacts, ...]
+    card_created: str | None
+    training_data_sha256: str | None
+
+
+def model_facts(model) -> ModelFacts:
+    view, card = model.view, model.card or {}
+    counts = np.asarray(view.class_count, dtype=float)
+    shares = counts / counts.sum() if counts.sum() > 0 else np.full(len(counts), np.nan)
+    return ModelFacts(
+        file=model.path.name,
+        sha256=model.sha256,
+        variant=view.variant,
+        feature_kind=view.feature_kind,
+        vocabulary_size=int(view.n_features),
+        normal_class=view.normal_class,
+        classes=tuple(
+            ClassFacts(str(c), float(n), float(s), float(p)) for c, n, s, p in zip(view.classes, counts, shares, view.prior)
+        ),
+        card_created=card.get("created"),
+        training_data_sha256=(card.get("data") or {}).get("sha256"),
+    )
+
+
+@dataclass(frozen=True)
+class PerTenThousand:
+    """A rate stated per 10,000 messages, with its Wilson interval (``low``, ``high``) and raw counts."""
+
+    value: float
+    low: float
+    high: float
+    numerator: int
+    denominator: int
+
+
+@dataclass(frozen=True)
+class Headline:
+    """The summary's two figures at the decision in use, from the flagged-versus-normal table.
+
+    ``false_alarms``: normal messages flagged per 10,000 normal messages (the
+    false-positive rate); ``missed``: messages of the flagged classes let
+    through per 10,000 of them (one minus recall, its interval mirrored).
+    """
+
+    false_alarms: PerTenThousand
+    missed: PerTenThousand
+
+
+def headline(assessment: Assessment | None) -> Headline | None:
+    if assessment is None or assessment.flag_metrics is None:
+        return None
+    m = assessment.flag_metrics
+    fpr, recall = m.false_positive_rate, m.recall
+    scale = 10_000
+    return Headline(
+        false_alarms=PerTenThousand(scale * fpr.value, scale * fpr.low, scale * fpr.high, fpr.numerator, fpr.denominator),
+        missed=PerTenThousand(
+            scale * (1 - recall.value), scale * (1 - recall.high), scale * (1 - recall.low),
+            recall.denominator - recall.numerator, recall.denominator,
+        ),
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class Report:
+    """The inputs' fingerprints and every analysis of the report.
+
+    ``assessment`` is None without labelled data; ``explained_source`` says
+    where the explained messages came from (``"file"``: ``--explain``;
+    ``"sample"``: flagged messages of the labelled data; None: neither);
+    ``explained`` holds their ledgers, redacted as the settings say.
+    ``date`` is ``SOURCE_DATE_EPOCH`` when set (reproducible builds), else now (UTC).
+    """
+
+    settings: ReportSettings
+    date: _dt.datetime
+    model: object  # LoadedModel
+    facts: ModelFacts
+    data: object | None  # Messages
+    explain_source: object | None  # Messages of --explain
+    watchlist: Watchlist | None
+    vocab: VocabReview
+    assessment: Assessment | None
+    headline: Headline | None
+    explained: tuple[Ledger, ...]
+    explained_source: str | None
+    explained_total: int
+    versions: dict
+
+
+def report_date() -> _dt.datetime:
+    """``SOURCE_DATE_EPOCH`` (https://reproducible-builds.org/specs/source-date-epoch/) when set, else now, in UTC."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch is not None:
+        try:
+            return _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            raise NbledgerError(f"SOURCE_DATE_EPOCH must be whole seconds since 1970, got {epoch!r}") from None
+    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0)
+
+
+def versions() -> dict:
+    """Versions of the tool and of the libraries every figure depends on."""
+    import jinja2
+    import matplotlib
+    import weasyprint
+
+    from explain.model.training import library_versions
+
+    return {**library_versions(), "matplotlib": matplotlib.__version__, "jinja2": jinja2.__version__,
+            "weasyprint": weasyprint.__version__}
+
+
+def flagged_sample(model, texts, threshold: float | None, n: int) -> np.ndarray:
+    """Rows of ``n`` flagged messages spread evenly over the flagged ones ranked by score (strongest first).
+
+    The spread shows clear cases and cases near the decision line alike.
+    """
+    view = model.view
+    rule = DecisionRule.for_view(view, threshold)
+    scored = batch_evidence(view, model.featurizer.transform(texts), rule, top_k=1)
+    normal = scored.normal_index
+    flagged = np.flatnonzero(scored.decision != normal) if normal is not None else np.arange(len(texts))
+    score = scored.flag_log_odds if scored.flag_log_odds is not None else scored.log_odds
+    ranked = flagged[np.argsort(-score[flagged], kind="stable")]
+    if len(ranked) <= n:
+        return ranked
+    return ranked[np.unique(np.linspace(0, len(ranked) - 1, n).round().astype(int))]
+
+
+def _redacted_ledger(ledger: Ledger, mode: str) -> Ledger:
+    if mode == "none":
+        return ledger
+    masked = redacted(ledger)
+    masked = withhold_text(masked) if mode == "bodies" else masked
+    return replace(masked, message_id=None if ledger.message_id is None else mask_value(ledger.message_id))
+
+
+def build_report(
+    model,
+    *,
+    settings: ReportSettings = ReportSettings(),
+    data=None,
+    explain=None,
+    watchlist: Watchlist | None = None,
+    on_step=lambda name: None,
+) -> Report:
+    """Compute everything the report shows.
+
+    Parameters
+    ----------
+    model : a :class:`~explain.model.loading.LoadedModel`.
+    settings : :class:`ReportSettings`.
+    data : labelled :class:`~explain.model.data_io.Messages` for the assessment, or None.
+    explain : :class:`~explain.model.data_io.Messages` to explain, or None (then a
+        sample of flagged messages of ``data``).
+    watchlist : terms the vocabulary review reports whatever their evidence.
+    on_step : called with the name of each step as it starts (progress display).
+    """
+    date = report_date()
+    redact = settings.redact
+    on_step("reviewing the vocabulary")
+    vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none")
+    assessment = None
+    if data is not None:
+        on_step(f"assessing on {len(data):,} labelled messages")
+        X = model.featurizer.transform(data.texts)
+        assessment = redact_assessment(
+            assess(model.view, X, data.labels, threshold=settings.threshold, ids=data.ids), redact
+        )
+    on_step("explaining messages")
+    if explain is not None:
+        source, texts, ids = "file", explain.texts, explain.ids
+        rows = np.arange(len(texts))
+    elif data is not None:
+        source, texts, ids = "sample", data.texts, data.ids
+        rows = flagged_sample(model, texts, settings.threshold, settings.max_messages)
+    else:
+        source, texts, ids, rows = None, [], [], np.arange(0)
+    total = len(texts) if source == "file" else len(rows)
+    explained = tuple(
+        _redacted_ledger(
+            ledger_of(model, texts[i], settings.threshold, message_id=str(ids[i]), watchlist=watchlist), redact
+        )
+        for i in rows[: settings.max_messages]
+        if texts[i].strip()
+    )
+    return Report(
+        settings=settings,
+        date=date,
+        model=model,
+        facts=model_facts(model),
+        data=data,
+        explain_source=explain,
+        watchlist=watchlist,
+        vocab=vocab,
+        assessment=assessment,
+        headline=headline(assessment),
+        explained=explained,
+        explained_source=source,
+        explained_total=total,
+        versions=versions(),
+    )

@@ -1,0 +1,80 @@
+"""``nbledger demo``: the Tideway Commons demo end to end, ending in the review report.
+
+The demo corpus is not part of the installed package: it lives in the
+project's checkout (``demo_corpus/``). The command looks for it in the
+current folder, or takes ``--corpus DIR``; without it, it stops with one line
+saying so.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from explain.cli import app, console, fail
+
+#: The two decisions printed as one-page sheets: a clear scam and a false alarm.
+SHEETS = ("clear_scam", "false_alarm")
+
+
+def _step(argv: list[str]) -> None:
+    """Run one nbledger command in this process; stop the demo if it fails."""
+    from explain.cli import run
+
+    console.print(f"$ nbledger {' '.join(argv)}", markup=False, highlight=False, style="dim")
+    status = run(argv)
+    if status:
+        raise typer.Exit(status)
+
+
+def _script(script: Path, *args: str) -> None:
+    """Run one of the corpus's own scripts (it checks or splits the committed CSV)."""
+    done = subprocess.run([sys.executable, str(script), *args], capture_output=True, text=True)
+    sys.stdout.write(done.stdout)
+    if done.returncode:
+        fail((done.stderr.strip() or done.stdout.strip() or f"{script.name} failed").splitlines()[-1])
+
+
+@app.command()
+def demo(
+    out: Path = typer.Option(Path("demo_out"), "--out", help="Folder for everything the demo writes."),
+    corpus: Optional[Path] = typer.Option(
+        None, "--corpus", help="The demo corpus folder (default: demo_corpus/ in the current folder)."
+    ),
+):
+    """Check the demo corpus, split it by date, train the demo filter, and write its review report."""
+    corpus = corpus if corpus is not None else Path("demo_corpus")
+    if not (corpus / "generate.py").is_file() or not (corpus / "messages.csv").is_file():
+        fail(
+            f"no demo corpus at {corpus}/: run nbledger demo in the project's checkout, "
+            "or point --corpus at its demo_corpus folder"
+        )
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        fail(f"cannot create the output folder {out}: {exc.strerror or exc}")
+    examples = corpus / "examples"
+    model = out / "tideway.skops"
+
+    _script(corpus / "generate.py", "--check", "--out", str(corpus / "messages.csv"))
+    _script(corpus / "split.py", "--out", str(out))
+    _step(["train", str(out / "train.csv"), "--text-col", "text", "--label-col", "label", "--normal-class", "ok",
+           "--holdout", "0.2", "--seed", "7", "--out", str(model)])
+    explain = ["--explain", str(examples / "explain.csv")] if (examples / "explain.csv").is_file() else []
+    _step(["report", str(model), "--data", str(out / "test.csv"), *explain,
+           "--watchlist", str(examples / "watchlist.txt"),
+           "--title", "Review of the Tideway Commons message filter", "--organisation", "Tideway Commons (demo)",
+           "--out", str(out / "report.pdf"), "--html", str(out / "report.html"), "--json", str(out / "report.json")])
+    sheets = []
+    for name in SHEETS:
+        if (examples / f"{name}.txt").is_file():
+            sheets.append(out / f"sheet_{name}.pdf")
+            _step(["why", str(model), "--file", str(examples / f"{name}.txt"), "--redact", "--out", str(sheets[-1])])
+    console.print(f"\nThe review report is {out / 'report.pdf'} (HTML twin report.html, every figure in report.json).",
+                  markup=False, highlight=False)
+    for sheet in sheets:
+        console.print(f"One-page sheet: {sheet}", markup=False, highlight=False)

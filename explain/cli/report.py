@@ -1,0 +1,147 @@
+"""``nbledger report``: the printable review report (PDF) with its HTML and JSON twins."""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import os
+import sys
+from pathlib import Path
+from typing import List, Optional
+
+import numpy as np
+import typer
+
+from explain.cli import app, console, err_console, fail, load_model_or_fail, read_messages_or_fail
+
+
+def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
+    """Refuse an output path before any work: wrong suffix, missing folder, no write permission."""
+    if path.suffix.lower() not in suffixes:
+        fail(f"{option} must end in {' or '.join(suffixes)}, got {path.name!r}")
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        fail(f"the folder {folder} for {option} does not exist")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        fail(f"no permission to write in {folder} ({option})")
+    if path.is_dir():
+        fail(f"{option} {path} is a folder")
+    return path
+
+
+def read_explain(path: Path, text_col: str):
+    """Messages to explain: a data file (its ``text_col``), or a ``.txt`` file holding one message."""
+    from explain.model.data_io import Messages, decode_utf8
+
+    if path.suffix.lower() != ".txt":
+        return read_messages_or_fail(path, text_col)
+    if not path.is_file():
+        fail(f"no message file at {path}")
+    raw = path.read_bytes()
+    text, replaced = decode_utf8(raw)
+    if not text.strip():
+        fail(f"{path.name} is empty")
+    ids = np.asarray([path.stem], dtype=object)
+    return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
+
+
+@contextlib.contextmanager
+def steps(total: int):
+    """Say which step the build is on: a rich progress bar on a terminal, plain lines otherwise."""
+    if err_console.is_terminal:
+        from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+        with Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(), console=err_console,
+                      transient=True) as progress:
+            task = progress.add_task("starting", total=total)
+            first = [True]
+
+            def step(name: str) -> None:
+                if not first[0]:
+                    progress.advance(task)
+                first[0] = False
+                progress.update(task, description=name)
+
+            yield step
+    else:
+        yield lambda name: print(f"report: {name}", file=sys.stderr, flush=True)
+
+
+@app.command()
+def report(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    out: Path = typer.Option(..., "--out", help="The PDF to write."),
+    data: Optional[Path] = typer.Option(
+        None, "--data", help="Labelled messages (.csv, .jsonl, .parquet): adds performance and errors."
+    ),
+    text_col: str = typer.Option("text", "--text-col", help="Column holding the message text (--data, --explain)."),
+    label_col: str = typer.Option("label", "--label-col", help="Column of --data holding the true class."),
+    explain: Optional[Path] = typer.Option(
+        None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt file of one message."
+    ),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    threshold: Optional[float] = typer.Option(
+        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+    ),
+    watchlist: Optional[Path] = typer.Option(
+        None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
+    ),
+    redact: str = typer.Option(
+        "personal", "--redact", help="personal (mask e-mail, phone, URL, IP, digit runs) | bodies (no message text) | none"
+    ),
+    title: str = typer.Option("Review of a naive Bayes message filter", "--title", help="Title on the cover."),
+    organisation: Optional[str] = typer.Option(None, "--organisation", help="Organisation on the cover."),
+    paper: str = typer.Option("a4", "--paper", help="a4 | letter"),
+    max_messages: int = typer.Option(6, "--max-messages", help="Messages in the explained-messages section."),
+    html: Optional[Path] = typer.Option(None, "--html", help="Also write the HTML twin (one self-contained file)."),
+    json_out: Optional[Path] = typer.Option(None, "--json", help="Also write the JSON twin (every figure)."),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+):
+    """Write the review report: a PDF for people, with its HTML and JSON twins."""
+    from explain.analysis.report import ReportSettings, build_report
+    from explain.analysis.risk import read_watchlist
+    from explain.output_files import atomic_path
+    from explain.present.report import draw_pictures, render_html, render_pdf
+    from explain.present.report_json import dumps, to_json
+
+    outputs = {out: check_output(out, "--out", (".pdf",))}
+    if html is not None:
+        outputs[html] = check_output(html, "--html", (".html", ".htm"))
+    if json_out is not None:
+        outputs[json_out] = check_output(json_out, "--json", (".json",))
+    if len({p.resolve() for p in outputs}) < len(outputs):
+        fail("--out, --html and --json must be different files")
+    settings = ReportSettings(
+        title=title, organisation=organisation, redact=redact, paper=paper, max_messages=max_messages,
+        threshold=threshold,
+    )
+    terms = read_watchlist(watchlist) if watchlist is not None else None
+
+    with steps(8) as step:
+        step("loading the model")
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+        )
+        step("reading the data")
+        messages = read_messages_or_fail(data, text_col, label_col) if data is not None else None
+        to_explain = read_explain(explain, text_col) if explain is not None else None
+        result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
+                              on_step=step)
+        step("drawing the pictures")
+        twin = to_json(result)
+        pictures = draw_pictures(result)
+        step("rendering the PDF")
+        page = render_html(result, twin, pictures)
+        pdf = render_pdf(page, result.date.isoformat())
+        step("writing the files")
+        contents = {out: pdf, html: page, json_out: dumps(result)}
+        # Every output is written to a temporary file first; all are renamed only once all are written.
+        with contextlib.ExitStack() as stack:
+            for path in outputs:
+                tmp = stack.enter_context(atomic_path(path))
+                payload = contents[path]
+                tmp.write_bytes(payload.encode("utf-8") if isinstance(payload, str) else payload)
+    for path in outputs:
+        console.print(f"wrote {path}", markup=False, highlight=False)

@@ -1,0 +1,199 @@
+"""The printable report: HTML from the Jinja2 templates, PDF through WeasyPrint.
+
+Nothing here computes a figure. The template reads the JSON twin
+(:mod:`explain.present.report_json`) and the pictures drawn from the same
+:class:`~explain.analysis.report.Report`, so the PDF, the HTML and the JSON
+show the same numbers. The look is the stylesheet ``templates/report.css``
+(CSS Paged Media as WeasyPrint implements it: ``@page`` margin boxes,
+``target-counter()`` for the contents, ``bookmark-level``); the templates
+hold structure only.
+
+The templates live in the top-level ``templates/`` folder of the project;
+the wheel maps that folder into the package as ``explain/templates``
+(``pyproject.toml``), so an installed copy reads its own.
+
+Safe rendering: autoescaping is on for every template, so message texts,
+labels and file names holding HTML, CSS or script appear literally; the
+HTML carries a Content-Security-Policy that allows only inline styles and
+``data:`` images; and WeasyPrint fetches through :class:`SafeFetcher`, which
+allows ``data:`` URIs and files of the package's own templates folder only.
+"""
+
+from __future__ import annotations
+
+import base64
+import logging
+from pathlib import Path
+from urllib.parse import unquote, urlsplit
+
+from explain.analysis.report import Report
+from explain.present import wording
+from explain.present.drawing import class_colours
+from explain.present.report_json import LEDGER_ROWS, to_json
+
+
+
+def template_dir() -> Path:
+    """The templates folder: inside the installed package, or the checkout's top-level ``templates/``."""
+    here = Path(__file__).resolve().parent.parent
+    installed = here / "templates"
+    return installed if (installed / "report.html.j2").is_file() else here.parent / "templates"
+
+
+def environment():
+    """The Jinja2 environment of the report: autoescaping everywhere, undefined names are errors."""
+    import jinja2
+
+    env = jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(template_dir())),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds)
+    return env
+
+
+# --- number formats (formatting only: every value comes from the JSON twin) -------
+
+
+def _pct(x, digits: int = 1) -> str:
+    return "–" if x is None else f"{100 * x:.{digits}f} %"
+
+
+def _num(x, digits: int = 3) -> str:
+    return "–" if x is None else f"{x:.{digits}f}"
+
+
+def _count(x) -> str:
+    return "–" if x is None else f"{x:,.0f}"
+
+
+def _rate(r: dict, digits: int = 1) -> str:
+    if r is None or r["denominator"] == 0 or r["value"] is None:
+        return "undefined (0 of 0)"
+    # the glossary's one style: the estimate, then the interval in round brackets with "to"
+    return f"{100 * r['value']:.{digits}f} % ({100 * r['low']:.{digits}f} to {100 * r['high']:.{digits}f})"
+
+
+# --- pictures ------------------------------------------------------------------------
+
+
+def draw_pictures(report: Report) -> dict[str, bytes]:
+    """Name -> PNG of every picture the report embeds (assessment, then vocabulary)."""
+    from explain.present import assess_pictures, vocab_pictures
+
+    pictures = {}
+    if report.assessment is not None:
+        pictures.update(assess_pictures.draw_all(report.assessment))
+    for i, _ in enumerate(report.vocab.contrasts):
+        pictures[f"bars_{i}.png"] = vocab_pictures.bar_chart(report.vocab, i)
+        pictures[f"cloud_{i}.png"] = vocab_pictures.word_cloud(report.vocab, i, "for")
+    return pictures
+
+
+def data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+# --- assembling ----------------------------------------------------------------------
+
+
+def context(report: Report, twin: dict, pictures: dict[str, bytes]) -> dict:
+    """What the template reads: the JSON twin, each explained message's ledger view, pictures as data: URIs, colours."""
+    from explain.present.ledger_html import ledger_context
+
+    families = class_colours(report.vocab.classes, report.vocab.normal_class)
+    redaction = report.settings.redact
+    views = [
+        # the cover carries the model's fingerprint once for the whole report
+        {**ledger_context(ledger, redaction, top=LEDGER_ROWS), "model_file": None}
+        for ledger in report.explained
+    ]
+    return {
+        "r": twin,
+        "ledgers": views,
+        "pictures": {name: data_uri(png) for name, png in pictures.items()},
+        "colours": {name: family.base for name, family in families.items()},
+        "missing": dict(twin["sections"]),
+    }
+
+
+def render_html(report: Report, twin: dict | None = None, pictures: dict[str, bytes] | None = None) -> str:
+    """The report as one self-contained HTML file (figures embedded as data: URIs)."""
+    twin = to_json(report) if twin is None else twin
+    pictures = draw_pictures(report) if pictures is None else pictures
+    return environment().get_template("report.html.j2").render(**context(report, twin, pictures))
+
+
+def sheet_html(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> str:
+    """The one-page sheet of each decision (:class:`~explain.analysis.ledger.Ledger`), a page each, as HTML.
+
+    Everything on it comes from the ledger, through the ledger fragment
+    (``templates/partials/ledger.html.j2``): the model's fingerprint, the
+    message id, the rule, the tinted text, the entries (the ``top`` largest
+    when there are more), the flip set, and the caution.
+    """
+    from explain import __version__
+    from explain.present.ledger_html import ledger_context
+
+    views = [ledger_context(ledger, "personal" if ledger.redacted else "none", top=top, date=date) for ledger in ledgers]
+    return environment().get_template("sheet.html.j2").render(ledgers=views, date=date, paper=paper,
+                                                              version=__version__)
+
+
+def sheet_pdf(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> bytes:
+    """:func:`sheet_html` printed to PDF."""
+    return render_pdf(sheet_html(ledgers, date=date, top=top, paper=paper), date)
+
+
+# --- PDF -----------------------------------------------------------------------------
+
+
+def _safe_fetcher_class():
+    from weasyprint.urls import URLFetcher
+
+    class SafeFetcher(URLFetcher):
+        """Fetch ``data:`` URIs and the package's own template files; refuse everything else.
+
+        Remote URLs and ``file:`` references to anything outside the templates
+        folder are never opened, whatever a message, label or file name holds.
+        """
+
+        def __init__(self):
+            super().__init__(allowed_protocols=("data", "file"), allow_redirects=False, timeout=1)
+            self.refused: list[str] = []
+            self.root = template_dir().resolve()
+
+        def fetch(self, url, headers=None):
+            scheme = url.split(":", 1)[0].lower()
+            if scheme == "file":
+                path = Path(unquote(urlsplit(url).path)).resolve()
+                if not path.is_relative_to(self.root):
+                    self.refused.append(url)
+                    raise ValueError(f"refused: {url}")
+            elif scheme != "data":
+                self.refused.append(url)
+                raise ValueError(f"refused: {url}")
+            return super().fetch(url, headers)
+
+    return SafeFetcher
+
+
+def render_pdf(html_text: str, date: str) -> bytes:
+    """The PDF of an HTML page; its creation and modification dates are ``date`` (ISO 8601, see ``report_date``)."""
+    import weasyprint
+
+    fetcher = _safe_fetcher_class()()
+    # WeasyPrint warns about every refused reference; they are refused on purpose.
+    logging.getLogger("weasyprint").setLevel(logging.ERROR)
+    document = weasyprint.HTML(
+        string=html_text, base_url=template_dir().as_uri() + "/", url_fetcher=fetcher
+    ).render()
+    document.metadata.created = date
+    document.metadata.modified = date
+    return document.write_pdf()
+
+

@@ -1,0 +1,368 @@
+"""The printable review report: its PDF, HTML and JSON twins, redaction, safe rendering, bad input.
+
+The model keeps whole whitespace-separated words as tokens, so e-mail
+addresses, URLs and phone numbers planted in the data become tokens of its
+vocabulary: redaction then has to mask them in tables, pictures and ledgers,
+not only in message texts.
+"""
+
+from __future__ import annotations
+
+import http.server
+import json
+import os
+import re
+import threading
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from pypdf import PdfReader
+from sklearn.feature_extraction.text import CountVectorizer
+from sklearn.metrics import brier_score_loss, confusion_matrix, precision_recall_fscore_support, roc_auc_score
+from sklearn.naive_bayes import MultinomialNB
+from sklearn.pipeline import Pipeline
+
+from clirun import nbledger
+from explain.analysis.report import ReportSettings, build_report
+from explain.analysis.risk import read_watchlist
+from explain.model.data_io import read_messages
+from explain.model.loading import load_model
+from explain.present.report_json import dumps
+
+ROOT = Path(__file__).resolve().parents[1]
+CORPUS = ROOT / "demo_corpus"
+EPOCH = "1780000000"  # 2026-05-28, fixed so that runs are comparable
+# Reserved example values only (RFC 2606 domains, 555-01xx numbers, RFC 5737 addresses).
+PLANTED = (
+    "moorings.warden@example.org",
+    "http://quay-fees.example.net/pay/8812",
+    "555-0147",
+    "192.0.2.44",
+    "8812004417",
+)
+SECTIONS = (
+    "Summary for non-specialists", "Performance", "What the filter learned", "Explained messages", "Errors",
+    "Risks", "Method", "Cautions and limitations",
+)
+
+
+def _planted_rows(label: str, n: int) -> list[dict]:
+    return [
+        {"id": f"planted-{label}-{i}", "sent_at": "2026-11-01T09:00:00Z", "label": label,
+         "text": f"Urgent: your levy refund is held. Reply to {PLANTED[0]} or pay at {PLANTED[1]}, "
+                 f"ring {PLANTED[2]}, server {PLANTED[3]}, reference {PLANTED[4]}."}
+        for i in range(n)
+    ]
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    """A model with personal tokens in its vocabulary, labelled data and messages to explain."""
+    import skops.io as sio
+
+    folder = tmp_path_factory.mktemp("report")
+    frame = pd.read_csv(CORPUS / "messages.csv", dtype=str, keep_default_na=False)
+    train = pd.concat([frame[frame.sent_at < "2026-10-01"], pd.DataFrame(_planted_rows("scam", 12))])
+    test = pd.concat([frame[frame.sent_at >= "2026-10-01"].iloc[:700], pd.DataFrame(_planted_rows("scam", 3))])
+    test.to_csv(folder / "test.csv", index=False)
+    pipeline = Pipeline([("words", CountVectorizer(token_pattern=r"[^\s,]+")), ("nb", MultinomialNB())])
+    pipeline.fit(train.text, train.label)
+    sio.dump(pipeline, folder / "filter.skops")
+    pd.DataFrame(
+        [{"id": "ask-1", "text": f"Please confirm your payment to {PLANTED[0]} today, ring {PLANTED[2]}."},
+         {"id": "ask-2", "text": f"The workshop key is with Marisol; the rota is at {PLANTED[1]}"}]
+    ).to_csv(folder / "explain.csv", index=False)
+    return folder
+
+
+@pytest.fixture(scope="module")
+def built(files, tmp_path_factory):
+    """One report with the default redaction (personal), through the command line."""
+    out = tmp_path_factory.mktemp("built")
+    env = os.environ.get("SOURCE_DATE_EPOCH")
+    os.environ["SOURCE_DATE_EPOCH"] = EPOCH
+    try:
+        from explain.cli import run
+
+        code = run(["report", str(files / "filter.skops"), "--data", str(files / "test.csv"),
+                    "--explain", str(files / "explain.csv"), "--normal-class", "ok",
+                    "--watchlist", str(CORPUS / "examples" / "watchlist.txt"),
+                    "--out", str(out / "r.pdf"), "--html", str(out / "r.html"), "--json", str(out / "r.json")])
+    finally:
+        os.environ.pop("SOURCE_DATE_EPOCH") if env is None else os.environ.__setitem__("SOURCE_DATE_EPOCH", env)
+    assert code == 0
+    reader = PdfReader(out / "r.pdf")
+    return {
+        "reader": reader,
+        "text": "\n".join(page.extract_text() for page in reader.pages),
+        "html": (out / "r.html").read_text(encoding="utf-8"),
+        "json": (out / "r.json").read_text(encoding="utf-8"),
+    }
+
+
+def _squeezed(text: str) -> str:
+    return re.sub(r"\s+", "", text)
+
+
+# --- the PDF --------------------------------------------------------------------------
+
+
+def test_pdf_pages_headings_fingerprint_numbers_images_bookmarks(built, files):
+    reader, text = built["reader"], built["text"]
+    assert 8 <= len(reader.pages) <= 40
+    for heading in SECTIONS:
+        assert heading in text, heading
+    sha = load_model(files / "filter.skops", normal_class="ok").sha256
+    assert sha in _squeezed(text)  # the cover prints it whole (it may wrap)
+    assert f"page 2 of {len(reader.pages)}" in text and f"page {len(reader.pages)} of {len(reader.pages)}" in text
+    images = sum(len(page.images) for page in reader.pages)
+    assert images >= 7  # confusion, ROC, PR, reliability, scores, and a cloud and bars per flagged class
+    titles = [item.title for item in reader.outline if not isinstance(item, list)]
+    for heading in SECTIONS:
+        assert heading in titles
+    assert reader.metadata.creation_date.year == 2026 and reader.metadata.creation_date.month == 5
+
+
+def test_contents_lists_the_page_of_each_section(built):
+    contents_page = built["reader"].pages[1].extract_text()
+    for heading in SECTIONS:
+        line = next(l for l in contents_page.splitlines() if l.startswith(heading))
+        page = int(re.search(r"(\d+)\s*$", line).group(1))
+        assert heading in built["reader"].pages[page - 1].extract_text()
+
+
+# --- the JSON twin ---------------------------------------------------------------------
+
+
+def test_json_figures_equal_scikit_learn(built, files):
+    """Figures of the JSON twin against scikit-learn's own metrics (source: scikit-learn 1.x, sklearn.metrics)."""
+    twin = json.loads(built["json"])
+    assert twin["schema"] == "nbledger.report/1"
+    import skops.io as sio
+    from scipy.special import logsumexp
+
+    path = files / "filter.skops"
+    pipeline = sio.load(path, trusted=sio.get_untrusted_types(file=path))  # our own file
+    data = read_messages(files / "test.csv", "text", "label")
+    words, nb = pipeline[0], pipeline[-1]
+    jll = nb.predict_joint_log_proba(words.transform(data.texts))
+    classes = list(pipeline.classes_)
+    decided = pipeline.predict(data.texts)
+    a = twin["assessment"]
+    assert a["confusion"]["counts"] == confusion_matrix(data.labels, decided, labels=a["confusion"]["labels"]).tolist()
+    precision, recall, _, _ = precision_recall_fscore_support(data.labels, decided, labels=a["classes"], zero_division=0)
+    for m, p, r in zip(a["class_metrics"], precision, recall):
+        assert m["precision"]["value"] == pytest.approx(p, rel=1e-12)
+        assert m["recall"]["value"] == pytest.approx(r, rel=1e-12)
+    flagged = data.labels != "ok"
+    ok = classes.index("ok")
+    # the flag score log P(not ok) - log P(ok): probabilities round to 1.0 where log-odds stay distinct
+    score = logsumexp(np.delete(jll, ok, axis=1), axis=1) - jll[:, ok]
+    p_not_ok = 1 - pipeline.predict_proba(data.texts)[:, ok]
+    assert a["flag_ranking"]["auc"]["auc"] == pytest.approx(roc_auc_score(flagged, score), abs=1e-9)
+    assert a["calibration"]["brier_score"] == pytest.approx(brier_score_loss(flagged, p_not_ok), abs=1e-9)
+    fpr = a["flag_metrics"]["false_positive_rate"]
+    assert twin["summary"]["false_alarms"]["value"] == pytest.approx(10_000 * fpr["value"])
+    assert twin["summary"]["missed"]["value"] == pytest.approx(10_000 * (1 - a["flag_metrics"]["recall"]["value"]))
+    # each explained message's ledger closes on scikit-learn's log-odds (predict_joint_log_proba differences)
+    for message, text in zip(twin["explained_messages"]["messages"], read_messages(files / "explain.csv", "text").texts):
+        row = nb.predict_joint_log_proba(words.transform([text]))[0]
+        ledger = message["ledger"]
+        credit, debit = classes.index(ledger["credit_classes"][0]), classes.index(ledger["debit_class"])
+        assert ledger["closing"] == pytest.approx(row[credit] - row[debit], rel=1e-9)
+        assert ledger["opening"] + sum(e["amount"] for e in ledger["entries"]) == pytest.approx(ledger["closing"], rel=1e-9)
+
+
+def test_json_twin_is_byte_identical_across_runs(files, monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", EPOCH)
+    model = load_model(files / "filter.skops", normal_class="ok")
+    data = read_messages(files / "test.csv", "text", "label")
+    watch = read_watchlist(CORPUS / "examples" / "watchlist.txt")
+    first = dumps(build_report(model, data=data, watchlist=watch))
+    second = dumps(build_report(load_model(files / "filter.skops", normal_class="ok"),
+                                data=read_messages(files / "test.csv", "text", "label"), watchlist=watch))
+    assert first.encode() == second.encode()
+    assert json.loads(first)["date"] == "2026-05-28T20:26:40+00:00"
+
+
+# --- redaction -------------------------------------------------------------------------
+
+
+def test_personal_values_appear_nowhere_with_personal_redaction(built, files):
+    for value in PLANTED:
+        assert _squeezed(value) not in _squeezed(built["text"]), value
+        assert value not in built["html"], value
+        assert value not in built["json"], value
+
+
+def test_pictures_draw_no_personal_token(files):
+    """The pictures' inputs (the vocabulary review and the assessment) hold no planted value."""
+    model = load_model(files / "filter.skops", normal_class="ok")
+    data = read_messages(files / "test.csv", "text", "label")
+    report = build_report(model, data=data)
+    tokens = " ".join(map(str, report.vocab.tokens))
+    assert any(v in " ".join(map(str, model.view.tokens)) for v in PLANTED)  # they are tokens of the model
+    for value in PLANTED:
+        assert value not in tokens
+
+
+def test_without_redaction_the_values_are_there(files):
+    """The control: the same inputs with --redact none show the planted values (so the test above can fail)."""
+    model = load_model(files / "filter.skops", normal_class="ok")
+    report = build_report(model, settings=ReportSettings(redact="none"),
+                          explain=read_messages(files / "explain.csv", "text"))
+    text = dumps(report)
+    assert PLANTED[0] in text and PLANTED[2] in text
+
+
+def test_bodies_redaction_prints_no_message_text(files):
+    model = load_model(files / "filter.skops", normal_class="ok")
+    report = build_report(model, settings=ReportSettings(redact="bodies"),
+                          explain=read_messages(files / "explain.csv", "text"))
+    twin = json.loads(dumps(report))
+    assert twin["redaction"] == "bodies"
+    for message in twin["explained_messages"]["messages"]:
+        assert message["text"] is None
+        assert all(not e["spans"] for e in message["ledger"]["entries"])
+    assert "Marisol" not in json.dumps(twin)
+
+
+# --- safe rendering ----------------------------------------------------------------------
+
+
+class _Counter(http.server.BaseHTTPRequestHandler):
+    hits: list = []
+
+    def do_GET(self):  # noqa: N802 (the standard library's name)
+        type(self).hits.append(self.path)
+        self.send_response(200)
+        self.end_headers()
+
+    def log_message(self, *args):
+        pass
+
+
+@pytest.fixture()
+def loopback():
+    """A loopback HTTP server that counts every request it gets."""
+    _Counter.hits = []
+    server = http.server.ThreadingHTTPServer(("127.0.0.1", 0), _Counter)
+    threading.Thread(target=server.serve_forever, daemon=True).start()
+    yield server.server_address[1], _Counter.hits
+    server.shutdown()
+
+
+def _hostile(port: int) -> list[str]:
+    return [
+        f'<img src="http://127.0.0.1:{port}/img">',
+        f"<style>body {{ background: url(http://127.0.0.1:{port}/css) }}</style>",
+        f"<script>fetch('http://127.0.0.1:{port}/js')</script>",
+        '<link rel="stylesheet" href="file:///etc/passwd">',
+    ]
+
+
+def test_hostile_texts_are_shown_literally_and_nothing_is_fetched(files, loopback, tmp_path, capsys):
+    port, hits = loopback
+    hostile = _hostile(port)
+    name = tmp_path / "m<b onclick=x>.csv"
+    pd.DataFrame([{"id": f"h{i}", "text": f"Your parcel fee is unpaid {h} pay today"} for i, h in enumerate(hostile)]
+                 ).to_csv(name, index=False)
+    result = nbledger(capsys, "report", files / "filter.skops", "--explain", name, "--normal-class", "ok",
+                      "--redact", "none", "--title", f'<img src="http://127.0.0.1:{port}/title">',
+                      "--out", tmp_path / "h.pdf", "--html", tmp_path / "h.html")
+    assert result.code == 0, result.err
+    assert hits == []
+    page = (tmp_path / "h.html").read_text(encoding="utf-8")
+    for h in hostile:
+        assert h not in page  # never as markup
+        assert h.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;").replace('"', "&#34;").replace(
+            "'", "&#39;") in page
+    assert "<script" not in page
+    text = _squeezed("\n".join(p.extract_text() for p in PdfReader(tmp_path / "h.pdf").pages))
+    for h in hostile:
+        assert _squeezed(h) in text
+    assert _squeezed("m<b onclick=x>.csv") in text
+
+
+def test_headless_chromium_fetches_nothing_logs_no_error_and_draws(files, loopback, tmp_path, capsys):
+    """The HTML twin in Debian's chromium: no network request, no console error, a screenshot that is not blank."""
+    import shutil
+    import subprocess
+
+    from PIL import Image
+
+    browser = shutil.which("chromium") or shutil.which("chromium-browser")
+    if browser is None:
+        if os.environ.get("CI") == "true":
+            pytest.fail("chromium is missing under CI (make system-packages installs it)")
+        pytest.skip("chromium is not installed (make system-packages installs it)")
+    port, hits = loopback
+    name = tmp_path / "m.csv"
+    pd.DataFrame([{"id": f"h{i}", "text": h} for i, h in enumerate(_hostile(port))]).to_csv(name, index=False)
+    result = nbledger(capsys, "report", files / "filter.skops", "--data", files / "test.csv", "--explain", name,
+                      "--normal-class", "ok", "--redact", "none", "--out", tmp_path / "c.pdf",
+                      "--html", tmp_path / "c.html")
+    assert result.code == 0, result.err
+    shot = tmp_path / "shot.png"
+    done = subprocess.run(
+        [browser, "--headless", "--no-sandbox", "--disable-gpu", "--hide-scrollbars", "--enable-logging=stderr",
+         "--v=0", "--window-size=1000,1400", f"--screenshot={shot}", (tmp_path / "c.html").as_uri()],
+        capture_output=True, text=True, timeout=120,
+    )
+    assert shot.is_file(), done.stderr[-2000:]
+    assert hits == []
+    console = [l for l in done.stderr.splitlines() if "CONSOLE" in l or "Uncaught" in l or "Refused" in l]
+    assert console == []
+    picture = np.asarray(Image.open(shot).convert("L"))
+    assert picture.std() > 10 and len(np.unique(picture)) > 20
+
+
+# --- bad input ---------------------------------------------------------------------------
+
+
+def _bad(capsys, files, tmp_path, *args) -> str:
+    result = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", *args)
+    result.err = "\n".join(l for l in result.err.splitlines() if not l.startswith("report: "))  # progress lines
+    line = result.one_error_line()
+    assert not [p for p in tmp_path.rglob("*") if p.suffix in (".pdf", ".html", ".json") or p.name.startswith(".")]
+    return line
+
+
+def test_bad_input_is_one_line_and_writes_nothing(files, tmp_path, capsys):
+    out = ("--out", tmp_path / "r.pdf", "--html", tmp_path / "r.html")
+    assert "does not exist" in _bad(capsys, files, tmp_path, "--out", tmp_path / "missing" / "r.pdf")
+    assert ".pdf" in _bad(capsys, files, tmp_path, "--out", tmp_path / "r.docx")
+    assert "--max-messages" in _bad(capsys, files, tmp_path, "--max-messages", "0", *out)
+    (tmp_path / "bytes.txt").write_bytes(b"\xff\xfe\x00binary\x00")
+    assert "not UTF-8" in _bad(capsys, files, tmp_path, "--watchlist", tmp_path / "bytes.txt", *out)
+    pd.DataFrame([{"id": 1, "body": "hello"}]).to_csv(tmp_path / "notext.csv", index=False)
+    assert "no column 'text'" in _bad(capsys, files, tmp_path, "--explain", tmp_path / "notext.csv", *out)
+    assert "--redact" in _bad(capsys, files, tmp_path, "--redact", "some", *out)
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root may write anywhere")
+def test_a_folder_without_write_permission_is_refused(files, tmp_path, capsys):
+    locked = tmp_path / "locked"
+    locked.mkdir()
+    locked.chmod(0o500)
+    try:
+        assert "permission" in _bad(capsys, files, tmp_path, "--out", locked / "r.pdf")
+    finally:
+        locked.chmod(0o700)
+
+
+def test_without_data_each_left_out_section_is_one_line(files, tmp_path, capsys):
+    """No labelled data and nothing to explain: performance, errors and explained messages each say what would add them."""
+    result = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", "--paper", "letter",
+                      "--redact", "bodies", "--out", tmp_path / "bare.pdf")
+    assert result.code == 0, result.err
+    reader = PdfReader(tmp_path / "bare.pdf")
+    assert [round(float(v)) for v in reader.pages[0].mediabox[2:]] == [612, 792]  # US letter, in points
+    text = " ".join(" ".join(p.extract_text() for p in reader.pages).split())
+    assert text.count("Left out: this section needs labelled data") == 3  # summary figures, performance, errors
+    assert "Left out: this section needs messages to explain" in text
+    assert "bodies: no message text is printed" in text
+    for heading in SECTIONS:
+        assert heading in text
