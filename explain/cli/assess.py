@@ -8,7 +8,11 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import app, console, deliver, fail, load_model_or_fail, plain_text, read_messages_or_fail
+from explain.cli import (
+    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
+    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+)
+from explain.output_files import OutputSet
 
 
 def parse_fraction(text: str, what: str) -> float:
@@ -67,6 +71,11 @@ def assess(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, errors."""
     from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
@@ -80,33 +89,37 @@ def assess(
         DEFAULT_TARGET_RECALL if not target_recall else tuple(parse_fraction(t, "--target-recall") for t in target_recall)
     )
     cost_pair = parse_costs(costs)
-    loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
-    )
-    messages = read_messages_or_fail(data, text_col, label_col)
-    result = run_assessment(
-        loaded.view,
-        loaded.featurizer.transform(messages.texts),
-        messages.labels,
-        threshold=threshold,
-        ids=messages.ids,
-        target_fpr=fprs,
-        target_recall=recalls,
-        costs=cost_pair,
-        n_bins=bins,
-        top=top,
-    )
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data]) as outputs:
+        if out is not None:
+            outputs.file(out)
+        if images is not None:
+            outputs.folder(images)
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
+        )
+        messages = read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes)
+        result = run_assessment(
+            loaded.view,
+            loaded.featurizer.transform(messages.texts),
+            messages.labels,
+            threshold=threshold,
+            ids=messages.ids,
+            target_fpr=fprs,
+            target_recall=recalls,
+            costs=cost_pair,
+            n_bins=bins,
+            top=top,
+        )
 
-    pictures = {}
-    if images is not None:
-        from explain.present.assess_pictures import draw_all
+        pictures = {}
+        if images is not None:
+            from explain.present.assess_pictures import draw_all
 
-        if images.exists() and not images.is_dir():
-            fail(f"--images must be a folder; {images} is a file")
-        pictures = draw_all(result)
+            pictures = draw_all(result)
 
-    if output_format == "json":
-        text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
-    else:
-        text = plain_text(render, result, 120) if out is not None else None
-    deliver(text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))
+        if output_format == "json":
+            text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
+        else:
+            text = plain_text(render, result, 120) if out is not None else None
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))

@@ -8,8 +8,8 @@ from typing import Optional
 
 import typer
 
-from explain.cli import app, console, read_messages_or_fail
-from explain.output_files import atomic_path, write_atomic
+from explain.cli import MAX_DATA_BYTES, app, console, read_messages_or_fail
+from explain.output_files import OutputSet
 
 
 @app.command()
@@ -27,6 +27,7 @@ def train(
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     holdout: float = typer.Option(0.0, help="Fraction held out (stratified) to measure accuracy and F1."),
     seed: int = typer.Option(0, help="Seed for the hold-out split."),
+    max_data_bytes: str = MAX_DATA_BYTES,
 ):
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
@@ -38,16 +39,20 @@ def train(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
         alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
     )
-    messages = read_messages_or_fail(data, text_col, label_col)
-    trained = train_filter(messages.texts, messages.labels, settings)
-
-    # The card records the SHA-256 of the exact bytes that become the model file.
-    with atomic_path(out) as tmp:
-        sio.dump(trained.pipeline, tmp)
+    card_path = card_path_for(out)
+    # Model and card are one transaction: both appear, or neither; and the card
+    # records the SHA-256 of the exact bytes that become the model file.
+    with OutputSet(inputs=[data]) as outputs:
+        outputs.file(out)
+        outputs.file(card_path)
+        messages = read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes)
+        trained = train_filter(messages.texts, messages.labels, settings)
+        staged = outputs.staged(out)
+        sio.dump(trained.pipeline, staged)
         card = model_card(
             trained,
             model_file=out.name,
-            model_sha256=sha256_of(tmp),
+            model_sha256=sha256_of(staged),
             data={
                 "file": data.name,
                 "sha256": messages.sha256,
@@ -57,7 +62,7 @@ def train(
                 "replaced_utf8_sequences": messages.replaced_chars,
             },
         )
-        write_atomic(card_path_for(out), json.dumps(card, indent=2) + "\n")
+        outputs.write(card_path, json.dumps(card, indent=2, allow_nan=False) + "\n")
 
     per_class = ", ".join(f"{c} {n}" for c, n in trained.rows_per_class.items())
     console.print(f"trained {variant} naive Bayes on {trained.train_rows} of {len(messages)} messages ({per_class})")
@@ -66,4 +71,4 @@ def train(
     if trained.holdout:
         h = trained.holdout
         console.print(f"hold-out ({h['rows']} messages): accuracy {h['accuracy']:.4f}, macro F1 {h['macro_f1']:.4f}")
-    console.print(f"wrote {out} and {card_path_for(out).name}")
+    console.print(f"wrote {out} and {card_path.name}")

@@ -9,7 +9,7 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import app, console, fail, load_model_or_fail, warn
+from explain.cli import LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, app, console, fail, load_model_or_fail, warn
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
@@ -24,15 +24,22 @@ def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MES
     if text is not None and file is not None:
         fail("give the message as TEXT or with --file, not both")
     if file is not None:
-        if not file.is_file():
-            fail(f"no message file at {file}")
-        if file.stat().st_size > limit:
+        from explain.model.input_files import input_file
+
+        input_file(file, "message file")
+        with open(file, "rb") as handle:
+            raw = handle.read(limit + 1)
+        if len(raw) > limit:
             fail(too_big)
-        raw = file.read_bytes()
     elif text == "-" or text is None:
+        if sys.stdin is None or sys.stdin.closed:
+            fail("standard input is closed; give the message as TEXT or with --file F")
         if text is None and sys.stdin.isatty():
             fail("give the message as TEXT, with --file F, or on standard input with -")
-        raw = sys.stdin.buffer.read(limit + 1)
+        try:
+            raw = sys.stdin.buffer.read(limit + 1)
+        except (OSError, ValueError) as exc:
+            fail(f"cannot read standard input: {getattr(exc, 'strerror', None) or exc}")
         if len(raw) > limit:
             fail(too_big)
     else:
@@ -60,6 +67,9 @@ def why(
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
     max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
 ):
     """Why did the filter score this message the way it did?"""
     from explain.analysis.evidence import explain_message
@@ -69,10 +79,16 @@ def why(
         fail(f"--format must be text or json, got {output_format!r}")
     message = read_message(text, file, max_bytes)
     loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+        max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
     )
+    if loaded.view.n_classes < 2:
+        fail(
+            f"the model has one class ({loaded.view.classes[0]}); a score needs two classes to weigh "
+            "against each other, so there is nothing to explain"
+        )
     explanation = explain_message(loaded, message, threshold)
     if output_format == "json":
-        sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2) + "\n")
+        sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2, allow_nan=False) + "\n")
     else:
         render(explanation, console, top)
