@@ -72,9 +72,6 @@ def why(
     no_cache: bool = NO_CACHE,
 ):
     """Why did the filter score this message the way it did?"""
-    from explain.analysis.evidence import explain_message
-    from explain.present.why import render, to_json
-
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
     message = read_message(text, file, max_bytes)
@@ -87,6 +84,10 @@ def why(
             f"the model has one class ({loaded.view.classes[0]}); a score needs two classes to weigh "
             "against each other, so there is nothing to explain"
         )
+    # Imported after loading, so that their imports overlap the loading process.
+    from explain.analysis.evidence import explain_message
+    from explain.present.why import render, to_json
+
     explanation = explain_message(loaded, message, threshold)
     if output_format == "json":
         sys.stdout.write(json.dumps(to_json(explanation, loaded), indent=2, allow_nan=False) + "\n")

@@ -364,8 +364,12 @@ def load_in_child(files: list[Path], *, allow_pickle: bool, trust: tuple, limits
                 env=env, cwd=folder, start_new_session=True,
             )
             started = time.monotonic()
+            # While the child starts its interpreter and imports, this process
+            # imports what the rebuild needs: the two overlap on a second core.
+            import sklearn.feature_extraction.text  # noqa: F401
+
             try:
-                child.wait(timeout=limits.timeout)
+                child.wait(timeout=max(0.0, limits.timeout - (time.monotonic() - started)))
             except subprocess.TimeoutExpired:
                 raise NbledgerError(
                     f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped"
