@@ -40,8 +40,16 @@ EXIT_SIGINT = 130  # 128 + signal number, as shells report it
 EXIT_SIGTERM = 143
 
 
-class Terminated(BaseException):
-    """SIGTERM, raised like KeyboardInterrupt so that every cleanup runs."""
+class Interrupted(BaseException):
+    """SIGINT or SIGTERM, raised so that every cleanup runs.
+
+    Not a KeyboardInterrupt: the command-line library would turn that into a
+    silent exit status.
+    """
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
 
 
 def _say(prefix: str, message: str) -> None:
@@ -126,7 +134,7 @@ def parse_size(text: str, option: str) -> int:
 
 # Options shared by every command that loads a model (one definition, many commands).
 MAX_MODEL_MEMORY = typer.Option(
-    "4G", "--max-model-memory", help="Memory the separate process that opens the model file may use (e.g. 2G)."
+    "8G", "--max-model-memory", help="Memory the separate process that opens the model file may use (e.g. 2G)."
 )
 LOAD_TIMEOUT = typer.Option(300.0, "--load-timeout", help="Seconds the model file may take to open.")
 NO_CACHE = typer.Option(False, "--no-cache", help="Open the model file afresh, without the cache of loaded models.")
@@ -136,7 +144,7 @@ MAX_DATA_BYTES = typer.Option("1G", "--max-data-bytes", help="Refuse data files 
 
 def load_model_or_fail(
     model: Path, *, vectorizer=None, allow_pickle=False, trust=(), normal_class=None,
-    max_model_memory="4G", load_timeout=300.0, no_cache=False,
+    max_model_memory="8G", load_timeout=300.0, no_cache=False,
 ):
     """The CLI's one way to load a model: warnings to stderr, errors as one line."""
     from explain.model.loading import LoadLimits, load_model
@@ -157,22 +165,22 @@ def load_model_or_fail(
     )
 
 
-def _on_sigterm(signum, frame) -> None:
-    raise Terminated()
+def _on_signal(signum, frame) -> None:
+    raise Interrupted(signum)
 
 
 def run(argv: list[str]) -> int:
     """Run the command line on ``argv`` and return its exit status (never raises)."""
     in_main = threading.current_thread() is threading.main_thread()
-    old_term = signal.signal(signal.SIGTERM, _on_sigterm) if in_main else None
+    old = {s: signal.signal(s, _on_signal) for s in (signal.SIGINT, signal.SIGTERM)} if in_main else {}
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("default")
             warnings.showwarning = _library_warning
             return _run(argv)
     finally:
-        if in_main:
-            signal.signal(signal.SIGTERM, old_term)
+        for s, handler in old.items():
+            signal.signal(s, handler)
 
 
 def _run(argv: list[str]) -> int:
@@ -185,11 +193,12 @@ def _run(argv: list[str]) -> int:
     except typer.Exit as exc:
         return exc.exit_code
     except (typer.Abort, KeyboardInterrupt):
-        _say("error", "interrupted (SIGINT); no output was written or replaced")
+        _say("error", "interrupted (SIGINT); no output was left half-written")
         return EXIT_SIGINT
-    except Terminated:
-        _say("error", "terminated (SIGTERM); no output was written or replaced")
-        return EXIT_SIGTERM
+    except Interrupted as stop:
+        name = signal.Signals(stop.signum).name
+        _say("error", f"stopped by {name}; no output was left half-written")
+        return EXIT_SIGTERM if stop.signum == signal.SIGTERM else EXIT_SIGINT
     except NoArgsIsHelpError:
         return 0  # the help has been printed
     except TyperException as exc:  # usage errors: unknown option, missing argument

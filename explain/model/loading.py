@@ -57,7 +57,7 @@ _PICKLE_SUFFIXES = (".pkl", ".pickle", ".joblib", ".jbl", ".sav")
 _MAX_MEMBERS = 100_000
 
 #: Defaults of ``--max-model-memory`` and ``--load-timeout`` (stated in the README).
-DEFAULT_MAX_MODEL_MEMORY = 4 << 30
+DEFAULT_MAX_MODEL_MEMORY = 8 << 30
 DEFAULT_LOAD_TIMEOUT = 300.0
 
 
