@@ -107,8 +107,11 @@ def card_path_for(model_path: Path) -> Path:
 
 def sniff_format(path: Path) -> str:
     """``"skops"``, ``"pickle"`` or ``"unknown"``, from the file's first bytes."""
-    with open(path, "rb") as handle:
-        head = handle.read(8)
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(8)
+    except OSError as exc:
+        raise NbledgerError(f"cannot read the model file {path}: {exc.strerror or exc}") from None
     if head.startswith(b"PK\x03\x04"):
         return "skops"
     if head.startswith(_PICKLE_STARTS) or Path(path).suffix.lower() in _PICKLE_SUFFIXES:
