@@ -141,6 +141,12 @@ def test_a_rebuild_that_does_not_reproduce_the_probe_is_refused():
         plain_form.rebuild(arrays, options)
 
 
+@given(st.lists(st.text(max_size=6), max_size=8))
+def test_strings_travel_exactly(values):
+    arrays = plain_form._pack_strings(values, "t")
+    assert list(plain_form._unpack_strings(arrays, "t")) == values
+
+
 def test_code_bearing_text_steps_need_trust(tmp_path):
     pipeline = make_pipeline(CountVectorizer(analyzer=split_words), MultinomialNB()).fit(TEXTS, LABELS)
     path = tmp_path / "custom.skops"

@@ -306,8 +306,8 @@ def load_model(
         try:
             featurizer, view = plain_form.rebuild(*cached, normal_class=None)
             return LoadedModel(view.with_normal_class(normal_class), featurizer, path, digest, kind, card)
-        except NbledgerError:
-            pass  # e.g. another scikit-learn version: load afresh below
+        except (NbledgerError, KeyError, ValueError, TypeError):
+            pass  # an entry of another version of nbledger or scikit-learn: load afresh below
     outcome = load_in_child(files, allow_pickle=allow_pickle, trust=tuple(trust), limits=limits)
     if "needs_code" in outcome:
         if not (trust or allow_pickle):
