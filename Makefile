@@ -52,6 +52,7 @@ benchmark: install
 	$(BIN)/python -m benchmarks.bench_evidence
 	$(BIN)/python -m benchmarks.bench_vocab
 	$(BIN)/python -m benchmarks.bench_assess
+	$(BIN)/python -m benchmarks.bench_load
 
 clean:
 	rm -rf $(OUT) .pytest_cache .hypothesis

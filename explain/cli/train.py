@@ -8,7 +8,7 @@ from typing import Optional
 
 import typer
 
-from explain.cli import MAX_DATA_BYTES, app, console, read_messages_or_fail
+from explain.cli import MAX_BYTES, MAX_DATA_BYTES, app, console, read_messages_or_fail
 from explain.output_files import OutputSet
 
 
@@ -28,6 +28,7 @@ def train(
     holdout: float = typer.Option(0.0, help="Fraction held out (stratified) to measure accuracy and F1."),
     seed: int = typer.Option(0, help="Seed for the hold-out split."),
     max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
@@ -45,7 +46,9 @@ def train(
     with OutputSet(inputs=[data]) as outputs:
         outputs.file(out)
         outputs.file(card_path)
-        messages = read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes)
+        messages = read_messages_or_fail(
+            data, text_col, label_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+        )
         trained = train_filter(messages.texts, messages.labels, settings)
         staged = outputs.staged(out)
         sio.dump(trained.pipeline, staged)
