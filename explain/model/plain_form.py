@@ -113,6 +113,8 @@ def to_plain(featurizer, view) -> tuple[dict, dict]:
         settings["tfidf"] = {name: getattr(featurizer.tfidf, name) for name in _TFIDF_PARAMS}
         if featurizer.tfidf.use_idf:
             arrays["idf"] = np.asarray(featurizer.tfidf.idf_, dtype=np.float64)
+            if not np.isfinite(arrays["idf"]).all():
+                raise NbledgerError("the model's idf weights are not all finite; its features cannot be trusted")
     probe = featurizer.transform([probe_text(view.tokens)])
     arrays["probe_indices"] = probe.indices.astype(np.int64)
     arrays["probe_data"] = probe.data
