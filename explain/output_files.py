@@ -94,7 +94,6 @@ class OutputSet:
         self._targets: dict[Path, Path] = {}  # target -> staged path
         self._folders: list[Path] = []
         self._stages: dict[Path, Path] = {}  # existing ancestor -> staging folder
-        self._active = False
 
     # --- declaring -------------------------------------------------------
 
@@ -165,7 +164,6 @@ class OutputSet:
     # --- the transaction -------------------------------------------------
 
     def __enter__(self) -> "OutputSet":
-        self._active = True
         return self
 
     def __exit__(self, kind, exc, tb) -> None:

@@ -22,7 +22,6 @@ def _peak_bytes() -> int:
 
 
 def _load(request: dict, out: Path) -> dict:
-    from explain.model.featurizer import Featurizer  # noqa: F401 (imported for split_pipeline)
     from explain.model.loading import read_object, split_pipeline
     from explain.model.model_view import view_of
     from explain.model import plain_form
@@ -64,7 +63,7 @@ def main(argv: list[str]) -> int:
         result = {"error": f"could not load {Path(request['model']).name}: {type(exc).__name__}"
                   + (f": {first[0]}" if first else "")}
     result["peak_bytes"] = _peak_bytes()
-    (out / "result.json").write_text(json.dumps(result), encoding="utf-8")
+    (out / "result.json").write_text(json.dumps(result, allow_nan=False), encoding="utf-8")
     return 0
 
 
