@@ -177,7 +177,7 @@ def test_a_cached_load_gives_the_same_view_and_a_foreign_entry_is_ignored(good_m
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     fresh = load_model(good_model)
     entries = sorted(p.name for p in model_cache.cache_folder().iterdir())
-    assert entries == [f"{fresh.sha256}.json", f"{fresh.sha256}.npz"]
+    assert entries == [f"{fresh.sha256}.json", f"{fresh.sha256}.npz", "digests"]
     cached = load_model(good_model)
     for name in ("weights", "baseline", "prior", "absence", "feature_count", "class_count", "tokens", "classes"):
         assert np.array_equal(getattr(cached.view, name), getattr(fresh.view, name))
@@ -191,6 +191,18 @@ def test_a_cached_load_gives_the_same_view_and_a_foreign_entry_is_ignored(good_m
     again = load_model(good_model)
     assert np.array_equal(again.view.weights, fresh.view.weights)
     assert model_cache.read(fresh.sha256) is not None  # rewritten
+
+
+def test_a_remembered_digest_is_used_only_for_the_same_unchanged_file(good_model, tmp_path, monkeypatch):
+    import hashlib
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    truth = hashlib.sha256(good_model.read_bytes()).hexdigest()
+    assert model_cache.file_sha256(good_model) == truth == model_cache.file_sha256(good_model)
+    with open(good_model, "ab") as handle:  # same name, new bytes
+        handle.write(b"\0")
+    changed = hashlib.sha256(good_model.read_bytes()).hexdigest()
+    assert model_cache.file_sha256(good_model) == changed != truth
 
 
 def test_the_cache_never_unpickles(tmp_path, monkeypatch):

@@ -295,8 +295,11 @@ def load_model(
     for file in files:
         if sniff_format(file) == "skops":
             check_archive(file, limits.memory)
-    digest = sha256_of(path)
-    key = digest if len(files) == 1 else hashlib.sha256(f"{digest}+{sha256_of(files[1])}".encode()).hexdigest()
+    digest = model_cache.file_sha256(path, limits.cache)
+    if len(files) > 1:
+        key = hashlib.sha256(f"{digest}+{model_cache.file_sha256(files[1], limits.cache)}".encode()).hexdigest()
+    else:
+        key = digest
     card = read_card(path, digest, on_warning)
     if normal_class is None and card is not None:
         normal_class = (card.get("settings") or {}).get("normal_class")
