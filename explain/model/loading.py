@@ -307,10 +307,11 @@ def load_model(
     cached = model_cache.read(key) if limits.cache else None
     if cached is not None:
         try:
-            featurizer, view = plain_form.rebuild(*cached, normal_class=None)
-            return LoadedModel(view.with_normal_class(normal_class), featurizer, path, digest, kind, card)
+            featurizer, view = plain_form.rebuild(*cached)
         except (NbledgerError, KeyError, ValueError, TypeError):
-            pass  # an entry of another version of nbledger or scikit-learn: load afresh below
+            cached = None  # an entry of another version of nbledger or scikit-learn: load afresh
+        else:
+            return LoadedModel(view.with_normal_class(normal_class), featurizer, path, digest, kind, card)
     outcome = load_in_child(files, allow_pickle=allow_pickle, trust=tuple(trust), limits=limits)
     if "needs_code" in outcome:
         if not (trust or allow_pickle):

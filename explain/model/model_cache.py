@@ -12,6 +12,9 @@ An entry is used only if its recorded key equals the model's digest and the
 SHA-256 of its ``.npz`` equals the one recorded when it was written; anything
 else (a damaged, partial or foreign entry) is ignored and rebuilt. A cache that
 cannot be written (read-only home) is skipped silently: it only saves time.
+A cached load runs nothing from the model file (the entry is plain data), so
+the skops allow-list, checked when the entry was made, is not asked again;
+pickle files still need ``--allow-pickle`` every time.
 
 Hashing a large model file is most of a cached load (1.2 s for 640 MiB), so
 :func:`file_sha256` also remembers each file's digest beside its identity
