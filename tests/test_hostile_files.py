@@ -152,6 +152,9 @@ def test_a_rebuild_that_does_not_reproduce_the_probe_is_refused():
     options["params"]["lowercase"] = not options["params"]["lowercase"]
     with pytest.raises(NbledgerError, match="does not reproduce"):
         plain_form.rebuild(arrays, options)
+    options["params"]["analyzer"] = "nonsense"
+    with pytest.raises(NbledgerError, match="not usable"):
+        plain_form.rebuild(arrays, options)
 
 
 @given(st.lists(st.text(max_size=6), max_size=8))

@@ -142,28 +142,31 @@ def rebuild(arrays: dict, settings: dict, normal_class: str | None = None):
         raise NbledgerError("the plain form has an unknown format")
     tokens = _unpack_strings(arrays, "token")
     classes = _unpack_strings(arrays, "class")
-    params = dict(settings["params"], ngram_range=tuple(settings["params"]["ngram_range"]))
-    params["stop_words"] = settings["stop_words"]
-    params["dtype"] = np.dtype(settings["dtype"]).type
-    tfidf_options = settings["tfidf"]
-    n = len(tokens)
-    idf = arrays.get("idf")
-    if settings["vectorizer"] == "TfidfVectorizer":
-        vectorizer = TfidfVectorizer(**params, **tfidf_options)
-        # scikit-learn keeps a TfidfVectorizer's fitted weighting in ``_tfidf``;
-        # the probe check below catches any change in that arrangement.
-        vectorizer._tfidf = _tfidf_transformer(tfidf_options, idf, n)
-        tfidf = None
-    elif settings["vectorizer"] == "CountVectorizer":
-        vectorizer = CountVectorizer(**params)
-        tfidf = _tfidf_transformer(tfidf_options, idf, n) if settings["tfidf_step"] else None
-    else:
-        raise NbledgerError(f"the plain form names an unsupported text step {settings['vectorizer']!r}")
-    vectorizer.vocabulary_ = dict(zip(tokens.tolist(), range(n)))
-    vectorizer.fixed_vocabulary_ = settings["fixed_vocabulary"]
-    featurizer = Featurizer(vectorizer, tfidf, tokens=tokens)
+    try:
+        params = dict(settings["params"], ngram_range=tuple(settings["params"]["ngram_range"]))
+        params["stop_words"] = settings["stop_words"]
+        params["dtype"] = np.dtype(settings["dtype"]).type
+        tfidf_options = settings["tfidf"]
+        n = len(tokens)
+        idf = arrays.get("idf")
+        if settings["vectorizer"] == "TfidfVectorizer":
+            vectorizer = TfidfVectorizer(**params, **tfidf_options)
+            # scikit-learn keeps a TfidfVectorizer's fitted weighting in ``_tfidf``;
+            # the probe check below catches any change in that arrangement.
+            vectorizer._tfidf = _tfidf_transformer(tfidf_options, idf, n)
+            tfidf = None
+        elif settings["vectorizer"] == "CountVectorizer":
+            vectorizer = CountVectorizer(**params)
+            tfidf = _tfidf_transformer(tfidf_options, idf, n) if settings["tfidf_step"] else None
+        else:
+            raise NbledgerError(f"the plain form names an unsupported text step {settings['vectorizer']!r}")
+        vectorizer.vocabulary_ = dict(zip(tokens.tolist(), range(n)))
+        vectorizer.fixed_vocabulary_ = settings["fixed_vocabulary"]
+        featurizer = Featurizer(vectorizer, tfidf, tokens=tokens)
 
-    probe = featurizer.transform([probe_text(tokens)])
+        probe = featurizer.transform([probe_text(tokens)])
+    except (ValueError, TypeError, AttributeError, KeyError) as exc:  # settings scikit-learn does not accept
+        raise NbledgerError(f"the model's text step settings are not usable: {type(exc).__name__}: {exc}") from None
     if not (
         np.array_equal(probe.indices, arrays["probe_indices"]) and np.array_equal(probe.data, arrays["probe_data"])
     ):
