@@ -218,8 +218,10 @@ def _run(argv: list[str]) -> int:
 
 
 def main() -> None:
-    """Console-script entry point."""
-    sys.exit(run(sys.argv[1:]))
+    """Console-script entry point of older installs; the entry point is :func:`explain.__main__.main`."""
+    from explain.__main__ import main as entry
+
+    entry()
 
 
 # Command modules register themselves on import; keep these lines last.
