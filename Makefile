@@ -49,6 +49,7 @@ benchmark: install
 	$(BIN)/python -m benchmarks.bench_assess
 	$(BIN)/python -m benchmarks.bench_email
 	$(BIN)/python -m benchmarks.bench_report
+	$(BIN)/python -m benchmarks.bench_load
 
 clean:
 	rm -rf $(OUT) .pytest_cache .hypothesis

@@ -79,7 +79,7 @@ def best_of(repeat: int, fn):
 
 
 def main() -> None:
-    from explain.model.loading import load_model
+    from explain.model.loading import LoadLimits, load_model
     from explain.analysis.risk import Watchlist, token_traits
     from explain.analysis.vocab import review_vocabulary
 
@@ -93,7 +93,10 @@ def main() -> None:
         path = build_model(args.features, Path(scratch))
         built = time.perf_counter() - started
         size = path.stat().st_size
-        load_s, loaded = best_of(args.repeat, lambda: load_model(path, normal_class="ok"))
+        # Without the cache: the cost of a model file's first load (see bench_load for the second).
+        load_s, loaded = best_of(
+            args.repeat, lambda: load_model(path, normal_class="ok", limits=LoadLimits(cache=False))
+        )
     view = loaded.view
     watch = Watchlist(("harbour", "roma", "traveller", str(view.tokens[0])), "benchmark")
     review_s, review = best_of(args.repeat, lambda: review_vocabulary(view, watchlist=watch))

@@ -25,6 +25,8 @@ _PUBLIC = {
     "NbledgerError": "explain.errors",
     "load_model": "explain.model.loading",
     "LoadedModel": "explain.model.loading",
+    "LoadLimits": "explain.model.loading",
+    "OutputSet": "explain.output_files",
     "read_messages": "explain.model.data_io",
     "Messages": "explain.model.data_io",
     "DecisionRule": "explain.model.decision",

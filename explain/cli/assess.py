@@ -9,9 +9,11 @@ from typing import List, Optional
 import typer
 
 from explain.cli import (
-    app, console, deliver, fail, labelled_or_fail, load_model_or_fail, plain_text, read_messages_or_fail,
+    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
+    labelled_or_fail, load_model_or_fail, model_inputs, parse_size, plain_text, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.output_files import OutputSet
 
 
 def parse_fraction(text: str, what: str) -> float:
@@ -94,6 +96,11 @@ def assess(
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
     label: Optional[str] = LABEL,
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
     from explain.analysis import slices as slicing
@@ -113,58 +120,67 @@ def assess(
         fail("give --threshold or --threshold-log-odds, not both")
     if folds < 2:
         fail(f"--folds must be at least 2, got {folds}")
-    loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
-    )
-    mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col), data)
-    X = loaded.featurizer.transform(messages.texts)
-    groups = [slicing.by_length(messages.texts)] if (slice_by or watchlist) else []
-    for spec in slice_by or ():
-        from explain.model.data_io import read_column
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
+        if out is not None:
+            outputs.file(out)
+        if images is not None:
+            outputs.folder(images)
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
+        )
+        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+        messages = labelled_or_fail(
+            read_messages_or_fail(
+                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+            ),
+            data,
+        )
+        X = loaded.featurizer.transform(messages.texts)
+        groups = [slicing.by_length(messages.texts)] if (slice_by or watchlist) else []
+        for spec in slice_by or ():
+            from explain.model.data_io import read_column
 
-        column, period = slicing.parse_slice_spec(spec)
-        values = read_column(data, column)
-        groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))
-    if watchlist is not None:
-        from explain.analysis.risk import read_watchlist
+            column, period = slicing.parse_slice_spec(spec)
+            values = read_column(data, column, parse_size(max_data_bytes, "--max-data-bytes"))
+            groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))
+        if watchlist is not None:
+            from explain.analysis.risk import read_watchlist
 
-        groups.append(slicing.by_terms(messages.texts, read_watchlist(watchlist).terms))
-    suspected = None
-    if label_errors:
-        from explain.analysis.label_errors import label_errors as find_label_errors
-        from explain.analysis.label_errors import out_of_sample_probabilities
+            groups.append(slicing.by_terms(messages.texts, read_watchlist(watchlist).terms))
+        suspected = None
+        if label_errors:
+            from explain.analysis.label_errors import label_errors as find_label_errors
+            from explain.analysis.label_errors import out_of_sample_probabilities
 
-        truth = class_indices(loaded.view, messages.labels)
-        probabilities = out_of_sample_probabilities(loaded.unfitted_copy(), messages.texts, truth, loaded.classes, folds)
-        suspected = find_label_errors(loaded.view, X, truth, messages.ids, probabilities, folds=folds)
-    result = run_assessment(
-        loaded.view,
-        X,
-        messages.labels,
-        threshold=threshold,
-        threshold_log_odds=threshold_log_odds,
-        base_rate=prevalence,
-        slices=groups,
-        label_errors=suspected,
-        ids=messages.ids,
-        target_fpr=fprs,
-        target_recall=recalls,
-        costs=cost_pair,
-        n_bins=bins,
-        top=top,
-    )
+            truth = class_indices(loaded.view, messages.labels)
+            probabilities = out_of_sample_probabilities(loaded.unfitted_copy(), messages.texts, truth, loaded.classes, folds)
+            suspected = find_label_errors(loaded.view, X, truth, messages.ids, probabilities, folds=folds)
+        result = run_assessment(
+            loaded.view,
+            X,
+            messages.labels,
+            threshold=threshold,
+            threshold_log_odds=threshold_log_odds,
+            base_rate=prevalence,
+            slices=groups,
+            label_errors=suspected,
+            ids=messages.ids,
+            target_fpr=fprs,
+            target_recall=recalls,
+            costs=cost_pair,
+            n_bins=bins,
+            top=top,
+        )
 
-    pictures = {}
-    if images is not None:
-        from explain.present.assess_pictures import draw_all
+        pictures = {}
+        if images is not None:
+            from explain.present.assess_pictures import draw_all
 
-        if images.exists() and not images.is_dir():
-            fail(f"--images must be a folder; {images} is a file")
-        pictures = draw_all(result)
+            pictures = draw_all(result)
 
-    if output_format == "json":
-        text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
-    else:
-        text = plain_text(render, result, 120) if out is not None else None
-    deliver(text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))
+        if output_format == "json":
+            text = json.dumps(to_json(result, loaded, messages), indent=2, allow_nan=False) + "\n"
+        else:
+            text = plain_text(render, result, 120) if out is not None else None
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))

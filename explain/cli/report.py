@@ -12,7 +12,10 @@ from typing import List, Optional
 import numpy as np
 import typer
 
-from explain.cli import app, console, err_console, fail, load_model_or_fail, read_messages_or_fail
+from explain.cli import (
+    LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, err_console, fail, load_model_or_fail,
+    model_inputs, read_messages_or_fail,
+)
 
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
@@ -98,11 +101,15 @@ def report(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
 ):
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings, build_report
     from explain.analysis.risk import read_watchlist
-    from explain.output_files import atomic_path
+    from explain.output_files import OutputSet
     from explain.present.report import draw_pictures, render_html, render_pdf
     from explain.present.report_json import dumps, to_json
 
@@ -119,13 +126,18 @@ def report(
     )
     terms = read_watchlist(watchlist) if watchlist is not None else None
 
-    with steps(8) as step:
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(8) as step:
+        for path in outputs:
+            files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
         loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
         )
         step("reading the data")
-        messages = read_messages_or_fail(data, text_col, label_col) if data is not None else None
+        messages = (
+            read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes) if data is not None else None
+        )
         to_explain = read_explain(explain, text_col) if explain is not None else None
         result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
                               on_step=step)
@@ -137,11 +149,8 @@ def report(
         pdf = render_pdf(page, result.date.isoformat())
         step("writing the files")
         contents = {out: pdf, html: page, json_out: dumps(result)}
-        # Every output is written to a temporary file first; all are renamed only once all are written.
-        with contextlib.ExitStack() as stack:
-            for path in outputs:
-                tmp = stack.enter_context(atomic_path(path))
-                payload = contents[path]
-                tmp.write_bytes(payload.encode("utf-8") if isinstance(payload, str) else payload)
+        # Staged now; all are moved into place together when the block ends without error.
+        for path in outputs:
+            files.write(path, contents[path])
     for path in outputs:
         console.print(f"wrote {path}", markup=False, highlight=False)

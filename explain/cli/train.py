@@ -8,9 +8,9 @@ from typing import Optional
 
 import typer
 
-from explain.cli import app, console, fail, labelled_or_fail, read_messages_or_fail
+from explain.cli import MAX_BYTES, MAX_DATA_BYTES, app, console, fail, labelled_or_fail, read_messages_or_fail
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
-from explain.output_files import atomic_path, write_atomic
+from explain.output_files import OutputSet
 
 
 @app.command()
@@ -37,6 +37,8 @@ def train(
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
     label: Optional[str] = LABEL,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
@@ -54,16 +56,25 @@ def train(
         alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
         text_view=mail.view if from_mail else None,
     )
-    messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col), data)
-    trained = train_filter(messages.texts, messages.labels, settings, ids=messages.ids)
-
-    # The card records the SHA-256 of the exact bytes that become the model file.
-    with atomic_path(out) as tmp:
-        sio.dump(trained.pipeline, tmp)
+    card_path = card_path_for(out)
+    # Model and card are one transaction: both appear, or neither; and the card
+    # records the SHA-256 of the exact bytes that become the model file.
+    with OutputSet(inputs=[data]) as outputs:
+        outputs.file(out)
+        outputs.file(card_path)
+        messages = labelled_or_fail(
+            read_messages_or_fail(
+                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+            ),
+            data,
+        )
+        trained = train_filter(messages.texts, messages.labels, settings, ids=messages.ids)
+        staged = outputs.staged(out)
+        sio.dump(trained.pipeline, staged)
         card = model_card(
             trained,
             model_file=out.name,
-            model_sha256=sha256_of(tmp),
+            model_sha256=sha256_of(staged),
             data={
                 "file": data.name,
                 "input": input_kind(data, mail),
@@ -75,7 +86,7 @@ def train(
                 "replaced_utf8_sequences": messages.replaced_chars,
             },
         )
-        write_atomic(card_path_for(out), json.dumps(card, indent=2) + "\n")
+        outputs.write(card_path, json.dumps(card, indent=2, allow_nan=False) + "\n")
 
     held = f" ({len(messages) - trained.train_rows:,} held out)" if trained.holdout else ""
     per_class = ", ".join(f"{c} {n:,}" for c, n in trained.rows_per_class.items())
@@ -91,4 +102,4 @@ def train(
         lines.append(f"  accuracy {h['accuracy']:.4f}, macro F1 {h['macro_f1']:.4f}")
     for line in lines:
         console.print(line, markup=False, soft_wrap=True)
-    console.print(f"wrote {out} and {card_path_for(out).name}")
+    console.print(f"wrote {out} and {card_path.name}")

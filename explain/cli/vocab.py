@@ -11,9 +11,11 @@ import numpy as np
 import typer
 
 from explain.cli import (
-    app, console, deliver, fail, labelled_or_fail, load_model_or_fail, plain_text, read_messages_or_fail,
+    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
+    labelled_or_fail, load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.output_files import OutputSet
 
 FORMATS = ("text", "csv", "json")
 
@@ -55,6 +57,11 @@ def vocab(
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
     label: Optional[str] = LABEL,
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
@@ -71,51 +78,60 @@ def vocab(
         fail(f"--strong is an odds factor and must be above 1, got {strong}")
     if data is None and (raw_email or labels_from_folders or label is not None):
         fail("--raw-email, --labels-from-folders and --label describe --data; give --data")
-    if images is not None and images.exists() and not images.is_dir():
-        fail(f"--images must be a folder; {images} is a file")
-    thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
-    terms = read_watchlist(watchlist) if watchlist is not None else None
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
+        if out is not None:
+            outputs.file(out)
+        if images is not None:
+            outputs.folder(images)
+        thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
+        terms = read_watchlist(watchlist) if watchlist is not None else None
 
-    loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
-    )
-    messages = documents = None
-    if data is not None:
-        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-        messages = labelled_or_fail(read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col), data)
-        seen = rows_trained_on(loaded.card, messages)
-        rows = np.arange(len(messages)) if seen.trained is None else np.flatnonzero(seen.trained)
-        documents = document_counts(
-            loaded.view,
-            loaded.featurizer.transform([messages.texts[i] for i in rows]),
-            messages.labels[rows],
-            data.name,
-            seen.note,
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
         )
-    review = review_vocabulary(
-        loaded.view,
-        target=target,
-        against=against,
-        lens=by,
-        top=top,
-        documents=documents,
-        watchlist=terms,
-        thresholds=thresholds,
-        redact_personal=redact,
-        analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
-    )
+        messages = documents = None
+        if data is not None:
+            mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+            messages = labelled_or_fail(
+                read_messages_or_fail(
+                    data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+                ),
+                data,
+            )
+            seen = rows_trained_on(loaded.card, messages)
+            rows = np.arange(len(messages)) if seen.trained is None else np.flatnonzero(seen.trained)
+            documents = document_counts(
+                loaded.view,
+                loaded.featurizer.transform([messages.texts[i] for i in rows]),
+                messages.labels[rows],
+                data.name,
+                seen.note,
+            )
+        review = review_vocabulary(
+            loaded.view,
+            target=target,
+            against=against,
+            lens=by,
+            top=top,
+            documents=documents,
+            watchlist=terms,
+            thresholds=thresholds,
+            redact_personal=redact,
+            analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
+        )
 
-    from explain.present.vocab import render, to_csv, to_json
+        from explain.present.vocab import render, to_csv, to_json
 
-    pictures = {}
-    if images is not None:
-        from explain.present.vocab_pictures import draw_all
+        pictures = {}
+        if images is not None:
+            from explain.present.vocab_pictures import draw_all
 
-        pictures = draw_all(review)
-    if output_format == "json":
-        text = json.dumps(to_json(review, loaded, messages), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
-    elif output_format == "csv":
-        text = to_csv(review)
-    else:
-        text = plain_text(render, review, 160) if out is not None else None
-    deliver(text=text, out=out, pictures=pictures, images=images, show=lambda: render(review, console))
+            pictures = draw_all(review)
+        if output_format == "json":
+            text = json.dumps(to_json(review, loaded, messages), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+        elif output_format == "csv":
+            text = to_csv(review)
+        else:
+            text = plain_text(render, review, 160) if out is not None else None
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(review, console))

@@ -9,10 +9,12 @@ from pathlib import Path
 from typing import List, Optional
 
 import typer
-from rich.console import Console
 
-from explain.cli import app, fail, load_model_or_fail, read_messages_or_fail, warn
+from explain.cli import (
+    LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn,
+)
 from explain.cli.mail_options import TEXT_VIEW
+from explain.present.token_display import make_console
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
@@ -26,15 +28,23 @@ def read_message(text: Optional[str], file: Optional[Path], limit: int = MAX_MES
     if text is not None and file is not None:
         fail("give the message as TEXT or with --file, not both")
     if file is not None:
-        if not file.is_file():
-            fail(f"no message file at {file}")
-        if file.stat().st_size > limit:
+        from explain.model.input_files import input_file
+
+        input_file(file, "message file")
+        with open(file, "rb") as handle:
+            raw = handle.read(limit + 1)
+        if len(raw) > limit:
             fail(too_big)
-        return file.read_bytes()
+        return raw
     if text == "-" or text is None:
+        if sys.stdin is None or sys.stdin.closed:
+            fail("standard input is closed; give the message as TEXT or with --file F")
         if text is None and sys.stdin.isatty():
             fail("give the message as TEXT, with --file F, on standard input with -, or --data F --id ID")
-        raw = sys.stdin.buffer.read(limit + 1)
+        try:
+            raw = sys.stdin.buffer.read(limit + 1)
+        except (OSError, ValueError) as exc:
+            fail(f"cannot read standard input: {getattr(exc, 'strerror', None) or exc}")
         if len(raw) > limit:
             fail(too_big)
         return raw
@@ -117,16 +127,16 @@ def support_labels(loaded, data: Path, label_col: Optional[str]) -> tuple[Option
     return label_col, data.name
 
 
-def console_for(color: str) -> Console:
+def console_for(color: str):
     """The terminal console under ``--color``.
 
     ``auto`` styles only a terminal, and nothing at all when ``NO_COLOR`` is
     set (no colour, and no bold or faint either: no escape codes).
     """
     if color == "always":
-        return Console(highlight=False, force_terminal=True, no_color=False)
+        return make_console(highlight=False, force_terminal=True, no_color=False)
     plain = color == "never" or os.environ.get("NO_COLOR", "") != ""
-    return Console(highlight=False, color_system=None if plain else "auto")
+    return make_console(highlight=False, color_system=None if plain else "auto")
 
 
 def read_one(raw: bytes | str, as_email: bool, view: str) -> tuple:
@@ -181,12 +191,14 @@ def why(
         False, "--email", help="Read the message as a raw e-mail even if its headers are not recognised."
     ),
     text_view: Optional[str] = TEXT_VIEW,
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
 ):
     """Why did the filter decide this message the way it did? Told as a ledger."""
-    from explain.analysis.ledger import ledger_of, redacted
     from explain.model.email_reader import resolve_text_view
-    from explain.analysis.risk import read_watchlist
-    from explain.present.why import WRITERS, render
+    from explain.output_files import OutputSet
+    from explain.present.why import WRITERS
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
@@ -204,43 +216,57 @@ def why(
         fail("give --id or --ids, not both")
     if threshold is not None and threshold_log_odds is not None:
         fail("give --threshold or --threshold-log-odds, not both")
-    terms = read_watchlist(watchlist) if watchlist is not None else None
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file]) as outputs:
+        if out is not None:
+            outputs.file(out)  # checked before any work: never an input, a link or a folder
 
-    loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
-    )
-    messages = documents = None
-    if data is not None:
-        wanted = read_id_list(ids) if ids is not None else [message_id]
-        label_col, source = support_labels(loaded, data, label_col)
-        messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
-        chosen = pick_messages(messages, wanted, data.name)
-        if label_col is not None:
-            from explain.analysis.vocab import document_counts
-
-            features = loaded.featurizer.transform(messages.texts)
-            documents = document_counts(loaded.view, features, messages.labels, source)
-        chosen = [(mid, message, None) for mid, message in chosen]
-    else:
-        chosen = [read_one(read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view))]
-    ledgers = []
-    for mid, message, mail in chosen:
-        ledger = ledger_of(
-            loaded, message, threshold, threshold_log_odds=threshold_log_odds,
-            message_id=mid, documents=documents, watchlist=terms, mail=mail,
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
         )
-        ledgers.append(redacted(ledger) if redact else ledger)
+        if loaded.view.n_classes < 2:
+            fail(
+                f"the model has one class ({loaded.view.classes[0]}); a score needs two classes to weigh "
+                "against each other, so there is nothing to explain"
+            )
+        # Imported after loading, so that their imports overlap the loading process.
+        from explain.analysis.ledger import ledger_of, redacted
+        from explain.analysis.risk import read_watchlist
+        from explain.present.why import render
 
-    date = record_date()
-    if out is not None:
-        from explain.output_files import write_atomic
+        terms = read_watchlist(watchlist) if watchlist is not None else None
+        messages = documents = None
+        if data is not None:
+            wanted = read_id_list(ids) if ids is not None else [message_id]
+            label_col, source = support_labels(loaded, data, label_col)
+            messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+            chosen = pick_messages(messages, wanted, data.name)
+            if label_col is not None:
+                from explain.analysis.vocab import document_counts
 
-        write_atomic(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
-    elif output_format == "json":
-        sys.stdout.write(WRITERS[".json"](ledgers, date=date, top=top))
-    else:
-        screen = console_for(color)
-        for n, ledger in enumerate(ledgers):
-            if n:
-                screen.rule()
-            render(ledger, screen, top, date)
+                features = loaded.featurizer.transform(messages.texts)
+                documents = document_counts(loaded.view, features, messages.labels, source)
+            chosen = [(mid, message, None) for mid, message in chosen]
+        else:
+            mid, message, mail = read_one(read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view))
+            # A message from a file is named by its file when it carries no id of its own.
+            chosen = [(mid or (file.name if file is not None else None), message, mail)]
+        ledgers = []
+        for mid, message, mail in chosen:
+            ledger = ledger_of(
+                loaded, message, threshold, threshold_log_odds=threshold_log_odds,
+                message_id=mid, documents=documents, watchlist=terms, mail=mail,
+            )
+            ledgers.append(redacted(ledger) if redact else ledger)
+
+        date = record_date()
+        if out is not None:
+            outputs.write(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
+        elif output_format == "json":
+            sys.stdout.write(WRITERS[".json"](ledgers, date=date, top=top))
+        else:
+            screen = console_for(color)
+            for n, ledger in enumerate(ledgers):
+                if n:
+                    screen.rule()
+                render(ledger, screen, top, date)

@@ -11,8 +11,15 @@ Data files are untrusted. The policy:
   empty file or a file with no rows is refused; missing texts become empty
   strings; missing labels are refused (naming the first row).
 - Ids come from the id column (``id_col``, default ``id`` when present) or
-  are data row numbers from 1; a blank or repeated id is refused, naming the
-  row, so that every figure about a message names exactly one row.
+  are data row numbers from 1; a blank id is refused, naming the
+  row; repeated ids are counted in a note (a figure about one names its
+  first row).
+- Size limits: a file larger than ``max_bytes`` once decompressed is refused;
+  ``.gz`` files are inflated as a stream and stopped at that limit, so a small
+  file that inflates to gigabytes costs at most ``max_bytes`` of memory. A
+  Parquet file whose row groups declare more is refused unread. Messages
+  longer than ``max_message_bytes`` (UTF-8) are counted and refused with the
+  first row that has one.
 """
 
 from __future__ import annotations
@@ -21,13 +28,18 @@ import gzip
 import hashlib
 import io
 import json
+import re
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from explain.errors import NbledgerError
+from explain.model.input_files import input_file
 
+#: Default of ``--max-data-bytes``: the most a data file may hold once decompressed.
+DEFAULT_MAX_DATA_BYTES = 1 << 30
+_CHUNK = 1 << 20
 _FORMATS = {".csv": "csv", ".jsonl": "jsonl", ".ndjson": "jsonl", ".parquet": "parquet"}
 
 
@@ -88,39 +100,67 @@ def decode_utf8(raw: bytes) -> tuple[str, int]:
     return text.removeprefix("\ufeff"), replaced
 
 
-def _read_columns(path) -> tuple[dict, int, str]:
+def _too_large(name: str, limit: int) -> NbledgerError:
+    return NbledgerError(
+        f"{name} holds more than {limit:,} bytes once decompressed (--max-data-bytes); it was not read whole"
+    )
+
+
+def read_bytes_limited(path: Path, gzipped: bool, limit: int) -> tuple[bytes, str]:
+    """(content, SHA-256 of the stored bytes); inflates ``.gz`` as a stream, stopping past ``limit``."""
+    if path.stat().st_size > limit:
+        raise _too_large(path.name, limit)
+    raw = path.read_bytes()
+    digest = hashlib.sha256(raw).hexdigest()
+    if not gzipped:
+        return raw, digest
+    parts, total = [], 0
+    try:
+        with gzip.GzipFile(fileobj=io.BytesIO(raw)) as stream:
+            while chunk := stream.read(_CHUNK):
+                total += len(chunk)
+                if total > limit:
+                    raise _too_large(path.name, limit)
+                parts.append(chunk)
+    except (OSError, EOFError) as exc:
+        raise NbledgerError(f"{path.name} is not a valid .gz file: {exc}") from None
+    return b"".join(parts), digest
+
+
+def _read_columns(path, max_bytes: int = DEFAULT_MAX_DATA_BYTES) -> tuple[dict, int, str]:
     """(columns by name, replaced characters, SHA-256 of the file) of a data file."""
     path = Path(path)
     fmt, gzipped = data_format(path)
-    if not path.is_file():
-        raise NbledgerError(f"no data file at {path}")
-    raw = path.read_bytes()
-    digest = hashlib.sha256(raw).hexdigest()
-    if gzipped:
-        try:
-            raw = gzip.decompress(raw)
-        except (OSError, EOFError) as exc:
-            raise NbledgerError(f"{path.name} is not a valid .gz file: {exc}") from None
+    path = input_file(path, "data file")
+    raw, digest = read_bytes_limited(path, gzipped, max_bytes)
     if not raw.strip():
         raise NbledgerError(f"{path.name} is empty")
     if fmt == "parquet":
-        columns, replaced = _parquet_columns(raw, path.name)
+        columns, replaced = _parquet_columns(raw, path.name, max_bytes)
     else:
         text, replaced = decode_utf8(raw)
         columns = _csv_columns(text, path.name) if fmt == "csv" else _jsonl_columns(text, path.name)
     return columns, replaced, digest
 
 
-def read_column(path, column: str) -> list:
+def read_column(path, column: str, max_bytes: int = DEFAULT_MAX_DATA_BYTES) -> list:
     """The values of one column of a data file, in file order (for slicing)."""
-    columns, _, _ = _read_columns(path)
+    columns, _, _ = _read_columns(path, max_bytes)
     if column not in columns:
         found = ", ".join(map(str, columns)) or "none"
         raise NbledgerError(f"{Path(path).name} has no column {column!r}; columns found: {found}")
     return columns[column]
 
 
-def read_messages(path, text_col: str, label_col: str | None = None, id_col: str | None = None) -> Messages:
+def read_messages(
+    path,
+    text_col: str,
+    label_col: str | None = None,
+    id_col: str | None = None,
+    *,
+    max_bytes: int = DEFAULT_MAX_DATA_BYTES,
+    max_message_bytes: int | None = None,
+) -> Messages:
     """Read messages (and labels) from a data file; see the module policy.
 
     ``id_col`` names the column of message ids; without it the column ``id``
@@ -129,7 +169,7 @@ def read_messages(path, text_col: str, label_col: str | None = None, id_col: str
     pick messages by id use the first).
     """
     path = Path(path)
-    columns, replaced, digest = _read_columns(path)
+    columns, replaced, digest = _read_columns(path, max_bytes)
     wanted = [c for c in (text_col, label_col, id_col) if c is not None]
     missing = [c for c in wanted if c not in columns]
     if missing:
@@ -140,6 +180,13 @@ def read_messages(path, text_col: str, label_col: str | None = None, id_col: str
     if n == 0:
         raise NbledgerError(f"{path.name} has a header but no rows")
     texts = ["" if _missing(t) else str(t) for t in texts_raw]
+    if max_message_bytes is not None:
+        long = [i for i, t in enumerate(texts) if len(t) > max_message_bytes // 4 and _utf8_size(t) > max_message_bytes]
+        if long:
+            raise NbledgerError(
+                f"{path.name}: {len(long)} messages are longer than {max_message_bytes:,} bytes (--max-bytes), "
+                f"first at data row {long[0] + 1}; raise --max-bytes if they are genuine"
+            )
     labels = None
     if label_col is not None:
         values = columns[label_col]
@@ -181,6 +228,10 @@ def _repeated_ids(ids: np.ndarray, id_col: str) -> tuple[str, ...]:
     )
 
 
+def _utf8_size(text: str) -> int:
+    return len(text.encode("utf-8", errors="surrogatepass"))
+
+
 def _missing(value) -> bool:
     return value is None or (isinstance(value, float) and np.isnan(value))
 
@@ -191,7 +242,13 @@ def _csv_columns(text: str, name: str) -> dict:
     try:
         frame = pd.read_csv(io.StringIO(text), dtype=str, keep_default_na=False, na_values=[])
     except (pd.errors.ParserError, pd.errors.EmptyDataError, ValueError) as exc:
-        raise NbledgerError(f"{name} is not valid CSV: {str(exc).splitlines()[0]}") from None
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        # pandas counts records from the header ("line 4" is data row 3), not physical lines.
+        ragged = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", first)
+        if ragged:
+            expected, record, saw = map(int, ragged.groups())
+            first = f"data row {record - 1} has {saw} fields, the header has {expected}"
+        raise NbledgerError(f"{name} is not valid CSV: {first}") from None
     return {str(c): frame[c].tolist() for c in frame.columns}
 
 
@@ -213,11 +270,15 @@ def _jsonl_columns(text: str, name: str) -> dict:
     return {k: [row.get(k) for row in rows] for k in keys}
 
 
-def _parquet_columns(raw: bytes, name: str) -> tuple[dict, int]:
+def _parquet_columns(raw: bytes, name: str, limit: int) -> tuple[dict, int]:
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     try:
+        meta = pq.ParquetFile(pa.BufferReader(raw)).metadata
+        declared = sum(meta.row_group(i).total_byte_size for i in range(meta.num_row_groups))
+        if declared > limit:
+            raise _too_large(name, limit)
         table = pq.read_table(pa.BufferReader(raw))
     except (pa.ArrowException, OSError, ValueError) as exc:
         raise NbledgerError(f"{name} is not a valid Parquet file: {str(exc).splitlines()[0]}") from None

@@ -56,9 +56,11 @@ class Featurizer:
     ----------
     vectorizer : fitted CountVectorizer or TfidfVectorizer.
     tfidf : fitted TfidfTransformer applied after ``vectorizer``, or None.
+    tokens : the vectorizer's feature names in column order, when already known
+        (saves sorting a large vocabulary again).
     """
 
-    def __init__(self, vectorizer, tfidf=None):
+    def __init__(self, vectorizer, tfidf=None, tokens=None):
         from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
 
         if type(vectorizer) not in (CountVectorizer, TfidfVectorizer):
@@ -69,7 +71,7 @@ class Featurizer:
             raise NbledgerError(f"the {type(vectorizer).__name__} in this file has not been fitted")
         self.vectorizer = vectorizer
         self.tfidf = vectorizer if isinstance(vectorizer, TfidfVectorizer) else tfidf
-        self.tokens = np.asarray(vectorizer.get_feature_names_out(), dtype=object)
+        self.tokens = np.asarray(vectorizer.get_feature_names_out() if tokens is None else tokens, dtype=object)
         self._vocabulary = vectorizer.vocabulary_
         self._analyzer = vectorizer.build_analyzer()
         if self.tfidf is not None:

@@ -2,13 +2,24 @@
 
 A model file is hostile until proven otherwise:
 
-- skops files (the default, and what ``nbledger train`` writes) are loaded
-  with skops' allow-list: types it does not trust are refused, named, and may
-  be accepted one by one (``trust``).
 - pickle and joblib files can run code while they load. They are refused
   *before* they are opened unless ``allow_pickle`` is set; the format is
   recognised from the first bytes, so nothing is unpickled to find out.
-- Anything else ends in one line saying what was found and what is supported.
+- skops files (the default, and what ``nbledger train`` writes) are zip
+  archives: the sizes their members declare once inflated are checked against
+  the memory limit before anything is inflated (Python's ``zipfile`` never
+  inflates a member past its declared size).
+- The file is then opened in a separate process (:mod:`explain.model.load_child`)
+  under a memory limit and a time limit (:class:`LoadLimits`), with skops'
+  allow-list: types it does not trust are refused, named, and may be accepted
+  one by one (``trust``). That process hands back only plain data
+  (:mod:`explain.model.plain_form`); this process rebuilds the scikit-learn
+  text step from it and checks that it reproduces the original's features.
+- The plain form is cached by the file's SHA-256 (:mod:`explain.model.model_cache`),
+  so the next load of the same file is fast.
+- A text step that runs code of its own (a custom analyzer, preprocessor or
+  tokenizer) cannot travel as data: it is loaded in this process, and only
+  when the user trusted its types by name (``trust``) or allowed pickles.
 
 The loaded object must be a scikit-learn ``Pipeline`` whose last step is a
 naive Bayes classifier and whose earlier steps make text features, or a
@@ -19,20 +30,52 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
+import shutil
+import signal
+import subprocess
+import sys
+import tempfile
+import time
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 from explain.errors import NbledgerError
-from explain.model.featurizer import Featurizer
+from explain.model.input_files import input_file
 from explain.model.model_view import ModelView, view_of
+
+if TYPE_CHECKING:
+    from explain.model.featurizer import Featurizer
 
 CARD_SUFFIX = ".card.json"
 _CARD_LIMIT = 1 << 20
 # Byte patterns that start a pickle (protocol 2+) or a compressed joblib file.
 _PICKLE_STARTS = (b"\x80", b"\x1f\x8b", b"BZh", b"\xfd7zXZ", b"\x28\xb5\x2f\xfd")
 _PICKLE_SUFFIXES = (".pkl", ".pickle", ".joblib", ".jbl", ".sav")
+_MAX_MEMBERS = 100_000
+
+#: Defaults of ``--max-model-memory`` and ``--load-timeout`` (stated in the README).
+DEFAULT_MAX_MODEL_MEMORY = 8 << 30
+DEFAULT_LOAD_TIMEOUT = 300.0
+
+
+@dataclass(frozen=True)
+class LoadLimits:
+    """Bounds on opening one model file.
+
+    Attributes
+    ----------
+    memory : int, bytes of address space the loading process may use; also the
+        most a skops archive may declare once inflated.
+    timeout : float, seconds the loading process may take (wall clock).
+    cache : bool, use and fill the cache of plain forms.
+    """
+
+    memory: int = DEFAULT_MAX_MODEL_MEMORY
+    timeout: float = DEFAULT_LOAD_TIMEOUT
+    cache: bool = True
 
 
 @dataclass(frozen=True, eq=False)
@@ -45,20 +88,28 @@ class LoadedModel:
     sha256: str
     file_format: str
     card: dict | None = None
-    classifier: object = None
+    classifier_settings: dict | None = None
 
     @property
     def classes(self):
         return self.view.classes
 
     def unfitted_copy(self):
-        """A new, unfitted pipeline with the same steps and settings (:func:`sklearn.base.clone`)."""
+        """A new, unfitted pipeline with the same steps and settings (:func:`sklearn.base.clone`).
+
+        The classifier is made afresh from its plain settings
+        (:func:`explain.model.plain_form.classifier_settings`): no object of the
+        model file reaches this process.
+        """
         from sklearn.base import clone
         from sklearn.pipeline import make_pipeline
 
+        from explain.model.plain_form import classifier_from_settings
+
         vectorizer, tfidf = self.featurizer.vectorizer, self.featurizer.tfidf
-        steps = [vectorizer] + ([] if tfidf is None or tfidf is vectorizer else [tfidf]) + [self.classifier]
-        return make_pipeline(*(clone(step) for step in steps))
+        classifier = classifier_from_settings(self.classifier_settings)
+        steps = [clone(vectorizer)] + ([] if tfidf is None or tfidf is vectorizer else [clone(tfidf)])
+        return make_pipeline(*steps, classifier)
 
 
 def sha256_of(path: Path) -> str:
@@ -67,15 +118,18 @@ def sha256_of(path: Path) -> str:
 
 
 def card_path_for(model_path: Path) -> Path:
-    """Where the model card of ``model.skops`` lives: ``model.card.json``."""
+    """Where the model card of ``m.v1.skops`` lives: ``m.v1.card.json`` (the whole name, less its last suffix)."""
     model_path = Path(model_path)
-    return model_path.with_name(model_path.name.split(".")[0] + CARD_SUFFIX)
+    return model_path.with_name(model_path.stem + CARD_SUFFIX)
 
 
 def sniff_format(path: Path) -> str:
     """``"skops"``, ``"pickle"`` or ``"unknown"``, from the file's first bytes."""
-    with open(path, "rb") as handle:
-        head = handle.read(8)
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(8)
+    except OSError as exc:
+        raise NbledgerError(f"cannot read the model file {path}: {exc.strerror or exc}") from None
     if head.startswith(b"PK\x03\x04"):
         return "skops"
     if head.startswith(_PICKLE_STARTS) or Path(path).suffix.lower() in _PICKLE_SUFFIXES:
@@ -91,12 +145,22 @@ def read_object(
     on_warning: Callable[[str], None] | None = None,
 ):
     """Load one Python object from a skops file, or a pickle when allowed."""
-    path = Path(path)
-    if not path.is_file():
-        raise NbledgerError(f"no model file at {path}")
-    kind = sniff_format(path)
+    path = input_file(path, "model file")
+    kind = checked_format(path, allow_pickle, on_warning)
     if kind == "skops":
         return _read_skops(path, tuple(trust)), kind
+    if kind == "pickle":
+        import joblib
+
+        try:
+            return joblib.load(path), kind
+        except Exception as exc:  # a broken or truncated pickle can raise anything
+            raise NbledgerError(f"could not read {path.name} as a pickle: {_first_line(exc)}") from None
+
+
+def checked_format(path: Path, allow_pickle: bool, on_warning=None) -> str:
+    """``"skops"`` or (when allowed, with a warning) ``"pickle"``; refuses anything else unopened."""
+    kind = sniff_format(path)
     if kind == "pickle":
         if not allow_pickle:
             raise NbledgerError(
@@ -105,16 +169,27 @@ def read_object(
             )
         if on_warning is not None:
             on_warning(f"loading {path.name} as a pickle runs any code it contains; only do this for files you trust")
-        import joblib
+    elif kind != "skops":
+        raise NbledgerError(
+            f"{path.name} is not a model file this tool reads; supported: skops files "
+            "(written by 'nbledger train'), or pickle/joblib files with --allow-pickle"
+        )
+    return kind
 
-        try:
-            return joblib.load(path), kind
-        except Exception as exc:  # a broken or truncated pickle can raise anything
-            raise NbledgerError(f"could not read {path.name} as a pickle: {_first_line(exc)}") from None
-    raise NbledgerError(
-        f"{path.name} is not a model file this tool reads; supported: skops files "
-        "(written by 'nbledger train'), or pickle/joblib files with --allow-pickle"
-    )
+
+def check_archive(path: Path, limit: int) -> None:
+    """Refuse a skops archive whose members declare more than ``limit`` bytes once inflated."""
+    try:
+        with zipfile.ZipFile(path) as archive:
+            members = archive.infolist()
+    except (zipfile.BadZipFile, OSError, ValueError, EOFError) as exc:
+        raise NbledgerError(f"{path.name} is not a readable skops file: {_first_line(exc)}") from None
+    declared = sum(m.file_size for m in members)
+    if len(members) > _MAX_MEMBERS or declared > limit:
+        raise NbledgerError(
+            f"{path.name} would inflate to {declared:,} bytes in {len(members):,} parts, more than the "
+            f"loading limit of {limit:,} bytes (--max-model-memory); it was not opened"
+        )
 
 
 def _read_skops(path: Path, trust: tuple[str, ...]):
@@ -144,14 +219,17 @@ def _first_line(exc: BaseException) -> str:
 def read_card(model_path: Path, sha256: str, on_warning=None) -> dict | None:
     """The model card beside ``model_path``, if there is one and it matches."""
     path = card_path_for(model_path)
-    if not path.is_file():
+    if not os.path.lexists(path):
         return None
     try:
+        input_file(path, "model card")
         if path.stat().st_size > _CARD_LIMIT:
             raise ValueError("larger than 1 MiB")
-        card = json.loads(path.read_text(encoding="utf-8"))
+        card = json.loads(path.read_text(encoding="utf-8"), parse_constant=_refuse_constant)
         if not isinstance(card, dict):
             raise ValueError("not a JSON object")
+    except OSError as exc:
+        raise NbledgerError(f"the model card {path} cannot be read: {exc.strerror}") from None
     except (ValueError, UnicodeDecodeError) as exc:
         raise NbledgerError(f"the model card {path.name} is not valid: {_first_line(exc)}") from None
     recorded = (card.get("model") or {}).get("sha256")
@@ -162,10 +240,16 @@ def read_card(model_path: Path, sha256: str, on_warning=None) -> dict | None:
     return card
 
 
+def _refuse_constant(name: str):
+    raise ValueError(f"{name} is not JSON")
+
+
 def split_pipeline(obj, vectorizer_obj=None):
     """(text steps, classifier) of a supported pipeline, or a one-line error."""
     from sklearn.feature_extraction.text import TfidfTransformer
     from sklearn.pipeline import Pipeline
+
+    from explain.model.featurizer import Featurizer
 
     if isinstance(obj, Pipeline):
         steps = [step for _, step in obj.steps if step not in (None, "passthrough")]
@@ -210,20 +294,142 @@ def load_model(
     trust: tuple[str, ...] = (),
     normal_class: str | None = None,
     on_warning: Callable[[str], None] | None = None,
+    limits: LoadLimits | None = None,
 ) -> LoadedModel:
     """Load a filter safely and build its normalised view.
 
-    ``normal_class`` overrides the one recorded in the model card.
+    ``normal_class`` overrides the one recorded in the model card; ``limits``
+    bounds the loading process and says whether to use the cache.
     """
-    path = Path(path)
-    obj, kind = read_object(path, allow_pickle=allow_pickle, trust=trust, on_warning=on_warning)
-    vec_obj = None
+    from explain.model import model_cache, plain_form
+
+    limits = limits or LoadLimits()
+    path = input_file(path, "model file")
+    kind = checked_format(path, allow_pickle, on_warning)
+    files = [path]
     if vectorizer_path is not None:
-        vec_obj, _ = read_object(Path(vectorizer_path), allow_pickle=allow_pickle, trust=trust, on_warning=on_warning)
-    featurizer, classifier = split_pipeline(obj, vec_obj)
-    digest = sha256_of(path)
+        files.append(input_file(vectorizer_path, "vectorizer file"))
+        checked_format(files[1], allow_pickle)
+    for file in files:
+        if sniff_format(file) == "skops":
+            check_archive(file, limits.memory)
+    digest = model_cache.file_sha256(path, limits.cache)
+    if len(files) > 1:
+        key = hashlib.sha256(f"{digest}+{model_cache.file_sha256(files[1], limits.cache)}".encode()).hexdigest()
+    else:
+        key = digest
     card = read_card(path, digest, on_warning)
     if normal_class is None and card is not None:
         normal_class = (card.get("settings") or {}).get("normal_class")
-    view = view_of(classifier, featurizer.tokens, featurizer.feature_kind, normal_class)
-    return LoadedModel(view, featurizer, path, digest, kind, card, classifier)
+
+    cached = model_cache.read(key) if limits.cache else None
+    if cached is not None:
+        try:
+            featurizer, view = plain_form.rebuild(*cached)
+        except (NbledgerError, KeyError, ValueError, TypeError):
+            cached = None  # an entry of another version of nbledger or scikit-learn: load afresh
+        else:
+            return LoadedModel(
+                view.with_normal_class(normal_class), featurizer, path, digest, kind, card,
+                cached[1].get("classifier"),
+            )
+    outcome = load_in_child(files, allow_pickle=allow_pickle, trust=tuple(trust), limits=limits)
+    if "needs_code" in outcome:
+        if not (trust or allow_pickle):
+            raise NbledgerError(
+                f"{path.name}: the text step cannot be checked as plain data ({outcome['needs_code']}); "
+                "it can only be loaded in this process if you trust its types by name (--trust TYPE)"
+            )
+        obj, _ = read_object(path, allow_pickle=allow_pickle, trust=trust)
+        vec_obj = read_object(files[1], allow_pickle=allow_pickle, trust=trust)[0] if len(files) > 1 else None
+        featurizer, classifier = split_pipeline(obj, vec_obj)
+        view = view_of(classifier, featurizer.tokens, featurizer.feature_kind)
+        classifier_settings = plain_form.classifier_settings(classifier)
+    else:
+        arrays, settings = outcome["plain"]
+        featurizer, view = plain_form.rebuild(arrays, settings)
+        classifier_settings = settings.get("classifier")
+        if limits.cache:
+            model_cache.write(key, arrays, settings)
+    return LoadedModel(
+        view.with_normal_class(normal_class), featurizer, path, digest, kind, card, classifier_settings
+    )
+
+
+def _package_root() -> str:
+    import explain
+
+    return str(Path(explain.__file__).resolve().parent.parent)
+
+
+def load_in_child(files: list[Path], *, allow_pickle: bool, trust: tuple, limits: LoadLimits) -> dict:
+    """Open the model (and vectorizer) file in a separate, limited process.
+
+    Returns ``{"plain": (arrays, settings), "peak_bytes": n}``, or
+    ``{"needs_code": reason}`` for a text step that runs code of its own.
+    Everything else ends in an :class:`NbledgerError`.
+    """
+    from explain.model import plain_form
+
+    name = files[0].name
+    folder = Path(tempfile.mkdtemp(prefix="nbledger-load-"))
+    request = {
+        "model": str(files[0].resolve()),
+        "vectorizer": str(files[1].resolve()) if len(files) > 1 else None,
+        "allow_pickle": allow_pickle,
+        "trust": list(trust),
+        "memory": int(limits.memory),
+        "cpu_seconds": max(1, int(limits.timeout) + 1),
+        "out": str(folder),
+    }
+    env = dict(os.environ)
+    # The child imports what this process would (a trusted custom type's module included).
+    env["PYTHONPATH"] = os.pathsep.join([_package_root(), *(p for p in sys.path if p and os.path.isdir(p))])
+    # One thread each: numerical libraries reserve address space per thread.
+    env.update(OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1")
+    child = None
+    try:
+        with open(folder / "stderr.txt", "wb") as errors:
+            child = subprocess.Popen(
+                [sys.executable, "-m", "explain.model.load_child", json.dumps(request)],
+                stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=errors,
+                env=env, cwd=folder, start_new_session=True,
+            )
+            started = time.monotonic()
+            # While the child starts its interpreter and imports, this process
+            # imports what the rebuild needs: the two overlap on a second core.
+            import sklearn.feature_extraction.text  # noqa: F401
+
+            try:
+                child.wait(timeout=max(0.0, limits.timeout - (time.monotonic() - started)))
+            except subprocess.TimeoutExpired:
+                raise NbledgerError(
+                    f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped"
+                ) from None
+        result_file = folder / "result.json"
+        if not result_file.exists():
+            how = (f"signal {signal.Signals(-child.returncode).name}" if child.returncode < 0
+                   else f"exit status {child.returncode}")
+            tail = (folder / "stderr.txt").read_bytes()[-2000:].decode("utf-8", "replace").strip().splitlines()
+            if child.returncode == -signal.SIGXCPU or (time.monotonic() - started) >= limits.timeout:
+                raise NbledgerError(f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped")
+            raise NbledgerError(
+                f"loading {name} stopped ({how}{'; ' + tail[-1] if tail else ''}); "
+                f"it may need more than {limits.memory:,} bytes (--max-model-memory)"
+            )
+        result = json.loads(result_file.read_text(encoding="utf-8"))
+        if result.get("memory"):
+            raise NbledgerError(
+                f"loading {name} needed more than {limits.memory:,} bytes (--max-model-memory); it was stopped"
+            )
+        if "error" in result:
+            raise NbledgerError(result["error"])
+        if "needs_code" in result:
+            return result
+        result["plain"] = plain_form.load(folder)
+        return result
+    finally:
+        if child is not None and child.poll() is None:
+            os.killpg(child.pid, signal.SIGKILL)
+            child.wait()
+        shutil.rmtree(folder, ignore_errors=True)

@@ -70,7 +70,14 @@ def is_mail_source(path: Path, mail: MailInput) -> bool:
 
 
 def read_data(
-    path, text_col: str | None, label_col: str | None, mail: MailInput = MailInput(), id_col: str | None = None
+    path,
+    text_col: str | None,
+    label_col: str | None,
+    mail: MailInput = MailInput(),
+    id_col: str | None = None,
+    *,
+    max_bytes: int | None = None,
+    max_message_bytes: int | None = None,
 ) -> Messages:
     """Messages from a folder of ``.eml`` files, an mbox file or a table; see the module policy."""
     path = Path(path)
@@ -87,7 +94,8 @@ def read_data(
         )
     if text_col is None:
         raise NbledgerError(f"{path.name} is a table: give --text-col (and --label-col)")
-    messages = read_messages(path, text_col, label_col, id_col)
+    limits = {} if max_bytes is None else {"max_bytes": max_bytes}
+    messages = read_messages(path, text_col, label_col, id_col, max_message_bytes=max_message_bytes, **limits)
     if not mail.raw_email:
         return messages
     emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits) for text in messages.texts]

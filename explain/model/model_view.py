@@ -86,6 +86,19 @@ class ModelView:
     binarize: float | None = None
     normal_class: str | None = None
 
+    def __post_init__(self):
+        # A NaN or infinite weight makes every score it touches meaningless
+        # (NaN) or absolute (inf): neither can be explained as a sum.
+        for name in ("weights", "baseline"):
+            values = np.asarray(getattr(self, name))
+            if not np.isfinite(values).all():
+                nan = int(np.isnan(values).sum())
+                inf = int(np.isinf(values).sum())
+                raise NbledgerError(
+                    f"the model's {name} are not all finite ({nan} not a number, {inf} infinite); "
+                    "it cannot be scored or explained exactly (a model trained with alpha = 0 has infinite weights)"
+                )
+
     @property
     def n_classes(self) -> int:
         return len(self.classes)

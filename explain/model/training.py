@@ -52,8 +52,11 @@ class TrainSettings:
         lo, hi = self.ngrams
         if not 1 <= lo <= hi <= 9:
             raise NbledgerError(f"--ngrams must be MIN-MAX with 1 <= MIN <= MAX <= 9, got {lo}-{hi}")
-        if not self.alpha >= 0:
-            raise NbledgerError(f"--alpha must be >= 0, got {self.alpha}")
+        if not (self.alpha > 0 and np.isfinite(self.alpha)):
+            raise NbledgerError(
+                f"--alpha must be a number above 0, got {self.alpha} "
+                "(with 0, a token unseen in one class gives infinite weights)"
+            )
         if not (self.min_df >= 1 and float(self.min_df).is_integer()) and not 0 < self.min_df < 1:
             raise NbledgerError("--min-df must be a whole number of documents >= 1 or a fraction in (0, 1)")
         if not 0 <= self.holdout < 1:

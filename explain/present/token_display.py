@@ -1,19 +1,90 @@
-"""How a token is shown to a person: white space at its edges made visible.
+"""How text from files is shown to a person: never interpreted by the terminal.
 
-Character n-grams carry padding and white space (``"ns. "``, ``" dep"``); printed
-as they are, two different tokens look the same. The terminal presenters show
-spaces at a token's edges as "␣" and line breaks and tabs as escapes. Files
-(JSON, CSV) keep the token exactly.
+Message texts, tokens, labels and file names come from hostile files. Printed
+raw, a control sequence can retitle or clear the terminal (``ESC ]0;...``,
+``ESC [2J``) and a bidirectional override (U+202E) can reverse what a reader
+sees. Everything such text reaches a terminal or text file through one of
+these functions, which make those characters visible:
+
+- C0 and C1 control characters and DEL become ``\\x1b``-style escapes
+  (``\\n``, ``\\r``, ``\\t`` keep their short forms);
+- bidirectional controls and line/paragraph separators become ``<U+202E>``.
+
+``shown`` is for tokens: spaces at a token's edges become "␣", so that the
+character n-grams ``"ns. "`` and ``"ns."`` look different. ``safe_text`` is for
+message texts laid out over several lines (line breaks and tabs kept).
+``safe_line`` is for one-line messages (errors, file names). Files meant for
+programs (JSON, CSV) keep the text exactly.
 """
 
 from __future__ import annotations
 
-_ESCAPES = str.maketrans({"\n": "\\n", "\r": "\\r", "\t": "\\t"})
+import re
+
+# Unicode bidirectional formatting characters (UAX #9, "Explicit Directional
+# Embeddings/Overrides/Isolates" and the implicit marks) and the separators
+# U+2028/U+2029 that some terminals treat as line breaks.
+_BIDI = "\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069\u2028\u2029"
+_SHORT = {"\n": "\\n", "\r": "\\r", "\t": "\\t"}
+_UNSAFE = re.compile(f"[\x00-\x1f\x7f-\x9f{_BIDI}]")
+_UNSAFE_KEEP_LINES = re.compile(f"[\x00-\x08\x0b-\x1f\x7f-\x9f{_BIDI}]")
+
+
+def _visible(match: re.Match) -> str:
+    ch = match.group()
+    if ch in _SHORT:
+        return _SHORT[ch]
+    if ch in _BIDI:
+        return f"<U+{ord(ch):04X}>"
+    return f"\\x{ord(ch):02x}"
+
+
+def safe_line(text: str) -> str:
+    """``text`` on one line with every control and bidi character made visible."""
+    return _UNSAFE.sub(_visible, str(text))
+
+
+def safe_text(text: str) -> str:
+    """``text`` with line breaks and tabs kept, other controls and bidi characters visible."""
+    return _UNSAFE_KEEP_LINES.sub(_visible, str(text).replace("\r\n", "\n"))
 
 
 def shown(token: str) -> str:
     """``token`` for a terminal or picture: exact, but with invisible characters visible."""
-    token = str(token)
-    if token != token.strip() or any(ch in token for ch in "\n\r\t"):
-        return token.translate(_ESCAPES).replace(" ", "␣")
+    token = safe_line(token)
+    if token != token.strip():
+        return token.replace(" ", "␣")
     return token
+
+
+def _safe_renderable(inner):
+    from rich.segment import Segment
+
+    class Visible:
+        def __rich_console__(self, console, options):
+            for segment in console.render(inner, options):
+                if segment.control:
+                    yield segment
+                else:
+                    yield Segment(safe_text(segment.text), segment.style)
+
+    return Visible()
+
+
+def make_console(**options):
+    """A ``rich`` console that shows control and bidi characters instead of obeying them.
+
+    Every presenter prints through such a console (the command line's own, and
+    the one that renders ``--out`` text files), so no hostile text reaches the
+    terminal raw whichever presenter printed it. Rich's own colours are styles,
+    not text, and are unaffected.
+    """
+    from rich.console import Console, RenderHook
+
+    class ShowControls(RenderHook):
+        def process_renderables(self, renderables):
+            return [_safe_renderable(r) for r in renderables]
+
+    console = Console(**options)
+    console.push_render_hook(ShowControls())
+    return console

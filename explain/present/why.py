@@ -72,7 +72,7 @@ from explain.analysis.ledger import Ledger
 from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines, email_json
 from explain.present.tint import MARKS, tint
-from explain.present.token_display import shown
+from explain.present.token_display import make_console, shown
 from explain.present.wording import (
     amount,
     flip_sentence,
@@ -512,7 +512,7 @@ def text_record(ledgers, *, date: str, top: int = 10) -> str:
     parts = []
     for ledger in ledgers:
         buffer = io.StringIO()
-        render(ledger, Console(file=buffer, width=RECORD_WIDTH, no_color=True, highlight=False), top, date)
+        render(ledger, make_console(file=buffer, width=RECORD_WIDTH, no_color=True, highlight=False), top, date)
         parts.append(buffer.getvalue())
     return "\f\n".join(parts)
 

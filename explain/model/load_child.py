@@ -1,0 +1,71 @@
+"""The separate loading process: ``python -m explain.model.load_child REQUEST``.
+
+It runs under an address-space limit (``RLIMIT_AS``, set before anything else
+is imported) and a CPU-time limit, opens the model file with
+:func:`explain.model.loading.read_object` (skops allow-list, pickle only when
+allowed), checks the pipeline, and writes its plain form
+(:mod:`explain.model.plain_form`) into the folder it was given, with
+``result.json`` saying how it went. It never sends a Python object back: a
+hostile file can at worst crash this process.
+"""
+
+from __future__ import annotations
+
+import json
+import resource
+import sys
+from pathlib import Path
+
+
+def _peak_bytes() -> int:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024  # Linux reports KiB
+
+
+def _load(request: dict, out: Path) -> dict:
+    from explain.model.loading import read_object, split_pipeline
+    from explain.model.model_view import view_of
+    from explain.model import plain_form
+
+    options = dict(allow_pickle=request["allow_pickle"], trust=tuple(request["trust"]))
+    obj, _ = read_object(Path(request["model"]), **options)
+    vec_obj = None
+    if request["vectorizer"] is not None:
+        vec_obj, _ = read_object(Path(request["vectorizer"]), **options)
+    featurizer, classifier = split_pipeline(obj, vec_obj)
+    reason = plain_form.code_in(featurizer.vectorizer)
+    if reason is not None:
+        return {"needs_code": reason}
+    view = view_of(classifier, featurizer.tokens, featurizer.feature_kind)
+    arrays, settings = plain_form.to_plain(featurizer, view, classifier)
+    plain_form.save(out, arrays, settings)
+    return {"ok": True}
+
+
+def main(argv: list[str]) -> int:
+    request = json.loads(argv[0])
+    memory = int(request["memory"])
+    resource.setrlimit(resource.RLIMIT_AS, (memory, memory))
+    cpu = int(request["cpu_seconds"])
+    resource.setrlimit(resource.RLIMIT_CPU, (cpu, cpu + 1))
+    out = Path(request["out"])
+    from explain.errors import NbledgerError
+
+    try:
+        result = _load(request, out)
+    except NbledgerError as exc:
+        result = {"error": str(exc)}
+    except MemoryError:
+        result = {"memory": True}
+    except RecursionError:
+        result = {"error": f"{Path(request['model']).name} is nested too deeply to load"}
+    except Exception as exc:  # a damaged or hostile file can raise anything
+        first = str(exc).strip().splitlines()
+        result = {"error": f"could not load {Path(request['model']).name}: {type(exc).__name__}"
+                  + (f": {first[0]}" if first else "")}
+    result["peak_bytes"] = _peak_bytes()
+    (out / "result.json").write_text(json.dumps(result, allow_nan=False), encoding="utf-8")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
