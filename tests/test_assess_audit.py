@@ -96,7 +96,7 @@ def test_projection_matches_a_published_worked_example():
     # of health statistics", Psychological Science in the Public Interest 8(2), the screening question posed
     # to gynecologists: prevalence 1 %, sensitivity 90 %, false-positive rate 9 %; in natural frequencies,
     # of 1,000 women 10 are ill and 9 of them test positive, 89 of the 990 others test positive too, so
-    # about 1 in 10 positives (9 of 98) is ill (figures as quoted in public write-ups of the course).
+    # about 1 in 10 positives (9 of 98) is ill (figures as quoted in public write-ups of the example, not read in the paper itself).
     recall = Rate(0.9, 0.9, 0.9, 9, 10)
     fpr = Rate(0.09, 0.09, 0.09, 89, 990)
     p = project_to_base_rate(recall, fpr, 0.01)
