@@ -191,22 +191,34 @@ def _presence_only(view, featurizer) -> bool:
     return featurizer.vectorizer.binary or (view.variant == "bernoulli" and view.binarize is not None)
 
 
-def _units(view, featurizer, counts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Removable units as (column, occurrences the unit stands for).
+def _units(view, featurizer, counts: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Removable units of every row as (row, column, occurrences the unit stands for).
 
     With count features every occurrence is a unit. When only presence
     matters a token is one unit, made of as many occurrences as must go for
     it to count as absent (all of them, or down to BernoulliNB's threshold).
+    Units are grouped by row, columns ascending within a row.
     """
-    present = np.flatnonzero(counts)
+    rows = np.repeat(np.arange(counts.shape[0]), np.diff(counts.indptr))
+    cols, n = counts.indices, counts.data.astype(np.int64)
     if not _presence_only(view, featurizer):
-        n = counts[present].astype(int)
-        return np.repeat(present, n), np.ones(int(n.sum()), dtype=int)
-    allowed = 0.0
+        return np.repeat(rows, n), np.repeat(cols, n), np.ones(int(n.sum()), dtype=np.int64)
+    allowed = 0
     if not featurizer.vectorizer.binary and view.binarize is not None:
-        allowed = max(np.floor(view.binarize), 0.0)
-    sizes = (counts[present] - allowed).astype(int)
-    return present[sizes > 0], sizes[sizes > 0]
+        allowed = int(max(np.floor(view.binarize), 0.0))
+    sizes = n - allowed
+    keep = sizes > 0
+    return rows[keep], cols[keep], sizes[keep]
+
+
+def exact_flip_possible(view, featurizer, rule: DecisionRule) -> bool:
+    """True when sorting removals by their effect gives the proven minimum flip set."""
+    # TF-IDF re-normalises the row on every removal, except when BernoulliNB
+    # reduces the weights to presence (binarize=0): then removals are additive.
+    additive_features = featurizer.feature_kind != "tfidf" or (
+        view.variant == "bernoulli" and view.binarize == 0.0
+    )
+    return view.n_classes > 1 and additive_features and rule.additive
 
 
 def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> FlipSet:
@@ -217,64 +229,134 @@ def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> Flip
         return FlipSet((), True, "exact", None, "the model has a single class, so no decision can change")
     if not counts.any():
         return FlipSet((), True, "exact", None, "the message has no token the model knows; the baseline alone decides")
-    cols, sizes = _units(view, featurizer, counts)
-    # TF-IDF re-normalises the row on every removal, except when BernoulliNB
-    # reduces the weights to presence (binarize=0): then removals are additive.
-    additive_features = featurizer.feature_kind != "tfidf" or (
-        view.variant == "bernoulli" and view.binarize == 0.0
-    )
-    if additive_features and rule.additive:
-        return _exact_flip(view, featurizer, rule, decision, counts, cols, sizes)
-    return _greedy_flip(view, featurizer, rule, decision, counts)
+    if not exact_flip_possible(view, featurizer, rule):
+        return _greedy_flip(view, featurizer, rule, decision, counts)
+    flips = exact_flips(view, featurizer, rule, sp.csr_matrix(counts.reshape(1, -1)), np.array([decision]), confirm_all=True)
+    if flips.units[0] == 0:
+        return FlipSet(
+            (), True, "exact", None,
+            "removing every token that supports this decision does not change it; "
+            "the baseline and the remaining tokens decide",
+        )
+    cols, sizes = flips.removed(0)
+    return FlipSet(_removals(view, cols, sizes), True, "exact", str(view.classes[flips.new_decision[0]]), None)
 
 
 def _score(view, featurizer, counts: sp.csr_matrix) -> np.ndarray:
     return view.joint_log_likelihood(view.prepare(featurizer.weigh(counts)))
 
 
-def _exact_flip(view, featurizer, rule, decision, counts, cols, sizes) -> FlipSet:
-    x0 = sp.csr_matrix(counts.reshape(1, -1))
-    jll0 = _score(view, featurizer, x0)[0]
-    # Each unit carries one unit of its feature (one occurrence, or presence),
-    # so removing it takes W[:, j] away from every class's score.
-    loss = view.weights[:, cols].T  # (units, C)
+@dataclass(frozen=True, eq=False)
+class ExactFlips:
+    """Minimum flip sets of n messages (additive cases only; see :func:`exact_flips`).
+
+    ``units`` (n,) is how many units the set removes (0: no removal changes
+    the decision); ``size`` (n,) how many token occurrences that is;
+    ``new_decision`` (n,) the class index after the removals (-1 for none).
+    ``unit_cols``/``unit_sizes`` are every row's units; ``orders[t]`` is
+    (unit indices in removal order, start of each row in it) for rival
+    number t, and ``rival`` (n,) the rival whose order row i's set follows.
+    """
+
+    units: np.ndarray
+    size: np.ndarray
+    new_decision: np.ndarray
+    unit_cols: np.ndarray
+    unit_sizes: np.ndarray
+    orders: tuple
+    rival: np.ndarray
+
+    def removed(self, i: int) -> tuple[np.ndarray, np.ndarray]:
+        """(columns, occurrences) of row i's flip set, in the order they were chosen."""
+        order, starts = self.orders[self.rival[i]]
+        chosen = order[starts[i] : starts[i] + self.units[i]]
+        return self.unit_cols[chosen], self.unit_sizes[chosen]
+
+
+def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.ndarray, confirm_all=False) -> ExactFlips:
+    """Minimum flip sets of many messages at once, by sorting removals by their effect.
+
+    ``counts`` (n, F) holds raw occurrence counts; ``decisions`` (n,) the
+    decided class indices. Needs :func:`exact_flip_possible`. The decision
+    against each rival depends on one margin only, so per rival the units
+    are removed in order of how much they lower it, and the shortest prefix
+    over rivals is the minimum. The prefix is found with running sums for
+    every row at once; rows whose running sums come within rounding of the
+    decision boundary (all rows with ``confirm_all``) are re-scored exactly.
+    """
+    counts = sp.csr_matrix(counts, dtype=np.float64)
+    counts.eliminate_zeros()
+    counts.sort_indices()
+    n, C = counts.shape[0], view.n_classes
+    decisions = np.asarray(decisions, dtype=np.int64)
+    u_row, u_col, u_size = _units(view, featurizer, counts)
+    jll0 = _score(view, featurizer, counts)
+    tolerance = 1e-8 * (1.0 + np.abs(jll0).max(axis=1))
     if rule.threshold is not None:
-        targets = [(rule.flagged_indices[0], rule.normal_index)]
+        winners = [np.full(n, rule.flagged_indices[0])]
+        rivals = [np.full(n, rule.normal_index)]
+        sign = np.where(decisions == rule.normal_index, -1.0, 1.0)
     else:
-        targets = [(decision, c) for c in range(view.n_classes) if c != decision]
-    best = None
-    for winner, rival in targets:
+        winners = [decisions] * (C - 1)
+        rivals = [t + (t >= decisions) for t in range(C - 1)]
+        sign = np.ones(n)
+    best_units = np.zeros(n, dtype=np.int64)
+    best_size = np.zeros(n, dtype=np.int64)
+    best_new = np.full(n, -1, dtype=np.int64)
+    best_rival = np.zeros(n, dtype=np.int64)
+    orders = []
+    for t, (winner, rival) in enumerate(zip(winners, rivals)):
         # Removing unit u lowers jll[winner] - jll[rival] by gain[u]; for a
         # threshold the direction depends on whether the message is flagged.
-        gain = loss[:, winner] - loss[:, rival]
-        if rule.threshold is not None and decision == rule.normal_index:
-            gain = -gain
-        order = np.argsort(-gain, kind="stable")
+        gain = sign[u_row] * (view.weights[winner[u_row], u_col] - view.weights[rival[u_row], u_col])
+        order = np.lexsort((-gain, u_row))
         order = order[gain[order] > 0]
-        if len(order) == 0:
-            continue
-        after = jll0 - np.cumsum(loss[order], axis=0)
-        changed = np.flatnonzero(rule.decide(after) != decision)
+        rows = u_row[order]
+        length = np.bincount(rows, minlength=n)
+        starts = np.concatenate(([0], np.cumsum(length)[:-1]))
+        running = np.cumsum(view.weights[:, u_col[order]].T, axis=0)
+        before = np.concatenate((np.zeros((1, C)), running))[starts[rows]]
+        after = jll0[rows] - (running - before)
+        changed = rule.decide(after) != decisions[rows]
+        position = np.arange(len(order)) - starts[rows]
+        k = length.copy()
+        first = np.flatnonzero(changed)
+        first = first[np.r_[True, rows[first][1:] != rows[first][:-1]]] if len(first) else first
+        k[rows[first]] = position[first] + 1
+        new = np.full(n, -1, dtype=np.int64)
+        new[rows[first]] = rule.decide(after[first])
         # Near a tie the running sums can miss a change that exact scoring sees.
-        k0 = changed[0] + 1 if len(changed) else len(order)
-        k, new = _confirm(view, featurizer, rule, decision, counts, cols[order], sizes[order], k0)
-        if k is not None and (best is None or k < len(best[0])):
-            best = (order[:k], new)
-    if best is None:
-        return FlipSet(
-            (), True, "exact", None,
-            "removing every token that supports this decision does not change it; "
-            "the baseline and the remaining tokens decide",
-        )
-    chosen, new = best
-    return FlipSet(_removals(view, cols[chosen], sizes[chosen]), True, "exact", str(view.classes[new]), None)
+        at_k = np.full(n, np.inf)
+        at_before = np.abs(_distance(rule, jll0, decisions))
+        has = length > 0
+        last = starts[has] + k[has] - 1
+        at_k[has] = np.abs(_distance(rule, after[last], decisions[has]))
+        prev = last - 1
+        inner = k[has] > 1
+        at_before[np.flatnonzero(has)[inner]] = np.abs(_distance(rule, after[prev[inner]], decisions[has][inner]))
+        doubtful = has & ((np.minimum(at_k, at_before) <= tolerance) | confirm_all)
+        k[has & ~doubtful & (new < 0)] = 0
+        for i in np.flatnonzero(doubtful):
+            row_units = order[starts[i] : starts[i] + length[i]]
+            dense = counts[i].toarray()[0]
+            k[i], new_i = _confirm(view, featurizer, rule, decisions[i], dense, u_col[row_units], u_size[row_units], k[i])
+            new[i] = -1 if new_i is None else new_i
+        k[~has] = 0
+        removed = np.concatenate(([0], np.cumsum(u_size[order])))
+        better = (k > 0) & ((best_units == 0) | (k < best_units))
+        best_units[better] = k[better]
+        best_size[better] = (removed[starts + k] - removed[starts])[better]
+        best_new[better] = new[better]
+        best_rival[better] = t
+        orders.append((order, starts))
+    return ExactFlips(best_units, best_size, best_new, u_col, u_size, tuple(orders), best_rival)
 
 
 def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
     """Re-score prefixes exactly around ``k`` (the running sums can differ in the last bits).
 
     Returns the shortest prefix length whose exact re-score changes the
-    decision, and the new decision; (None, None) if none does.
+    decision, and the new decision; (0, None) if none does.
     """
 
     def outcome(n):
@@ -282,10 +364,11 @@ def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
         np.subtract.at(after, cols[:n], sizes[:n])
         return int(rule.decide(_score(view, featurizer, sp.csr_matrix(after.reshape(1, -1))))[0])
 
+    k = max(int(k), 1)
     while k <= len(cols) and outcome(k) == decision:
         k += 1
     if k > len(cols):
-        return None, None
+        return 0, None
     while k > 1 and outcome(k - 1) != decision:
         k -= 1
     return k, outcome(k)
@@ -299,13 +382,17 @@ def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int
     return tuple((str(view.tokens[unique[i]]), int(totals[i])) for i in order)
 
 
-def _distance(rule: DecisionRule, jll: np.ndarray, decision: int) -> np.ndarray:
-    """How far each row of ``jll`` is from changing ``decision`` (<= 0 once changed)."""
+def _distance(rule: DecisionRule, jll: np.ndarray, decision) -> np.ndarray:
+    """How far each row of ``jll`` is from changing ``decision`` (a class index, or one per row); <= 0 once changed."""
+    jll = np.atleast_2d(jll)
+    decision = np.broadcast_to(decision, (len(jll),))
     if rule.threshold is not None:
         gap = rule.flag_log_odds(jll) - rule.threshold_log_odds
-        return gap if decision != rule.normal_index else -gap
-    others = np.delete(jll, decision, axis=1)
-    return jll[:, decision] - others.max(axis=1)
+        return np.where(decision != rule.normal_index, gap, -gap)
+    rows = np.arange(len(jll))
+    others = jll.copy()
+    others[rows, decision] = -np.inf
+    return jll[rows, decision] - others.max(axis=1)
 
 
 def _greedy_flip(view, featurizer, rule, decision, counts) -> FlipSet:
