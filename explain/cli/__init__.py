@@ -132,3 +132,4 @@ def main() -> None:
 from explain.cli import train, why  # noqa: E402,F401
 from explain.cli import assess  # noqa: E402,F401
 from explain.cli import vocab  # noqa: E402,F401
+from explain.cli import ledger  # noqa: E402,F401
