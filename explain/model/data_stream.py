@@ -282,15 +282,71 @@ def _parquet_batches(path: Path, gzipped: bool, text_col: str, id_col: str | Non
             handle = pq.ParquetFile(source)
         except (pa.ArrowException, OSError) as exc:
             raise NbledgerError(f"{path.name} is not a valid Parquet file: {_reason(exc)}") from None
-        wanted = [c for c in (text_col, id_col) if c is not None]
-        _missing_column(path, wanted, handle.schema_arrow.names)
         total = max(handle.metadata.num_rows, 1)
         done = 0
-        try:
-            for batch in handle.iter_batches(batch_size=chunk_rows, columns=wanted):
-                texts, nulls, replaced = _arrow_texts(batch.column(text_col))
-                ids = [str(v) for v in _arrow_texts(batch.column(id_col))[0]] if id_col else None
-                done += len(texts)
-                yield texts, ids, nulls, replaced, done / total
-        except pa.ArrowException as exc:
-            raise ValueError(str(exc)) from None
+        for texts, ids, nulls, replaced in _parquet_pieces(path, handle, text_col, id_col, chunk_rows):
+            done += len(texts)
+            yield texts, ids, nulls, replaced, done / total
+
+
+def _parquet_pieces(path: Path, handle, text_col, id_col, chunk_rows, row_groups=None):
+    """(texts, ids, nulls, replaced) per batch of an open Parquet file (all or some row groups)."""
+    import pyarrow as pa
+
+    wanted = [c for c in (text_col, id_col) if c is not None]
+    _missing_column(path, wanted, handle.schema_arrow.names)
+    try:
+        for batch in handle.iter_batches(batch_size=chunk_rows, row_groups=row_groups, columns=wanted):
+            texts, nulls, replaced = _arrow_texts(batch.column(text_col))
+            ids = [str(v) for v in _arrow_texts(batch.column(id_col))[0]] if id_col else None
+            yield texts, ids, nulls, replaced
+    except pa.ArrowException as exc:
+        raise ValueError(str(exc)) from None
+
+
+@dataclass(frozen=True)
+class Piece:
+    """A part of the input that one worker reads: a Parquet row group, or a whole file.
+
+    ``rows`` is its number of messages when the file says so (Parquet), else None.
+    """
+
+    path: str
+    row_group: int | None
+    rows: int | None
+
+
+def input_pieces(paths) -> list[Piece]:
+    """The input split into :class:`Piece` (row groups of plain Parquet files, other files whole)."""
+    import pyarrow.parquet as pq
+
+    pieces = []
+    for path in input_files(paths):
+        fmt, gzipped = data_format(path)
+        if fmt == "parquet" and not gzipped:
+            try:
+                meta = pq.ParquetFile(path).metadata
+            except Exception as exc:  # pyarrow raises several types for a damaged file
+                raise NbledgerError(f"{path.name} is not a valid Parquet file: {_reason(exc)}") from None
+            pieces.extend(Piece(str(path), g, meta.row_group(g).num_rows) for g in range(meta.num_row_groups))
+        else:
+            pieces.append(Piece(str(path), None, None))
+    return pieces
+
+
+def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int) -> Iterator[TextChunk]:
+    """The chunks of one piece (``first_row`` counts from the piece's start)."""
+    if piece.row_group is None:
+        yield from stream_texts([piece.path], text_col, id_col, chunk_rows)
+        return
+    import pyarrow.parquet as pq
+
+    path = Path(piece.path)
+    done = 0
+    try:
+        handle = pq.ParquetFile(path)
+        for texts, ids, nulls, replaced in _parquet_pieces(path, handle, text_col, id_col, chunk_rows, [piece.row_group]):
+            yield TextChunk(texts, ids, done, path.name, done + len(texts), nulls, replaced, (done + len(texts)) / max(piece.rows, 1))
+            done += len(texts)
+    except (OSError, ValueError) as exc:
+        raise NbledgerError(f"{path.name}: could not read past data row {done:,}: {_reason(exc)}") from None

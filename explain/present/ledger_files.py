@@ -191,6 +191,7 @@ class LedgerProgress:
     seconds: float = 0.0
 
     def add(self, rows, classes, source="", file_row=0, done=0.0, nulls=0, replaced=0) -> None:
+        """Count one chunk's rows (:class:`~explain.analysis.ledger_rows.LedgerRows`)."""
         self.messages += len(rows)
         for c, n in zip(classes, rows.flagged_per_class()):
             if n:
@@ -200,6 +201,15 @@ class LedgerProgress:
         self.nulls += nulls
         self.replaced += replaced
         self.source, self.file_row, self.done = source, file_row, done
+
+    def merge(self, other: "LedgerProgress") -> None:
+        """Add another part's counts (the Dask engine's partitions)."""
+        self.messages += other.messages
+        for c, n in other.flagged.items():
+            self.flagged[c] = self.flagged.get(c, 0) + n
+        for name in ("empty", "nulls", "replaced", "large"):
+            setattr(self, name, getattr(self, name) + getattr(other, name))
+        self.source, self.file_row = other.source, other.file_row
 
 
 class IdCounter:
@@ -211,13 +221,30 @@ class IdCounter:
     def add(self, ids) -> None:
         import pandas as pd
 
-        self._hashes.append(pd.util.hash_array(np.asarray(ids, dtype=object)))
+        self.add_hashes(pd.util.hash_array(np.asarray(ids, dtype=object)))
+
+    def add_hashes(self, hashes: np.ndarray) -> None:
+        """Add ids already hashed by ``pandas.util.hash_array``."""
+        self._hashes.append(hashes)
 
     def duplicates(self) -> int:
         if not self._hashes:
             return 0
         hashes = np.concatenate(self._hashes)
         return int(len(hashes) - len(np.unique(hashes)))
+
+
+def row_numbers(first_row: int, n: int) -> np.ndarray:
+    """Ids for messages without an id column: their 1-based position in the whole input."""
+    return np.arange(first_row + 1, first_row + n + 1).astype(str).astype(object)
+
+
+def ledger_chunk(model, rule, texts, ids, top_k, only_flagged, drivers):
+    """One chunk: its :class:`LedgerRows`, their Arrow table and flag drivers (or None)."""
+    from explain.analysis.ledger_rows import ledger_rows
+
+    rows, found = ledger_rows(model, texts, ids, rule, top_k, drivers=drivers)
+    return rows, ledger_table(rows, model.sha256, only_flagged), found
 
 
 def drivers_header(model, rule, progress: LedgerProgress) -> dict:
@@ -234,6 +261,19 @@ def drivers_header(model, rule, progress: LedgerProgress) -> dict:
     }
 
 
+def run_rule(model, threshold, only_flagged, summary):
+    """The decision rule of a run and its starting flag drivers (None without ``summary``)."""
+    from explain.analysis.drivers import empty_drivers
+    from explain.model.decision import DecisionRule
+
+    if summary is not None:
+        output_format(summary, DRIVER_FORMATS, "flag-driver")
+    rule = DecisionRule.for_view(model.view, threshold)
+    if (only_flagged or summary is not None) and rule.normal_index is None:
+        raise NbledgerError("flagging needs a normal class: name it with --normal-class")
+    return rule, (empty_drivers(model.view, rule) if summary is not None else None)
+
+
 def write_ledger(
     model, paths, text_col: str, out, *, id_col=None, top_k=5, chunk_rows=50_000,
     only_flagged=False, threshold=None, summary=None,
@@ -244,18 +284,10 @@ def write_ledger(
     Returns the run's totals; ``progress`` (updated after each chunk) and
     ``on_chunk`` let a caller show how far it has got, also after an error.
     """
-    from explain.analysis.drivers import empty_drivers
-    from explain.analysis.ledger_rows import ledger_rows
     from explain.model.data_stream import stream_texts
-    from explain.model.decision import DecisionRule
 
     fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger")
-    if summary is not None:
-        output_format(summary, DRIVER_FORMATS, "flag-driver")
-    rule = DecisionRule.for_view(model.view, threshold)
-    if (only_flagged or summary is not None) and rule.normal_index is None:
-        raise NbledgerError("flagging needs a normal class: name it with --normal-class")
-    drivers = empty_drivers(model.view, rule) if summary is not None else None
+    rule, drivers = run_rule(model, threshold, only_flagged, summary)
     progress = progress if progress is not None else LedgerProgress()
     ids_seen = IdCounter() if id_col is not None else None
     start = time.perf_counter()
@@ -263,9 +295,9 @@ def write_ledger(
         writer = LedgerWriter(tmp, fmt, gzipped)
         with contextlib.closing(writer):
             for chunk in stream_texts(paths, text_col, id_col, chunk_rows):
-                ids = chunk.ids if chunk.ids is not None else np.arange(chunk.first_row + 1, chunk.first_row + len(chunk.texts) + 1).astype(str)
-                rows, found = ledger_rows(model, chunk.texts, ids, rule, top_k, drivers=summary is not None)
-                writer.write(ledger_table(rows, model.sha256, only_flagged))
+                ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
+                rows, table, found = ledger_chunk(model, rule, chunk.texts, ids, top_k, only_flagged, summary is not None)
+                writer.write(table)
                 if found is not None:
                     drivers = drivers.plus(found)
                 if ids_seen is not None:
