@@ -191,6 +191,11 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
     import pyarrow.csv as pcsv
 
     wanted = [c for c in (text_col, id_col) if c is not None]
+    bad_rows = []
+
+    def malformed(row):
+        bad_rows.append(row)
+        return "error"
 
     def open_reader(include):
         raw = _Counting(path)
@@ -199,8 +204,9 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
             stream = pa.CompressedInputStream(stream, "gzip")
         reader = pcsv.open_csv(
             stream,
-            read_options=pcsv.ReadOptions(block_size=CSV_BLOCK_BYTES),
-            parse_options=pcsv.ParseOptions(newlines_in_values=True),
+            # One thread: the reader then knows the row number of a malformed row.
+            read_options=pcsv.ReadOptions(block_size=CSV_BLOCK_BYTES, use_threads=False),
+            parse_options=pcsv.ParseOptions(newlines_in_values=True, invalid_row_handler=malformed),
             convert_options=pcsv.ConvertOptions(
                 include_columns=include,
                 column_types={c: pa.binary() for c in include},
@@ -210,11 +216,20 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
         )
         return raw, reader
 
+    def failed(exc):
+        row = next((r for r in bad_rows if r.number is not None), None)
+        if row is None:
+            return ValueError(str(exc))
+        return NbledgerError(
+            f"{path.name}: data row {row.number - 1:,} is malformed "
+            f"(expected {row.expected_columns} columns, found {row.actual_columns})"
+        )
+
     try:
         raw, reader = open_reader(wanted)
-    except pa.ArrowInvalid as exc:
-        if "include_columns" not in str(exc) and "does not exist" not in str(exc):
-            raise ValueError(str(exc)) from None
+    except pa.ArrowException as exc:
+        if "include_columns" not in str(exc):
+            raise failed(exc) from None
         _, header = open_reader([])
         _missing_column(path, wanted, header.schema.names)
     while True:
@@ -223,7 +238,7 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
         except StopIteration:
             return
         except pa.ArrowException as exc:
-            raise ValueError(str(exc)) from None
+            raise failed(exc) from None
         texts, nulls, replaced = _arrow_texts(batch.column(text_col))
         ids = _arrow_texts(batch.column(id_col))[0] if id_col else None
         yield texts, ids, nulls, replaced, raw.share
