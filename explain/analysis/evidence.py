@@ -28,7 +28,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from explain.analysis.batch import top_two
+from explain.analysis.batch import by_row_then_value, top_two
 from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
@@ -305,16 +305,17 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     best_new = np.full(n, -1, dtype=np.int64)
     best_rival = np.zeros(n, dtype=np.int64)
     orders = []
+    loss = np.ascontiguousarray(view.weights.T)[u_col]  # (units, C): what removing each unit takes away
+    unit = np.arange(len(u_row))
     for t, (winner, rival) in enumerate(zip(winners, rivals)):
         # Removing unit u lowers jll[winner] - jll[rival] by gain[u]; for a
         # threshold the direction depends on whether the message is flagged.
-        gain = sign[u_row] * (view.weights[winner[u_row], u_col] - view.weights[rival[u_row], u_col])
-        order = np.lexsort((-gain, u_row))
-        order = order[gain[order] > 0]
+        gain = sign[u_row] * (loss[unit, winner[u_row]] - loss[unit, rival[u_row]])
+        order = by_row_then_value(u_row, gain, positive_only=True)
         rows = u_row[order]
         length = np.bincount(rows, minlength=n)
         starts = np.concatenate(([0], np.cumsum(length)[:-1]))
-        running = np.cumsum(view.weights[:, u_col[order]].T, axis=0)
+        running = np.cumsum(loss[order], axis=0)
         before = np.concatenate((np.zeros((1, C)), running))[starts[rows]]
         after = jll0[rows] - (running - before)
         changed = rule.decide(after) != decisions[rows]

@@ -62,17 +62,23 @@ def ledger_schema():
     ])
 
 
-def _lists(cols: np.ndarray, values: np.ndarray, tokens: np.ndarray):
-    """(n, k) columns (-1 padded) and values as two Arrow list arrays."""
+def _lists(cols: np.ndarray, values: np.ndarray, vocabulary):
+    """(n, k) columns (-1 padded) and values as two Arrow list arrays (tokens from ``vocabulary``)."""
     import pyarrow as pa
 
     keep = cols >= 0
-    offsets = np.concatenate(([0], np.cumsum(keep.sum(axis=1)))).astype(np.int32)
-    names = pa.array(tokens[cols[keep]].astype(str) if keep.any() else [], type=pa.string())
+    offsets = pa.array(np.concatenate(([0], np.cumsum(keep.sum(axis=1)))).astype(np.int32))
     return (
-        pa.ListArray.from_arrays(pa.array(offsets), names),
-        pa.ListArray.from_arrays(pa.array(offsets), pa.array(values[keep], type=pa.float64())),
+        pa.ListArray.from_arrays(offsets, _names(cols[keep], vocabulary)),
+        pa.ListArray.from_arrays(offsets, pa.array(values[keep], type=pa.float64())),
     )
+
+
+def _names(index: np.ndarray, names):
+    """Class or token names by index, looked up in Arrow rather than per row in Python."""
+    import pyarrow as pa
+
+    return pa.DictionaryArray.from_arrays(pa.array(index.astype(np.int32)), names).cast(pa.string())
 
 
 def ledger_table(rows, sha256: str, only_flagged: bool = False):
@@ -82,19 +88,19 @@ def ledger_table(rows, sha256: str, only_flagged: bool = False):
     e = rows.evidence
     keep = rows.flagged if only_flagged else np.ones(len(rows), dtype=bool)
     n = int(keep.sum())
-    classes = e.classes.astype(str)
+    classes, vocabulary = pa.array(e.classes.astype(str)), pa.array(e.tokens, type=pa.string())
     maybe = lambda a: pa.nulls(n, pa.float64()) if a is None else pa.array(a[keep])  # noqa: E731
     idx = np.arange(len(rows))[keep]
-    for_names, for_values = _lists(e.top_for[keep], e.top_for_evidence[keep], e.tokens)
-    against_names, against_values = _lists(e.top_against[keep], e.top_against_evidence[keep], e.tokens)
+    for_names, for_values = _lists(e.top_for[keep], e.top_for_evidence[keep], vocabulary)
+    against_names, against_values = _lists(e.top_against[keep], e.top_against_evidence[keep], vocabulary)
     flip = rows.flip_size[keep]
     return pa.table(
         [
-            pa.array(rows.ids[keep].astype(str), type=pa.string()),
-            pa.array(classes[e.decision[keep]]),
+            pa.array(rows.ids[keep], type=pa.string()),
+            _names(e.decision[keep], classes),
             pa.nulls(n, pa.bool_()) if rows.flagged is None else pa.array(rows.flagged[keep]),
-            pa.array(classes[e.predicted[keep]]),
-            pa.array(classes[e.runner_up[keep]]),
+            _names(e.predicted[keep], classes),
+            _names(e.runner_up[keep], classes),
             pa.array(e.probabilities[idx, e.predicted[keep]]),
             maybe(rows.flag_probability),
             pa.array(e.log_odds[keep]),
