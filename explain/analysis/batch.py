@@ -65,15 +65,15 @@ def top_two(jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return predicted, np.argmax(masked, axis=1)
 
 
-def by_row_then_value(rows: np.ndarray, values: np.ndarray, positive_only: bool = False) -> np.ndarray:
+def by_row_then_value(rows: np.ndarray, values: np.ndarray, non_negative: bool = False) -> np.ndarray:
     """Indices of ``values`` grouped by ``rows`` (ascending), largest value first within a row.
 
     Ties keep their original order, as ``np.argsort(-values, kind="stable")``
-    within each row would; ``positive_only`` keeps only values > 0. After one
+    within each row would; ``non_negative`` keeps only values >= 0. After one
     stable sort by value, the rows are ordered by two stable 16-bit sorts
     (radix sorts in numpy), several times faster than ``np.lexsort``.
     """
-    order = np.flatnonzero(values > 0) if positive_only else np.arange(len(values))
+    order = np.flatnonzero(values >= 0) if non_negative else np.arange(len(values))
     order = order[np.argsort(-values[order], kind="stable")]
     for shift in (0, 16):
         key = ((rows[order] >> shift) & 0xFFFF).astype(np.uint16)

@@ -277,12 +277,14 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     """Minimum flip sets of many messages at once, by sorting removals by their effect.
 
     ``counts`` (n, F) holds raw occurrence counts; ``decisions`` (n,) the
-    decided class indices. Needs :func:`exact_flip_possible`. The decision
-    against each rival depends on one margin only, so per rival the units
-    are removed in order of how much they lower it, and the shortest prefix
-    over rivals is the minimum. The prefix is found with running sums for
-    every row at once; rows whose running sums come within rounding of the
-    decision boundary (all rows with ``confirm_all``) are re-scored exactly.
+    decided class indices. Needs :func:`exact_flip_possible`. A decision
+    changes when some rival overtakes it, and the margin against one rival is
+    a sum of per-unit terms; so per rival the units are removed in order of
+    how much they lower that margin, and the shortest prefix that closes it,
+    over all rivals, is the minimum. Prefixes are found with running sums
+    for every row at once; rows within rounding of a boundary (all rows with
+    ``confirm_all``), and any row whose exact re-score disagrees, are
+    re-scored exactly step by step.
     """
     counts = sp.csr_matrix(counts, dtype=np.float64)
     counts.eliminate_zeros()
@@ -292,58 +294,70 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     u_row, u_col, u_size = _units(view, featurizer, counts)
     jll0 = _score(view, featurizer, counts)
     tolerance = 1e-8 * (1.0 + np.abs(jll0).max(axis=1))
+    rows_n = np.arange(n)
     if rule.threshold is not None:
-        winners = [np.full(n, rule.flagged_indices[0])]
-        rivals = [np.full(n, rule.normal_index)]
-        sign = np.where(decisions == rule.normal_index, -1.0, 1.0)
+        # One margin: the flag log-odds (two classes) against the threshold.
+        flagged = decisions != rule.normal_index
+        gap = jll0[:, rule.flagged_indices[0]] - jll0[:, rule.normal_index] - rule.threshold_log_odds
+        targets = [(np.full(n, rule.flagged_indices[0]), np.full(n, rule.normal_index),
+                    np.where(flagged, 1.0, -1.0), np.where(flagged, gap, -gap), ~flagged)]
     else:
-        winners = [decisions] * (C - 1)
-        rivals = [t + (t >= decisions) for t in range(C - 1)]
-        sign = np.ones(n)
+        targets = []
+        for t in range(C - 1):
+            rival = t + (t >= decisions)
+            # argmax gives ties to the first class: a rival before the decision wins a tie.
+            targets.append((decisions, rival, np.ones(n), jll0[rows_n, decisions] - jll0[rows_n, rival], rival < decisions))
+    weights_t = np.ascontiguousarray(view.weights.T)  # (F, C)
     best_units = np.zeros(n, dtype=np.int64)
     best_size = np.zeros(n, dtype=np.int64)
     best_new = np.full(n, -1, dtype=np.int64)
     best_rival = np.zeros(n, dtype=np.int64)
     orders = []
-    loss = np.ascontiguousarray(view.weights.T)[u_col]  # (units, C): what removing each unit takes away
-    unit = np.arange(len(u_row))
-    for t, (winner, rival) in enumerate(zip(winners, rivals)):
-        # Removing unit u lowers jll[winner] - jll[rival] by gain[u]; for a
-        # threshold the direction depends on whether the message is flagged.
-        gain = sign[u_row] * (loss[unit, winner[u_row]] - loss[unit, rival[u_row]])
-        order = by_row_then_value(u_row, gain, positive_only=True)
+    for t, (winner, rival, sign, margin, tie_changes) in enumerate(targets):
+        # Removing unit u lowers the margin by gain[u]; for a threshold the
+        # direction depends on whether the message is flagged.
+        gain = sign[u_row] * (weights_t[u_col, winner[u_row]] - weights_t[u_col, rival[u_row]])
+        # Units that do not move the margin go last: at an exact tie, re-scoring
+        # without them can still tip the decision by rounding.
+        order = by_row_then_value(u_row, gain, non_negative=True)
         rows = u_row[order]
         length = np.bincount(rows, minlength=n)
         starts = np.concatenate(([0], np.cumsum(length)[:-1]))
-        running = np.cumsum(loss[order], axis=0)
-        before = np.concatenate((np.zeros((1, C)), running))[starts[rows]]
-        after = jll0[rows] - (running - before)
-        changed = rule.decide(after) != decisions[rows]
+        running = np.cumsum(gain[order])
+        before = np.concatenate(([0.0], running))[starts]
+        left = margin[rows] - (running - before[rows])  # the margin after each prefix
+        changed = (left < 0) | ((left == 0) & tie_changes[rows])
         position = np.arange(len(order)) - starts[rows]
-        k = length.copy()
         first = np.flatnonzero(changed)
         first = first[np.r_[True, rows[first][1:] != rows[first][:-1]]] if len(first) else first
+        k = np.zeros(n, dtype=np.int64)
         k[rows[first]] = position[first] + 1
-        new = np.full(n, -1, dtype=np.int64)
-        new[rows[first]] = rule.decide(after[first])
-        # Near a tie the running sums can miss a change that exact scoring sees.
-        at_k = np.full(n, np.inf)
-        at_before = np.abs(_distance(rule, jll0, decisions))
+        # Near the boundary the running sums can differ from exact scoring.
         has = length > 0
-        last = starts[has] + k[has] - 1
-        at_k[has] = np.abs(_distance(rule, after[last], decisions[has]))
-        prev = last - 1
-        inner = k[has] > 1
-        at_before[np.flatnonzero(has)[inner]] = np.abs(_distance(rule, after[prev[inner]], decisions[has][inner]))
-        doubtful = has & ((np.minimum(at_k, at_before) <= tolerance) | confirm_all)
-        k[has & ~doubtful & (new < 0)] = 0
-        for i in np.flatnonzero(doubtful):
+        near = np.abs(margin) <= tolerance
+        last = starts + np.where(k > 0, k, length) - 1
+        near[has] |= np.abs(left[last[has]]) <= tolerance[has]
+        inner = has & (k > 1)
+        near[inner] |= np.abs(left[last[inner] - 1]) <= tolerance[inner]
+        removed = np.concatenate(([0], np.cumsum(u_size[order])))
+        def closed(jll, i):
+            """Whether the margin against the rival is closed, from exact scores ``jll`` of rows ``i``."""
+            if rule.threshold is not None:
+                return rule.decide(jll) != decisions[i]
+            a, b = jll[np.arange(len(i)), rival[i]], jll[np.arange(len(i)), decisions[i]]
+            return (a > b) | ((a == b) & tie_changes[i])
+
+        new = np.full(n, -1, dtype=np.int64)
+        done = np.flatnonzero(k > 0)
+        exact = _score_after(view, featurizer, counts, done, order, starts, k, u_col, u_size)
+        new[done] = rule.decide(exact)
+        wrong = np.zeros(n, dtype=bool)
+        wrong[done] = ~closed(exact, done)
+        for i in np.flatnonzero(has & (near | wrong | confirm_all)):
             row_units = order[starts[i] : starts[i] + length[i]]
             dense = counts[i].toarray()[0]
-            k[i], new_i = _confirm(view, featurizer, rule, decisions[i], dense, u_col[row_units], u_size[row_units], k[i])
-            new[i] = -1 if new_i is None else new_i
-        k[~has] = 0
-        removed = np.concatenate(([0], np.cumsum(u_size[order])))
+            k[i], new[i] = _confirm(view, featurizer, rule, dense, u_col[row_units], u_size[row_units], max(k[i], 1),
+                                    lambda jll, i=i: bool(closed(jll, np.array([i]))[0]))
         better = (k > 0) & ((best_units == 0) | (k < best_units))
         best_units[better] = k[better]
         best_size[better] = (removed[starts + k] - removed[starts])[better]
@@ -353,26 +367,41 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     return ExactFlips(best_units, best_size, best_new, u_col, u_size, tuple(orders), best_rival)
 
 
-def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
+def _score_after(view, featurizer, counts, rows, order, starts, k, u_col, u_size) -> np.ndarray:
+    """Exact joint log-likelihoods (len(rows), C) once the first ``k[row]`` units of ``order`` are removed."""
+    if len(rows) == 0:
+        return np.zeros((0, view.n_classes))
+    lengths = k[rows]
+    # Position j of the concatenated prefixes comes from order[starts[row] + (j - where row's prefix begins)].
+    take = np.repeat(starts[rows] - np.concatenate(([0], np.cumsum(lengths)[:-1])), lengths) + np.arange(lengths.sum())
+    prefix = order[take]
+    which = np.repeat(np.arange(len(rows)), k[rows])
+    removal = sp.csr_matrix((u_size[prefix].astype(np.float64), (which, u_col[prefix])), shape=(len(rows), counts.shape[1]))
+    after = counts[rows] - removal
+    after.eliminate_zeros()
+    return _score(view, featurizer, after)
+
+
+def _confirm(view, featurizer, rule, counts, cols, sizes, k, closed):
     """Re-score prefixes exactly around ``k`` (the running sums can differ in the last bits).
 
-    Returns the shortest prefix length whose exact re-score changes the
-    decision, and the new decision; (0, None) if none does.
+    ``closed(jll)`` says whether exact scores (1, C) have closed the margin.
+    Returns the shortest prefix length that closes it exactly and the new
+    decision; (0, -1) if no prefix does.
     """
 
-    def outcome(n):
+    def scores(n):
         after = counts.copy()
         np.subtract.at(after, cols[:n], sizes[:n])
-        return int(rule.decide(_score(view, featurizer, sp.csr_matrix(after.reshape(1, -1))))[0])
+        return _score(view, featurizer, sp.csr_matrix(after.reshape(1, -1)))
 
-    k = max(int(k), 1)
-    while k <= len(cols) and outcome(k) == decision:
+    while k <= len(cols) and not closed(scores(k)):
         k += 1
     if k > len(cols):
-        return 0, None
-    while k > 1 and outcome(k - 1) != decision:
+        return 0, -1
+    while k > 1 and closed(scores(k - 1)):
         k -= 1
-    return k, outcome(k)
+    return k, int(rule.decide(scores(k))[0])
 
 
 def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int], ...]:
