@@ -317,9 +317,11 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
         # Removing unit u lowers the margin by gain[u]; for a threshold the
         # direction depends on whether the message is flagged.
         gain = sign[u_row] * (weights_t[u_col, winner[u_row]] - weights_t[u_col, rival[u_row]])
-        # Units that do not move the margin go last: at an exact tie, re-scoring
-        # without them can still tip the decision by rounding.
-        order = by_row_then_value(u_row, gain, non_negative=True)
+        # Rows where removing every helpful unit cannot close the margin need
+        # no sort. Units that do not move the margin go last: at an exact tie,
+        # re-scoring without them can still tip the decision by rounding.
+        reachable = np.bincount(u_row, weights=np.maximum(gain, 0.0), minlength=n) >= margin - tolerance
+        order = by_row_then_value(u_row, np.where(reachable[u_row], gain, -1.0), non_negative=True)
         rows = u_row[order]
         length = np.bincount(rows, minlength=n)
         starts = np.concatenate(([0], np.cumsum(length)[:-1]))

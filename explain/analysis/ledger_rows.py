@@ -62,13 +62,14 @@ class LedgerRows:
         return np.bincount(self.evidence.decision[self.flagged], minlength=C)
 
 
-def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, drivers: bool = False):
+def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, drivers: bool = False, features=None):
     """Ledger rows of ``texts`` (list of str) with ``ids`` (n,), and their flag drivers.
 
-    Returns ``(LedgerRows, FlagDrivers or None)``.
+    ``features`` may hold ``featurizer.counts_and_features(texts)`` when the
+    caller has computed it already. Returns ``(LedgerRows, FlagDrivers or None)``.
     """
     view, featurizer = model.view, model.featurizer
-    counts, X = featurizer.counts_and_features(texts)
+    counts, X = featurizer.counts_and_features(texts) if features is None else features
     batch = batch_evidence(view, X, rule, top_k)
     flip = np.full(len(texts), -1, dtype=np.int64)
     if exact_flip_possible(view, featurizer, rule) and len(texts):

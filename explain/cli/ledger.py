@@ -92,7 +92,7 @@ def ledger(
     out: Path = typer.Option(..., "--out", help="Ledger file: .parquet, .jsonl or .csv (.jsonl/.csv may end in .gz); a folder for a Parquet data set with --engine dask."),
     id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding message ids (default: row numbers from 1)."),
     top: int = typer.Option(5, "--top", min=0, help="Tokens to list for and against per message."),
-    chunk_rows: int = typer.Option(50_000, "--chunk-rows", min=1, help="Messages per chunk (memory grows with this, not with the input)."),
+    chunk_rows: int = typer.Option(20_000, "--chunk-rows", min=1, help="Messages per chunk (memory grows with this, not with the input)."),
     only_flagged: bool = typer.Option(False, "--only-flagged", help="Write rows for flagged messages only."),
     threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
     summary: Optional[Path] = typer.Option(None, "--summary", help="Also write the flag drivers (.csv or .json)."),

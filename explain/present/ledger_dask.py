@@ -151,7 +151,7 @@ def _umask() -> int:
 
 def write_ledger_dask(
     model, paths, text_col: str, out, *, scheduler=None, workers=2, connect_timeout=10.0,
-    id_col=None, top_k=5, chunk_rows=50_000, only_flagged=False, threshold=None, summary=None,
+    id_col=None, top_k=5, chunk_rows=20_000, only_flagged=False, threshold=None, summary=None,
     on_chunk=None, progress=None,
 ) -> LedgerProgress:
     """Like :func:`~explain.present.ledger_files.write_ledger`, on a Dask cluster."""

@@ -17,6 +17,7 @@ import contextlib
 import gzip
 import json
 import time
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -245,11 +246,11 @@ def row_numbers(first_row: int, n: int) -> np.ndarray:
     return np.arange(first_row + 1, first_row + n + 1).astype(str).astype(object)
 
 
-def ledger_chunk(model, rule, texts, ids, top_k, only_flagged, drivers):
+def ledger_chunk(model, rule, texts, ids, top_k, only_flagged, drivers, features=None):
     """One chunk: its :class:`LedgerRows`, their Arrow table and flag drivers (or None)."""
     from explain.analysis.ledger_rows import ledger_rows
 
-    rows, found = ledger_rows(model, texts, ids, rule, top_k, drivers=drivers)
+    rows, found = ledger_rows(model, texts, ids, rule, top_k, drivers=drivers, features=features)
     return rows, ledger_table(rows, model.sha256, only_flagged), found
 
 
@@ -281,7 +282,7 @@ def run_rule(model, threshold, only_flagged, summary):
 
 
 def write_ledger(
-    model, paths, text_col: str, out, *, id_col=None, top_k=5, chunk_rows=50_000,
+    model, paths, text_col: str, out, *, id_col=None, top_k=5, chunk_rows=20_000,
     only_flagged=False, threshold=None, summary=None,
     on_chunk: Callable[[LedgerProgress], None] | None = None, progress: LedgerProgress | None = None,
 ) -> LedgerProgress:
@@ -297,21 +298,34 @@ def write_ledger(
     progress = progress if progress is not None else LedgerProgress()
     ids_seen = IdCounter() if id_col is not None else None
     start = time.perf_counter()
+    def finish(chunk, ids, done):
+        nonlocal drivers
+        rows, table, found = done.result()
+        writer.write(table)
+        if found is not None:
+            drivers = drivers.plus(found)
+        if ids_seen is not None:
+            ids_seen.add(ids)
+        progress.add(rows, model.view.classes, chunk.source, chunk.file_row, chunk.done, chunk.nulls, chunk.replaced)
+        progress.seconds = time.perf_counter() - start
+        if on_chunk is not None:
+            on_chunk(progress)
+
     with atomic_path(out) as tmp:
         writer = LedgerWriter(tmp, fmt, gzipped)
-        with contextlib.closing(writer):
+        # Tokenising (Python, holds the GIL) overlaps with the previous chunk's
+        # array work (numpy and Arrow mostly release it): two chunks in flight.
+        with contextlib.closing(writer), ThreadPoolExecutor(max_workers=1) as pool:
+            pending = None
             for chunk in stream_texts(paths, text_col, id_col, chunk_rows):
                 ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
-                rows, table, found = ledger_chunk(model, rule, chunk.texts, ids, top_k, only_flagged, summary is not None)
-                writer.write(table)
-                if found is not None:
-                    drivers = drivers.plus(found)
-                if ids_seen is not None:
-                    ids_seen.add(ids)
-                progress.add(rows, model.view.classes, chunk.source, chunk.file_row, chunk.done, chunk.nulls, chunk.replaced)
-                progress.seconds = time.perf_counter() - start
-                if on_chunk is not None:
-                    on_chunk(progress)
+                features = model.featurizer.counts_and_features(chunk.texts)
+                if pending is not None:
+                    finish(*pending)
+                work = pool.submit(ledger_chunk, model, rule, chunk.texts, ids, top_k, only_flagged, summary is not None, features)
+                pending = (chunk, ids, work)
+            if pending is not None:
+                finish(*pending)
         if progress.messages == 0:
             raise NbledgerError("the input holds no messages")
         if ids_seen is not None:
