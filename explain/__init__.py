@@ -41,6 +41,12 @@ _PUBLIC = {
     "read_watchlist": "explain.analysis.risk",
     "assess": "explain.analysis.assessment",
     "Assessment": "explain.analysis.assessment",
+    "ledger_rows": "explain.analysis.ledger_rows",
+    "LedgerRows": "explain.analysis.ledger_rows",
+    "FlagDrivers": "explain.analysis.drivers",
+    "stream_texts": "explain.model.data_stream",
+    "write_ledger": "explain.present.ledger_files",
+    "write_ledger_dask": "explain.present.ledger_dask",
     "wilson_interval": "explain.analysis.stats",
     "delong_auc": "explain.analysis.stats",
 }
