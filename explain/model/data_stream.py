@@ -83,7 +83,7 @@ def _natural(path: Path):
     return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", str(path))]
 
 
-def stream_texts(paths, text_col: str, id_col: str | None = None, chunk_rows: int = 50_000) -> Iterator[TextChunk]:
+def stream_texts(paths, text_col: str, id_col: str | None = None, chunk_rows: int = 20_000) -> Iterator[TextChunk]:
     """Yield :class:`TextChunk` of at most ``chunk_rows`` messages, in input order."""
     if chunk_rows < 1:
         raise NbledgerError("the chunk size must be at least 1 row")
