@@ -358,7 +358,9 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
         for i in np.flatnonzero(has & (near | wrong | confirm_all)):
             row_units = order[starts[i] : starts[i] + length[i]]
             dense = counts[i].toarray()[0]
-            k[i], new[i] = _confirm(view, featurizer, rule, dense, u_col[row_units], u_size[row_units], max(k[i], 1),
+            # Start where the running sums closed the margin, or after the last unit if they never did.
+            start_k = k[i] if k[i] > 0 else length[i]
+            k[i], new[i] = _confirm(view, featurizer, rule, dense, u_col[row_units], u_size[row_units], start_k,
                                     lambda jll, i=i: bool(closed(jll, np.array([i]))[0]))
         better = (k > 0) & ((best_units == 0) | (k < best_units))
         best_units[better] = k[better]
