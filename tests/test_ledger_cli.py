@@ -178,3 +178,18 @@ def test_an_interrupted_run_leaves_nothing_and_says_how_far_it_got(model, frame,
     assert "error: interrupted after " in err and "messages (last read: in.csv data row " in err
     assert f"nothing was written to {out}" in err
     assert leftovers(tmp_path, "l.parquet") == []
+
+
+def test_without_a_normal_class_flags_are_not_known(capsys, model, frame, tmp_path):
+    bare = tmp_path / "bare.skops"  # no model card beside it: no normal class
+    bare.write_bytes(model.read_bytes())
+    frame.iloc[:20].to_csv(tmp_path / "in.csv", index=False)
+    r = nbledger(capsys, "ledger", bare, tmp_path / "in.csv", "--text-col", "text", "--out", tmp_path / "l.parquet")
+    assert r.code == 0
+    assert "flagged: not known (the model has no normal class" in r.out
+    table = pq.read_table(tmp_path / "l.parquet")
+    assert table.column("flagged").null_count == 20 and table.column("margin").null_count == 20
+    r = nbledger(capsys, "ledger", bare, tmp_path / "in.csv", "--text-col", "text", "--out", tmp_path / "m.parquet",
+                 "--summary", tmp_path / "d.csv")
+    assert "flagging needs a normal class" in r.one_error_line()
+    assert leftovers(tmp_path, "m.parquet") == [] and leftovers(tmp_path, "d.csv") == []

@@ -73,6 +73,8 @@ def _report(p, out: Path, summary: Optional[Path]) -> None:
     if p.duplicate_ids:
         warn(f"{p.duplicate_ids:,} rows repeat an id that an earlier row has")
     flagged = ", ".join(f"{c} {n:,}" for c, n in p.flagged.items()) or "none"
+    if not p.flags_known:
+        flagged = "not known (the model has no normal class; name it with --normal-class)"
     parts = [
         f"ledger: {p.messages:,} messages in {p.seconds:.1f} s ({p.messages / max(p.seconds, 1e-9):,.0f}/s)",
         f"flagged: {flagged}",

@@ -163,6 +163,7 @@ def write_ledger_dask(
     rule, drivers = run_rule(model, threshold, only_flagged, summary)
     pieces = input_pieces(paths)
     progress = progress if progress is not None else LedgerProgress()
+    progress.flags_known = rule.normal_index is not None
     start = time.perf_counter()
     with dask_client(scheduler, workers, connect_timeout) as client:
         import dask

@@ -196,6 +196,7 @@ class LedgerProgress:
     large: int = 0
     duplicate_ids: int = 0
     seconds: float = 0.0
+    flags_known: bool = True
 
     def add(self, rows, classes, source="", file_row=0, done=0.0, nulls=0, replaced=0) -> None:
         """Count one chunk's rows (:class:`~explain.analysis.ledger_rows.LedgerRows`)."""
@@ -296,6 +297,7 @@ def write_ledger(
     fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger")
     rule, drivers = run_rule(model, threshold, only_flagged, summary)
     progress = progress if progress is not None else LedgerProgress()
+    progress.flags_known = rule.normal_index is not None
     ids_seen = IdCounter() if id_col is not None else None
     start = time.perf_counter()
     def finish(chunk, ids, done):
