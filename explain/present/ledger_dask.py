@@ -118,7 +118,7 @@ def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
         return
     cluster = LocalCluster(
         n_workers=workers, threads_per_worker=1, processes=True,
-        dashboard_address=":0", silence_logs=logging.ERROR,
+        dashboard_address=":0", silence_logs=logging.CRITICAL,
     )
     with cluster, Client(cluster, set_as_default=False) as client:
         yield client
