@@ -159,3 +159,21 @@ def test_flag_driver_totals_equal_sums_over_the_ledger(tmp_path, threshold):
         assert d.tipped == sum(v > m for v, m in zip(evidence, margins))
         assert math.isclose(d.share_of_flagged, d.messages / len(rows))
     assert set(drivers.token) == {t for r in rows for t in r["top_for"] + r["top_against"]}
+
+
+@PROPERTY
+@given(
+    rows=st.lists(st.integers(0, 30), max_size=300).map(sorted),
+    data=st.data(),
+    non_negative=st.booleans(),
+    wide=st.booleans(),
+)
+def test_row_then_value_order_equals_a_stable_lexsort(rows, data, non_negative, wide):
+    from explain.analysis.batch import by_row_then_value
+
+    # Few distinct values, so that ties are common; ``wide`` row numbers take the int64-overflow path.
+    values = np.array(data.draw(st.lists(st.sampled_from([-1.5, 0.0, 0.25, 2.0, 3.5]), min_size=len(rows), max_size=len(rows))))
+    rows = np.array(rows, dtype=np.int64) * (2**56 if wide else 1)
+    order = np.flatnonzero(values >= 0) if non_negative else np.arange(len(values))
+    want = order[np.lexsort((-values[order], rows[order]))]  # numpy's lexsort is stable
+    assert np.array_equal(by_row_then_value(rows, values, non_negative), want)

@@ -69,16 +69,24 @@ def by_row_then_value(rows: np.ndarray, values: np.ndarray, non_negative: bool =
     """Indices of ``values`` grouped by ``rows`` (ascending), largest value first within a row.
 
     Ties keep their original order, as ``np.argsort(-values, kind="stable")``
-    within each row would; ``non_negative`` keeps only values >= 0. After one
-    stable sort by value, the rows are ordered by two stable 16-bit sorts
-    (radix sorts in numpy), several times faster than ``np.lexsort``.
+    within each row would; ``non_negative`` keeps only values >= 0. A stable
+    sort of floats is several times slower than numpy's quicksort, so the
+    values are ranked with a quicksort (equal values share a rank) and the
+    order is one quicksort of unique integer keys (row, rank, position).
     """
     order = np.flatnonzero(values >= 0) if non_negative else np.arange(len(values))
-    order = order[np.argsort(-values[order], kind="stable")]
-    for shift in (0, 16):
-        key = ((rows[order] >> shift) & 0xFFFF).astype(np.uint16)
-        order = order[np.argsort(key, kind="stable")]
-    return order
+    m = len(order)
+    if m == 0:
+        return order
+    v, r = values[order], rows[order].astype(np.int64)
+    by_value = np.argsort(-v)
+    ranked = v[by_value]
+    rank = np.empty(m, dtype=np.int64)
+    rank[by_value] = np.concatenate(([0], np.cumsum(ranked[1:] != ranked[:-1])))
+    distinct = int(rank.max()) + 1
+    if (int(r.max()) + 1) * distinct * m < 2**62:
+        return order[np.argsort((r * distinct + rank) * m + np.arange(m))]
+    return order[np.lexsort((rank, r))]  # keys too wide for int64: the slower stable sort
 
 
 def top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int):
