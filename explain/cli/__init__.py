@@ -130,6 +130,6 @@ def main() -> None:
 
 # Command modules register themselves on import; keep these lines last.
 from explain.cli import train, why  # noqa: E402,F401
+from explain.cli import ledger  # noqa: E402,F401
 from explain.cli import assess  # noqa: E402,F401
 from explain.cli import vocab  # noqa: E402,F401
-from explain.cli import ledger  # noqa: E402,F401
