@@ -30,7 +30,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.special import expit
 
-from explain.analysis.batch import top_two
+from explain.analysis.batch import by_row_then_value, top_two
 from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
@@ -204,22 +204,34 @@ def _presence_only(view, featurizer) -> bool:
     return featurizer.vectorizer.binary or (view.variant == "bernoulli" and view.binarize is not None)
 
 
-def _units(view, featurizer, counts: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Removable units as (column, occurrences the unit stands for).
+def _units(view, featurizer, counts: sp.csr_matrix) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Removable units of every row as (row, column, occurrences the unit stands for).
 
     With count features every occurrence is a unit. When only presence
     matters a token is one unit, made of as many occurrences as must go for
     it to count as absent (all of them, or down to BernoulliNB's threshold).
+    Units are grouped by row, columns ascending within a row.
     """
-    present = np.flatnonzero(counts)
+    rows = np.repeat(np.arange(counts.shape[0]), np.diff(counts.indptr))
+    cols, n = counts.indices, counts.data.astype(np.int64)
     if not _presence_only(view, featurizer):
-        n = counts[present].astype(int)
-        return np.repeat(present, n), np.ones(int(n.sum()), dtype=int)
-    allowed = 0.0
+        return np.repeat(rows, n), np.repeat(cols, n), np.ones(int(n.sum()), dtype=np.int64)
+    allowed = 0
     if not featurizer.vectorizer.binary and view.binarize is not None:
-        allowed = max(np.floor(view.binarize), 0.0)
-    sizes = (counts[present] - allowed).astype(int)
-    return present[sizes > 0], sizes[sizes > 0]
+        allowed = int(max(np.floor(view.binarize), 0.0))
+    sizes = n - allowed
+    keep = sizes > 0
+    return rows[keep], cols[keep], sizes[keep]
+
+
+def exact_flip_possible(view, featurizer, rule: DecisionRule) -> bool:
+    """True when sorting removals by their effect gives the proven minimum flip set."""
+    # TF-IDF re-normalises the row on every removal, except when BernoulliNB
+    # reduces the weights to presence (binarize=0): then removals are additive.
+    additive_features = featurizer.feature_kind != "tfidf" or (
+        view.variant == "bernoulli" and view.binarize == 0.0
+    )
+    return view.n_classes > 1 and additive_features and rule.additive
 
 
 def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> FlipSet:
@@ -230,78 +242,183 @@ def flip_set(model, occ: Occurrences, rule: DecisionRule, decision: int) -> Flip
         return FlipSet((), True, "exact", None, "the model has a single class, so no decision can change")
     if not counts.any():
         return FlipSet((), True, "exact", None, "the message has no token the model knows; the baseline alone decides")
-    cols, sizes = _units(view, featurizer, counts)
-    # TF-IDF re-normalises the row on every removal, except when BernoulliNB
-    # reduces the weights to presence (binarize=0): then removals are additive.
-    additive_features = featurizer.feature_kind != "tfidf" or (
-        view.variant == "bernoulli" and view.binarize == 0.0
-    )
-    if additive_features and rule.additive:
-        return _exact_flip(view, featurizer, rule, decision, counts, cols, sizes)
-    return _greedy_flip(view, featurizer, rule, decision, counts)
+    if not exact_flip_possible(view, featurizer, rule):
+        return _greedy_flip(view, featurizer, rule, decision, counts)
+    flips = exact_flips(view, featurizer, rule, sp.csr_matrix(counts.reshape(1, -1)), np.array([decision]), confirm_all=True)
+    if flips.units[0] == 0:
+        return FlipSet(
+            (), True, "exact", None,
+            "removing every token that supports this decision does not change it; "
+            "the baseline and the remaining tokens decide",
+        )
+    cols, sizes = flips.removed(0)
+    return FlipSet(_removals(view, cols, sizes), True, "exact", str(view.classes[flips.new_decision[0]]), None)
 
 
 def _score(view, featurizer, counts: sp.csr_matrix) -> np.ndarray:
     return view.joint_log_likelihood(view.prepare(featurizer.weigh(counts)))
 
 
-def _exact_flip(view, featurizer, rule, decision, counts, cols, sizes) -> FlipSet:
-    x0 = sp.csr_matrix(counts.reshape(1, -1))
-    jll0 = _score(view, featurizer, x0)[0]
-    # Each unit carries one unit of its feature (one occurrence, or presence),
-    # so removing it takes W[:, j] away from every class's score.
-    loss = view.weights[:, cols].T  # (units, C)
-    if rule.threshold is not None:
-        targets = [(rule.flagged_indices[0], rule.normal_index)]
-    else:
-        targets = [(decision, c) for c in range(view.n_classes) if c != decision]
-    best = None
-    for winner, rival in targets:
-        # Removing unit u lowers jll[winner] - jll[rival] by gain[u]; for a
-        # threshold the direction depends on whether the message is flagged.
-        gain = loss[:, winner] - loss[:, rival]
-        if rule.threshold is not None and decision == rule.normal_index:
-            gain = -gain
-        order = np.argsort(-gain, kind="stable")
-        order = order[gain[order] > 0]
-        if len(order) == 0:
-            continue
-        after = jll0 - np.cumsum(loss[order], axis=0)
-        changed = np.flatnonzero(rule.decide(after) != decision)
-        # Near a tie the running sums can miss a change that exact scoring sees.
-        k0 = changed[0] + 1 if len(changed) else len(order)
-        k, new = _confirm(view, featurizer, rule, decision, counts, cols[order], sizes[order], k0)
-        if k is not None and (best is None or k < len(best[0])):
-            best = (order[:k], new)
-    if best is None:
-        return FlipSet(
-            (), True, "exact", None,
-            "removing every token that supports this decision does not change it; "
-            "the baseline and the remaining tokens decide",
-        )
-    chosen, new = best
-    return FlipSet(_removals(view, cols[chosen], sizes[chosen]), True, "exact", str(view.classes[new]), None)
+@dataclass(frozen=True, eq=False)
+class ExactFlips:
+    """Minimum flip sets of n messages (additive cases only; see :func:`exact_flips`).
 
-
-def _confirm(view, featurizer, rule, decision, counts, cols, sizes, k):
-    """Re-score prefixes exactly around ``k`` (the running sums can differ in the last bits).
-
-    Returns the shortest prefix length whose exact re-score changes the
-    decision, and the new decision; (None, None) if none does.
+    ``units`` (n,) is how many units the set removes (0: no removal changes
+    the decision); ``size`` (n,) how many token occurrences that is;
+    ``new_decision`` (n,) the class index after the removals (-1 for none).
+    ``unit_cols``/``unit_sizes`` are every row's units; ``orders[t]`` is
+    (unit indices in removal order, start of each row in it) for rival
+    number t, and ``rival`` (n,) the rival whose order row i's set follows.
     """
 
-    def outcome(n):
+    units: np.ndarray
+    size: np.ndarray
+    new_decision: np.ndarray
+    unit_cols: np.ndarray
+    unit_sizes: np.ndarray
+    orders: tuple
+    rival: np.ndarray
+
+    def removed(self, i: int) -> tuple[np.ndarray, np.ndarray]:
+        """(columns, occurrences) of row i's flip set, in the order they were chosen."""
+        order, starts = self.orders[self.rival[i]]
+        chosen = order[starts[i] : starts[i] + self.units[i]]
+        return self.unit_cols[chosen], self.unit_sizes[chosen]
+
+
+def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.ndarray, confirm_all=False) -> ExactFlips:
+    """Minimum flip sets of many messages at once, by sorting removals by their effect.
+
+    ``counts`` (n, F) holds raw occurrence counts; ``decisions`` (n,) the
+    decided class indices. Needs :func:`exact_flip_possible`. A decision
+    changes when some rival overtakes it, and the margin against one rival is
+    a sum of per-unit terms; so per rival the units are removed in order of
+    how much they lower that margin, and the shortest prefix that closes it,
+    over all rivals, is the minimum. Prefixes are found with running sums
+    for every row at once; rows within rounding of a boundary (all rows with
+    ``confirm_all``), and any row whose exact re-score disagrees, are
+    re-scored exactly step by step.
+    """
+    counts = sp.csr_matrix(counts, dtype=np.float64)
+    counts.eliminate_zeros()
+    counts.sort_indices()
+    n, C = counts.shape[0], view.n_classes
+    decisions = np.asarray(decisions, dtype=np.int64)
+    u_row, u_col, u_size = _units(view, featurizer, counts)
+    jll0 = _score(view, featurizer, counts)
+    tolerance = 1e-8 * (1.0 + np.abs(jll0).max(axis=1))
+    rows_n = np.arange(n)
+    if rule.threshold is not None:
+        # One margin: the flag log-odds (two classes) against the threshold.
+        flagged = decisions != rule.normal_index
+        gap = jll0[:, rule.flagged_indices[0]] - jll0[:, rule.normal_index] - rule.threshold_log_odds
+        targets = [(np.full(n, rule.flagged_indices[0]), np.full(n, rule.normal_index),
+                    np.where(flagged, 1.0, -1.0), np.where(flagged, gap, -gap), ~flagged)]
+    else:
+        targets = []
+        for t in range(C - 1):
+            rival = t + (t >= decisions)
+            # argmax gives ties to the first class: a rival before the decision wins a tie.
+            targets.append((decisions, rival, np.ones(n), jll0[rows_n, decisions] - jll0[rows_n, rival], rival < decisions))
+    weights_t = np.ascontiguousarray(view.weights.T)  # (F, C)
+    best_units = np.zeros(n, dtype=np.int64)
+    best_size = np.zeros(n, dtype=np.int64)
+    best_new = np.full(n, -1, dtype=np.int64)
+    best_rival = np.zeros(n, dtype=np.int64)
+    orders = []
+    for t, (winner, rival, sign, margin, tie_changes) in enumerate(targets):
+        # Removing unit u lowers the margin by gain[u]; for a threshold the
+        # direction depends on whether the message is flagged.
+        gain = sign[u_row] * (weights_t[u_col, winner[u_row]] - weights_t[u_col, rival[u_row]])
+        # Rows where removing every helpful unit cannot close the margin need
+        # no sort. Units that do not move the margin go last: at an exact tie,
+        # re-scoring without them can still tip the decision by rounding.
+        reachable = np.bincount(u_row, weights=np.maximum(gain, 0.0), minlength=n) >= margin - tolerance
+        order = by_row_then_value(u_row, np.where(reachable[u_row], gain, -1.0), non_negative=True)
+        rows = u_row[order]
+        length = np.bincount(rows, minlength=n)
+        starts = np.concatenate(([0], np.cumsum(length)[:-1]))
+        running = np.cumsum(gain[order])
+        before = np.concatenate(([0.0], running))[starts]
+        left = margin[rows] - (running - before[rows])  # the margin after each prefix
+        changed = (left < 0) | ((left == 0) & tie_changes[rows])
+        position = np.arange(len(order)) - starts[rows]
+        first = np.flatnonzero(changed)
+        first = first[np.r_[True, rows[first][1:] != rows[first][:-1]]] if len(first) else first
+        k = np.zeros(n, dtype=np.int64)
+        k[rows[first]] = position[first] + 1
+        # Near the boundary the running sums can differ from exact scoring.
+        has = length > 0
+        near = np.abs(margin) <= tolerance
+        last = starts + np.where(k > 0, k, length) - 1
+        near[has] |= np.abs(left[last[has]]) <= tolerance[has]
+        inner = has & (k > 1)
+        near[inner] |= np.abs(left[last[inner] - 1]) <= tolerance[inner]
+        removed = np.concatenate(([0], np.cumsum(u_size[order])))
+        def closed(jll, i):
+            """Whether the margin against the rival is closed, from exact scores ``jll`` of rows ``i``."""
+            if rule.threshold is not None:
+                return rule.decide(jll) != decisions[i]
+            a, b = jll[np.arange(len(i)), rival[i]], jll[np.arange(len(i)), decisions[i]]
+            return (a > b) | ((a == b) & tie_changes[i])
+
+        new = np.full(n, -1, dtype=np.int64)
+        done = np.flatnonzero(k > 0)
+        exact = _score_after(view, featurizer, counts, done, order, starts, k, u_col, u_size)
+        new[done] = rule.decide(exact)
+        wrong = np.zeros(n, dtype=bool)
+        wrong[done] = ~closed(exact, done)
+        for i in np.flatnonzero(has & (near | wrong | confirm_all)):
+            row_units = order[starts[i] : starts[i] + length[i]]
+            dense = counts[i].toarray()[0]
+            # Start where the running sums closed the margin, or after the last unit if they never did.
+            start_k = k[i] if k[i] > 0 else length[i]
+            k[i], new[i] = _confirm(view, featurizer, rule, dense, u_col[row_units], u_size[row_units], start_k,
+                                    lambda jll, i=i: bool(closed(jll, np.array([i]))[0]))
+        better = (k > 0) & ((best_units == 0) | (k < best_units))
+        best_units[better] = k[better]
+        best_size[better] = (removed[starts + k] - removed[starts])[better]
+        best_new[better] = new[better]
+        best_rival[better] = t
+        orders.append((order, starts))
+    return ExactFlips(best_units, best_size, best_new, u_col, u_size, tuple(orders), best_rival)
+
+
+def _score_after(view, featurizer, counts, rows, order, starts, k, u_col, u_size) -> np.ndarray:
+    """Exact joint log-likelihoods (len(rows), C) once the first ``k[row]`` units of ``order`` are removed."""
+    if len(rows) == 0:
+        return np.zeros((0, view.n_classes))
+    lengths = k[rows]
+    # Position j of the concatenated prefixes comes from order[starts[row] + (j - where row's prefix begins)].
+    take = np.repeat(starts[rows] - np.concatenate(([0], np.cumsum(lengths)[:-1])), lengths) + np.arange(lengths.sum())
+    prefix = order[take]
+    which = np.repeat(np.arange(len(rows)), k[rows])
+    removal = sp.csr_matrix((u_size[prefix].astype(np.float64), (which, u_col[prefix])), shape=(len(rows), counts.shape[1]))
+    after = counts[rows] - removal
+    after.eliminate_zeros()
+    return _score(view, featurizer, after)
+
+
+def _confirm(view, featurizer, rule, counts, cols, sizes, k, closed):
+    """Re-score prefixes exactly around ``k`` (the running sums can differ in the last bits).
+
+    ``closed(jll)`` says whether exact scores (1, C) have closed the margin.
+    Returns the shortest prefix length that closes it exactly and the new
+    decision; (0, -1) if no prefix does.
+    """
+
+    def scores(n):
         after = counts.copy()
         np.subtract.at(after, cols[:n], sizes[:n])
-        return int(rule.decide(_score(view, featurizer, sp.csr_matrix(after.reshape(1, -1))))[0])
+        return _score(view, featurizer, sp.csr_matrix(after.reshape(1, -1)))
 
-    while k <= len(cols) and outcome(k) == decision:
+    while k <= len(cols) and not closed(scores(k)):
         k += 1
     if k > len(cols):
-        return None, None
-    while k > 1 and outcome(k - 1) != decision:
+        return 0, -1
+    while k > 1 and closed(scores(k - 1)):
         k -= 1
-    return k, outcome(k)
+    return k, int(rule.decide(scores(k))[0])
 
 
 def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int], ...]:
@@ -312,13 +429,17 @@ def _removals(view, cols: np.ndarray, sizes: np.ndarray) -> tuple[tuple[str, int
     return tuple((str(view.tokens[unique[i]]), int(totals[i])) for i in order)
 
 
-def _distance(rule: DecisionRule, jll: np.ndarray, decision: int) -> np.ndarray:
-    """How far each row of ``jll`` is from changing ``decision`` (<= 0 once changed)."""
+def _distance(rule: DecisionRule, jll: np.ndarray, decision) -> np.ndarray:
+    """How far each row of ``jll`` is from changing ``decision`` (a class index, or one per row); <= 0 once changed."""
+    jll = np.atleast_2d(jll)
+    decision = np.broadcast_to(decision, (len(jll),))
     if rule.threshold is not None:
         gap = rule.flag_log_odds(jll) - rule.threshold_log_odds
-        return gap if decision != rule.normal_index else -gap
-    others = np.delete(jll, decision, axis=1)
-    return jll[:, decision] - others.max(axis=1)
+        return np.where(decision != rule.normal_index, gap, -gap)
+    rows = np.arange(len(jll))
+    others = jll.copy()
+    others[rows, decision] = -np.inf
+    return jll[rows, decision] - others.max(axis=1)
 
 
 def _greedy_flip(view, featurizer, rule, decision, counts) -> FlipSet:

@@ -193,16 +193,34 @@ def _on_signal(signum, frame) -> None:
     raise Interrupted(signum)
 
 
+def _unraisable(unraisable) -> None:
+    """An exception Python could not raise (in a weakref callback, a ``__del__``, ...).
+
+    A signal that arrives while such a callback runs raises :class:`Interrupted`
+    there, where Python swallows it: send the signal again, so that it is raised
+    at the next ordinary point and the run still stops. Anything else is one
+    warning line, never a traceback.
+    """
+    if isinstance(unraisable.exc_value, Interrupted):
+        signal.raise_signal(unraisable.exc_value.signum)
+        return
+    warn(f"ignored {unraisable.exc_type.__name__} in {getattr(unraisable.object, '__qualname__', 'cleanup')}")
+
+
 def run(argv: list[str]) -> int:
     """Run the command line on ``argv`` and return its exit status (never raises)."""
     in_main = threading.current_thread() is threading.main_thread()
     old = {s: signal.signal(s, _on_signal) for s in (signal.SIGINT, signal.SIGTERM)} if in_main else {}
+    old_hook, sys.unraisablehook = sys.unraisablehook, _unraisable
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("default")
+            # Unclosed files after an interrupt are the interpreter's housekeeping, not the user's concern.
+            warnings.simplefilter("ignore", ResourceWarning)
             warnings.showwarning = _library_warning
             return _run(argv)
     finally:
+        sys.unraisablehook = old_hook
         for s, handler in old.items():
             signal.signal(s, handler)
 
@@ -250,6 +268,7 @@ def main() -> None:
 
 # Command modules register themselves on import; keep these lines last.
 from explain.cli import train, why  # noqa: E402,F401
+from explain.cli import ledger  # noqa: E402,F401
 from explain.cli import assess  # noqa: E402,F401
 from explain.cli import vocab  # noqa: E402,F401
 from explain.cli import report  # noqa: E402,F401

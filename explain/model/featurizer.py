@@ -72,6 +72,12 @@ class Featurizer:
         self.vectorizer = vectorizer
         self.tfidf = vectorizer if isinstance(vectorizer, TfidfVectorizer) else tfidf
         self.tokens = np.asarray(vectorizer.get_feature_names_out() if tokens is None else tokens, dtype=object)
+        # The same tokenisation without binarising or weighting, so that one
+        # pass gives both the raw counts and the features (see counts_and_features).
+        own = CountVectorizer().get_params()
+        self._counter = CountVectorizer(
+            **{k: v for k, v in vectorizer.get_params().items() if k in own and k != "vocabulary"},
+        ).set_params(binary=False, vocabulary=vectorizer.vocabulary_)
         self._vocabulary = vectorizer.vocabulary_
         self._analyzer = vectorizer.build_analyzer()
         if self.tfidf is not None:
@@ -91,6 +97,21 @@ class Featurizer:
         if self.tfidf is not None and self.tfidf is not self.vectorizer:
             X = self.tfidf.transform(X)
         return sp.csr_matrix(X, dtype=np.float64)
+
+    def counts_and_features(self, texts) -> tuple[sp.csr_matrix, sp.csr_matrix]:
+        """Raw occurrence counts and the pipeline's features from one tokenisation.
+
+        Both are (n, n_features) float64 CSR; the features equal ``transform``
+        (the same scikit-learn steps, applied to the same count matrix).
+        """
+        counts = sp.csr_matrix(self._counter.transform(texts))
+        X = counts.copy()
+        if self.vectorizer.binary:
+            X.data.fill(1)
+        if self.tfidf is not None:
+            # TfidfVectorizer.transform is CountVectorizer.transform then its own TfidfTransformer.
+            X = getattr(self.tfidf, "_tfidf", self.tfidf).transform(X, copy=False)
+        return sp.csr_matrix(counts, dtype=np.float64), sp.csr_matrix(X, dtype=np.float64)
 
     def counts(self, texts) -> sp.csr_matrix:
         """Raw occurrence counts of the vocabulary's tokens (before binary/TF-IDF)."""

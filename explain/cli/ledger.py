@@ -1,0 +1,136 @@
+"""``nbledger ledger``: the evidence for every message of a large input, in bounded memory."""
+
+from __future__ import annotations
+
+import contextlib
+import signal
+import time
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+
+from explain.cli import EXIT_USER_ERROR, Interrupted, app, console, err_console, load_model_or_fail, warn
+from explain.errors import NbledgerError
+
+#: Plain progress lines (when standard error is not a terminal) come at most this often.
+PLAIN_EVERY_SECONDS = 10.0
+
+
+@contextlib.contextmanager
+def _progress_display():
+    """A callback showing progress: a rich bar on a terminal, plain periodic lines otherwise."""
+    if err_console.is_terminal:
+        from rich.progress import BarColumn, Progress, TaskProgressColumn, TextColumn, TimeRemainingColumn
+
+        bar = Progress(
+            TextColumn("ledger"), BarColumn(), TaskProgressColumn(),
+            TextColumn("{task.fields[messages]:,} messages, {task.fields[rate]:,.0f}/s"),
+            TextColumn("left"), TimeRemainingColumn(),
+            console=err_console, transient=True,
+        )
+        task = bar.add_task("ledger", total=1.0, messages=0, rate=0.0)
+        with bar:
+            yield lambda p: bar.update(task, completed=p.done, messages=p.messages, rate=p.messages / max(p.seconds, 1e-9))
+        return
+    last = [time.monotonic()]
+
+    def plain(p):
+        now = time.monotonic()
+        if now - last[0] >= PLAIN_EVERY_SECONDS:
+            last[0] = now
+            err_console.print(
+                f"ledger: {p.messages:,} messages ({p.messages / max(p.seconds, 1e-9):,.0f}/s), {p.done:.0%} of the input read",
+                markup=False,
+            )
+
+    yield plain
+
+
+def _report(p, out: Path, summary: Optional[Path]) -> None:
+    if p.nulls:
+        warn(f"{p.nulls:,} messages had no text (null); they were explained as empty texts")
+    if p.replaced:
+        warn(f"{p.replaced:,} invalid UTF-8 byte sequences were replaced by U+FFFD")
+    if p.duplicate_ids:
+        warn(f"{p.duplicate_ids:,} rows repeat an id that an earlier row has")
+    flagged = ", ".join(f"{c} {n:,}" for c, n in p.flagged.items()) or "none"
+    if not p.flags_known:
+        flagged = "not known (the model has no normal class; name it with --normal-class)"
+    parts = [
+        f"ledger: {p.messages:,} messages in {p.seconds:.1f} s ({p.messages / max(p.seconds, 1e-9):,.0f}/s)",
+        f"flagged: {flagged}",
+        f"{p.empty:,} empty texts",
+    ]
+    if p.large:
+        parts.append(f"{p.large:,} texts over 1 MiB (explained)")
+    written = str(out) + (f" and {summary}" if summary is not None else "")
+    console.print("; ".join(parts) + f"; wrote {written}", markup=False, soft_wrap=True)
+
+
+@app.command()
+def ledger(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    data: List[Path] = typer.Argument(..., help="CSV, JSON Lines or Parquet files (optionally .gz), or a Parquet data set folder."),
+    text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
+    out: Path = typer.Option(..., "--out", help="Ledger file: .parquet, .jsonl or .csv (.jsonl/.csv may end in .gz); a folder for a Parquet data set with --engine dask."),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding message ids (default: row numbers from 1)."),
+    top: int = typer.Option(5, "--top", min=0, help="Tokens to list for and against per message."),
+    chunk_rows: int = typer.Option(20_000, "--chunk-rows", min=1, help="Messages per chunk (memory grows with this, not with the input)."),
+    only_flagged: bool = typer.Option(False, "--only-flagged", help="Write rows for flagged messages only."),
+    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
+    summary: Optional[Path] = typer.Option(None, "--summary", help="Also write the flag drivers (.csv or .json)."),
+    engine: str = typer.Option("local", "--engine", help="local | dask"),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler (tcp://host:port)."),
+    workers: Optional[int] = typer.Option(None, "--workers", min=1, help="Worker processes of a local Dask cluster (default 2)."),
+    connect_timeout: float = typer.Option(10.0, "--connect-timeout", min=0.1, help="Seconds to wait for a Dask scheduler."),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+):
+    """Write the evidence for every message of a large input, chunk by chunk."""
+    from explain.present.ledger_files import LedgerProgress, write_ledger
+
+    if engine not in ("local", "dask"):
+        raise NbledgerError(f"--engine must be local or dask, got {engine!r}")
+    if engine == "local" and (scheduler is not None or workers is not None):
+        raise NbledgerError("--scheduler and --workers need --engine dask")
+    if scheduler is not None and workers is not None:
+        raise NbledgerError("give --scheduler or --workers, not both")
+    loaded = load_model_or_fail(
+        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+    )
+    progress = LedgerProgress()
+    options = dict(
+        id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
+        threshold=threshold, summary=summary, progress=progress,
+    )
+    try:
+        with _progress_display() as show:
+            if engine == "dask":
+                from explain.present.ledger_dask import write_ledger_dask
+
+                write_ledger_dask(
+                    loaded, data, text_col, out, scheduler=scheduler, workers=workers or 2,
+                    connect_timeout=connect_timeout, on_chunk=show, **options,
+                )
+            else:
+                write_ledger(loaded, data, text_col, out, on_chunk=show, **options)
+    except (KeyboardInterrupt, Interrupted) as stop:
+        signum = getattr(stop, "signum", signal.SIGINT)
+        name = signal.Signals(signum).name
+        err_console.print(
+            f"error: interrupted by {name} {_how_far(progress)}; nothing was written to {out}", markup=False, soft_wrap=True
+        )
+        raise typer.Exit(128 + signum) from None
+    except NbledgerError as exc:
+        err_console.print(f"error: {exc}; stopped {_how_far(progress)}, nothing was written to {out}", markup=False, soft_wrap=True)
+        raise typer.Exit(EXIT_USER_ERROR) from None
+    _report(progress, out, summary)
+
+
+def _how_far(p) -> str:
+    if not p.messages:
+        return "before the first message was written"
+    return f"after {p.messages:,} messages (last read: {p.source} data row {p.file_row:,})"

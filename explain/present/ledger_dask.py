@@ -1,0 +1,223 @@
+"""The ledger on a Dask cluster: the same rows as the local engine, computed by workers.
+
+The input becomes a Dask DataFrame (``dask.dataframe.from_map``) whose
+partitions are the pieces of :func:`explain.model.data_stream.input_pieces`:
+a Parquet row group, or a whole CSV / JSON Lines file. Each partition is read
+with the local engine's reader (same UTF-8 and missing-text policy) and
+explained in chunks by :func:`explain.present.ledger_files.ledger_chunk`. The
+model is scattered to every worker once (``Client.scatter(broadcast=True)``)
+and handed to the tasks as a future.
+
+Output: a ledger file (``.parquet``, ``.jsonl``, ``.csv``) is written by the
+client from the partitions' tables in input order; any other ``--out`` is a
+folder holding a Parquet data set, one ``part.NNNNN.parquet`` per partition,
+written by the workers (so they must see the same file system). Either way
+the output appears whole at the end or not at all.
+
+Workers come from a local cluster of processes (``workers``) or an existing
+scheduler (``scheduler``), such as one started by dask-kubernetes, dask-yarn
+or dask-jobqueue.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+from explain.errors import NbledgerError
+from explain.output_files import atomic_path
+from explain.present.ledger_files import (
+    LEDGER_FORMATS,
+    IdCounter,
+    LedgerProgress,
+    LedgerWriter,
+    drivers_header,
+    ledger_chunk,
+    output_format,
+    row_numbers,
+    run_rule,
+    write_drivers,
+)
+
+_FRAME_COLUMNS = ("id", "text", "missing", "replaced")
+
+
+def _piece_frame(piece, text_col, id_col, chunk_rows):
+    """One partition: a pandas DataFrame of the piece's messages (columns :data:`_FRAME_COLUMNS`)."""
+    import pandas as pd
+
+    from explain.model.data_stream import read_piece
+
+    ids, texts, missing, replaced = [], [], [], []
+    for chunk in read_piece(piece, text_col, id_col, chunk_rows):
+        texts.extend(chunk.texts)
+        ids.extend(chunk.ids if chunk.ids is not None else [None] * len(chunk.texts))
+        # Counts are per chunk; keep them on the chunk's first row so that sums stay right.
+        missing.extend([chunk.nulls] + [0] * (len(chunk.texts) - 1))
+        replaced.extend([chunk.replaced] + [0] * (len(chunk.texts) - 1))
+    return pd.DataFrame(
+        {"id": pd.Series(ids, dtype=object), "text": pd.Series(texts, dtype=object),
+         "missing": np.asarray(missing, dtype=np.int64), "replaced": np.asarray(replaced, dtype=np.int64)}
+    )
+
+
+def _explain_partition(frame, first_row, model, rule, top_k, only_flagged, drivers, chunk_rows, part_path, id_col):
+    """Ledger of one partition, chunk by chunk.
+
+    Returns ``(table or None, LedgerProgress, FlagDrivers or None, id hashes or None)``;
+    the table is None when the partition was written to ``part_path``.
+    """
+    import pandas as pd
+    import pyarrow as pa
+
+    progress = LedgerProgress()
+    tables, found_all = [], None
+    writer = LedgerWriter(Path(part_path), "parquet", False) if part_path is not None else None
+    texts, ids = frame["text"].tolist(), frame["id"].tolist()
+    with contextlib.ExitStack() as stack:
+        if writer is not None:
+            stack.callback(writer.close)
+        for start in range(0, len(texts), chunk_rows):
+            part = texts[start : start + chunk_rows]
+            chunk_ids = ids[start : start + chunk_rows] if id_col else row_numbers(first_row + start, len(part))
+            rows, table, found = ledger_chunk(model, rule, part, chunk_ids, top_k, only_flagged, drivers)
+            if writer is not None:
+                writer.write(table)
+            else:
+                tables.append(table)
+            found_all = found if found_all is None else found_all.plus(found)
+            sl = slice(start, start + chunk_rows)
+            progress.add(rows, model.view.classes, nulls=int(frame["missing"].iloc[sl].sum()), replaced=int(frame["replaced"].iloc[sl].sum()))
+    hashes = pd.util.hash_array(np.asarray(ids, dtype=object)) if id_col else None
+    table = None if writer is not None else (pa.concat_tables(tables) if tables else None)
+    return table, progress, found_all, hashes
+
+
+@contextlib.contextmanager
+def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
+    """A distributed Client on ``scheduler``, or on a local cluster of ``workers`` processes."""
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise NbledgerError("--engine dask needs Dask: install nbledger with the dask extra (pip install 'nbledger[dask]')") from None
+    if scheduler is not None:
+        try:
+            client = Client(scheduler, timeout=connect_timeout, set_as_default=False)
+        except (OSError, TimeoutError, ValueError) as exc:
+            reason = str(exc).splitlines()[0][:160] if str(exc) else type(exc).__name__
+            raise NbledgerError(f"no Dask scheduler answered at {scheduler} within {connect_timeout:g} s ({reason})") from None
+        with client:
+            yield client
+        return
+    cluster = LocalCluster(
+        n_workers=workers, threads_per_worker=1, processes=True,
+        dashboard_address=":0", silence_logs=logging.CRITICAL,
+    )
+    with cluster, Client(cluster, set_as_default=False) as client:
+        yield client
+
+
+@contextlib.contextmanager
+def _atomic_folder(path: Path):
+    """Yield a temporary folder beside ``path``; on success it replaces ``path``."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{path.name}.", dir=path.parent))
+    try:
+        yield tmp
+        os.chmod(tmp, 0o777 & ~_umask())
+        old = None
+        if path.exists():
+            old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old.", dir=path.parent))
+            os.replace(path, old / path.name)
+        os.replace(tmp, path)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def write_ledger_dask(
+    model, paths, text_col: str, out, *, scheduler=None, workers=2, connect_timeout=10.0,
+    id_col=None, top_k=5, chunk_rows=20_000, only_flagged=False, threshold=None, summary=None,
+    on_chunk=None, progress=None,
+) -> LedgerProgress:
+    """Like :func:`~explain.present.ledger_files.write_ledger`, on a Dask cluster."""
+    from explain.model.data_stream import input_pieces
+
+    out = Path(out)
+    single = out.suffix.lower() in LEDGER_FORMATS or out.name.lower().endswith((".csv.gz", ".jsonl.gz"))
+    fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger") if single else ("parquet", False)
+    rule, drivers = run_rule(model, threshold, only_flagged, summary)
+    pieces = input_pieces(paths)
+    progress = progress if progress is not None else LedgerProgress()
+    progress.flags_known = rule.normal_index is not None
+    start = time.perf_counter()
+    with dask_client(scheduler, workers, connect_timeout) as client:
+        import dask
+        import dask.dataframe as dd
+        import pandas as pd
+
+        meta = pd.DataFrame({c: pd.Series(dtype=object if c in ("id", "text") else np.int64) for c in _FRAME_COLUMNS})
+        frame = dd.from_map(_piece_frame, pieces, args=(text_col, id_col, chunk_rows), meta=meta, enforce_metadata=False)
+        parts = frame.to_delayed()
+        lengths = [p.rows for p in pieces]
+        if id_col is None and any(n is None for n in lengths):
+            # Row numbers need each partition's offset: count the rows first.
+            lengths = list(client.compute(frame.map_partitions(len), sync=True))
+        offsets = np.concatenate(([0], np.cumsum([n or 0 for n in lengths])))[:-1]
+        shipped = client.scatter(model, broadcast=True)
+        target = atomic_path(out) if single else _atomic_folder(out)
+        with target as tmp:
+            tasks = [
+                dask.delayed(_explain_partition)(
+                    part, int(offset), shipped, rule, top_k, only_flagged, drivers is not None, chunk_rows,
+                    None if single else str(tmp / f"part.{i:05d}.parquet"), id_col,
+                )
+                for i, (part, offset) in enumerate(zip(parts, offsets))
+            ]
+            futures = client.compute(tasks)
+            ids_seen = IdCounter() if id_col is not None else None
+            writer = LedgerWriter(tmp, fmt, gzipped) if single else None
+            try:
+                for i, future in enumerate(futures):
+                    table, part_progress, found, hashes = future.result()
+                    future.release()
+                    if writer is not None and table is not None:
+                        writer.write(table)
+                    if found is not None:
+                        drivers = drivers.plus(found)
+                    if hashes is not None:
+                        ids_seen.add_hashes(hashes)
+                    progress.merge(part_progress)
+                    progress.source, progress.file_row = Path(pieces[i].path).name, part_progress.messages
+                    progress.done = (i + 1) / len(futures)
+                    progress.seconds = time.perf_counter() - start
+                    if on_chunk is not None:
+                        on_chunk(progress)
+            except BaseException:
+                client.cancel(futures)
+                raise
+            finally:
+                if writer is not None:
+                    writer.close()
+            if progress.messages == 0:
+                raise NbledgerError("the input holds no messages")
+            if ids_seen is not None:
+                progress.duplicate_ids = ids_seen.duplicates()
+            if summary is not None:
+                write_drivers(Path(summary), drivers, drivers_header(model, rule, progress))
+    progress.seconds = time.perf_counter() - start
+    return progress
