@@ -163,7 +163,7 @@ def test_json_figures_equal_scikit_learn(built, files):
     p_not_ok = 1 - pipeline.predict_proba(data.texts)[:, ok]
     assert a["flag_ranking"]["auc"]["auc"] == pytest.approx(roc_auc_score(flagged, score), abs=1e-9)
     assert a["calibration"]["brier_score"] == pytest.approx(brier_score_loss(flagged, p_not_ok), abs=1e-9)
-    fpr = a["flag_metrics"]["false_positive_rate"]
+    fpr = a["flag_metrics"]["false_alarm_rate"]
     assert twin["summary"]["false_alarms"]["value"] == pytest.approx(10_000 * fpr["value"])
     assert twin["summary"]["missed"]["value"] == pytest.approx(10_000 * (1 - a["flag_metrics"]["recall"]["value"]))
     # each explained message's ledger closes on scikit-learn's log-odds (predict_joint_log_proba differences)

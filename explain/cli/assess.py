@@ -55,11 +55,11 @@ def assess(
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the true class."),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
     ),
     threshold_log_odds: Optional[float] = typer.Option(
         None, "--threshold-log-odds",
-        help="Flag when log P(not normal) - log P(normal) >= L, exactly (as printed for each operating point).",
+        help="Flag when the flag log-odds >= L, exactly (as printed for each operating point).",
     ),
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: project the figures to it."

@@ -84,7 +84,14 @@ def report(
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
+    ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds",
+        help="Flag when the flag log-odds >= L, exactly (as assess and the report print each operating point).",
+    ),
+    base_rate: Optional[str] = typer.Option(
+        None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: the summary adds a projection."
     ),
     watchlist: Optional[Path] = typer.Option(
         None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
@@ -109,6 +116,7 @@ def report(
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings, build_report
     from explain.analysis.risk import read_watchlist
+    from explain.cli.assess import parse_fraction
     from explain.output_files import OutputSet
     from explain.present.report import draw_pictures, render_html, render_pdf
     from explain.present.report_json import dumps, to_json
@@ -122,7 +130,8 @@ def report(
         fail("--out, --html and --json must be different files")
     settings = ReportSettings(
         title=title, organisation=organisation, redact=redact, paper=paper, max_messages=max_messages,
-        threshold=threshold,
+        threshold=threshold, threshold_log_odds=threshold_log_odds,
+        base_rate=None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
     )
     terms = read_watchlist(watchlist) if watchlist is not None else None
 

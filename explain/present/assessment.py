@@ -229,7 +229,7 @@ def _confusion(matrix, title: str, console: Console) -> None:
 
 METRICS = (
     (("precision", "precision"), ("recall", "recall")),
-    (("specificity", "specificity"), ("false-alarm rate", "false_positive_rate")),
+    (("specificity", "specificity"), ("false-alarm rate", "false_alarm_rate")),
     (("F1", "f1"), ("accuracy", "accuracy")),
 )
 
@@ -281,7 +281,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
             rows.append([Text(point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", ""])
             continue
         rows.append([Text(point_label(p)), _num(f.threshold_log_odds), _prob(f.threshold_probability),
-                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_positive_rate.value)])
+                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_alarm_rate.value)])
         row = [Text(point_label(p)), str(f.tp + f.fp), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))

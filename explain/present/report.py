@@ -52,11 +52,17 @@ def environment():
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds)
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds,
+                       exact=_exact)
     return env
 
 
 # --- number formats (formatting only: every value comes from the JSON twin) -------
+
+
+def _exact(x) -> str:
+    """A threshold log-odds with every digit, as typed back to ``--threshold-log-odds`` (as ``assess`` prints it)."""
+    return "–" if x is None else repr(float(x))
 
 
 def _pct(x, digits: int = 1) -> str:
