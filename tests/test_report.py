@@ -187,6 +187,44 @@ def test_json_twin_is_byte_identical_across_runs(files, monkeypatch):
     assert json.loads(first)["date"] == "2026-05-28T20:26:40+00:00"
 
 
+def test_printed_thresholds_reproduce_their_rows_and_the_base_rate_is_projected(files):
+    """Each operating point's threshold, as printed (repr of its log-odds), flags exactly its messages."""
+    from explain.present.report import _exact
+
+    model = load_model(files / "filter.skops", normal_class="ok")
+    data = read_messages(files / "test.csv", "text", "label")
+    twin = json.loads(dumps(build_report(model, data=data)))
+    points = [p for p in twin["assessment"]["operating_points"] if p["kind"] != "in use" and p["figures"]]
+    assert points
+    truth = np.isin(data.labels, ["advert", "scam"])
+    import skops.io as sio
+
+    path = files / "filter.skops"
+    pipeline = sio.load(path, trusted=sio.get_untrusted_types(file=path))
+    jll = pipeline[-1].predict_joint_log_proba(pipeline[:-1].transform(list(data.texts)))  # scikit-learn's own
+    ok = list(pipeline.classes_).index("ok")
+    flag_log_odds = np.logaddexp.reduce(np.delete(jll, ok, axis=1), axis=1) - jll[:, ok]
+    for point in points:
+        printed = float(_exact(point["figures"]["threshold_log_odds"]))
+        again = json.loads(dumps(build_report(model, data=data, settings=ReportSettings(threshold_log_odds=printed))))
+        flagged = flag_log_odds >= printed
+        for key, count in (("tp", flagged & truth), ("fp", flagged & ~truth)):
+            assert point["figures"][key] == int(count.sum())  # from the joint log-likelihoods directly
+            in_use = next(p for p in again["assessment"]["operating_points"] if p["kind"] == "in use")
+            assert in_use["figures"][key] == point["figures"][key]
+    # Bayes' rule at base rate p from the measured recall r and false-alarm rate f, written out here
+    p = 0.02
+    projected = json.loads(dumps(build_report(model, data=data, settings=ReportSettings(base_rate=p))))["summary"]
+    decided = pipeline.predict(list(data.texts)) != "ok"
+    r, f = (decided & truth).sum() / truth.sum(), (decided & ~truth).sum() / (~truth).sum()
+    assert projected["base_rate"] == pytest.approx(truth.mean())
+    assert projected["projection"]["precision"]["value"] == pytest.approx(p * r / (p * r + (1 - p) * f))
+    assert projected["projection"]["false_alarms_per_10k"]["value"] == pytest.approx(10_000 * (1 - p) * f)
+    assert projected["projection"]["missed_per_10k"]["value"] == pytest.approx(10_000 * p * (1 - r))
+    with pytest.raises(Exception, match="not both"):
+        ReportSettings(threshold=0.5, threshold_log_odds=0.0)
+
+
 # --- redaction -------------------------------------------------------------------------
 
 
