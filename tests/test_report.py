@@ -225,6 +225,24 @@ def test_printed_thresholds_reproduce_their_rows_and_the_base_rate_is_projected(
         ReportSettings(threshold=0.5, threshold_log_odds=0.0)
 
 
+def test_audit_figures_are_the_ones_assess_computes(files, tmp_path, capsys):
+    """--slice-by and --label-errors: report and assess share one function, so their figures are equal."""
+    common = ("--slice-by", "sent_at:month", "--label-errors", "--folds", "3", "--normal-class", "ok")
+    report = nbledger(capsys, "report", files / "filter.skops", "--data", files / "test.csv", *common,
+                      "--redact", "none", "--out", tmp_path / "r.pdf", "--json", tmp_path / "r.json")
+    assert report.code == 0, report.err
+    assessed = nbledger(capsys, "assess", files / "filter.skops", files / "test.csv", "--text-col", "text",
+                        "--label-col", "label", *common, "--format", "json")
+    assert assessed.code == 0, assessed.err
+    mine = json.loads((tmp_path / "r.json").read_text(encoding="utf-8"))["assessment"]
+    theirs = json.loads(assessed.out)["assessment"]
+    assert mine["slices"] == theirs["slices"] and len(mine["slices"]["slices"]) > 2
+    assert mine["label_errors"]["suspected"] == theirs["label_errors"]["suspected"]
+    text = "\n".join(page.extract_text() for page in PdfReader(tmp_path / "r.pdf").pages)
+    for heading in ("Slices", "Suspected label errors", "Benjamini", "Northcutt"):
+        assert heading in text, heading
+
+
 # --- redaction -------------------------------------------------------------------------
 
 
@@ -378,6 +396,9 @@ def test_bad_input_is_one_line_and_writes_nothing(files, tmp_path, capsys):
     pd.DataFrame([{"id": 1, "body": "hello"}]).to_csv(tmp_path / "notext.csv", index=False)
     assert "no column 'text'" in _bad(capsys, files, tmp_path, "--explain", tmp_path / "notext.csv", *out)
     assert "--redact" in _bad(capsys, files, tmp_path, "--redact", "some", *out)
+    assert "--data" in _bad(capsys, files, tmp_path, "--slice-by", "sent_at:month", *out)
+    assert "--base-rate" in _bad(capsys, files, tmp_path, "--base-rate", "150%", *out)
+    assert "not both" in _bad(capsys, files, tmp_path, "--threshold", "0.5", "--threshold-log-odds", "0", *out)
 
 
 @pytest.mark.skipif(os.geteuid() == 0, reason="root may write anywhere")

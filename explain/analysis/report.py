@@ -237,6 +237,8 @@ def build_report(
     explain=None,
     watchlist: Watchlist | None = None,
     on_step=lambda name: None,
+    slices=(),
+    label_errors=None,
 ) -> Report:
     """Compute everything the report shows.
 
@@ -248,6 +250,9 @@ def build_report(
     explain : :class:`~explain.model.data_io.Messages` to explain, or None (then a
         sample of flagged messages of ``data``).
     watchlist : terms the vocabulary review reports whatever their evidence.
+    slices, label_errors : the assessment's audit inputs, as
+        :func:`explain.analysis.assessment.assess` takes them (slice groups;
+        :class:`~explain.analysis.label_errors.LabelErrors` or None).
     on_step : called with the name of each step as it starts (progress display).
     """
     date = report_date()
@@ -260,7 +265,8 @@ def build_report(
         X = model.featurizer.transform(data.texts)
         assessment = redact_assessment(
             assess(model.view, X, data.labels, threshold=settings.threshold,
-                   threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids),
+                   threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
+                   slices=list(slices), label_errors=label_errors),
             redact,
         )
     on_step("explaining messages")

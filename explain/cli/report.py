@@ -16,6 +16,7 @@ from explain.cli import (
     LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, err_console, fail, load_model_or_fail,
     model_inputs, read_messages_or_fail,
 )
+from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
@@ -93,6 +94,9 @@ def report(
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: the summary adds a projection."
     ),
+    slice_by: Optional[List[str]] = typer.Option(None, "--slice-by", help=SLICE_BY_HELP + " Needs --data."),
+    label_errors: bool = typer.Option(False, "--label-errors", help=LABEL_ERRORS_HELP.replace("DATA", "--data")),
+    folds: int = typer.Option(5, "--folds", help=FOLDS_HELP),
     watchlist: Optional[Path] = typer.Option(
         None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
     ),
@@ -134,8 +138,12 @@ def report(
         base_rate=None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
     )
     terms = read_watchlist(watchlist) if watchlist is not None else None
+    check_folds(folds)
+    if (slice_by or label_errors) and data is None:
+        fail("--slice-by and --label-errors need labelled data (--data)")
 
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(8) as step:
+    total = 9 if (slice_by or label_errors) else 8
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(total) as step:
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
@@ -148,8 +156,16 @@ def report(
             read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes) if data is not None else None
         )
         to_explain = read_explain(explain, text_col) if explain is not None else None
+        groups, suspected = [], None
+        if slice_by or label_errors:
+            step("slicing the data" if not label_errors else "refitting on folds to find suspected label errors")
+            groups, suspected = audit_inputs(
+                loaded, messages, loaded.featurizer.transform(messages.texts), data, slice_by=slice_by,
+                terms=terms.terms if (slice_by and terms is not None) else None, label_errors=label_errors,
+                folds=folds, max_data_bytes=max_data_bytes,
+            )
         result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
-                              on_step=step)
+                              on_step=step, slices=groups, label_errors=suspected)
         step("drawing the pictures")
         twin = to_json(result)
         pictures = draw_pictures(result)

@@ -27,6 +27,7 @@ from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
 from explain.analysis.report import Report
+from explain.present import assessment as assessment_screen
 from explain.present import wording
 from explain.present.drawing import class_colours
 from explain.present.report_json import LEDGER_ROWS, to_json
@@ -53,11 +54,16 @@ def environment():
         keep_trailing_newline=True,
     )
     env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds,
-                       exact=_exact)
+                       exact=_exact, prob=_prob)
     return env
 
 
 # --- number formats (formatting only: every value comes from the JSON twin) -------
+
+
+def _prob(p) -> str:
+    """A probability as ``assess`` prints it: never rounded to certainty (``1 - 2.7e-15``)."""
+    return "–" if p is None else assessment_screen._prob(p)
 
 
 def _exact(x) -> str:
