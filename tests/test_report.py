@@ -243,6 +243,22 @@ def test_audit_figures_are_the_ones_assess_computes(files, tmp_path, capsys):
         assert heading in text, heading
 
 
+def test_a_raw_e_mail_is_explained_in_the_text_view_why_uses(files, tmp_path, capsys):
+    """--explain FILE.eml reads the e-mail as why --file does, in the card's view or --text-view."""
+    eml = CORPUS / "examples" / "notice.eml"
+    for view in ([], ["--text-view", "subject+body"]):
+        made = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", "--explain", eml, *view,
+                        "--out", tmp_path / "r.pdf", "--json", tmp_path / "r.json")
+        assert made.code == 0, made.err
+        shown = json.loads((tmp_path / "r.json").read_text(encoding="utf-8"))["explained_messages"]["messages"][0]
+        why = nbledger(capsys, "why", files / "filter.skops", "--normal-class", "ok", "--file", eml, *view,
+                       "--format", "json")
+        assert why.code == 0, why.err
+        assert shown["id"] == "notice.eml"
+        assert shown["ledger"]["closing"] == json.loads(why.out)["ledger"]["closing"]
+        assert "Content-Type" not in (shown["text"] or "")
+
+
 # --- redaction -------------------------------------------------------------------------
 
 

@@ -17,6 +17,7 @@ from explain.cli import (
     model_inputs, read_messages_or_fail,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
@@ -33,19 +34,27 @@ def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     return path
 
 
-def read_explain(path: Path, text_col: str):
-    """Messages to explain: a data file (its ``text_col``), or a ``.txt`` file holding one message."""
+def read_explain(path: Path, text_col: str, mail):
+    """Messages to explain: a data file (its ``text_col``), or a ``.txt``/``.eml`` file holding one message.
+
+    A raw e-mail is read as ``why`` reads it, in the text view ``mail.view``
+    (the model card's unless ``--text-view`` says otherwise); the message is
+    named by its file name, as ``why --file`` names it.
+    """
+    from explain.cli.why import read_one
     from explain.model.data_io import Messages, decode_utf8
 
-    if path.suffix.lower() != ".txt":
-        return read_messages_or_fail(path, text_col)
+    if path.suffix.lower() not in (".txt", ".eml"):
+        return read_messages_or_fail(path, text_col, mail=mail)
     if not path.is_file():
         fail(f"no message file at {path}")
     raw = path.read_bytes()
     text, replaced = decode_utf8(raw)
     if not text.strip():
         fail(f"{path.name} is empty")
-    ids = np.asarray([path.stem], dtype=object)
+    as_email = path.suffix.lower() == ".eml"
+    _, text, _ = read_one(raw if as_email else text, as_email, mail.view)
+    ids = np.asarray([path.name], dtype=object)
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 
 
@@ -81,7 +90,7 @@ def report(
     text_col: str = typer.Option("text", "--text-col", help="Column holding the message text (--data, --explain)."),
     label_col: str = typer.Option("label", "--label-col", help="Column of --data holding the true class."),
     explain: Optional[Path] = typer.Option(
-        None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt file of one message."
+        None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt/.eml file of one message."
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
@@ -112,6 +121,10 @@ def report(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
@@ -152,10 +165,12 @@ def report(
             max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
         )
         step("reading the data")
+        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
         messages = (
-            read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes) if data is not None else None
+            read_messages_or_fail(data, text_col, label_col, mail, max_data_bytes=max_data_bytes)
+            if data is not None else None
         )
-        to_explain = read_explain(explain, text_col) if explain is not None else None
+        to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email)) if explain else None
         groups, suspected = [], None
         if slice_by or label_errors:
             step("slicing the data" if not label_errors else "refitting on folds to find suspected label errors")
