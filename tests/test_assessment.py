@@ -204,6 +204,7 @@ def test_operating_points_by_brute_force(seed, k, fprs, recalls, costs):
         assert f.threshold_probability == pytest.approx(expit(f.threshold_log_odds))
         assert f.false_alarms_per_10k == pytest.approx(PER_MESSAGES * fp / n)
         assert f.missed_per_10k == pytest.approx(PER_MESSAGES * (n_pos - tp) / n)
+        assert f.flagged_per_10k == pytest.approx(PER_MESSAGES * (tp + fp) / n)
         lower = candidates[candidates < f.threshold_log_odds]
         higher = candidates[candidates > f.threshold_log_odds]
         if point.kind == "fpr":

@@ -54,9 +54,9 @@ class RankingQuality:
 class ThresholdFigures:
     """What flagging every message with log-odds ``>= threshold_log_odds`` does on the data.
 
-    ``false_alarms_per_10k`` and ``missed_per_10k`` are the expected false
-    alarms and missed abuse among 10,000 messages with the data's base rate
-    (``10000 * FP / N`` and ``10000 * FN / N``). ``expected_cost`` is
+    ``false_alarms_per_10k``, ``missed_per_10k`` and ``flagged_per_10k`` are the expected false
+    alarms, missed messages and flagged messages among 10,000 messages with the data's base rate
+    (``10000 * FP / N``, ``10000 * FN / N`` and ``10000 * (TP + FP) / N``). ``expected_cost`` is
     ``(cost_fp * FP + cost_fn * FN) / N`` per message when costs were given.
     ``projection`` carries the figures to traffic with another share of
     abuse when one was given (:class:`~explain.analysis.rates.Projection`).
@@ -75,6 +75,7 @@ class ThresholdFigures:
     false_alarm_rate: Rate
     false_alarms_per_10k: float
     missed_per_10k: float
+    flagged_per_10k: float
     expected_cost: float | None
     projection: Projection | None = None
 
@@ -196,6 +197,7 @@ def threshold_figures(threshold: float, tp: int, fp: int, n_pos: int, n_neg: int
         false_alarm_rate=fpr,
         false_alarms_per_10k=PER_MESSAGES * fp / n,
         missed_per_10k=PER_MESSAGES * fn / n,
+        flagged_per_10k=PER_MESSAGES * (tp + fp) / n,
         expected_cost=cost,
         projection=projection,
     )
