@@ -105,7 +105,7 @@ def test_vocab_screen_terms_are_in_the_glossary(trained, files, width, lens):
     for title in LENS_TITLES.values():
         assert glossary.is_term(title.partition(" (")[0]), title
     text = _render(review, width)
-    flags = re.search(r"^flags: (.*?)(?=\n\s|\Z)", text, re.M | re.S).group(1)
+    flags = re.search(r"^flags: (.*?)(?=\n  strongest|\n\S|\n?\Z)", text, re.M | re.S).group(1)  # folded lines indented
     pairs = " ".join(flags.split()).split(", ")
     assert len(pairs) == len(FLAG_LABELS)
     for pair in pairs:
