@@ -49,12 +49,12 @@ def trained():
 def _line(name, result):
     m = result.flag_metrics
     fpr = m.false_alarm_rate
-    text = f"{name:<22} n={result.base_rates.n_messages:<5} FPR {100 * fpr.value:6.2f} % [{100 * fpr.low:.2f}, {100 * fpr.high:.2f}]"
+    text = f"{name:<22} n={result.base_rates.n_messages:<5} FPR {100 * fpr.value:6.2f} % ({100 * fpr.low:.2f} to {100 * fpr.high:.2f})"
     if m.recall.denominator:
-        text += f"  recall {100 * m.recall.value:6.2f} % [{100 * m.recall.low:.2f}, {100 * m.recall.high:.2f}]"
+        text += f"  recall {100 * m.recall.value:6.2f} % ({100 * m.recall.low:.2f} to {100 * m.recall.high:.2f})"
     if result.flag_ranking is not None:
         auc = result.flag_ranking.auc
-        text += f"  AUC {auc.auc:.4f} [{auc.low:.4f}, {auc.high:.4f}]  AP {result.flag_ranking.average_precision:.4f}"
+        text += f"  AUC {auc.auc:.4f} ({auc.low:.4f} to {auc.high:.4f})  AP {result.flag_ranking.average_precision:.4f}"
     text += f"  Brier {result.calibration.brier_score:.4f}  ECE {result.calibration.expected_calibration_error:.4f}"
     return text
 
