@@ -89,7 +89,7 @@ def main() -> None:
     assert abs(auc.auc - roc_auc_score(truth, scores)) < 1e-9
     print(f"messages: {args.messages}, features: {view.n_features}, flagged share {truth.mean():.3f}, "
           f"errors reviewed: {result.errors.n_false_alarms + result.errors.n_missed}")
-    print(f"AUC {auc.auc:.4f} [{auc.low:.4f}, {auc.high:.4f}] (DeLong, 95 %)")
+    print(f"AUC {auc.auc:.4f} ({auc.low:.4f} to {auc.high:.4f}, 95 % DeLong interval)")
     print(f"scoring (batch_evidence, not in the ratio): {scoring * 1000:8.1f} ms")
     print(f"whole assessment incl. AUC interval:        {full * 1000:8.1f} ms")
     print(f"AUC with DeLong interval alone:             {interval_only * 1000:8.1f} ms")

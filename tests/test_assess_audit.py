@@ -301,7 +301,7 @@ def test_tables_fit_without_splitting_a_number(files, width):
     # every rate of the decision in use, and every projected precision, appears whole in the text
     text = "\n".join(lines)
     m = result.flag_metrics
-    for r in (m.precision, m.recall, m.specificity, m.false_positive_rate, m.f1, m.accuracy):
+    for r in (m.precision, m.recall, m.specificity, m.false_alarm_rate, m.f1, m.accuracy):
         d = 2 if 100 * min(r.value, r.low) < 1 else 1
         assert f"{100 * r.value:.{d}f} % ({100 * r.low:.{d}f} to {100 * r.high:.{d}f})" in text
     for p in result.operating_points:

@@ -124,7 +124,7 @@ def test_single_class_data_still_reports(files, capsys, tmp_path):
     got = json.loads(out)["assessment"]
     assert got["flag_ranking"] is None
     assert any("AUC and precision-recall curve undefined: the data hold only ok messages" in n for n in got["notes"])
-    assert got["flag_metrics"]["false_positive_rate"]["denominator"] > 0
+    assert got["flag_metrics"]["false_alarm_rate"]["denominator"] > 0
 
 
 def test_unmeetable_target_is_a_note_not_a_failure(files, capsys):

@@ -48,13 +48,13 @@ def trained():
 
 def _line(name, result):
     m = result.flag_metrics
-    fpr = m.false_positive_rate
-    text = f"{name:<22} n={result.base_rates.n_messages:<5} FPR {100 * fpr.value:6.2f} % [{100 * fpr.low:.2f}, {100 * fpr.high:.2f}]"
+    fpr = m.false_alarm_rate
+    text = f"{name:<22} n={result.base_rates.n_messages:<5} FPR {100 * fpr.value:6.2f} % ({100 * fpr.low:.2f} to {100 * fpr.high:.2f})"
     if m.recall.denominator:
-        text += f"  recall {100 * m.recall.value:6.2f} % [{100 * m.recall.low:.2f}, {100 * m.recall.high:.2f}]"
+        text += f"  recall {100 * m.recall.value:6.2f} % ({100 * m.recall.low:.2f} to {100 * m.recall.high:.2f})"
     if result.flag_ranking is not None:
         auc = result.flag_ranking.auc
-        text += f"  AUC {auc.auc:.4f} [{auc.low:.4f}, {auc.high:.4f}]  AP {result.flag_ranking.average_precision:.4f}"
+        text += f"  AUC {auc.auc:.4f} ({auc.low:.4f} to {auc.high:.4f})  AP {result.flag_ranking.average_precision:.4f}"
     text += f"  Brier {result.calibration.brier_score:.4f}  ECE {result.calibration.expected_calibration_error:.4f}"
     return text
 
@@ -68,8 +68,8 @@ def test_hard_ham_raises_more_false_alarms_than_later_easy_ham(trained, capsys):
         for name, (_, _, result) in results.items():
             print("  " + _line(name, result))
     # the corpus README calls hard-ham-1 harder to tell from spam
-    assert hard.flag_metrics.false_positive_rate.value > later.flag_metrics.false_positive_rate.value
-    assert hard.flag_metrics.false_positive_rate.low > later.flag_metrics.false_positive_rate.high
+    assert hard.flag_metrics.false_alarm_rate.value > later.flag_metrics.false_alarm_rate.value
+    assert hard.flag_metrics.false_alarm_rate.low > later.flag_metrics.false_alarm_rate.high
     # hard ham alone holds one class: no AUC, the rest is reported
     assert hard.flag_ranking is None and hard.calibration is not None
     assert results["hard-ham-1 + spam-2"][2].flag_ranking.auc.auc < later.flag_ranking.auc.auc

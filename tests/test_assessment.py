@@ -86,9 +86,9 @@ def test_confusion_and_metrics_match_sklearn(seed, k, variant):
         )
         assert m.tp + m.fn == support[c]
         negatives = len(y) - support[c]
-        assert m.false_positive_rate.value == pytest.approx(m.fp / negatives if negatives else np.nan, nan_ok=True)
-        assert m.specificity.value == pytest.approx(1 - m.false_positive_rate.value, nan_ok=True)
-        for rate in (m.precision, m.recall, m.specificity, m.false_positive_rate, m.f1, m.accuracy):
+        assert m.false_alarm_rate.value == pytest.approx(m.fp / negatives if negatives else np.nan, nan_ok=True)
+        assert m.specificity.value == pytest.approx(1 - m.false_alarm_rate.value, nan_ok=True)
+        for rate in (m.precision, m.recall, m.specificity, m.false_alarm_rate, m.f1, m.accuracy):
             if rate.denominator:
                 assert rate.low <= rate.value <= rate.high
     assert result.accuracy.value == pytest.approx(np.mean(predicted == y))
@@ -126,9 +126,9 @@ def test_ranking_matches_sklearn(seed, k, variant):
     # the kept ROC points lie on scikit-learn's full curve and draw the same area
     fpr, tpr, _ = roc_curve(flag_truth, scores, drop_intermediate=False)
     full = set(zip(np.round(fpr, 12), np.round(tpr, 12)))
-    kept = set(zip(np.round(ranking.roc_false_positive_rate, 12), np.round(ranking.roc_true_positive_rate, 12)))
+    kept = set(zip(np.round(ranking.roc_false_alarm_rate, 12), np.round(ranking.roc_recall, 12)))
     assert kept <= full
-    assert np.trapezoid(ranking.roc_true_positive_rate, ranking.roc_false_positive_rate) == pytest.approx(
+    assert np.trapezoid(ranking.roc_recall, ranking.roc_false_alarm_rate) == pytest.approx(
         ranking.auc.auc, abs=1e-9
     )
     precision, recall, _ = precision_recall_curve(flag_truth, scores, drop_intermediate=False)
@@ -204,6 +204,7 @@ def test_operating_points_by_brute_force(seed, k, fprs, recalls, costs):
         assert f.threshold_probability == pytest.approx(expit(f.threshold_log_odds))
         assert f.false_alarms_per_10k == pytest.approx(PER_MESSAGES * fp / n)
         assert f.missed_per_10k == pytest.approx(PER_MESSAGES * (n_pos - tp) / n)
+        assert f.flagged_per_10k == pytest.approx(PER_MESSAGES * (tp + fp) / n)
         lower = candidates[candidates < f.threshold_log_odds]
         higher = candidates[candidates > f.threshold_log_odds]
         if point.kind == "fpr":
@@ -372,13 +373,13 @@ def test_single_class_data_reports_what_it_can(only):
     decided_flag = clf.predict(X) == "scam"
     m = result.flag_metrics
     if only == "ok":
-        assert m.false_positive_rate.value == decided_flag.mean()
+        assert m.false_alarm_rate.value == decided_flag.mean()
         assert np.isnan(m.recall.value)
         assert all(not p.met for p in result.operating_points if p.kind == "recall")
         assert all(p.met or "flags anything" in p.note for p in result.operating_points if p.kind == "fpr")
     else:
         assert m.recall.value == decided_flag.mean()
-        assert np.isnan(m.false_positive_rate.value)
+        assert np.isnan(m.false_alarm_rate.value)
         assert all(not p.met and "undefined" in p.note for p in result.operating_points if p.kind == "fpr")
     assert result.calibration is not None and result.errors is not None
 

@@ -105,7 +105,7 @@ def test_vocab_screen_terms_are_in_the_glossary(trained, files, width, lens):
     for title in LENS_TITLES.values():
         assert glossary.is_term(title.partition(" (")[0]), title
     text = _render(review, width)
-    flags = re.search(r"^flags: (.*?)(?=\n\s|\Z)", text, re.M | re.S).group(1)
+    flags = re.search(r"^flags: (.*?)(?=\n  strongest|\n\S|\n?\Z)", text, re.M | re.S).group(1)  # folded lines indented
     pairs = " ".join(flags.split()).split(", ")
     assert len(pairs) == len(FLAG_LABELS)
     for pair in pairs:
@@ -141,3 +141,77 @@ def test_every_glossary_entry_has_a_definition_and_snake_case_keys():
         assert term and len(definition) > 20, term
         for key in re.findall(r"`([^`]+)`", keys):
             assert glossary.SNAKE_CASE.fullmatch(re.sub(r"<[^>]+>", "x", key)), (term, key)
+
+
+# --- the ledger screen, the report's headings and its JSON twin ------------------------------------
+
+# Headings that name what a row is about, not a figure: they need no glossary entry.
+PLAIN_HEADINGS = frozenset({
+    "#", "class", "message", "tokens", "figure", "formula", "source", "chosen by", "strongest examples",
+    "behind false alarms", "behind misses", "true \\ decided",
+})
+# Keys the glossary retired: an output that still writes one has drifted from it.
+RETIRED_KEYS = frozenset({
+    "false_positive_rate", "roc_true_positive_rate", "brier", "ece", "decided", "running_balance",
+    "closing_balance", "disguised_word",
+})
+
+
+def heading_is_term(heading: str, classes) -> bool:
+    """A column heading reads as a glossary term once class names, arrows and units are set aside."""
+    text = " ".join(re.sub(r"[▲▼≥]|/ 10,000| \(.*?\)", " ", heading).split())
+    # a class name, or "flagged" for several flagged classes together, names a side of the ledger
+    sides = " ".join(w for w in text.split() if w not in {*classes, "flagged"} and not re.fullmatch(r"[\w-]+(/[\w-]+)+", w))
+    return any(
+        not t or t.lower() in PLAIN_HEADINGS or glossary.is_term(t) or (t.endswith("s") and glossary.is_term(t[:-1]))
+        for t in (text, sides)
+    )
+
+
+def test_the_heading_check_can_fail():
+    assert heading_is_term("support scam", {"scam"}) and heading_is_term("false alarms / 10,000", set())
+    assert not heading_is_term("P(not ok)", {"ok"}) and not heading_is_term("score", set())
+
+
+def test_ledger_screen_says_p_flag_and_uses_glossary_headings(trained):
+    from explain.analysis.ledger import ledger_of
+    from explain.present.why import render as render_ledger
+
+    model = load_model(trained)
+    text = "Your parcel came to Customs House by mistake, pay the fee at http://fee.example.net today"
+    for threshold in (None, 0.5):
+        ledger = ledger_of(model, text, threshold, message_id="tc-" + "9" * 40)
+        console = Console(width=80, no_color=True, record=True, file=io.StringIO())
+        render_ledger(ledger, console, date="2026-01-01T00:00:00Z")
+        screen = console.export_text()
+        assert max(map(len, screen.splitlines())) <= 80
+        assert "LEDGER OF ONE DECISION\n" in screen  # the head line is stacked, one fact a line
+        # P(flag) is the one name; the normal class is said once, beside it
+        assert screen.count("P(not ") == screen.count("P(flag) = P(not ") <= 1
+        assert "P(flag)" in screen or threshold is None
+        header = next(line for line in screen.splitlines() if line.lstrip().startswith("#"))
+        for heading in header.split():
+            assert heading_is_term(heading, model.classes), heading
+
+
+def test_report_headings_and_json_twin_keys_follow_the_glossary(trained, files, tmp_path, capsys):
+    pdf, html, twin = tmp_path / "r.pdf", tmp_path / "r.html", tmp_path / "r.json"
+    cli(capsys, "report", trained, "--data", files / "train.csv", "--threshold-log-odds", "0.25",
+        "--base-rate", "2%", "--out", pdf, "--html", html, "--json", twin)
+    page = html.read_text(encoding="utf-8")
+    model = load_model(trained)
+    headings = []
+    for head in re.findall(r"<thead>(.*?)</thead>", page, re.S):
+        headings += [re.sub(r"<[^>]+>", " ", h) for h in re.findall(r"<th[^>]*>(.*?)</th>", head, re.S)]
+    assert len(headings) > 20
+    for heading in headings:
+        assert heading_is_term(" ".join(heading.split()), model.classes), heading
+    assert "P(not " not in page.replace("P(flag) = P(not ", "")
+    document = json.loads(twin.read_text(encoding="utf-8"))
+    keys = {key for _, key in glossary.json_keys(document)}
+    assert keys & RETIRED_KEYS == set()
+    for key in ("false_alarm_rate", "brier_score", "expected_calibration_error", "decided_class", "flag_probability",
+                "threshold_log_odds", "base_rate", "projection", "balance_after", "closing", "disguised"):
+        assert key in keys and glossary.is_key(key), key
+    why = json.loads(cli(capsys, "why", trained, "Pay the berth fee at http://fee.example.net today", "--format", "json"))
+    assert {key for _, key in glossary.json_keys(why)} & RETIRED_KEYS == set()

@@ -163,7 +163,7 @@ def test_json_figures_equal_scikit_learn(built, files):
     p_not_ok = 1 - pipeline.predict_proba(data.texts)[:, ok]
     assert a["flag_ranking"]["auc"]["auc"] == pytest.approx(roc_auc_score(flagged, score), abs=1e-9)
     assert a["calibration"]["brier_score"] == pytest.approx(brier_score_loss(flagged, p_not_ok), abs=1e-9)
-    fpr = a["flag_metrics"]["false_positive_rate"]
+    fpr = a["flag_metrics"]["false_alarm_rate"]
     assert twin["summary"]["false_alarms"]["value"] == pytest.approx(10_000 * fpr["value"])
     assert twin["summary"]["missed"]["value"] == pytest.approx(10_000 * (1 - a["flag_metrics"]["recall"]["value"]))
     # each explained message's ledger closes on scikit-learn's log-odds (predict_joint_log_proba differences)
@@ -185,6 +185,78 @@ def test_json_twin_is_byte_identical_across_runs(files, monkeypatch):
                                 data=read_messages(files / "test.csv", "text", "label"), watchlist=watch))
     assert first.encode() == second.encode()
     assert json.loads(first)["date"] == "2026-05-28T20:26:40+00:00"
+
+
+def test_printed_thresholds_reproduce_their_rows_and_the_base_rate_is_projected(files):
+    """Each operating point's threshold, as printed (repr of its log-odds), flags exactly its messages."""
+    from explain.present.report import _exact
+
+    model = load_model(files / "filter.skops", normal_class="ok")
+    data = read_messages(files / "test.csv", "text", "label")
+    twin = json.loads(dumps(build_report(model, data=data)))
+    points = [p for p in twin["assessment"]["operating_points"] if p["kind"] != "in use" and p["figures"]]
+    assert points
+    truth = np.isin(data.labels, ["advert", "scam"])
+    import skops.io as sio
+
+    path = files / "filter.skops"
+    pipeline = sio.load(path, trusted=sio.get_untrusted_types(file=path))
+    jll = pipeline[-1].predict_joint_log_proba(pipeline[:-1].transform(list(data.texts)))  # scikit-learn's own
+    ok = list(pipeline.classes_).index("ok")
+    flag_log_odds = np.logaddexp.reduce(np.delete(jll, ok, axis=1), axis=1) - jll[:, ok]
+    for point in points:
+        printed = float(_exact(point["figures"]["threshold_log_odds"]))
+        again = json.loads(dumps(build_report(model, data=data, settings=ReportSettings(threshold_log_odds=printed))))
+        flagged = flag_log_odds >= printed
+        for key, count in (("tp", flagged & truth), ("fp", flagged & ~truth)):
+            assert point["figures"][key] == int(count.sum())  # from the joint log-likelihoods directly
+            in_use = next(p for p in again["assessment"]["operating_points"] if p["kind"] == "in use")
+            assert in_use["figures"][key] == point["figures"][key]
+    # Bayes' rule at base rate p from the measured recall r and false-alarm rate f, written out here
+    p = 0.02
+    projected = json.loads(dumps(build_report(model, data=data, settings=ReportSettings(base_rate=p))))["summary"]
+    decided = pipeline.predict(list(data.texts)) != "ok"
+    r, f = (decided & truth).sum() / truth.sum(), (decided & ~truth).sum() / (~truth).sum()
+    assert projected["base_rate"] == pytest.approx(truth.mean())
+    assert projected["projection"]["precision"]["value"] == pytest.approx(p * r / (p * r + (1 - p) * f))
+    assert projected["projection"]["false_alarms_per_10k"]["value"] == pytest.approx(10_000 * (1 - p) * f)
+    assert projected["projection"]["missed_per_10k"]["value"] == pytest.approx(10_000 * p * (1 - r))
+    with pytest.raises(Exception, match="not both"):
+        ReportSettings(threshold=0.5, threshold_log_odds=0.0)
+
+
+def test_audit_figures_are_the_ones_assess_computes(files, tmp_path, capsys):
+    """--slice-by and --label-errors: report and assess share one function, so their figures are equal."""
+    common = ("--slice-by", "sent_at:month", "--label-errors", "--folds", "3", "--normal-class", "ok")
+    report = nbledger(capsys, "report", files / "filter.skops", "--data", files / "test.csv", *common,
+                      "--redact", "none", "--out", tmp_path / "r.pdf", "--json", tmp_path / "r.json")
+    assert report.code == 0, report.err
+    assessed = nbledger(capsys, "assess", files / "filter.skops", files / "test.csv", "--text-col", "text",
+                        "--label-col", "label", *common, "--format", "json")
+    assert assessed.code == 0, assessed.err
+    mine = json.loads((tmp_path / "r.json").read_text(encoding="utf-8"))["assessment"]
+    theirs = json.loads(assessed.out)["assessment"]
+    assert mine["slices"] == theirs["slices"] and len(mine["slices"]["slices"]) > 2
+    assert mine["label_errors"]["suspected"] == theirs["label_errors"]["suspected"]
+    text = "\n".join(page.extract_text() for page in PdfReader(tmp_path / "r.pdf").pages)
+    for heading in ("Slices", "Suspected label errors", "Benjamini", "Northcutt"):
+        assert heading in text, heading
+
+
+def test_a_raw_e_mail_is_explained_in_the_text_view_why_uses(files, tmp_path, capsys):
+    """--explain FILE.eml reads the e-mail as why --file does, in the card's view or --text-view."""
+    eml = CORPUS / "examples" / "notice.eml"
+    for view in ([], ["--text-view", "subject+body"]):
+        made = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", "--explain", eml, *view,
+                        "--out", tmp_path / "r.pdf", "--json", tmp_path / "r.json")
+        assert made.code == 0, made.err
+        shown = json.loads((tmp_path / "r.json").read_text(encoding="utf-8"))["explained_messages"]["messages"][0]
+        why = nbledger(capsys, "why", files / "filter.skops", "--normal-class", "ok", "--file", eml, *view,
+                       "--format", "json")
+        assert why.code == 0, why.err
+        assert shown["id"] == "notice.eml"
+        assert shown["ledger"]["closing"] == json.loads(why.out)["ledger"]["closing"]
+        assert "Content-Type" not in (shown["text"] or "")
 
 
 # --- redaction -------------------------------------------------------------------------
@@ -340,6 +412,9 @@ def test_bad_input_is_one_line_and_writes_nothing(files, tmp_path, capsys):
     pd.DataFrame([{"id": 1, "body": "hello"}]).to_csv(tmp_path / "notext.csv", index=False)
     assert "no column 'text'" in _bad(capsys, files, tmp_path, "--explain", tmp_path / "notext.csv", *out)
     assert "--redact" in _bad(capsys, files, tmp_path, "--redact", "some", *out)
+    assert "--data" in _bad(capsys, files, tmp_path, "--slice-by", "sent_at:month", *out)
+    assert "--base-rate" in _bad(capsys, files, tmp_path, "--base-rate", "150%", *out)
+    assert "not both" in _bad(capsys, files, tmp_path, "--threshold", "0.5", "--threshold-log-odds", "0", *out)
 
 
 @pytest.mark.skipif(os.geteuid() == 0, reason="root may write anywhere")

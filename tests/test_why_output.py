@@ -46,7 +46,7 @@ def test_json_carries_the_documented_keys_and_adds_up(model, capsys):
     assert set(doc) == DOCUMENTED_KEYS | ADDED_KEYS and doc["schema"] == SCHEMA == "nbledger.why/2"
     ledger = doc["ledger"]
     assert math.isclose(ledger["opening"] + sum(e["amount"] for e in ledger["entries"]), ledger["closing"], rel_tol=1e-9)
-    assert ledger["credit_side"] == "not ok" and ledger["debit_class"] == "ok" and not ledger["exact"]
+    assert ledger["credit_side"] == "flagged" and ledger["debit_class"] == "ok" and not ledger["exact"]
     assert math.isclose(doc["baseline"] + sum(t["evidence"] for t in doc["tokens"]), doc["log_odds"], rel_tol=1e-9)
     assert math.isclose(sum(doc["probabilities"].values()), 1.0, rel_tol=1e-12)
     assert doc["normal_class"] == "ok" and doc["decision"] == doc["predicted"] == "scam"

@@ -181,7 +181,7 @@ class Ledger:
     line_inclusive : bool
         True when a balance exactly on the line goes to the credit side.
     credit_side : str
-        What a credit pushes toward: a class, or ``"not <normal>"`` with a
+        What a credit pushes toward: a class, or ``"flagged"`` with a
         threshold over several flagged classes.
     credit_classes : tuple of str
         The classes on the credit side (one, or every flagged class).
@@ -423,13 +423,13 @@ def ledger_of(
         method = f"log-odds of {c} against {d} = jll[{c}] - jll[{d}]"
         credit_name = classes[credit[0]]
     elif additive:
-        method = f"log P(not {normal_name}) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"
+        method = f"log P(flag) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"
         credit_name = classes[credit[0]]
     else:
         names = ", ".join(classes[c] for c in credit)
         # A logsumexp does not split into per-token shares: the entries say they are approximate.
-        method = f"log P(not {normal_name}) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]"
-        credit_name = f"not {normal_name}"
+        method = f"log P(flag) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]"
+        credit_name = "flagged"
 
     card = getattr(model, "card", None) or {}
     return Ledger(

@@ -41,8 +41,8 @@ class RankingQuality:
     n_positive: int
     n_negative: int
     auc: AucEstimate
-    roc_false_positive_rate: np.ndarray
-    roc_true_positive_rate: np.ndarray
+    roc_false_alarm_rate: np.ndarray
+    roc_recall: np.ndarray
     roc_thresholds: np.ndarray
     pr_precision: np.ndarray
     pr_recall: np.ndarray
@@ -54,9 +54,9 @@ class RankingQuality:
 class ThresholdFigures:
     """What flagging every message with log-odds ``>= threshold_log_odds`` does on the data.
 
-    ``false_alarms_per_10k`` and ``missed_per_10k`` are the expected false
-    alarms and missed abuse among 10,000 messages with the data's base rate
-    (``10000 * FP / N`` and ``10000 * FN / N``). ``expected_cost`` is
+    ``false_alarms_per_10k``, ``missed_per_10k`` and ``flagged_per_10k`` are the expected false
+    alarms, missed messages and flagged messages among 10,000 messages with the data's base rate
+    (``10000 * FP / N``, ``10000 * FN / N`` and ``10000 * (TP + FP) / N``). ``expected_cost`` is
     ``(cost_fp * FP + cost_fn * FN) / N`` per message when costs were given.
     ``projection`` carries the figures to traffic with another share of
     abuse when one was given (:class:`~explain.analysis.rates.Projection`).
@@ -72,9 +72,10 @@ class ThresholdFigures:
     tn: int
     precision: Rate
     recall: Rate
-    false_positive_rate: Rate
+    false_alarm_rate: Rate
     false_alarms_per_10k: float
     missed_per_10k: float
+    flagged_per_10k: float
     expected_cost: float | None
     projection: Projection | None = None
 
@@ -163,8 +164,8 @@ def ranking_quality(positive_name: str, scores: np.ndarray, positive: np.ndarray
         n_positive=sw.n_positive,
         n_negative=sw.n_negative,
         auc=delong_auc(scores, positive, confidence),
-        roc_false_positive_rate=frozen(sw.fp[keep] / sw.n_negative),
-        roc_true_positive_rate=frozen(sw.tp[keep] / sw.n_positive),
+        roc_false_alarm_rate=frozen(sw.fp[keep] / sw.n_negative),
+        roc_recall=frozen(sw.tp[keep] / sw.n_positive),
         roc_thresholds=frozen(sw.thresholds[keep]),
         pr_precision=frozen(precision[pr_keep]),
         pr_recall=frozen(recall[pr_keep]),
@@ -193,9 +194,10 @@ def threshold_figures(threshold: float, tp: int, fp: int, n_pos: int, n_neg: int
         tn=int(tn),
         precision=rate_of(tp, tp + fp, confidence),
         recall=recall,
-        false_positive_rate=fpr,
+        false_alarm_rate=fpr,
         false_alarms_per_10k=PER_MESSAGES * fp / n,
         missed_per_10k=PER_MESSAGES * fn / n,
+        flagged_per_10k=PER_MESSAGES * (tp + fp) / n,
         expected_cost=cost,
         projection=projection,
     )

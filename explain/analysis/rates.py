@@ -67,7 +67,7 @@ class BinaryMetrics:
     precision: Rate
     recall: Rate
     specificity: Rate
-    false_positive_rate: Rate
+    false_alarm_rate: Rate
     f1: Rate
     accuracy: Rate
 
@@ -83,7 +83,7 @@ def binary_metrics(positive: str, tp: int, fp: int, fn: int, tn: int, confidence
         precision=rate_of(tp, tp + fp, confidence),
         recall=rate_of(tp, tp + fn, confidence),
         specificity=rate_of(tn, tn + fp, confidence),
-        false_positive_rate=rate_of(fp, fp + tn, confidence),
+        false_alarm_rate=rate_of(fp, fp + tn, confidence),
         f1=f1_rate_of(tp, fp, fn, confidence),
         accuracy=rate_of(tp + tn, tp + fp + fn + tn, confidence),
     )
@@ -157,7 +157,7 @@ class Projection:
     flagged_per_10k: Estimate
 
 
-def project_to_base_rate(recall: Rate, false_positive_rate: Rate, base_rate: float) -> Projection:
+def project_to_base_rate(recall: Rate, false_alarm_rate: Rate, base_rate: float) -> Projection:
     """Bayes' rule on measured rates for a share ``base_rate`` of abuse (see :class:`Projection`).
 
     Examples
@@ -178,7 +178,7 @@ def project_to_base_rate(recall: Rate, false_positive_rate: Rate, base_rate: flo
         flagged = p * r + (1 - p) * f
         return p * r / flagged if flagged > 0 else float("nan")
 
-    r, f = recall, false_positive_rate
+    r, f = recall, false_alarm_rate
     scale = PER_MESSAGES
     return Projection(
         base_rate=p,

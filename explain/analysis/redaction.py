@@ -34,9 +34,9 @@ def mask_value(value: str) -> str:
 
 def redact_assessment(assessment, mode: str):
     """An :class:`~explain.analysis.assessment.Assessment` whose error review shows no personal value (ids and tokens)."""
-    errors = assessment.errors
-    if mode == "none" or errors is None:
+    if mode == "none":
         return assessment
+    errors = assessment.errors
 
     def pushes(ps):
         return tuple(dataclasses.replace(p, token=mask_value(p.token)) for p in ps)
@@ -46,15 +46,31 @@ def redact_assessment(assessment, mode: str):
             m, id=mask_value(m.id), toward_flag=pushes(m.toward_flag), toward_normal=pushes(m.toward_normal)
         )
 
-    masked = dataclasses.replace(
-        errors,
-        false_alarms=tuple(map(message, errors.false_alarms)),
-        missed=tuple(map(message, errors.missed)),
-        borderline=tuple(map(message, errors.borderline)),
-        false_alarm_drivers=pushes(errors.false_alarm_drivers),
-        missed_drivers=pushes(errors.missed_drivers),
-    )
-    return dataclasses.replace(assessment, errors=masked)
+    if errors is not None:
+        errors = dataclasses.replace(
+            errors,
+            false_alarms=tuple(map(message, errors.false_alarms)),
+            missed=tuple(map(message, errors.missed)),
+            borderline=tuple(map(message, errors.borderline)),
+            false_alarm_drivers=pushes(errors.false_alarm_drivers),
+            missed_drivers=pushes(errors.missed_drivers),
+        )
+    suspected = assessment.label_errors
+    if suspected is not None:
+        suspected = dataclasses.replace(suspected, suspected=tuple(
+            dataclasses.replace(s, id=mask_value(s.id), toward_favoured=pushes(s.toward_favoured),
+                                toward_label=pushes(s.toward_label))
+            for s in suspected.suspected
+        ))
+    slices = assessment.slices
+    if slices is not None:
+        # a slice is named by a value of the data (a sender, a term): masked like any token
+        def named(group):
+            return tuple(dataclasses.replace(x, name=mask_value(x.name)) for x in group)
+
+        slices = dataclasses.replace(slices, slices=named(slices.slices), differing=named(slices.differing),
+                                     most_different=named(slices.most_different))
+    return dataclasses.replace(assessment, errors=errors, label_errors=suspected, slices=slices)
 
 
 def withhold_text(ledger):

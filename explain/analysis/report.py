@@ -18,6 +18,7 @@ import numpy as np
 from explain.analysis.assessment import Assessment, assess
 from explain.analysis.batch import batch_evidence
 from explain.analysis.ledger import Ledger, ledger_of, redacted
+from explain.analysis.rates import Projection, project_to_base_rate
 from explain.analysis.redaction import MODES, mask_value, redact_assessment, withhold_text
 from explain.analysis.risk import Watchlist
 from explain.analysis.vocab import VocabReview, review_vocabulary
@@ -40,6 +41,10 @@ class ReportSettings:
     paper: str = "a4"
     max_messages: int = DEFAULT_MAX_MESSAGES
     threshold: float | None = None
+    #: the same threshold on the flag log-odds scale, exact (as ``assess`` prints it); at most one of the two
+    threshold_log_odds: float | None = None
+    #: the share of flagged-class messages in real traffic: the summary adds projected figures for it
+    base_rate: float | None = None
 
     def __post_init__(self):
         if self.redact not in MODES:
@@ -50,6 +55,12 @@ class ReportSettings:
             raise NbledgerError(f"--max-messages must be at least 1, got {self.max_messages}")
         if self.threshold is not None and not 0.0 < self.threshold < 1.0:
             raise NbledgerError(f"--threshold must be a probability between 0 and 1, got {self.threshold}")
+        if self.threshold is not None and self.threshold_log_odds is not None:
+            raise NbledgerError("give --threshold or --threshold-log-odds, not both")
+        if self.threshold_log_odds is not None and not np.isfinite(self.threshold_log_odds):
+            raise NbledgerError(f"--threshold-log-odds must be a finite number, got {self.threshold_log_odds}")
+        if self.base_rate is not None and not 0.0 < self.base_rate < 1.0:
+            raise NbledgerError(f"--base-rate must be a share between 0 and 1, got {self.base_rate}")
 
 
 @dataclass(frozen=True)
@@ -114,17 +125,23 @@ class Headline:
     ``false_alarms``: normal messages flagged per 10,000 normal messages (the
     false-positive rate); ``missed``: messages of the flagged classes let
     through per 10,000 of them (one minus recall, its interval mirrored).
+    ``base_rate``: the measured share of flagged-class messages in the data;
+    ``projection``: with a ``--base-rate``, the figures per 10,000 messages of
+    traffic with that share, by Bayes' rule from the measured recall and
+    false-alarm rate (:func:`explain.analysis.rates.project_to_base_rate`), else None.
     """
 
     false_alarms: PerTenThousand
     missed: PerTenThousand
+    base_rate: float
+    projection: Projection | None
 
 
-def headline(assessment: Assessment | None) -> Headline | None:
+def headline(assessment: Assessment | None, base_rate: float | None = None) -> Headline | None:
     if assessment is None or assessment.flag_metrics is None:
         return None
     m = assessment.flag_metrics
-    fpr, recall = m.false_positive_rate, m.recall
+    fpr, recall = m.false_alarm_rate, m.recall
     scale = 10_000
     return Headline(
         false_alarms=PerTenThousand(scale * fpr.value, scale * fpr.low, scale * fpr.high, fpr.numerator, fpr.denominator),
@@ -132,6 +149,8 @@ def headline(assessment: Assessment | None) -> Headline | None:
             scale * (1 - recall.value), scale * (1 - recall.high), scale * (1 - recall.low),
             recall.denominator - recall.numerator, recall.denominator,
         ),
+        base_rate=float(recall.denominator / (fpr.denominator + recall.denominator)),
+        projection=None if base_rate is None else project_to_base_rate(recall, fpr, base_rate),
     )
 
 
@@ -185,13 +204,13 @@ def versions() -> dict:
             "weasyprint": weasyprint.__version__}
 
 
-def flagged_sample(model, texts, threshold: float | None, n: int) -> np.ndarray:
+def flagged_sample(model, texts, threshold: float | None, n: int, threshold_log_odds: float | None = None) -> np.ndarray:
     """Rows of ``n`` flagged messages spread evenly over the flagged ones ranked by score (strongest first).
 
     The spread shows clear cases and cases near the decision line alike.
     """
     view = model.view
-    rule = DecisionRule.for_view(view, threshold)
+    rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     scored = batch_evidence(view, model.featurizer.transform(texts), rule, top_k=1)
     normal = scored.normal_index
     flagged = np.flatnonzero(scored.decision != normal) if normal is not None else np.arange(len(texts))
@@ -218,6 +237,8 @@ def build_report(
     explain=None,
     watchlist: Watchlist | None = None,
     on_step=lambda name: None,
+    slices=(),
+    label_errors=None,
 ) -> Report:
     """Compute everything the report shows.
 
@@ -229,6 +250,9 @@ def build_report(
     explain : :class:`~explain.model.data_io.Messages` to explain, or None (then a
         sample of flagged messages of ``data``).
     watchlist : terms the vocabulary review reports whatever their evidence.
+    slices, label_errors : the assessment's audit inputs, as
+        :func:`explain.analysis.assessment.assess` takes them (slice groups;
+        :class:`~explain.analysis.label_errors.LabelErrors` or None).
     on_step : called with the name of each step as it starts (progress display).
     """
     date = report_date()
@@ -240,7 +264,10 @@ def build_report(
         on_step(f"assessing on {len(data):,} labelled messages")
         X = model.featurizer.transform(data.texts)
         assessment = redact_assessment(
-            assess(model.view, X, data.labels, threshold=settings.threshold, ids=data.ids), redact
+            assess(model.view, X, data.labels, threshold=settings.threshold,
+                   threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
+                   slices=list(slices), label_errors=label_errors),
+            redact,
         )
     on_step("explaining messages")
     if explain is not None:
@@ -248,13 +275,15 @@ def build_report(
         rows = np.arange(len(texts))
     elif data is not None:
         source, texts, ids = "sample", data.texts, data.ids
-        rows = flagged_sample(model, texts, settings.threshold, settings.max_messages)
+        rows = flagged_sample(model, texts, settings.threshold, settings.max_messages, settings.threshold_log_odds)
     else:
         source, texts, ids, rows = None, [], [], np.arange(0)
     total = len(texts) if source == "file" else len(rows)
     explained = tuple(
         _redacted_ledger(
-            ledger_of(model, texts[i], settings.threshold, message_id=str(ids[i]), watchlist=watchlist), redact
+            ledger_of(model, texts[i], settings.threshold, threshold_log_odds=settings.threshold_log_odds,
+                      message_id=str(ids[i]), watchlist=watchlist),
+            redact,
         )
         for i in rows[: settings.max_messages]
         if texts[i].strip()
@@ -269,7 +298,7 @@ def build_report(
         watchlist=watchlist,
         vocab=vocab,
         assessment=assessment,
-        headline=headline(assessment),
+        headline=headline(assessment, settings.base_rate),
         explained=explained,
         explained_source=source,
         explained_total=total,

@@ -10,8 +10,9 @@ import typer
 
 from explain.cli import (
     LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
-    labelled_or_fail, load_model_or_fail, model_inputs, parse_size, plain_text, read_messages_or_fail,
+    labelled_or_fail, load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
 )
+from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
 
@@ -55,25 +56,23 @@ def assess(
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the true class."),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
     ),
     threshold_log_odds: Optional[float] = typer.Option(
         None, "--threshold-log-odds",
-        help="Flag when log P(not normal) - log P(normal) >= L, exactly (as printed for each operating point).",
+        help="Flag when the flag log-odds >= L, exactly (as printed for each operating point).",
     ),
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: project the figures to it."
     ),
     slice_by: Optional[List[str]] = typer.Option(
-        None, "--slice-by", help="Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month)."
+        None, "--slice-by", help=SLICE_BY_HELP
     ),
     watchlist: Optional[Path] = typer.Option(
         None, "--watchlist", help="UTF-8 file of terms (one a line, # comments): error rates of messages holding each."
     ),
-    label_errors: bool = typer.Option(
-        False, "--label-errors", help="List messages whose label may be wrong (refits the model's pipeline on folds of DATA)."
-    ),
-    folds: int = typer.Option(5, "--folds", help="Folds for --label-errors."),
+    label_errors: bool = typer.Option(False, "--label-errors", help=LABEL_ERRORS_HELP),
+    folds: int = typer.Option(5, "--folds", help=FOLDS_HELP),
     id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding the message id (default: id, if present)."),
     target_fpr: Optional[List[str]] = typer.Option(
         None, "--target-fpr", help="False-alarm rate to stay within, e.g. 0.5% (repeatable; default 0.1%, 0.5%, 1%)."
@@ -103,8 +102,7 @@ def assess(
     max_bytes: int = MAX_BYTES,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
-    from explain.analysis import slices as slicing
-    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL, class_indices
+    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
     from explain.analysis.assessment import assess as run_assessment
     from explain.present.assessment import render, to_json
 
@@ -118,8 +116,7 @@ def assess(
     prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
     if threshold is not None and threshold_log_odds is not None:
         fail("give --threshold or --threshold-log-odds, not both")
-    if folds < 2:
-        fail(f"--folds must be at least 2, got {folds}")
+    check_folds(folds)
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
         if out is not None:
             outputs.file(out)
@@ -137,25 +134,13 @@ def assess(
             data,
         )
         X = loaded.featurizer.transform(messages.texts)
-        groups = [slicing.by_length(messages.texts)] if (slice_by or watchlist) else []
-        for spec in slice_by or ():
-            from explain.model.data_io import read_column
-
-            column, period = slicing.parse_slice_spec(spec)
-            values = read_column(data, column, parse_size(max_data_bytes, "--max-data-bytes"))
-            groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))
+        terms = None
         if watchlist is not None:
             from explain.analysis.risk import read_watchlist
 
-            groups.append(slicing.by_terms(messages.texts, read_watchlist(watchlist).terms))
-        suspected = None
-        if label_errors:
-            from explain.analysis.label_errors import label_errors as find_label_errors
-            from explain.analysis.label_errors import out_of_sample_probabilities
-
-            truth = class_indices(loaded.view, messages.labels)
-            probabilities = out_of_sample_probabilities(loaded.unfitted_copy(), messages.texts, truth, loaded.classes, folds)
-            suspected = find_label_errors(loaded.view, X, truth, messages.ids, probabilities, folds=folds)
+            terms = read_watchlist(watchlist).terms
+        groups, suspected = audit_inputs(loaded, messages, X, data, slice_by=slice_by, terms=terms,
+                                         label_errors=label_errors, folds=folds, max_data_bytes=max_data_bytes)
         result = run_assessment(
             loaded.view,
             X,

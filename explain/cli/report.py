@@ -16,6 +16,8 @@ from explain.cli import (
     LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, err_console, fail, load_model_or_fail,
     model_inputs, read_messages_or_fail,
 )
+from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
@@ -32,19 +34,27 @@ def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     return path
 
 
-def read_explain(path: Path, text_col: str):
-    """Messages to explain: a data file (its ``text_col``), or a ``.txt`` file holding one message."""
+def read_explain(path: Path, text_col: str, mail):
+    """Messages to explain: a data file (its ``text_col``), or a ``.txt``/``.eml`` file holding one message.
+
+    A raw e-mail is read as ``why`` reads it, in the text view ``mail.view``
+    (the model card's unless ``--text-view`` says otherwise); the message is
+    named by its file name, as ``why --file`` names it.
+    """
+    from explain.cli.why import read_one
     from explain.model.data_io import Messages, decode_utf8
 
-    if path.suffix.lower() != ".txt":
-        return read_messages_or_fail(path, text_col)
+    if path.suffix.lower() not in (".txt", ".eml"):
+        return read_messages_or_fail(path, text_col, mail=mail)
     if not path.is_file():
         fail(f"no message file at {path}")
     raw = path.read_bytes()
     text, replaced = decode_utf8(raw)
     if not text.strip():
         fail(f"{path.name} is empty")
-    ids = np.asarray([path.stem], dtype=object)
+    as_email = path.suffix.lower() == ".eml"
+    _, text, _ = read_one(raw if as_email else text, as_email, mail.view)
+    ids = np.asarray([path.name], dtype=object)
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 
 
@@ -80,12 +90,22 @@ def report(
     text_col: str = typer.Option("text", "--text-col", help="Column holding the message text (--data, --explain)."),
     label_col: str = typer.Option("label", "--label-col", help="Column of --data holding the true class."),
     explain: Optional[Path] = typer.Option(
-        None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt file of one message."
+        None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt/.eml file of one message."
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
     ),
+    threshold_log_odds: Optional[float] = typer.Option(
+        None, "--threshold-log-odds",
+        help="Flag when the flag log-odds >= L, exactly (as assess and the report print each operating point).",
+    ),
+    base_rate: Optional[str] = typer.Option(
+        None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: the summary adds a projection."
+    ),
+    slice_by: Optional[List[str]] = typer.Option(None, "--slice-by", help=SLICE_BY_HELP + " Needs --data."),
+    label_errors: bool = typer.Option(False, "--label-errors", help=LABEL_ERRORS_HELP.replace("DATA", "--data")),
+    folds: int = typer.Option(5, "--folds", help=FOLDS_HELP),
     watchlist: Optional[Path] = typer.Option(
         None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
     ),
@@ -101,6 +121,10 @@ def report(
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
@@ -109,6 +133,7 @@ def report(
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings, build_report
     from explain.analysis.risk import read_watchlist
+    from explain.cli.assess import parse_fraction
     from explain.output_files import OutputSet
     from explain.present.report import draw_pictures, render_html, render_pdf
     from explain.present.report_json import dumps, to_json
@@ -122,11 +147,16 @@ def report(
         fail("--out, --html and --json must be different files")
     settings = ReportSettings(
         title=title, organisation=organisation, redact=redact, paper=paper, max_messages=max_messages,
-        threshold=threshold,
+        threshold=threshold, threshold_log_odds=threshold_log_odds,
+        base_rate=None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
     )
     terms = read_watchlist(watchlist) if watchlist is not None else None
+    check_folds(folds)
+    if (slice_by or label_errors) and data is None:
+        fail("--slice-by and --label-errors need labelled data (--data)")
 
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(8) as step:
+    total = 9 if (slice_by or label_errors) else 8
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(total) as step:
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
@@ -135,12 +165,22 @@ def report(
             max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
         )
         step("reading the data")
+        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
         messages = (
-            read_messages_or_fail(data, text_col, label_col, max_data_bytes=max_data_bytes) if data is not None else None
+            read_messages_or_fail(data, text_col, label_col, mail, max_data_bytes=max_data_bytes)
+            if data is not None else None
         )
-        to_explain = read_explain(explain, text_col) if explain is not None else None
+        to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email)) if explain else None
+        groups, suspected = [], None
+        if slice_by or label_errors:
+            step("slicing the data" if not label_errors else "refitting on folds to find suspected label errors")
+            groups, suspected = audit_inputs(
+                loaded, messages, loaded.featurizer.transform(messages.texts), data, slice_by=slice_by,
+                terms=terms.terms if (slice_by and terms is not None) else None, label_errors=label_errors,
+                folds=folds, max_data_bytes=max_data_bytes,
+            )
         result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
-                              on_step=step)
+                              on_step=step, slices=groups, label_errors=suspected)
         step("drawing the pictures")
         twin = to_json(result)
         pictures = draw_pictures(result)

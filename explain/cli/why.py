@@ -172,10 +172,10 @@ def why(
     ),
     top: int = typer.Option(10, "--top", min=1, help="Largest entries to keep when a long message is folded."),
     threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."
+        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
     ),
     threshold_log_odds: Optional[float] = typer.Option(
-        None, "--threshold-log-odds", help="Flag when log P(not normal) - log P(normal) >= L, exactly (as assess prints it)."
+        None, "--threshold-log-odds", help="Flag when the flag log-odds >= L, exactly (as assess prints it)."
     ),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
     output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),

@@ -50,7 +50,7 @@ def roc_picture(result: Assessment) -> bytes:
     for r in _rankings(result):
         colour = colours[r.positive]
         for ax in (linear, logx):
-            ax.plot(r.roc_false_positive_rate, r.roc_true_positive_rate, color=colour, lw=1.8, label=_auc_label(r))
+            ax.plot(r.roc_false_alarm_rate, r.roc_recall, color=colour, lw=1.8, label=_auc_label(r))
     chance = np.linspace(1e-4, 1, 200)
     for ax in (linear, logx):
         ax.plot(chance, chance, color=NEUTRAL.base, ls=":", lw=1, label="chance")
@@ -69,13 +69,13 @@ def roc_picture(result: Assessment) -> bytes:
         f = p.figures
         in_use = p.kind == "in use"
         for ax in (linear, logx):
-            ax.plot(f.false_positive_rate.value, f.recall.value, "*" if in_use else "o", color=MARK,
+            ax.plot(f.false_alarm_rate.value, f.recall.value, "*" if in_use else "o", color=MARK,
                     ms=11 if in_use else 5, zorder=5, label="threshold in use" if in_use and ax is linear else None)
         if in_use:
             continue
-        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {f.threshold_log_odds:.2f}")
+        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {float(f.threshold_log_odds)!r}")
         # numbers, not names, beside the dots: operating points crowd together near the top left
-        logx.annotate(str(len(key)), (max(f.false_positive_rate.value, 1e-4), f.recall.value), fontsize=7,
+        logx.annotate(str(len(key)), (max(f.false_alarm_rate.value, 1e-4), f.recall.value), fontsize=7,
                       xytext=(3, -9), textcoords="offset points", color=MARK)
     if key:
         logx.text(1.03, 1.0, "operating points\n" + "\n".join(key), transform=logx.transAxes, fontsize=7,

@@ -215,7 +215,7 @@ def _base_rates(result: Assessment, console: Console) -> None:
     rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
         rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
-    _emit(console, f"base rates ({b.n_messages} messages)", ["class", "messages", f"base rate ({_level(result)} Wilson interval)"], rows)
+    _emit(console, f"base rates ({b.n_messages:,} messages)", ["class", "messages", f"base rate ({_level(result)} Wilson interval)"], rows)
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
@@ -229,7 +229,7 @@ def _confusion(matrix, title: str, console: Console) -> None:
 
 METRICS = (
     (("precision", "precision"), ("recall", "recall")),
-    (("specificity", "specificity"), ("false-alarm rate", "false_positive_rate")),
+    (("specificity", "specificity"), ("false-alarm rate", "false_alarm_rate")),
     (("F1", "f1"), ("accuracy", "accuracy")),
 )
 
@@ -281,8 +281,8 @@ def _operating_points(result: Assessment, console: Console) -> None:
             rows.append([Text(point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", ""])
             continue
         rows.append([Text(point_label(p)), _num(f.threshold_log_odds), _prob(f.threshold_probability),
-                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_positive_rate.value)])
-        row = [Text(point_label(p)), str(f.tp + f.fp), f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
+                     _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_alarm_rate.value)])
+        row = [Text(point_label(p)), f"{f.flagged_per_10k:.1f}", f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))
         expected.append(row)

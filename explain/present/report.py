@@ -27,6 +27,8 @@ from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
 from explain.analysis.report import Report
+from explain.analysis.risk import FLAG_LABELS
+from explain.present import assessment as assessment_screen
 from explain.present import wording
 from explain.present.drawing import class_colours
 from explain.present.report_json import LEDGER_ROWS, to_json
@@ -52,15 +54,30 @@ def environment():
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds)
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds,
+                       exact=_exact, prob=_prob, flag_label=lambda name: FLAG_LABELS.get(name, name))
     return env
 
 
 # --- number formats (formatting only: every value comes from the JSON twin) -------
 
 
+def _prob(p) -> str:
+    """A probability as ``assess`` prints it: never rounded to certainty (``1 - 2.7e-15``)."""
+    return "–" if p is None else assessment_screen._prob(p)
+
+
+def _exact(x) -> str:
+    """A threshold log-odds with every digit, as typed back to ``--threshold-log-odds`` (as ``assess`` prints it)."""
+    return "–" if x is None else repr(float(x))
+
+
+#: a no-break space: a figure, its unit and its interval never part across lines (the glossary's rule)
+NBSP = "\u00a0"
+
+
 def _pct(x, digits: int = 1) -> str:
-    return "–" if x is None else f"{100 * x:.{digits}f} %"
+    return "–" if x is None else f"{100 * x:.{digits}f}{NBSP}%"
 
 
 def _num(x, digits: int = 3) -> str:
@@ -75,7 +92,8 @@ def _rate(r: dict, digits: int = 1) -> str:
     if r is None or r["denominator"] == 0 or r["value"] is None:
         return "undefined (0 of 0)"
     # the glossary's one style: the estimate, then the interval in round brackets with "to"
-    return f"{100 * r['value']:.{digits}f} % ({100 * r['low']:.{digits}f} to {100 * r['high']:.{digits}f})"
+    low, high = f"{100 * r['low']:.{digits}f}", f"{100 * r['high']:.{digits}f}"
+    return f"{100 * r['value']:.{digits}f}{NBSP}%{NBSP}({low}{NBSP}to{NBSP}{high})"
 
 
 # --- pictures ------------------------------------------------------------------------

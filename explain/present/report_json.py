@@ -65,6 +65,8 @@ def to_json(report: Report) -> dict:
             "redaction": s.redact,
             "paper": s.paper,
             "threshold": s.threshold,
+            "threshold_log_odds": s.threshold_log_odds,
+            "base_rate": s.base_rate,
             "versions": report.versions,
             "model": dataclasses.asdict(report.facts),
             "data": data,

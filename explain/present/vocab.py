@@ -218,7 +218,10 @@ def _fmt(x) -> str:
     x = float(x)
     if not math.isfinite(x):
         return "-"
-    return f"{x:,.0f}" if abs(x) >= 1000 else f"{x:.3g}"
+    if abs(x) >= 100:
+        return f"{x:,.0f}"
+    # three significant digits, trailing zeros kept, so a column does not mix 5.1 with 5.13
+    return f"{x:#.3g}"
 
 
 def _count(x) -> str:
@@ -361,7 +364,7 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
         console.print(_token_table(review, c, picked, side, console.width >= WIDE_TERMINAL))
     # name=count keeps each pair on one line when the terminal wraps
     counts = ", ".join(f"{FLAG_LABELS[name]}={c.flag_counts[name]:,}" for name in FLAGS)
-    console.print(f"flags: {counts}", markup=False)
+    console.print(_hanging(f"flags: {counts}", console.width), markup=False)
     for name in FLAGS:
         if name == "watchlist" or not c.flag_counts[name]:
             continue
@@ -371,7 +374,14 @@ def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
             f"{review.tokens[j]} ({_shown_value(c, review.lens, j)} for {c.target if values[j] >= 0 else c.other})"
             for j in examples
         )
-        console.print(f"  strongest {FLAG_LABELS[name]}: {listed}", markup=False)
+        console.print(_hanging(f"  strongest {FLAG_LABELS[name]}: {listed}", console.width), markup=False)
+
+
+def _hanging(line: str, width: int) -> str:
+    """``line`` folded at ``width`` between list items' words, the folded lines indented under the first."""
+    import textwrap
+
+    return textwrap.fill(line, width=width, subsequent_indent="      ", break_long_words=False, break_on_hyphens=False)
 
 
 def _watchlist(review: VocabReview, c: Contrast) -> Table:

@@ -26,9 +26,9 @@ key                    meaning
 ``baseline``           ``b[predicted] - b[runner_up]``: prior + absence evidence
 ``baseline_prior``     the log-prior part of ``baseline``
 ``baseline_absence``   BernoulliNB's absent-token part of ``baseline`` (else 0)
-``threshold``          threshold on P(not normal), or null for argmax
+``threshold``          threshold on P(flag), or null for argmax
 ``normal_class``       the class that lets a message through, or null
-``flag_probability``   P(not normal), or null without a normal class
+``flag_probability``   P(flag) = P(not normal), or null without a normal class
 ``decision``           the class decided under the threshold (or argmax)
 ``tokens``             list of ``{token, occurrences, value, per_unit, evidence,
                        odds_factor, spans}``; ``baseline + sum(evidence) ==
@@ -265,12 +265,12 @@ def ledger_rows(ledger: Ledger, top: int):
 
 
 def _head(ledger: Ledger, date: str | None) -> list[Text]:
-    title = Text("LEDGER OF ONE DECISION", style="bold")
+    # stacked, one fact a line: an id and a date side by side fold at 80 columns
+    lines = [Text("LEDGER OF ONE DECISION", style="bold")]
     if ledger.message_id is not None:
-        title.append(f"   message {ledger.message_id}")
+        lines.append(Text(f"message {ledger.message_id}"))
     if date is not None:
-        title.append(f"   recorded {date}")
-    lines = [title]
+        lines.append(Text(f"recorded {date}"))
     if ledger.model_path is not None:
         name = ledger.model_path.replace("\\", "/").rsplit("/", 1)[-1]
         card = f"card of {ledger.card_date}" if ledger.card_date else "no model card"
@@ -284,7 +284,8 @@ def _head(ledger: Ledger, date: str | None) -> list[Text]:
 def probability_line(ledger: Ledger) -> str:
     probs = dict(zip(ledger.classes, ledger.probabilities))
     if ledger.normal_class is not None and ledger.flag_probability is not None:
-        return f"P(not {ledger.normal_class}) = " + probability(
+        # the glossary's one name, said once in the normal class's own words
+        return f"P(flag) = P(not {ledger.normal_class}) = " + probability(
             ledger.flag_probability, probs[ledger.normal_class]
         )
     top = ledger.explanation.predicted
@@ -294,7 +295,7 @@ def probability_line(ledger: Ledger) -> str:
 def rule_line(ledger: Ledger) -> str:
     if ledger.rule == "threshold":
         return (
-            f"rule: flag when P(not {ledger.normal_class}) >= {ledger.threshold:g}, that is when the "
+            f"rule: flag when P(flag) >= {ledger.threshold:g}, that is when the "
             f"balance is at least logit({ledger.threshold:g}) = {ledger.decision_line:+.2f}"
         )
     tie = "or equal to " if ledger.line_inclusive else ""
