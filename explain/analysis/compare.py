@@ -87,7 +87,10 @@ class PriorChange:
 
 @dataclass(frozen=True)
 class VocabularyChange:
-    """Tokens added, removed and shared (by text), and the contrasts compared on the shared ones."""
+    """Tokens added, removed and shared (by text), and the contrasts compared on the shared ones.
+
+    ``added`` and ``removed`` are ordered by use in training, most used first.
+    """
 
     old_size: int
     new_size: int
@@ -228,6 +231,14 @@ def _contrast_change(old_view, new_view, target: str, other: str, old_cols, new_
     return ContrastChange(target, other, up, down, ranks)
 
 
+def _by_use(view, tokens: np.ndarray, keep: np.ndarray) -> tuple[str, ...]:
+    """The kept tokens, most used in training first (summed feature counts over classes), ties by text."""
+    cols = np.flatnonzero(keep)
+    use = view.feature_count[:, cols].sum(axis=0)
+    order = np.lexsort((tokens[cols], -use))
+    return tuple(tokens[cols][order].tolist())
+
+
 def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP) -> VocabularyChange:
     """Tokens added and removed, evidence shifts and z-score rank changes on the shared tokens, priors."""
     from explain.analysis.vocab import review_vocabulary
@@ -236,8 +247,8 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     old_tokens = np.asarray(old_view.tokens, dtype=object).astype(str)
     new_tokens = np.asarray(new_view.tokens, dtype=object).astype(str)
     shared, old_cols, new_cols = np.intersect1d(old_tokens, new_tokens, assume_unique=True, return_indices=True)
-    added = tuple(np.setdiff1d(new_tokens, old_tokens, assume_unique=True).tolist())
-    removed = tuple(np.setdiff1d(old_tokens, new_tokens, assume_unique=True).tolist())
+    added = _by_use(new_view, new_tokens, np.isin(new_tokens, old_tokens, invert=True))
+    removed = _by_use(old_view, old_tokens, np.isin(old_tokens, new_tokens, invert=True))
     contrasts: list[ContrastChange] = []
     if normal_class is not None and len(shared):
         reviews = [review_vocabulary(m.view.with_normal_class(normal_class), lens="zscore") for m in (old, new)]
@@ -368,3 +379,32 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
         threshold=threshold, same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
         notes=tuple(notes),
     )
+
+
+def redacted_comparison(comparison: Comparison) -> Comparison:
+    """The same comparison with personal-looking values masked in tokens, ids and both ledgers of each message."""
+    from dataclasses import replace
+
+    from explain.analysis.ledger import redacted
+    from explain.analysis.redaction import mask_value
+
+    def shifts(items):
+        return tuple(replace(s, token=mask_value(s.token)) for s in items)
+
+    vocab = comparison.vocabulary
+    vocab = replace(
+        vocab,
+        added=tuple(map(mask_value, vocab.added)),
+        removed=tuple(map(mask_value, vocab.removed)),
+        contrasts=tuple(
+            replace(c, shifts_up=shifts(c.shifts_up), shifts_down=shifts(c.shifts_down), ranks=shifts(c.ranks))
+            for c in vocab.contrasts
+        ),
+    )
+    decisions = comparison.decisions
+    if decisions is not None:
+        decisions = replace(decisions, shown=tuple(
+            replace(m, message_id=mask_value(m.message_id), old=redacted(m.old), new=redacted(m.new))
+            for m in decisions.shown
+        ))
+    return replace(comparison, vocabulary=vocab, decisions=decisions)
