@@ -235,8 +235,8 @@ def _by_use(view, tokens: np.ndarray, keep: np.ndarray) -> tuple[str, ...]:
     """The kept tokens, most used in training first (summed feature counts over classes), ties by text."""
     cols = np.flatnonzero(keep)
     use = view.feature_count[:, cols].sum(axis=0)
-    order = np.lexsort((tokens[cols], -use))
-    return tuple(tokens[cols][order].tolist())
+    order = sorted(range(len(cols)), key=lambda i: (-use[i], tokens[cols[i]]))
+    return tuple(str(tokens[cols[i]]) for i in order)
 
 
 def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP) -> VocabularyChange:
@@ -244,11 +244,19 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     from explain.analysis.vocab import review_vocabulary
 
     old_view, new_view = old.view, new.view
-    old_tokens = np.asarray(old_view.tokens, dtype=object).astype(str)
-    new_tokens = np.asarray(new_view.tokens, dtype=object).astype(str)
-    shared, old_cols, new_cols = np.intersect1d(old_tokens, new_tokens, assume_unique=True, return_indices=True)
-    added = _by_use(new_view, new_tokens, np.isin(new_tokens, old_tokens, invert=True))
-    removed = _by_use(old_view, old_tokens, np.isin(old_tokens, new_tokens, invert=True))
+    # Dictionaries, not numpy's set operations on fixed-width strings: one long
+    # token would widen every element of the array.
+    old_tokens = np.asarray([str(t) for t in old_view.tokens], dtype=object)
+    new_tokens = np.asarray([str(t) for t in new_view.tokens], dtype=object)
+    new_index = {t: j for j, t in enumerate(new_tokens)}
+    found = np.fromiter((new_index.get(t, -1) for t in old_tokens), dtype=np.int64, count=len(old_tokens))
+    old_cols = np.flatnonzero(found >= 0)
+    new_cols = found[old_cols]
+    shared = old_tokens[old_cols]
+    in_old = np.zeros(len(new_tokens), dtype=bool)
+    in_old[new_cols] = True
+    added = _by_use(new_view, new_tokens, ~in_old)
+    removed = _by_use(old_view, old_tokens, found < 0)
     contrasts: list[ContrastChange] = []
     if normal_class is not None and len(shared):
         reviews = [review_vocabulary(m.view.with_normal_class(normal_class), lens="zscore") for m in (old, new)]
