@@ -32,10 +32,13 @@ _CURRENCY = "$£€¥₹₩₽¢"
 # Top-level names a bare address must end in, so that "end.then" (a missing
 # space) stays two words; country names that are also English words
 # (at, be, in, it, me, no, so, us) are left out for the same reason.
-_TOP_LEVEL = "|".join(sorted((
+TOP_LEVEL = "|".join(sorted((
     "com org net edu gov mil int info biz io co uk de fr eu ca au nz ie nl es ch se dk fi pl pt jp cn ru br "
     "tv app dev online shop site xyz club top"
 ).split(), key=len, reverse=True))
+#: A host name ending in a common top-level name, not inside a longer word or address
+#: (also how the vocabulary review recognises a bare web address as personal).
+BARE_WEB_ADDRESS = rf"(?<![\w.@-])(?:[a-z0-9](?:[a-z0-9-]*[a-z0-9])?\.)+(?:{TOP_LEVEL})(?![\w-])"
 _ENTITY_PARTS = (
     # scheme or www., then everything up to white space or a quote, less trailing punctuation
     r"(?:[a-z][a-z0-9+.-]*://|www\.)[^\s<>\"']*[^\s<>\"'.,;:!?)\]}]",
@@ -43,8 +46,8 @@ _ENTITY_PARTS = (
     r"[\w.%+-]+@[\w-]+(?:\.[\w-]+)*\.[a-z]{2,}",
     # IPv4 address
     r"(?<![\w.])(?:\d{1,3}\.){3}\d{1,3}(?![\w.])",
-    # bare web address ending in a common top-level name, with an optional path
-    rf"(?<![\w.@-])(?:[a-z0-9](?:[a-z0-9-]*[a-z0-9])?\.)+(?:{_TOP_LEVEL})(?![\w-])(?:/[^\s<>\"']*[^\s<>\"'.,;:!?)\]}}])?",
+    # bare web address, with an optional path
+    BARE_WEB_ADDRESS + r"(?:/[^\s<>\"']*[^\s<>\"'.,;:!?)\]}])?",
     # amount with a currency sign before or after the number
     rf"[{_CURRENCY}]\s?\d+(?:[.,]\d+)*|(?<![\w.,])\d+(?:[.,]\d+)*\s?[{_CURRENCY}]",
     # phone number: optional +country and area code, then 3-4 digits, a separator, 4 digits
