@@ -113,7 +113,7 @@ def dumps(c: Comparison, *, top: int = 10) -> str:
 def _pct(r) -> str:
     if r is None or r.denominator == 0:
         return "n/a"
-    return f"{100 * r.value:.1f}% [{100 * r.low:.1f}-{100 * r.high:.1f}] ({r.numerator:,}/{r.denominator:,})"
+    return f"{100 * r.value:.1f} % ({100 * r.low:.1f} to {100 * r.high:.1f}); {r.numerator:,} of {r.denominator:,}"
 
 
 def _p(x: float) -> str:
@@ -167,7 +167,7 @@ def text_lines(c: Comparison, *, top: int = 10) -> list[str]:
             if d.old_score.flagging is not None:
                 rows += [(name, getattr(d.old_score.flagging, key), getattr(d.new_score.flagging, key))
                          for name, key in (("recall", "recall"), ("false alarm rate", "false_positive_rate"))]
-            out.append("")
+            out += ["", "  (95 % Wilson intervals)"]
             for name, before, after in rows:
                 out += [f"  {name:<17} old {_pct(before)}", f"  {'':<17} new {_pct(after)}"]
             t = d.mcnemar
