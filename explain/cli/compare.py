@@ -81,7 +81,7 @@ def compare(
             else:
                 typer.echo(text, nl=False)
         else:
-            for line in present.text_lines(result, top=top):
+            for line in present.text_lines(result, top=top, width=max(40, console.width)):
                 console.print(line, markup=False, highlight=False, soft_wrap=True)
     if out is not None:
         console.print(f"wrote {out}", markup=False, highlight=False)

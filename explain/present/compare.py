@@ -125,8 +125,27 @@ def _drivers(ledger, n: int = 3) -> str:
     return ", ".join(f"{e.token} {e.amount:+.2f}" for e in largest) or "no known token"
 
 
-def text_lines(c: Comparison, *, top: int = 10) -> list[str]:
-    """The comparison as plain lines for the terminal (80 columns; tokens shown as they are, after redaction)."""
+def text_lines(c: Comparison, *, top: int = 10, width: int = 80) -> list[str]:
+    """The comparison as plain lines of at most ``width`` columns (tokens shown as they are, after redaction).
+
+    A long line continues on the next, indented four more than its start; tokens are never cut.
+    """
+    import textwrap
+
+    out = []
+    for line in _lines(c, top):
+        indent = " " * (len(line) - len(line.lstrip(" ")) + 4)
+        out += textwrap.wrap(line, width, subsequent_indent=indent, break_long_words=False,
+                             break_on_hyphens=False) or [""]
+    return out
+
+
+def _whole(item: str) -> str:
+    """An item that a wrapped line keeps on one line (no-break spaces inside it)."""
+    return item.replace(" ", "\u00a0")
+
+
+def _lines(c: Comparison, top: int) -> list[str]:
     from pathlib import Path
 
     from explain.present.token_display import shown
@@ -153,11 +172,11 @@ def text_lines(c: Comparison, *, top: int = 10) -> list[str]:
         for title, items in (("gained", k.shifts_up), ("lost", k.shifts_down)):
             if items:
                 out.append(f"  {title}: " + "; ".join(
-                    f"{shown(s.token)} {s.old:+.2f} -> {s.new:+.2f}" for s in items[:top]))
+                    _whole(f"{shown(s.token)} {s.old:+.2f} -> {s.new:+.2f}") for s in items[:top]))
         moved = [r for r in k.ranks if r.old_rank != r.new_rank][:top]
         if moved:
             out.append("  z-score rank, old -> new: " + "; ".join(
-                f"{shown(r.token)} {r.old_rank} -> {r.new_rank}" for r in moved))
+                _whole(f"{shown(r.token)} {r.old_rank} -> {r.new_rank}") for r in moved))
     if d is not None:
         out += ["", f"Decisions on {d.n:,} messages of {Path(d.source).name}: {d.changed:,} change"]
         for a, b, n in d.changes:
