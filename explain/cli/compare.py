@@ -11,6 +11,7 @@ from explain.cli import (
     LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, fail, load_model_or_fail,
     model_inputs, read_messages_or_fail,
 )
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
 SUFFIXES = (".pdf", ".html", ".htm", ".json")
 
@@ -39,6 +40,10 @@ def compare(
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
     max_data_bytes: str = MAX_DATA_BYTES,
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
 ):
     """Compare two filters: vocabulary, priors, and with --data the decisions that change and why."""
     from explain.analysis.compare import compare_models, redacted_comparison
@@ -63,7 +68,12 @@ def compare(
         ]
         messages = None
         if data is not None:
-            messages = read_messages_or_fail(data, text_col, label_col or None, max_data_bytes=max_data_bytes)
+            from explain.model.email_reader import resolve_text_view
+
+            # Both models must read the same part of raw e-mail: one view for both, or an error.
+            mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
+            resolve_text_view(loaded[1].card, mail.view)
+            messages = read_messages_or_fail(data, text_col, label_col or None, mail, max_data_bytes=max_data_bytes)
         result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show)
         if redact != "none":
             result = redacted_comparison(result)
