@@ -277,6 +277,22 @@ class Ledger:
     spans_note: str | None
     redacted: bool
     explanation: Explanation
+    #: True when the tokens are character n-grams (analyzer "char" or "char_wb"), which overlap
+    character_ngrams: bool = False
+
+    def character_heat(self) -> np.ndarray:
+        """Evidence per character of ``text``, shape (len(text),), in log-odds.
+
+        Each character carries the sum of the per-occurrence evidence of every
+        token occurrence whose span covers it: for overlapping character n-grams,
+        the heat of a letter is what every n-gram through it adds. Characters
+        outside every span carry 0.
+        """
+        heat = np.zeros(len(self.text))
+        for e in self.entries:
+            for a, b in e.spans:
+                heat[a : min(b, len(heat))] += e.per_occurrence
+        return heat
 
     def on_credit_side(self, balance: float) -> bool:
         """Whether a balance lies on the credit side of the decision line."""
@@ -468,6 +484,7 @@ def ledger_of(
         spans_note=expl.spans_note,
         redacted=False,
         explanation=expl,
+        character_ngrams=str(model.featurizer.vectorizer.analyzer) in ("char", "char_wb"),
     )
 
 

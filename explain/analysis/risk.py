@@ -66,6 +66,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 
 from explain.errors import NbledgerError
+from explain.model.token_patterns import BARE_WEB_ADDRESS
 
 FLAGS = ("thin", "personal", "numeric", "mixed_script", "stopword", "watchlist", "watchlist_strong")
 #: How screens and pictures name each flag (the glossary's words).
@@ -79,7 +80,7 @@ DEFAULT_STRONG_LOG_ODDS = log(4.0)
 # Earlier kinds win when several match.
 _PERSONAL_PATTERNS = (
     re.compile(r"[\w.%+-]+@[\w-]+(?:\.[\w-]+)+"),
-    re.compile(r"(?:\b[a-z][a-z0-9+.-]*://|\bwww\.)\S|\b[a-z0-9-]+(?:\.[a-z0-9-]+)*\.[a-z]{2,}/", re.I),
+    re.compile(r"(?:\b[a-z][a-z0-9+.-]*://|\bwww\.)\S|\b[a-z0-9-]+(?:\.[a-z0-9-]+)*\.[a-z]{2,}/|" + BARE_WEB_ADDRESS, re.I),
     re.compile(
         r"(?<![\d.])(?:\d{1,3}\.){3}\d{1,3}(?![\d.])"
         r"|^(?=[0-9a-f:]*::|(?:[0-9a-f]{0,4}:){5})[0-9a-f:]*[0-9a-f][0-9a-f:]*$",

@@ -228,3 +228,38 @@ def mutual_information(n11, n10, n01, n00, base: float = 2.0) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         mi = sums / total / np.log(base)
     return np.where(total > 0, mi, 0.0)[()]
+
+
+@dataclass(frozen=True)
+class McNemarTest:
+    """McNemar's test on paired decisions (McNemar 1947, "Note on the sampling error of the
+    difference between correlated proportions or percentages", Psychometrika 12(2)).
+
+    ``b`` counts the messages the first model decided rightly and the second
+    wrongly, ``c`` the reverse; the messages both got right or both wrong say
+    nothing about which is better. ``exact_p`` is the two-sided binomial test of
+    ``b`` in ``b + c`` trials at 1/2 (what ``scipy.stats.binomtest(b, b + c, 0.5)``
+    gives); ``chi2 = (b - c)^2 / (b + c)`` without continuity correction, with
+    ``chi2_p`` from the chi-square distribution with one degree of freedom.
+    With ``b + c == 0`` both p-values are 1 and ``chi2`` is 0.
+    """
+
+    b: int
+    c: int
+    exact_p: float
+    chi2: float
+    chi2_p: float
+
+
+def mcnemar(b: int, c: int) -> McNemarTest:
+    """McNemar's test from the two discordant counts (see :class:`McNemarTest`)."""
+    from scipy.stats import binom, chi2
+
+    b, c = int(b), int(c)
+    n = b + c
+    if n == 0:
+        return McNemarTest(b, c, 1.0, 0.0, 1.0)
+    # At p = 1/2 the binomial is symmetric, so the two-sided p-value is twice the smaller tail.
+    exact = min(1.0, 2.0 * float(binom.cdf(min(b, c), n, 0.5)))
+    statistic = (b - c) ** 2 / n
+    return McNemarTest(b, c, exact, float(statistic), float(chi2.sf(statistic, 1)))

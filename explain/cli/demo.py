@@ -63,6 +63,7 @@ def demo(
     _script(corpus / "generate.py", "--check", "--out", str(corpus / "messages.csv"))
     _script(corpus / "split.py", "--out", str(out))
     _step(["train", str(out / "train.csv"), "--text-col", "text", "--label-col", "label", "--normal-class", "ok",
+           "--tokens", "entities",
            "--holdout", "0.2", "--seed", "7", "--out", str(model)])
     explain = ["--explain", str(examples / "explain.csv")] if (examples / "explain.csv").is_file() else []
     _step(["report", str(model), "--data", str(out / "test.csv"), *explain,

@@ -27,6 +27,10 @@ def train(
     features: str = typer.Option("counts", help="counts | binary | tfidf"),
     ngrams: str = typer.Option("1-1", help="Word or character n-gram range MIN-MAX."),
     analyzer: str = typer.Option("word", help="word | char_wb"),
+    tokens: str = typer.Option(
+        "words", "--tokens",
+        help="words | entities (keeps URLs, web and e-mail addresses, amounts with a currency sign and phone numbers whole)",
+    ),
     variant: str = typer.Option("multinomial", help="multinomial | complement | bernoulli"),
     alpha: float = typer.Option(1.0, help="Additive smoothing."),
     min_df: float = typer.Option(1, "--min-df", help="Drop tokens in fewer documents (count, or fraction < 1)."),
@@ -53,7 +57,7 @@ def train(
         fail("--text-view applies to raw e-mail: a folder of .eml files, an mbox file, or a table with --raw-email")
     settings = TrainSettings(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
-        alpha=alpha, min_df=min_df, normal_class=normal_class, holdout=holdout, seed=seed,
+        alpha=alpha, min_df=min_df, normal_class=normal_class, tokens=tokens, holdout=holdout, seed=seed,
         text_view=mail.view if from_mail else None,
     )
     card_path = card_path_for(out)
@@ -91,10 +95,11 @@ def train(
     held = f" ({len(messages) - trained.train_rows:,} held out)" if trained.holdout else ""
     per_class = ", ".join(f"{c} {n:,}" for c, n in trained.rows_per_class.items())
     vocab = len(trained.pipeline[0].vocabulary_)
+    pattern = f" ({tokens} tokens)" if tokens != "words" else ""
     lines = [
         f"trained {variant} naive Bayes on {trained.train_rows:,} of {len(messages):,} messages{held}",
         f"rows trained on: {per_class}",
-        f"features: {trained.features_shown} of {trained.ngrams_shown}; vocabulary of {vocab:,} tokens",
+        f"features: {trained.features_shown} of {trained.ngrams_shown}{pattern}; vocabulary of {vocab:,} tokens",
     ]
     if trained.holdout:
         h = trained.holdout

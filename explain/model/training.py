@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from explain.errors import NbledgerError
+from explain.model.token_patterns import token_pattern
 
 FEATURES = ("counts", "binary", "tfidf")
 ANALYZERS = ("word", "char_wb")
@@ -37,6 +38,8 @@ class TrainSettings:
     seed: int = 0
     #: the part of raw e-mail trained on (explain.model.email_reader.VIEWS); None for plain text
     text_view: str | None = None
+    #: the named token pattern of the word analyzer (explain.model.token_patterns)
+    tokens: str = "words"
 
     def __post_init__(self):
         if self.text_view is not None:
@@ -47,6 +50,9 @@ class TrainSettings:
             raise NbledgerError(f"--features must be one of {', '.join(FEATURES)}")
         if self.analyzer not in ANALYZERS:
             raise NbledgerError(f"--analyzer must be one of {', '.join(ANALYZERS)}")
+        token_pattern(self.tokens)
+        if self.tokens != "words" and self.analyzer != "word":
+            raise NbledgerError(f"--tokens {self.tokens} applies to the word analyzer, not --analyzer {self.analyzer}")
         if self.variant not in VARIANTS:
             raise NbledgerError(f"--variant must be one of {', '.join(VARIANTS)}")
         lo, hi = self.ngrams
@@ -82,7 +88,10 @@ def build_pipeline(settings: TrainSettings):
     from sklearn.pipeline import Pipeline
 
     min_df = int(settings.min_df) if settings.min_df >= 1 else float(settings.min_df)
-    common = dict(ngram_range=tuple(settings.ngrams), analyzer=settings.analyzer, min_df=min_df)
+    common = dict(
+        ngram_range=tuple(settings.ngrams), analyzer=settings.analyzer, min_df=min_df,
+        token_pattern=token_pattern(settings.tokens),
+    )
     if settings.features == "tfidf":
         vectorizer = TfidfVectorizer(**common)
     else:

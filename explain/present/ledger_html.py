@@ -17,7 +17,7 @@ from pathlib import Path
 
 from explain.analysis.ledger import Ledger, redacted
 from explain.present.drawing import class_colours
-from explain.present.tint import MARKS, tint
+from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
 from explain.present.why import (
     CAUTION,
@@ -52,6 +52,8 @@ def _segments(ledger: Ledger, looks: dict) -> list[dict]:
     shared characters.
     """
     text = ledger.text
+    if ledger.character_ngrams:
+        return _heat_segments(ledger)
     owner = [None] * len(text)
     for u in ledger.disguised:
         for a, b in u.spans:
@@ -72,6 +74,26 @@ def _segments(ledger: Ledger, looks: dict) -> list[dict]:
             piece.update(looks[key])
         segments.append(piece)
         at = end
+    return segments
+
+
+def _heat_segments(ledger: Ledger) -> list[dict]:
+    """Character n-grams: the text tinted by its character heat (each character carries the sum of
+    the n-grams covering it), cut into runs of one direction and strength."""
+    text, heat = ledger.text, ledger.character_heat()
+    largest = float(abs(heat).max(initial=0.0))
+    families = class_colours(ledger.classes, ledger.normal_class)
+    segments, at = [], 0
+    for start, end, direction, _, size in heat_runs(heat, largest):
+        if start > at:
+            segments.append({"text": text[at:start]})
+        family = families[credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
+        t = tint(direction, family, size, largest)
+        segments.append({"text": text[start:end], "mark": t.mark, "direction": direction, "level": t.level_name,
+                         "style": f"background-color: {t.background}; color: {t.foreground}"})
+        at = end
+    if at < len(text):
+        segments.append({"text": text[at:]})
     return segments
 
 

@@ -53,3 +53,23 @@ def tint(direction: str, family: ColourFamily, size: float, largest: float) -> T
     # WCAG 2.x relative luminance, rounded: dark text on light shades, white on dark.
     luminance = 0.2126 * r**2.2 + 0.7152 * g**2.2 + 0.0722 * b**2.2
     return Tint(MARKS[direction], n, background, "#1a1a1a" if luminance > 0.25 else "#ffffff")
+
+
+def heat_runs(heat, largest: float) -> list[tuple[int, int, str, int, float]]:
+    """Runs of characters with the same direction and strength level in a character heat.
+
+    ``heat`` is :meth:`explain.analysis.ledger.Ledger.character_heat`; returns
+    ``(start, end, direction, level, size)`` for each run of non-zero heat,
+    ``size`` being the largest absolute heat in the run.
+    """
+    runs: list[tuple[int, int, str, int, float]] = []
+    for i, h in enumerate(heat):
+        if h == 0:
+            continue
+        direction, n = ("credit" if h > 0 else "debit"), level(h, largest)
+        if runs and runs[-1][1] == i and runs[-1][2:4] == (direction, n):
+            a, _, d, k, size = runs[-1]
+            runs[-1] = (a, i + 1, d, k, max(size, abs(h)))
+        else:
+            runs.append((i, i + 1, direction, n, abs(h)))
+    return runs

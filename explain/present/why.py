@@ -61,6 +61,8 @@ plain text).
 
 from __future__ import annotations
 
+import numpy as np
+
 import math
 
 from rich import box
@@ -71,7 +73,7 @@ from rich.text import Text
 from explain.analysis.ledger import Ledger
 from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines, email_json
-from explain.present.tint import MARKS, tint
+from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import make_console, shown
 from explain.present.wording import (
     amount,
@@ -212,8 +214,11 @@ def colour_mode(console: Console) -> str:
 
 def _style(entry, largest: float, mode: str, families) -> str:
     """The rich style of an entry's word: a shade (256+ colours), a weight (16 colours) or nothing."""
-    family = families[entry.toward]
-    look = tint(entry.direction, family, entry.per_occurrence, largest)
+    return _tint_style(entry.direction, families[entry.toward], entry.per_occurrence, largest, mode)
+
+
+def _tint_style(direction: str, family, size: float, largest: float, mode: str) -> str:
+    look = tint(direction, family, size, largest)
     if mode == "shades":
         return f"{look.foreground} on {look.background}"
     if mode == "weights":
@@ -484,6 +489,14 @@ def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT)
     """
     text = Text(ledger.text[:limit])
     if mode == "none" or ledger.spans_note is not None:
+        return text
+    if ledger.character_ngrams:
+        heat = ledger.character_heat()
+        largest = float(np.abs(heat).max(initial=0.0))
+        for start, end, direction, _, size in heat_runs(heat, largest):
+            if start < limit:
+                family = families[credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
+                text.stylize(_tint_style(direction, family, size, largest, mode), start, min(end, limit))
         return text
     largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
     for e in sorted(ledger.entries, key=lambda e: abs(e.per_occurrence)):

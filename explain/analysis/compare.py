@@ -1,0 +1,418 @@
+"""Comparing two filters: what the new one learned differently, and which decisions it changes.
+
+:func:`compare_models` reads two loaded models (and, optionally, labelled
+messages) and returns a frozen :class:`Comparison`:
+
+- vocabulary: tokens only in the old or the new model, and, on the tokens
+  both know, the largest shifts in evidence per unit for each flagged class
+  against the normal class (``W[c, j] - W[normal, j]``, natural log) and the
+  rank changes under the z-score lens of the vocabulary review;
+- priors: each class's share of the training messages and its log prior;
+- with messages: each model's decision on every message, with its own text
+  steps (so models with different vectorizers are compared on what they
+  decide), the count of each kind of change (``ok -> scam`` ...), the
+  ledgers of both models for the first ``show`` changed messages, and
+  with labels the accuracy (and flagging metrics) of both with Wilson
+  intervals and McNemar's test on the paired decisions (McNemar 1947).
+
+Tokens are matched by their text: two models that cut text differently
+share only the tokens both make, and the rest is listed, not compared.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+
+from explain.analysis.rates import BinaryMetrics, Rate, binary_metrics, frozen, rate_of
+from explain.analysis.stats import McNemarTest, mcnemar
+from explain.errors import NbledgerError
+from explain.model.decision import DecisionRule
+
+DEFAULT_TOP = 15
+DEFAULT_SHOW = 20
+
+
+@dataclass(frozen=True)
+class Shift:
+    """One shared token's evidence per unit toward ``target`` against ``other``, in both models."""
+
+    token: str
+    old: float
+    new: float
+
+    @property
+    def change(self) -> float:
+        return self.new - self.old
+
+
+@dataclass(frozen=True)
+class RankChange:
+    """One shared token's 1-based rank under the z-score lens (1 = strongest for the target)."""
+
+    token: str
+    old_rank: int
+    new_rank: int
+    old_zscore: float
+    new_zscore: float
+
+
+@dataclass(frozen=True)
+class ContrastChange:
+    """Changes in one contrast (``target`` against ``other``), on the shared tokens."""
+
+    target: str
+    other: str
+    shifts_up: tuple[Shift, ...]
+    shifts_down: tuple[Shift, ...]
+    ranks: tuple[RankChange, ...]
+
+    @property
+    def label(self) -> str:
+        return f"{self.target} vs {self.other}"
+
+
+@dataclass(frozen=True)
+class PriorChange:
+    """A class's share of training messages and log prior in each model (None where absent)."""
+
+    cls: str
+    old_share: float | None
+    new_share: float | None
+    old_log_prior: float | None
+    new_log_prior: float | None
+
+
+@dataclass(frozen=True)
+class VocabularyChange:
+    """Tokens added, removed and shared (by text), and the contrasts compared on the shared ones.
+
+    ``added`` and ``removed`` are ordered by use in training, most used first.
+    """
+
+    old_size: int
+    new_size: int
+    shared: int
+    added: tuple[str, ...]
+    removed: tuple[str, ...]
+    contrasts: tuple[ContrastChange, ...]
+    priors: tuple[PriorChange, ...]
+
+
+@dataclass(frozen=True, eq=False)
+class ChangedMessage:
+    """A message whose decision changes, with both ledgers (:class:`explain.analysis.ledger.Ledger`)."""
+
+    row: int
+    message_id: str
+    label: str | None
+    old_decision: str
+    new_decision: str
+    old: object
+    new: object
+
+
+@dataclass(frozen=True)
+class ModelScore:
+    """One model's results on the labelled messages: accuracy and, with a normal class, flagging."""
+
+    accuracy: Rate
+    flagging: BinaryMetrics | None
+
+
+@dataclass(frozen=True, eq=False)
+class DecisionChanges:
+    """Both models' decisions on the same messages.
+
+    ``old_decisions`` and ``new_decisions`` are arrays of str, shape (n,);
+    ``changes`` maps ``(old, new)`` to how many messages moved so;
+    ``shown`` holds the first changed messages with both ledgers.
+    """
+
+    source: str
+    n: int
+    old_decisions: np.ndarray
+    new_decisions: np.ndarray
+    changes: tuple[tuple[str, str, int], ...]
+    shown: tuple[ChangedMessage, ...]
+    old_score: ModelScore | None
+    new_score: ModelScore | None
+    mcnemar: McNemarTest | None
+
+    @property
+    def changed(self) -> int:
+        return sum(n for _, _, n in self.changes)
+
+
+@dataclass(frozen=True, eq=False)
+class Comparison:
+    """Everything ``nbledger compare`` reports; presenters only read it."""
+
+    old_path: str
+    new_path: str
+    old_sha256: str
+    new_sha256: str
+    same_file: bool
+    old_classes: tuple[str, ...]
+    new_classes: tuple[str, ...]
+    normal_class: str | None
+    threshold: float | None
+    same_text_steps: bool
+    vocabulary: VocabularyChange
+    decisions: DecisionChanges | None
+    notes: tuple[str, ...]
+
+
+def _text_steps(model) -> dict:
+    """The settings that decide how text becomes tokens (for saying whether two models cut text alike)."""
+    vec = model.featurizer.vectorizer
+    keys = ("analyzer", "token_pattern", "ngram_range", "lowercase", "strip_accents", "stop_words", "preprocessor", "tokenizer")
+    params = vec.get_params()
+    return {k: repr(params.get(k)) for k in keys} | {"kind": type(vec).__name__}
+
+
+def _normal_class(old, new, normal_class: str | None) -> str | None:
+    if normal_class is not None:
+        for model, name in ((old, "old"), (new, "new")):
+            if normal_class not in set(model.view.classes):
+                raise NbledgerError(
+                    f"--normal-class {normal_class!r} is not a class of the {name} model "
+                    f"({', '.join(model.view.classes)})"
+                )
+        return normal_class
+    names = {m.view.normal_class for m in (old, new)} - {None}
+    if len(names) > 1:
+        raise NbledgerError(
+            f"the two models name different normal classes ({', '.join(sorted(names))}): choose one with --normal-class"
+        )
+    name = next(iter(names), None)
+    if name is not None and all(name in set(m.view.classes) for m in (old, new)):
+        return name
+    return None
+
+
+def _contrast_change(old_view, new_view, target: str, other: str, old_cols, new_cols, tokens, old_review, new_review, top):
+    def per_unit(view, cols):
+        t, o = view.class_index(target), view.class_index(other)
+        return view.weights[t, cols] - view.weights[o, cols]
+
+    before, after = per_unit(old_view, old_cols), per_unit(new_view, new_cols)
+    change = after - before
+    order = np.argsort(-change, kind="stable")
+    up = tuple(Shift(str(tokens[i]), float(before[i]), float(after[i])) for i in order[:top] if change[i] > 0)
+    down = tuple(
+        Shift(str(tokens[i]), float(before[i]), float(after[i])) for i in order[::-1][:top] if change[i] < 0
+    )
+    ranks: tuple[RankChange, ...] = ()
+    label = f"{target} vs {other}"
+    found = [
+        next((c for c in review.contrasts if c.label == label), None) for review in (old_review, new_review)
+    ]
+    if all(c is not None for c in found):
+        from explain.analysis.vocab import LENSES
+
+        lens = LENSES.index("zscore")
+        old_c, new_c = found
+        # Ranks among the shared tokens only, so that added and removed tokens do not move them.
+        old_z, new_z = old_c.zscore[old_cols], new_c.zscore[new_cols]
+        old_rank = np.empty(len(tokens), dtype=np.int64)
+        new_rank = np.empty(len(tokens), dtype=np.int64)
+        old_rank[np.argsort(old_c.rank[lens, old_cols], kind="stable")] = np.arange(1, len(tokens) + 1)
+        new_rank[np.argsort(new_c.rank[lens, new_cols], kind="stable")] = np.arange(1, len(tokens) + 1)
+        # The tokens in the top of either model, by how far they moved.
+        leading = np.flatnonzero((old_rank <= top) | (new_rank <= top))
+        leading = leading[np.argsort(-np.abs(old_rank[leading] - new_rank[leading]), kind="stable")]
+        ranks = tuple(
+            RankChange(str(tokens[i]), int(old_rank[i]), int(new_rank[i]), float(old_z[i]), float(new_z[i]))
+            for i in leading
+        )
+    return ContrastChange(target, other, up, down, ranks)
+
+
+def _by_use(view, tokens: np.ndarray, keep: np.ndarray) -> tuple[str, ...]:
+    """The kept tokens, most used in training first (summed feature counts over classes), ties by text."""
+    cols = np.flatnonzero(keep)
+    use = view.feature_count[:, cols].sum(axis=0)
+    order = sorted(range(len(cols)), key=lambda i: (-use[i], tokens[cols[i]]))
+    return tuple(str(tokens[cols[i]]) for i in order)
+
+
+def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP) -> VocabularyChange:
+    """Tokens added and removed, evidence shifts and z-score rank changes on the shared tokens, priors."""
+    from explain.analysis.vocab import review_vocabulary
+
+    old_view, new_view = old.view, new.view
+    # Dictionaries, not numpy's set operations on fixed-width strings: one long
+    # token would widen every element of the array.
+    old_tokens = np.asarray([str(t) for t in old_view.tokens], dtype=object)
+    new_tokens = np.asarray([str(t) for t in new_view.tokens], dtype=object)
+    new_index = {t: j for j, t in enumerate(new_tokens)}
+    found = np.fromiter((new_index.get(t, -1) for t in old_tokens), dtype=np.int64, count=len(old_tokens))
+    old_cols = np.flatnonzero(found >= 0)
+    new_cols = found[old_cols]
+    shared = old_tokens[old_cols]
+    in_old = np.zeros(len(new_tokens), dtype=bool)
+    in_old[new_cols] = True
+    added = _by_use(new_view, new_tokens, ~in_old)
+    removed = _by_use(old_view, old_tokens, found < 0)
+    contrasts: list[ContrastChange] = []
+    if normal_class is not None and len(shared):
+        reviews = [review_vocabulary(m.view.with_normal_class(normal_class), lens="zscore") for m in (old, new)]
+        for target in old_view.classes:
+            if target == normal_class or target not in set(new_view.classes):
+                continue
+            contrasts.append(
+                _contrast_change(old_view, new_view, str(target), normal_class, old_cols, new_cols, shared,
+                                 *reviews, top)
+            )
+
+    def share(view, cls):
+        if cls not in set(view.classes):
+            return None, None
+        i = view.class_index(cls)
+        return float(view.class_count[i] / view.class_count.sum()), float(view.prior[i])
+
+    every = list(dict.fromkeys([*map(str, old_view.classes), *map(str, new_view.classes)]))
+    priors = tuple(PriorChange(c, *(v for pair in zip(share(old_view, c), share(new_view, c)) for v in pair)) for c in every)
+    return VocabularyChange(
+        old_size=len(old_tokens), new_size=len(new_tokens), shared=len(shared),
+        added=added, removed=removed, contrasts=tuple(contrasts), priors=priors,
+    )
+
+
+def _decide(model, texts, normal_class, threshold) -> np.ndarray:
+    view = model.view.with_normal_class(normal_class)
+    rule = DecisionRule.for_view(view, threshold)
+    jll = view.joint_log_likelihood(view.prepare(model.featurizer.transform(texts)))
+    return np.asarray(view.classes, dtype=object)[rule.decide(jll)].astype(str)
+
+
+def _score(decided: np.ndarray, labels: np.ndarray, normal_class: str | None, confidence: float) -> ModelScore:
+    right = decided == labels
+    flagging = None
+    if normal_class is not None:
+        truth, flagged = labels != normal_class, decided != normal_class
+        flagging = binary_metrics(
+            "flagged",
+            int(np.sum(truth & flagged)), int(np.sum(~truth & flagged)),
+            int(np.sum(truth & ~flagged)), int(np.sum(~truth & ~flagged)), confidence,
+        )
+    return ModelScore(rate_of(int(right.sum()), len(right), confidence), flagging)
+
+
+def decision_changes(old, new, messages, normal_class, threshold, show: int = DEFAULT_SHOW, confidence: float = 0.95):
+    """Both models' decisions on ``messages`` (:class:`explain.model.data_io.Messages`)."""
+    from explain.analysis.ledger import ledger_of
+
+    texts = list(messages.texts)
+    old_decided = _decide(old, texts, normal_class, threshold)
+    new_decided = _decide(new, texts, normal_class, threshold)
+    moved = np.flatnonzero(old_decided != new_decided)
+    counts = Counter(zip(old_decided[moved].tolist(), new_decided[moved].tolist()))
+    changes = tuple((a, b, n) for (a, b), n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0])))
+    labels = None if messages.labels is None else np.asarray(messages.labels, dtype=object).astype(str)
+    ids = np.asarray(messages.ids, dtype=object).astype(str)
+
+    def ledger(model, i):
+        view_model = _with_normal(model, normal_class)
+        return ledger_of(view_model, texts[i], threshold, message_id=str(ids[i]))
+
+    shown = tuple(
+        ChangedMessage(
+            int(i), str(ids[i]), None if labels is None else str(labels[i]),
+            str(old_decided[i]), str(new_decided[i]), ledger(old, i), ledger(new, i),
+        )
+        for i in moved[:show]
+        if texts[i].strip()
+    )
+    old_score = new_score = test = None
+    if labels is not None:
+        old_score = _score(old_decided, labels, normal_class, confidence)
+        new_score = _score(new_decided, labels, normal_class, confidence)
+        old_right, new_right = old_decided == labels, new_decided == labels
+        test = mcnemar(int(np.sum(old_right & ~new_right)), int(np.sum(~old_right & new_right)))
+    return DecisionChanges(
+        source=str(messages.source), n=len(texts),
+        old_decisions=frozen(old_decided), new_decisions=frozen(new_decided),
+        changes=changes, shown=shown, old_score=old_score, new_score=new_score, mcnemar=test,
+    )
+
+
+def _with_normal(model, normal_class):
+    from dataclasses import replace
+
+    return replace(model, view=model.view.with_normal_class(normal_class))
+
+
+def compare_models(old, new, messages=None, *, normal_class: str | None = None, threshold: float | None = None,
+                   top: int = DEFAULT_TOP, show: int = DEFAULT_SHOW, confidence: float = 0.95) -> Comparison:
+    """Compare two loaded models (:class:`explain.model.loading.LoadedModel`), optionally on messages."""
+    notes: list[str] = []
+    normal = _normal_class(old, new, normal_class)
+    if threshold is not None and normal is None:
+        raise NbledgerError("a threshold needs a normal class that both models have: name it with --normal-class")
+    old_classes, new_classes = tuple(map(str, old.view.classes)), tuple(map(str, new.view.classes))
+    same_file = old.sha256 == new.sha256
+    if same_file:
+        notes.append("the two model files are the same (equal SHA-256): nothing changes")
+    if set(old_classes) != set(new_classes):
+        only_old = sorted(set(old_classes) - set(new_classes))
+        only_new = sorted(set(new_classes) - set(old_classes))
+        notes.append(
+            "the models have different classes"
+            + (f"; only the old has {', '.join(only_old)}" if only_old else "")
+            + (f"; only the new has {', '.join(only_new)}" if only_new else "")
+            + ": evidence is compared on the shared classes, decisions as they are"
+        )
+    if normal is None:
+        notes.append("no normal class both models have: evidence shifts and flagging metrics are left out "
+                     "(name one with --normal-class)")
+    same_steps = _text_steps(old) == _text_steps(new)
+    if not same_steps:
+        notes.append("the models cut text into tokens differently: evidence is compared on the tokens both make, "
+                     "decisions and metrics on the messages as each model reads them")
+    vocabulary = vocabulary_change(old, new, normal, top)
+    decisions = None
+    if messages is not None:
+        decisions = decision_changes(old, new, messages, normal, threshold, show, confidence)
+        if messages.labels is not None:
+            unknown = sorted(set(map(str, messages.labels)) - set(old_classes) - set(new_classes))
+            if unknown:
+                notes.append(f"labels no model knows ({', '.join(unknown)}) count as wrong for both")
+    return Comparison(
+        old_path=str(old.path), new_path=str(new.path), old_sha256=old.sha256, new_sha256=new.sha256,
+        same_file=same_file, old_classes=old_classes, new_classes=new_classes, normal_class=normal,
+        threshold=threshold, same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
+        notes=tuple(notes),
+    )
+
+
+def redacted_comparison(comparison: Comparison) -> Comparison:
+    """The same comparison with personal-looking values masked in tokens, ids and both ledgers of each message."""
+    from dataclasses import replace
+
+    from explain.analysis.ledger import redacted
+    from explain.analysis.redaction import mask_value
+
+    def shifts(items):
+        return tuple(replace(s, token=mask_value(s.token)) for s in items)
+
+    vocab = comparison.vocabulary
+    vocab = replace(
+        vocab,
+        added=tuple(map(mask_value, vocab.added)),
+        removed=tuple(map(mask_value, vocab.removed)),
+        contrasts=tuple(
+            replace(c, shifts_up=shifts(c.shifts_up), shifts_down=shifts(c.shifts_down), ranks=shifts(c.ranks))
+            for c in vocab.contrasts
+        ),
+    )
+    decisions = comparison.decisions
+    if decisions is not None:
+        decisions = replace(decisions, shown=tuple(
+            replace(m, message_id=mask_value(m.message_id), old=redacted(m.old), new=redacted(m.new))
+            for m in decisions.shown
+        ))
+    return replace(comparison, vocabulary=vocab, decisions=decisions)

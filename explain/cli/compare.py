@@ -1,0 +1,97 @@
+"""``nbledger compare``: what changes when a new filter replaces an old one."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+
+from explain.cli import (
+    LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, fail, load_model_or_fail,
+    model_inputs, read_messages_or_fail,
+)
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+
+SUFFIXES = (".pdf", ".html", ".htm", ".json")
+
+
+@app.command()
+def compare(
+    old: Path = typer.Argument(..., help="The filter in use (.skops)."),
+    new: Path = typer.Argument(..., help="The filter that would replace it (.skops)."),
+    data: Optional[Path] = typer.Option(
+        None, "--data", help="Messages (.csv, .jsonl, .parquet): adds the decisions that change; with labels, metrics and McNemar's test."
+    ),
+    text_col: str = typer.Option("text", "--text-col", help="Column holding the message text."),
+    label_col: Optional[str] = typer.Option("label", "--label-col", help="Column holding the true class ('' for none)."),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    threshold: Optional[float] = typer.Option(
+        None, "--threshold", help="Flag when P(not normal) >= P, for both models (default: the most probable class)."
+    ),
+    top: int = typer.Option(10, "--top", help="Tokens listed per change."),
+    show: int = typer.Option(20, "--show", help="Changed messages shown with both explanations."),
+    redact: str = typer.Option("personal", "--redact", help="personal (mask e-mail, phone, URL, IP, digit runs) | none"),
+    output_format: str = typer.Option("text", "--format", help="text | json"),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write the comparison to a .pdf, .html or .json file."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
+):
+    """Compare two filters: vocabulary, priors, and with --data the decisions that change and why."""
+    from explain.analysis.compare import compare_models, redacted_comparison
+    from explain.output_files import OutputSet
+    from explain.present import compare as present
+
+    if output_format not in ("text", "json"):
+        fail(f"--format must be text or json, got {output_format!r}")
+    if redact not in ("personal", "none"):
+        fail(f"--redact must be personal or none, got {redact!r}")
+    if out is not None and out.suffix.lower() not in SUFFIXES:
+        fail(f"--out must end in {', '.join(SUFFIXES)}, got {out.name}")
+    if top < 1 or show < 0:
+        fail("--top must be at least 1 and --show at least 0")
+    with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data]) as files:
+        if out is not None:
+            files.file(out)
+        loaded = [
+            load_model_or_fail(path, allow_pickle=allow_pickle, trust=trust, max_model_memory=max_model_memory,
+                               load_timeout=load_timeout, no_cache=no_cache)
+            for path in (old, new)
+        ]
+        messages = None
+        if data is not None:
+            from explain.model.email_reader import resolve_text_view
+
+            # Both models must read the same part of raw e-mail: one view for both, or an error.
+            mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
+            resolve_text_view(loaded[1].card, mail.view)
+            messages = read_messages_or_fail(data, text_col, label_col or None, mail, max_data_bytes=max_data_bytes)
+        result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show)
+        if redact != "none":
+            result = redacted_comparison(result)
+        suffix = None if out is None else out.suffix.lower()
+        if suffix in (".pdf", ".html", ".htm"):
+            from explain.analysis.report import report_date
+            from explain.present.report import render_pdf
+
+            page = present.render_html(result, present.to_json(result, top=top), redact, top=top)
+            files.write(out, render_pdf(page, report_date().isoformat()) if suffix == ".pdf" else page)
+        elif suffix == ".json" or output_format == "json":
+            text = present.dumps(result, top=top)
+            if out is not None:
+                files.write(out, text)
+            else:
+                typer.echo(text, nl=False)
+        else:
+            for line in present.text_lines(result, top=top, width=max(40, console.width)):
+                console.print(line, markup=False, highlight=False, soft_wrap=True)
+    if out is not None:
+        console.print(f"wrote {out}", markup=False, highlight=False)

@@ -1,0 +1,85 @@
+"""``nbledger compare`` from the command line: outputs, redaction and bad input (issue 9)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from explain.cli import run
+from tests.clirun import nbledger
+
+DEMO = Path(__file__).resolve().parents[1] / "demo_corpus" / "messages.csv"
+
+
+@pytest.fixture(scope="module")
+def models(tmp_path_factory):
+    """Old: words, first 1500 rows; new: entity tokens, first 3000 rows; two-class: scam vs ok only."""
+    folder = tmp_path_factory.mktemp("compare")
+    frame = pd.read_csv(DEMO, dtype=str, keep_default_na=False)
+    frame.iloc[:1500].to_csv(folder / "early.csv", index=False)
+    frame.iloc[:3000].to_csv(folder / "later.csv", index=False)
+    frame.iloc[3000:3600].to_csv(folder / "test.csv", index=False)
+    frame[frame.label != "advert"].iloc[:1500].to_csv(folder / "two.csv", index=False)
+    common = ["--text-col", "text", "--label-col", "label", "--normal-class", "ok"]
+    for data, name, extra in (("early", "old", []), ("later", "new", ["--tokens", "entities"]), ("two", "two", [])):
+        assert run(["train", str(folder / f"{data}.csv"), *common, *extra, "--out", str(folder / f"{name}.skops")]) == 0
+    return folder
+
+
+def test_terminal_json_and_report(models, capsys):
+    f = models
+    shown = nbledger(capsys, "compare", f / "old.skops", f / "new.skops", "--data", f / "test.csv", "--show", "3")
+    assert shown.code == 0, shown.err
+    assert "McNemar's test (1947)" in shown.out and "cut text into tokens differently" in shown.out
+    doc = json.loads(nbledger(capsys, "compare", f / "old.skops", f / "new.skops", "--data", f / "test.csv",
+                              "--format", "json").out)
+    d = doc["decisions"]
+    assert doc["schema"] == "nbledger.compare/1" and d["messages"] == 600
+    assert sum(c["messages"] for c in d["changes"]) == d["changed"] == len(d["shown"]) or len(d["shown"]) == 20
+    # Redaction by default: the entity model's whole e-mail addresses, URLs and numbers never appear.
+    text = json.dumps(doc)
+    assert "example.org" not in text and "example.net" not in text and "555-01" not in text
+    assert any(t.startswith("[") for t in doc["vocabulary"]["added"])
+    plain = json.loads(nbledger(capsys, "compare", f / "old.skops", f / "new.skops", "--redact", "none",
+                                "--format", "json").out)
+    assert any("example." in t for t in plain["vocabulary"]["added"])
+    for suffix in ("html", "pdf"):
+        out = f / f"c.{suffix}"
+        assert nbledger(capsys, "compare", f / "old.skops", f / "new.skops", "--data", f / "test.csv",
+                        "--out", out).code == 0
+        assert out.stat().st_size > 1000
+    assert "example.org" not in (f / "c.html").read_text(encoding="utf-8")
+
+
+def test_same_file_twice_says_so(models, capsys):
+    f = models
+    doc = json.loads(nbledger(capsys, "compare", f / "old.skops", f / "old.skops", "--data", f / "test.csv",
+                              "--format", "json").out)
+    assert doc["same_file"] and doc["decisions"]["changed"] == 0
+    assert any("same" in n for n in doc["notes"])
+    assert doc["vocabulary"]["added"] == doc["vocabulary"]["removed"] == []
+
+
+def test_different_class_sets_compare_what_can_be(models, capsys):
+    f = models
+    doc = json.loads(nbledger(capsys, "compare", f / "two.skops", f / "old.skops", "--data", f / "test.csv",
+                              "--format", "json").out)
+    assert any("only the new has advert" in n for n in doc["notes"])
+    assert [k["target"] for k in doc["vocabulary"]["contrasts"]] == ["scam"]
+    assert {p["class"]: p["old_share"] for p in doc["vocabulary"]["priors"]}["advert"] is None
+    assert doc["decisions"]["mcnemar"] is not None
+
+
+@pytest.mark.parametrize("args, says", [
+    (["--normal-class", "advert"], "not a class of the old model"),
+    (["--format", "yaml"], "--format"),
+    (["--out", "x.txt"], "--out must end in"),
+    (["--redact", "bodies"], "--redact"),
+])
+def test_bad_input_is_one_line(models, capsys, args, says):
+    f = models
+    outcome = nbledger(capsys, "compare", f / "two.skops", f / "old.skops", *args)
+    assert says in outcome.one_error_line()
