@@ -52,6 +52,8 @@ _PUBLIC = {
     "label_errors": "explain.analysis.label_errors",
     "out_of_sample_probabilities": "explain.analysis.label_errors",
     "build_report": "explain.analysis.report",
+    "probe": "explain.analysis.probe",
+    "ProbeResult": "explain.analysis.probe",
     "Report": "explain.analysis.report",
     "ReportSettings": "explain.analysis.report",
     "wilson_interval": "explain.analysis.stats",
