@@ -354,9 +354,7 @@ def _greedy(view, featurizer, rule, counts, jll, decided, ok, budget, presence, 
             if len(cand) == 0:
                 break
             cand = cand[np.argsort(pull[cand], kind="stable")[:GREEDY_CANDIDATES]]
-            block = np.tile(row, (len(cand), 1))
-            block[np.arange(len(cand)), cand] += size[cand]
-            jll = _score(view, featurizer, sp.csr_matrix(block))
+            jll = _score(view, featurizer, _with_one_more(row, cand, size[cand]))
             passed = np.flatnonzero(rule.decide(jll) == normal)
             distance = _to_pass(rule, jll)
             pick = passed[np.argmin(distance[passed])] if len(passed) else int(np.argmin(distance))
@@ -374,6 +372,21 @@ def _greedy(view, featurizer, rule, counts, jll, decided, ok, budget, presence, 
         else:
             adds.append(())
     return costs, tuple(adds)
+
+
+def _with_one_more(row: np.ndarray, cand: np.ndarray, size: np.ndarray) -> sp.csr_matrix:
+    """One count row per candidate: ``row`` with ``size[k]`` more of column ``cand[k]``, (len(cand), F) CSR.
+
+    Only the message's own columns and the added one are stored, so a step
+    costs candidates x (tokens in the message), not candidates x vocabulary.
+    """
+    present = np.flatnonzero(row)
+    p, m = len(present), len(cand)
+    indices = np.column_stack([np.tile(present, (m, 1)), cand[:, None]]).ravel()
+    data = np.column_stack([np.tile(row[present], (m, 1)), size[:, None]]).ravel().astype(np.float64)
+    block = sp.csr_matrix((data, indices, np.arange(0, m * (p + 1) + 1, p + 1)), shape=(m, len(row)))
+    block.sum_duplicates()  # a repeated token adds to its own count
+    return block
 
 
 # --- summaries ----------------------------------------------------------------
