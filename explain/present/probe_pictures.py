@@ -70,7 +70,7 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
             count[where[p.source], where[p.target]] = p.messages
     flagged = [c for c in result.classes if c != result.normal_class]
     hot = line_colours(result.classes, result.normal_class)[flagged[0]]
-    cmap = LinearSegmentedColormap.from_list("shift", [NEUTRAL.base, PAPER, hot]).with_extremes(bad="#f2f2f2")
+    cmap = LinearSegmentedColormap.from_list("shift", [NEUTRAL.base, PAPER, hot]).with_extremes(bad=PAPER)
     limit = max(float(np.nanmax(np.abs(grid))) if np.isfinite(grid).any() else 0.0, 1e-9)
     size = 1.0 + 0.55 * n
     fig = Figure(figsize=(size + 1.6, size))
@@ -84,9 +84,11 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
         for j in range(n):
             if np.isfinite(grid[i, j]):
                 ax.text(j, i, f"{grid[i, j]:+.2f}\n{count[i, j]}", ha="center", va="center", fontsize=6, color=INK)
+            else:  # the same term, or no message holds the row's term
+                ax.text(j, i, "=" if i == j else "-", ha="center", va="center", fontsize=6, color=NEUTRAL.base)
     bar = fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04)
     bar.set_label("mean log-odds shift (+ toward flagging)", fontsize=8)
-    ax.set_title(f"Term swaps: {shown(group)}", fontsize=10, loc="left")
+    ax.set_title(f"Term swaps: {shown(group)} (cells: mean shift, messages)", fontsize=10, loc="left")
     return png_bytes(fig)
 
 
