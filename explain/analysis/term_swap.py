@@ -227,19 +227,11 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
     view, featurizer = model.view, model.featurizer
     if rule.normal_index is None:
         raise NbledgerError("term swaps need a normal class: name it with --normal-class")
-    analyze = featurizer._analyzer
     token_group = {tok: (g, i) for g, group in enumerate(terms.groups) for i, tok in enumerate(group.tokens)}
-    # Without accent stripping or a custom preprocessor a term can only be read
-    # from a text holding its letters (in any case): a cheap filter before the analyzer.
-    pattern = re.compile("|".join(re.escape(t) for t in sorted(token_group, key=len, reverse=True)), re.IGNORECASE)
-    folds = featurizer.vectorizer.strip_accents is None and featurizer.vectorizer.preprocessor is None
-    hits = [i for i, text in enumerate(texts) if not folds or pattern.search(text)]
-    rows, sources, targets, found = [], [], [], []
-    for i in hits:
-        counts: dict[str, int] = {}
-        for tok in analyze(texts[i]):
-            if tok in token_group:
-                counts[tok] = counts.get(tok, 0) + 1
+    rows, sources, targets, found, already = [], [], [], [], []
+    hits = []
+    for i, counts in _term_counts(featurizer, texts, token_group):
+        hits.append(i)
         for tok, n in counts.items():
             g, s = token_group[tok]
             for t in range(len(terms.groups[g].tokens)):
@@ -248,6 +240,7 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
                     sources.append((g, s))
                     targets.append(t)
                     found.append(n)
+                    already.append(counts.get(terms.groups[g].tokens[t], 0))
     message = np.asarray(rows, dtype=np.int64)
     if len(message):
         before = raw_counts(featurizer, [texts[i] for i in hits])
@@ -256,7 +249,7 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
         group_of = np.array([g for g, _ in sources], dtype=np.int64)
         src_tok = [terms.groups[g].tokens[s] for g, s in sources]
         tgt_tok = [terms.groups[g].tokens[t] for (g, _), t in zip(sources, targets)]
-        after = _substituted(model, texts, message, base, src_tok, tgt_tok, np.asarray(found))
+        after = _substituted(model, texts, message, base, src_tok, tgt_tok, found, already)
         jll_before = _score(view, featurizer, base)
         jll_after = _score(view, featurizer, after)
     else:
@@ -288,20 +281,57 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
     )
 
 
-def _substituted(model, texts, message, base, src_tok, tgt_tok, found) -> sp.csr_matrix:
-    """Count rows after each substitution (all occurrences of the source become the target)."""
+def _term_counts(featurizer, texts, token_group):
+    """``(row, {token: occurrences})`` for every text holding a term, as the model's analyzer reads it.
+
+    With scikit-learn's default word analyzer (lower-casing, the default
+    token pattern, nothing else changing the text) a token is a run of word
+    characters between non-word characters, so one regular expression finds
+    the terms without tokenising whole messages; otherwise the analyzer runs.
+    """
+    vec = featurizer.vectorizer
+    plain = (
+        vec.token_pattern == r"(?u)\b\w\w+\b" and vec.lowercase and vec.strip_accents is None
+        and vec.preprocessor is None and vec.tokenizer is None and not callable(vec.analyzer)
+    )
+    if plain:
+        alternatives = "|".join(re.escape(t) for t in sorted(token_group, key=len, reverse=True))
+        pattern = re.compile(rf"\b(?:{alternatives})\b")
+        for i, text in enumerate(texts):
+            found = pattern.findall(text.lower())
+            if found:
+                counts: dict[str, int] = {}
+                for tok in found:
+                    counts[tok] = counts.get(tok, 0) + 1
+                yield i, counts
+        return
+    analyze = featurizer._analyzer
+    for i, text in enumerate(texts):
+        counts = {}
+        for tok in analyze(text):
+            if tok in token_group:
+                counts[tok] = counts.get(tok, 0) + 1
+        if counts:
+            yield i, counts
+
+
+def _substituted(model, texts, message, base, src_tok, tgt_tok, found, already) -> sp.csr_matrix:
+    """Count rows after each substitution (all occurrences of the source become the target).
+
+    ``found[r]``/``already[r]``: occurrences of swap r's source and target in its message.
+    """
     view, featurizer = model.view, model.featurizer
     vec = featurizer.vectorizer
     if vec.ngram_range == (1, 1):
         column = vec.vocabulary_
         rows, cols, vals = [], [], []
-        for r, (s, t, n) in enumerate(zip(src_tok, tgt_tok, found)):
+        for r, (s, t, n, m) in enumerate(zip(src_tok, tgt_tok, found, already)):
             # An unknown token has no column: removing or adding it changes nothing.
             # A binary vectorizer stores 1 however often a token occurs.
             if s in column:
-                rows.append(r), cols.append(column[s]), vals.append(-base[r, column[s]])
+                rows.append(r), cols.append(column[s]), vals.append(-1.0 if vec.binary else -float(n))
             if t in column:
-                add = 1.0 - base[r, column[t]] if vec.binary else float(n)
+                add = float(m == 0) if vec.binary else float(n)
                 rows.append(r), cols.append(column[t]), vals.append(add)
         delta = sp.csr_matrix((vals, (rows, cols)), shape=base.shape)
         out = sp.csr_matrix(base + delta)
