@@ -7,7 +7,7 @@ the message is re-scored exactly; the changes measure counterfactual token
 fairness (Garg et al. 2019, "Counterfactual Fairness in Text Classification
 through Robustness", AIES 2019). Their *counterfactual token fairness gap*
 of a message ``x`` with counterfactuals ``Phi(x)`` is
-``mean over x' in Phi(x) of |f(x) - f(x')|``, here with ``f`` = P(not normal);
+``mean over x' in Phi(x) of |f(x) - f(x')|``, here with ``f`` = P(flag);
 a group's gap is the mean over the messages holding one of its terms, a term
 pair's gap the mean over the messages holding the first term.
 
@@ -75,7 +75,7 @@ class PairShift:
     """Swapping ``source`` for ``target`` in every message holding ``source``.
 
     Shifts are target minus source; ``gap`` is the mean absolute change in
-    P(not normal) (Garg et al.'s gap restricted to this pair).
+    P(flag) (Garg et al.'s gap restricted to this pair).
     """
 
     group: str
@@ -105,7 +105,7 @@ class TermSwaps:
 
     ``message`` indexes the data; ``group``/``source``/``target`` name the
     swap; ``log_odds_before``/``after`` are flag log-odds
-    (``log P(not normal) - log P(normal)``); ``decision_before``/``after``
+    (``log P(flag) - log P(normal)``); ``decision_before``/``after``
     class names.
     """
 

@@ -27,7 +27,7 @@ def probe(
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of DATA holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of DATA holding the class (read, not needed)."),
     normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(not normal) >= P (default: the most probable class)."),
+    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
     threshold_log_odds: Optional[float] = typer.Option(None, "--threshold-log-odds", help="The same threshold as flag log-odds, exactly."),
     evasion: bool = typer.Option(False, "--evasion", help="Find the fewest added tokens that let each flagged message through."),
     swap_terms: Optional[Path] = typer.Option(

@@ -2,7 +2,7 @@
 
 Nothing here computes a figure. Evasion costs count added token
 occurrences; shifts are substituted minus original; log-odds are
-``log P(not normal) - log P(normal)`` (natural logarithms).
+``log P(flag) - log P(normal)`` (natural logarithms).
 
 JSON (``--format json``), schema ``nbledger.probe/1``: ``classes``,
 ``normal_class``, ``threshold``, ``threshold_log_odds``, ``messages``,
@@ -18,7 +18,7 @@ and ``attacks`` (``row``, ``decided``, ``cost``: null when not evaded,
 ``swap_notes``; ``term_swaps`` (null without data): ``groups`` (``group``,
 ``messages``, ``swaps``, ``decisions_changed``, ``fairness_gap``) and ``pairs``
 (``group``, ``source``, ``target``, ``messages``, ``decisions_changed``,
-``mean_log_odds_shift``, ``mean_probability_shift``, ``fairness_gap``).
+``mean_log_odds_shift``, ``mean_flag_probability_shift``, ``fairness_gap``).
 """
 
 from __future__ import annotations
@@ -48,7 +48,7 @@ def _cost(value: float | None, limit: int) -> str:
 def render(result: ProbeResult, console) -> None:
     """Print the probe for a person at a terminal (80 columns are enough)."""
     console.print(f"[bold]Robustness and fairness probe[/bold] of {plural(result.messages, 'message')}")
-    rule = "the most probable class" if result.threshold is None else f"flag when P(not normal) >= {result.threshold:.4g}"
+    rule = "the most probable class" if result.threshold is None else f"flag when P(flag) >= {result.threshold:.4g}"
     console.print(f"normal class: {result.normal_class}; decision: {rule}")
     ev = result.evasion
     if ev is not None:
@@ -113,7 +113,7 @@ def render(result: ProbeResult, console) -> None:
         if sw.pairs:
             ranked = sorted(sw.pairs, key=lambda p: -p.gap)[:PAIRS_SHOWN]
             pairs = Table(title=f"largest term pairs (of {len(sw.pairs)})", title_justify="left")
-            for name in ("swap", "messages", "changed", "log-odds shift", "P shift", "gap"):
+            for name in ("swap", "messages", "changed", "flag log-odds shift", "P(flag) shift", "gap"):
                 pairs.add_column(name, justify="left" if name == "swap" else "right")
             for p in ranked:
                 pairs.add_row(
@@ -193,7 +193,7 @@ def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
             "pairs": [
                 {"group": p.group, "source": p.source, "target": p.target, "messages": p.messages,
                  "decisions_changed": p.decisions_changed, "mean_log_odds_shift": p.mean_log_odds_shift,
-                 "mean_probability_shift": p.mean_probability_shift, "fairness_gap": p.gap}
+                 "mean_flag_probability_shift": p.mean_probability_shift, "fairness_gap": p.gap}
                 for p in sw.pairs
             ],
         },

@@ -87,7 +87,7 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
             else:  # the same term, or no message holds the row's term
                 ax.text(j, i, "=" if i == j else "-", ha="center", va="center", fontsize=6, color=NEUTRAL.base)
     bar = fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04)
-    bar.set_label("mean log-odds shift (+ toward flagging)", fontsize=8)
+    bar.set_label("mean flag log-odds shift (+ toward flagging)", fontsize=8)
     ax.set_title(f"Term swaps: {shown(group)} (cells: mean shift, messages)", fontsize=10, loc="left")
     return png_bytes(fig)
 
