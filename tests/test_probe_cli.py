@@ -100,3 +100,18 @@ def test_report_gains_the_section_only_when_asked(files, capsys):
     assert section["evasion"]["flagged_messages"] > 0 and "attacks" not in section["evasion"]["repeats"]
     html = (files / "asked.html").read_text(encoding="utf-8")
     assert "Robustness and fairness" in html and "Internal circulation only" in html
+
+
+def test_term_evidence_needs_only_the_model(files, capsys):
+    result = nbledger(capsys, "probe", files / "model.skops", "--swap-terms", SWAPS, "--format", "json")
+    assert result.code == 0, result.err
+    written = json.loads(result.out)
+    assert written["term_swaps"] is None and written["messages"] == 0
+    model = load_model(files / "model.skops")
+    vocabulary = set(map(str, model.view.tokens))
+    for row in written["term_evidence"]:
+        assert row["known"] == (row["token"] in vocabulary)
+        if not row["known"]:
+            assert set(row["evidence"].values()) == {0.0}
+    evasion = nbledger(capsys, "probe", files / "model.skops", "--evasion")
+    assert "--evasion needs DATA" in evasion.one_error_line()

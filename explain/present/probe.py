@@ -47,7 +47,8 @@ def _cost(value: float | None, limit: int) -> str:
 
 def render(result: ProbeResult, console) -> None:
     """Print the probe for a person at a terminal (80 columns are enough)."""
-    console.print(f"[bold]Robustness and fairness probe[/bold] of {plural(result.messages, 'message')}")
+    scope = plural(result.messages, "message") if result.messages else "the model alone (no messages given)"
+    console.print(f"[bold]Robustness and fairness probe[/bold] of {scope}")
     rule = "the most probable class" if result.threshold is None else f"flag when P(flag) >= {result.threshold:.4g}"
     console.print(f"normal class: {result.normal_class}; decision: {rule}")
     ev = result.evasion
