@@ -23,7 +23,9 @@ Two budgets, both in added units:
   sorted list is the minimum.
 
 Both are exact for count and presence features with two classes (argmax or
-a threshold): the decision compares one sum with a constant. Every answer is
+a threshold): the decision compares one sum with a constant. (With
+BernoulliNB's ``binarize`` of 1 or more a unit can take several occurrences;
+the minimum is then over units, as for the flip set.) Every answer is
 confirmed by re-scoring the new count rows exactly. For TF-IDF (an addition
 re-normalises the row), argmax over more than two classes, or a threshold
 over several flagged classes, the attack is built greedily, one unit at a
@@ -248,6 +250,7 @@ def _exact(view, featurizer, rule, counts, jll, decided, ok, budget, presence, m
         cols = [np.full(max_added, best)] * n
         sizes = [np.ones(max_added, dtype=np.int64)] * n
     else:
+        k = np.zeros(n, dtype=np.int64)
         indptr, indices, data = counts.indptr, counts.indices, counts.data
         for i in range(n):
             present = indices[indptr[i] : indptr[i + 1]]
@@ -267,9 +270,8 @@ def _exact(view, featurizer, rule, counts, jll, decided, ok, budget, presence, m
             else:
                 through = np.flatnonzero(row <= 0)
             cols[i], sizes[i] = chosen, size
-            costs[i] = through[0] + 1 if len(through) else len(chosen)
-        k = costs
-    return _confirm_all(view, featurizer, rule, counts, cols, sizes, np.asarray(k), max_added)
+            k[i] = through[0] + 1 if len(through) else len(chosen)
+    return _confirm_all(view, featurizer, rule, counts, cols, sizes, k, max_added)
 
 
 def _confirm_all(view, featurizer, rule, counts, cols, sizes, k, max_added):
