@@ -42,7 +42,7 @@ PAIRS_SHOWN = 12
 
 
 def _cost(value: float | None, limit: int) -> str:
-    return f"> {limit}" if value is None else f"{value:g}"
+    return f">{limit}" if value is None else f"{value:g}"
 
 
 def render(result: ProbeResult, console) -> None:
@@ -74,7 +74,7 @@ def render(result: ProbeResult, console) -> None:
                 shares = dict(s.within)
                 table.add_row(
                     shown(s.flagged_class), f"{s.messages:,}", _cost(s.median, ev.max_added),
-                    f"{_cost(s.q1, ev.max_added)}-{_cost(s.q3, ev.max_added)}",
+                    f"{_cost(s.q1, ev.max_added)} to {_cost(s.q3, ev.max_added)}",
                     *(f"{100 * shares[k]:.0f}%" for k in WITHIN),
                 )
             console.print(table)
