@@ -61,6 +61,8 @@ _PUBLIC = {
     "compare_models": "explain.analysis.compare",
     "Comparison": "explain.analysis.compare",
     "mcnemar": "explain.analysis.stats",
+    "probe": "explain.analysis.probe",
+    "ProbeResult": "explain.analysis.probe",
     "Report": "explain.analysis.report",
     "ReportSettings": "explain.analysis.report",
     "wilson_interval": "explain.analysis.stats",

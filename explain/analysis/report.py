@@ -179,6 +179,8 @@ class Report:
     explained_source: str | None
     explained_total: int
     versions: dict
+    #: robustness and fairness probe (``report --probe`` / ``--swap-terms``), else None
+    probe: object | None = None
 
 
 def report_date() -> _dt.datetime:
@@ -239,6 +241,8 @@ def build_report(
     on_step=lambda name: None,
     slices=(),
     label_errors=None,
+    probe_evasion: bool = False,
+    swap_terms=None,
 ) -> Report:
     """Compute everything the report shows.
 
@@ -254,6 +258,9 @@ def build_report(
         :func:`explain.analysis.assessment.assess` takes them (slice groups;
         :class:`~explain.analysis.label_errors.LabelErrors` or None).
     on_step : called with the name of each step as it starts (progress display).
+    probe_evasion, swap_terms : add the robustness and fairness probe
+        (:func:`explain.analysis.probe.probe`): evasion costs over ``data``,
+        term swaps from a swap-terms file.
     """
     date = report_date()
     redact = settings.redact
@@ -288,7 +295,20 @@ def build_report(
         for i in rows[: settings.max_messages]
         if texts[i].strip()
     )
+    # --- probe (robustness and fairness), only when asked ---
+    probe_result = None
+    if probe_evasion or swap_terms is not None:
+        from explain.analysis.probe import probe
+
+        if probe_evasion and data is None:
+            raise NbledgerError("--probe measures evasion over --data: give --data")
+        on_step("probing robustness and fairness")
+        probe_result = probe(
+            model, None if data is None else data.texts, evasion=probe_evasion, swap_terms=swap_terms,
+            threshold=settings.threshold,
+        )
     return Report(
+        probe=probe_result,
         settings=settings,
         date=date,
         model=model,

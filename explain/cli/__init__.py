@@ -274,3 +274,4 @@ from explain.cli import vocab  # noqa: E402,F401
 from explain.cli import report  # noqa: E402,F401
 from explain.cli import demo  # noqa: E402,F401
 from explain.cli import compare  # noqa: E402,F401
+from explain.cli import probe  # noqa: E402,F401

@@ -116,6 +116,12 @@ def report(
     organisation: Optional[str] = typer.Option(None, "--organisation", help="Organisation on the cover."),
     paper: str = typer.Option("a4", "--paper", help="a4 | letter"),
     max_messages: int = typer.Option(6, "--max-messages", help="Messages in the explained-messages section."),
+    probe_evasion: bool = typer.Option(
+        False, "--probe", help="Add the robustness and fairness section: evasion costs over --data (internal circulation)."
+    ),
+    swap_terms: Optional[Path] = typer.Option(
+        None, "--swap-terms", help="Add term swaps to that section: groups of interchangeable terms, one group a line."
+    ),
     html: Optional[Path] = typer.Option(None, "--html", help="Also write the HTML twin (one self-contained file)."),
     json_out: Optional[Path] = typer.Option(None, "--json", help="Also write the JSON twin (every figure)."),
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
@@ -155,8 +161,10 @@ def report(
     if (slice_by or label_errors) and data is None:
         fail("--slice-by and --label-errors need labelled data (--data)")
 
-    total = 9 if (slice_by or label_errors) else 8
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist]) as files, steps(total) as step:
+    probing = probe_evasion or swap_terms is not None
+    total = 8 + bool(slice_by or label_errors) + probing
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist, swap_terms]) as files, \
+            steps(total) as step:
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
@@ -180,7 +188,8 @@ def report(
                 folds=folds, max_data_bytes=max_data_bytes,
             )
         result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
-                              on_step=step, slices=groups, label_errors=suspected)
+                              on_step=step, slices=groups, label_errors=suspected,
+                              probe_evasion=probe_evasion, swap_terms=swap_terms)
         step("drawing the pictures")
         twin = to_json(result)
         pictures = draw_pictures(result)

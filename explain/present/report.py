@@ -109,6 +109,10 @@ def draw_pictures(report: Report) -> dict[str, bytes]:
     for i, _ in enumerate(report.vocab.contrasts):
         pictures[f"bars_{i}.png"] = vocab_pictures.bar_chart(report.vocab, i)
         pictures[f"cloud_{i}.png"] = vocab_pictures.word_cloud(report.vocab, i, "for")
+    if report.probe is not None:  # robustness and fairness section
+        from explain.present import probe_pictures
+
+        pictures.update({f"probe_{name}": png for name, png in probe_pictures.draw_all(report.probe).items()})
     return pictures
 
 

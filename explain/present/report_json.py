@@ -18,6 +18,7 @@ import numpy as np
 
 from explain.analysis.report import Report
 from explain.present import assessment as assessment_json
+from explain.present import probe as probe_present
 from explain.present import vocab as vocab_json
 from explain.present import why as why_json
 
@@ -81,6 +82,8 @@ def to_json(report: Report) -> dict:
                 "shown": len(report.explained),
                 "messages": [ledger_json(ledger) for ledger in report.explained],
             },
+            # robustness and fairness (report --probe / --swap-terms): summaries only, no per-message attacks
+            "robustness_and_fairness": None if report.probe is None else probe_present.to_json(report.probe, include_attacks=False),
         }
     )
 

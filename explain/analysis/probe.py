@@ -1,0 +1,78 @@
+"""Robustness and fairness probes of a filter: evasion costs and term swaps, in one result.
+
+See :mod:`explain.analysis.evasion` (how many added tokens let a flagged
+message through; Lowd & Meek 2005) and :mod:`explain.analysis.term_swap`
+(whether swapping one group's term for another changes the decision;
+Garg et al. 2019).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from explain.analysis.evasion import Evasion, evasion_costs
+from explain.analysis.term_swap import SwapTerms, TermEvidence, TermSwaps, read_swap_terms, term_evidence, term_swaps
+from explain.errors import NbledgerError
+from explain.model.decision import DecisionRule
+
+DEFAULT_MAX_ADDED = 50
+
+
+@dataclass(frozen=True, eq=False)
+class ProbeResult:
+    """What ``nbledger probe`` reports; presenters only read it.
+
+    ``evasion`` is None unless asked; ``swaps`` is None without data or a
+    swap-terms file; ``term_evidence`` needs only the model and the file.
+    """
+
+    classes: tuple[str, ...]
+    normal_class: str
+    threshold: float | None
+    threshold_log_odds: float | None
+    messages: int
+    evasion: Evasion | None
+    swaps: TermSwaps | None
+    term_evidence: tuple[TermEvidence, ...]
+    swap_notes: tuple[str, ...]
+
+
+def probe(
+    model,
+    texts=None,
+    *,
+    evasion: bool = True,
+    swap_terms=None,
+    max_added: int = DEFAULT_MAX_ADDED,
+    threshold: float | None = None,
+    threshold_log_odds: float | None = None,
+) -> ProbeResult:
+    """Probe a loaded model with messages ``texts`` (a sequence of str, or None).
+
+    ``swap_terms`` is a path to a swap-terms file or a parsed :class:`SwapTerms`.
+    """
+    view = model.view
+    rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
+    if rule.normal_index is None:
+        raise NbledgerError("probing needs a normal class: name it with --normal-class")
+    if max_added < 1:
+        raise NbledgerError(f"--max-added must be at least 1, got {max_added}")
+    if texts is None and evasion:
+        raise NbledgerError("evasion costs need messages: give data")
+    terms = None
+    if swap_terms is not None:
+        terms = swap_terms if isinstance(swap_terms, SwapTerms) else read_swap_terms(swap_terms, model.featurizer)
+    if not evasion and terms is None:
+        raise NbledgerError("nothing to probe: ask for --evasion, --swap-terms FILE or both")
+    texts = None if texts is None else list(texts)
+    return ProbeResult(
+        classes=tuple(str(c) for c in view.classes),
+        normal_class=str(view.classes[rule.normal_index]),
+        threshold=rule.threshold,
+        threshold_log_odds=rule.threshold_log_odds,
+        messages=0 if texts is None else len(texts),
+        evasion=evasion_costs(model, texts, rule, max_added) if evasion else None,
+        swaps=term_swaps(model, texts, rule, terms) if terms is not None and texts is not None else None,
+        term_evidence=term_evidence(view, rule, terms) if terms is not None else (),
+        swap_notes=() if terms is None else terms.notes,
+    )

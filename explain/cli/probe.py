@@ -1,0 +1,97 @@
+"""``nbledger probe``: how easily is the filter evaded, and does it treat groups of people alike?"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+
+from explain.cli import (
+    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
+    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+)
+from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.output_files import OutputSet
+
+FORMATS = ("text", "json")
+
+
+@app.command()
+def probe(
+    model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
+    data: Optional[Path] = typer.Argument(
+        None, help="Messages (.csv, .jsonl, .parquet, .eml folder, mbox); without it, only term evidence."
+    ),
+    text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of DATA holding the text."),
+    label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of DATA holding the class (read, not needed)."),
+    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
+    threshold_log_odds: Optional[float] = typer.Option(None, "--threshold-log-odds", help="The same threshold as flag log-odds, exactly."),
+    evasion: bool = typer.Option(False, "--evasion", help="Find the fewest added tokens that let each flagged message through."),
+    swap_terms: Optional[Path] = typer.Option(
+        None, "--swap-terms", help="Groups of interchangeable terms (one group a line, commas between terms, # comments)."
+    ),
+    max_added: int = typer.Option(50, "--max-added", help="Search evasions of at most this many added tokens."),
+    output_format: str = typer.Option("text", "--format", help="text | json"),
+    out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
+    images: Optional[Path] = typer.Option(None, "--images", help="Write the pictures (PNG) here."),
+    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
+    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
+    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    text_view: Optional[str] = TEXT_VIEW,
+    raw_email: bool = RAW_EMAIL,
+    labels_from_folders: bool = LABELS_FROM_FOLDERS,
+    label: Optional[str] = LABEL,
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
+):
+    """How many added words get a flagged message through, and do swapped group terms change decisions?"""
+    from explain.analysis.probe import probe as run_probe
+
+    if output_format not in FORMATS:
+        fail(f"--format must be text or json, got {output_format!r}")
+    if max_added < 1:
+        fail(f"--max-added must be at least 1, got {max_added}")
+    if threshold is not None and threshold_log_odds is not None:
+        fail("give --threshold or --threshold-log-odds, not both")
+    if not evasion and swap_terms is None:
+        fail("nothing to probe: ask for --evasion, --swap-terms FILE or both")
+    if evasion and data is None:
+        fail("--evasion needs DATA: the messages whose evasion cost is measured")
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, swap_terms]) as outputs:
+        if out is not None:
+            outputs.file(out)
+        if images is not None:
+            outputs.folder(images)
+        loaded = load_model_or_fail(
+            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
+        )
+        texts = None
+        if data is not None:
+            mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+            texts = read_messages_or_fail(
+                data, text_col, label_col, mail, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+            ).texts
+        result = run_probe(
+            loaded, texts, evasion=evasion, swap_terms=swap_terms, max_added=max_added,
+            threshold=threshold, threshold_log_odds=threshold_log_odds,
+        )
+
+        from explain.present.probe import render, to_json
+
+        pictures = {}
+        if images is not None:
+            from explain.present.probe_pictures import draw_all
+
+            pictures = draw_all(result)
+        if output_format == "json":
+            text = json.dumps(to_json(result), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+        else:
+            text = plain_text(render, result, 100) if out is not None else None
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))

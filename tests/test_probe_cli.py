@@ -1,0 +1,117 @@
+"""``nbledger probe`` and ``report --probe`` end to end: outputs match the library, bad input gives one error line."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from explain.analysis.probe import probe
+from explain.cli import run
+from explain.model.loading import load_model
+from explain.present.probe import to_json
+from tests.clirun import nbledger
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "demo_corpus" / "messages.csv"
+SWAPS = ROOT / "demo_corpus" / "examples" / "swap_terms.txt"
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("probe")
+    frame = pd.read_csv(DEMO, dtype=str, keep_default_na=False)
+    # Two classes keep the evasion exact and quick; ok is the normal class.
+    two = frame[frame.label != "advert"]
+    two.to_csv(folder / "messages.csv", index=False)
+    assert run(["train", str(folder / "messages.csv"), "--text-col", "text", "--label-col", "label",
+                "--out", str(folder / "model.skops"), "--normal-class", "ok"]) == 0
+    model = load_model(folder / "model.skops")
+    ok = two[two.label == "ok"].head(200)
+    let_through = model.view.classes[np.argmax(model.view.joint_log_likelihood(model.featurizer.transform(ok.text)), axis=1)] == "ok"
+    ok[let_through].to_csv(folder / "only_ok.csv", index=False)
+    (folder / "bad_swaps.txt").write_text("solo: muslim\n", encoding="utf-8")
+    (folder / "mixed_swaps.txt").write_text(
+        "# a comment\npeople: she, he, the harbour master\nagain: He, they\n", encoding="utf-8"
+    )
+    return folder
+
+
+def test_json_output_is_the_library_result(files, capsys):
+    out = files / "probe.json"
+    images = files / "pictures"
+    result = nbledger(
+        capsys, "probe", files / "model.skops", files / "messages.csv", "--text-col", "text", "--evasion",
+        "--swap-terms", SWAPS, "--format", "json", "--out", out, "--images", images, "--max-added", "20",
+    )
+    assert result.code == 0, result.err
+    written = json.loads(out.read_text(encoding="utf-8"))
+    model = load_model(files / "model.skops")
+    texts = pd.read_csv(files / "messages.csv", dtype=str, keep_default_na=False).text
+    expected = json.loads(json.dumps(to_json(probe(model, texts, swap_terms=SWAPS, max_added=20))))
+    assert written == expected
+    assert written["evasion"]["repeats"]["method"] == "exact"
+    assert any("Internal circulation" in c or "internal circulation" in c for c in written["cautions"])
+    assert (images / "evasion-cost.png").exists()
+
+
+def test_terminal_output_names_the_figures(files, capsys):
+    result = nbledger(capsys, "probe", files / "model.skops", files / "messages.csv", "--text-col", "text",
+                      "--swap-terms", files / "mixed_swaps.txt")
+    assert result.code == 0, result.err
+    assert "Term swaps" in result.out and "fairness gap" in result.out
+    # the file's problems are named, with how they were handled
+    assert "'the harbour master' is 3 tokens" in result.out
+    assert "'He' reads as 'he', already in people" in result.out
+    assert "Evasion cost" not in result.out
+
+
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        (["--evasion", "--max-added", "0"], "--max-added must be at least 1"),
+        (["--swap-terms", "{bad}"], "no group of two or more usable terms"),
+        ([], "nothing to probe"),
+        (["--evasion", "--format", "csv"], "--format must be text or json"),
+    ],
+)
+def test_bad_requests_give_one_error_line(files, capsys, args, message):
+    args = [a.replace("{bad}", str(files / "bad_swaps.txt")) for a in args]
+    result = nbledger(capsys, "probe", files / "model.skops", files / "messages.csv", "--text-col", "text", *args)
+    assert message in result.one_error_line()
+
+
+def test_no_flagged_messages_is_said(files, capsys):
+    result = nbledger(capsys, "probe", files / "model.skops", files / "only_ok.csv", "--text-col", "text", "--evasion")
+    line = result.one_error_line()
+    assert "no message in the data is flagged" in line
+
+
+def test_report_gains_the_section_only_when_asked(files, capsys):
+    plain, asked = files / "plain.json", files / "asked.json"
+    common = ["report", files / "model.skops", "--data", files / "messages.csv", "--normal-class", "ok"]
+    assert nbledger(capsys, *common, "--out", files / "plain.pdf", "--json", plain).code == 0
+    result = nbledger(capsys, *common, "--probe", "--swap-terms", SWAPS, "--out", files / "asked.pdf",
+                      "--html", files / "asked.html", "--json", asked)
+    assert result.code == 0, result.err
+    assert json.loads(plain.read_text())["robustness_and_fairness"] is None
+    section = json.loads(asked.read_text())["robustness_and_fairness"]
+    assert section["evasion"]["flagged_messages"] > 0 and "attacks" not in section["evasion"]["repeats"]
+    html = (files / "asked.html").read_text(encoding="utf-8")
+    assert "Robustness and fairness" in html and "Internal circulation only" in html
+
+
+def test_term_evidence_needs_only_the_model(files, capsys):
+    result = nbledger(capsys, "probe", files / "model.skops", "--swap-terms", SWAPS, "--format", "json")
+    assert result.code == 0, result.err
+    written = json.loads(result.out)
+    assert written["term_swaps"] is None and written["messages"] == 0
+    model = load_model(files / "model.skops")
+    vocabulary = set(map(str, model.view.tokens))
+    for row in written["term_evidence"]:
+        assert row["known"] == (row["token"] in vocabulary)
+        if not row["known"]:
+            assert set(row["evidence"].values()) == {0.0}
+    evasion = nbledger(capsys, "probe", files / "model.skops", "--evasion")
+    assert "--evasion needs DATA" in evasion.one_error_line()
