@@ -9,6 +9,7 @@ a defect and still ends as one line (exit status 3), never a traceback.
 from __future__ import annotations
 
 import io
+import os
 import signal
 import sys
 import threading
@@ -202,7 +203,8 @@ def _unraisable(unraisable) -> None:
     warning line, never a traceback.
     """
     if isinstance(unraisable.exc_value, Interrupted):
-        signal.raise_signal(unraisable.exc_value.signum)
+        # Sent from another thread, so that the handler runs after this hook has returned.
+        threading.Thread(target=os.kill, args=(os.getpid(), unraisable.exc_value.signum), daemon=True).start()
         return
     warn(f"ignored {unraisable.exc_type.__name__} in {getattr(unraisable.object, '__qualname__', 'cleanup')}")
 
