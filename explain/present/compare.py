@@ -37,7 +37,7 @@ def _score(s) -> dict | None:
         "accuracy": _rate(s.accuracy),
         "flagging": None if f is None else {
             "tp": f.tp, "fp": f.fp, "fn": f.fn, "tn": f.tn,
-            **{k: _rate(getattr(f, k)) for k in ("precision", "recall", "false_positive_rate", "f1")},
+            **{k: _rate(getattr(f, k)) for k in ("precision", "recall", "false_alarm_rate", "f1")},
         },
     }
 
@@ -185,7 +185,7 @@ def _lines(c: Comparison, top: int) -> list[str]:
             rows = [("accuracy", d.old_score.accuracy, d.new_score.accuracy)]
             if d.old_score.flagging is not None:
                 rows += [(name, getattr(d.old_score.flagging, key), getattr(d.new_score.flagging, key))
-                         for name, key in (("recall", "recall"), ("false alarm rate", "false_positive_rate"))]
+                         for name, key in (("recall", "recall"), ("false-alarm rate", "false_alarm_rate"))]
             out += ["", "  (95 % Wilson intervals)"]
             for name, before, after in rows:
                 out += [f"  {name:<17} old {_pct(before)}", f"  {'':<17} new {_pct(after)}"]
