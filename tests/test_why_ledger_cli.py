@@ -226,3 +226,14 @@ def test_watchlist_terms_are_flagged_beside_their_entries(demo, capsys, tmp_path
                               "--format", "json").out)
     flags = {e["token"]: e["flags"] for e in doc["ledger"]["entries"]}
     assert "watchlist" in flags["ladder"] and "watchlist" not in flags["borrow"]
+
+
+def test_closing_odds_name_the_side_the_balance_favours_even_when_a_threshold_overrules_it(demo, capsys):
+    # A balance above 0 favours the flagged side; a threshold line above it still lets the message through.
+    model, _ = demo
+    r = nbledger(capsys, "why", model, "pay the parcel fee", "--threshold", "0.999999", "--format", "json")
+    doc = json.loads(r.out)
+    assert doc["ledger"]["closing"] > 0 and doc["decision"] == "ok"
+    r = nbledger(capsys, "why", model, "pay the parcel fee", "--threshold", "0.999999", "--color", "never")
+    closing = next(line for line in r.out.splitlines() if line.startswith("closing balance"))
+    assert closing.rstrip().endswith(f"for {doc['ledger']['credit_side']}"), closing

@@ -22,7 +22,7 @@ from explain.present.token_display import shown
 from explain.present.why import (
     CAUTION,
     credit_colour_class,
-    decided_side,
+    closing_odds,
     ledger_notes,
     ledger_rows,
     money,
@@ -32,7 +32,7 @@ from explain.present.why import (
     support_cell,
     word_notes,
 )
-from explain.present.wording import amount, folded, odds_factor
+from explain.present.wording import amount, folded
 
 REDACTIONS = ("none", "personal", "bodies")
 TEMPLATE = "partials/ledger.html.j2"
@@ -173,7 +173,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "opening": opening,
         "rows": shown_rows,
         "closing": f"{ledger.closing:+.2f}",
-        "closing_odds": f"odds {odds_factor(ledger.closing)} for {decided_side(ledger)}",
+        "closing_odds": closing_odds(ledger),
         "rule": rule_line(ledger),
         "legend": legend,
         "notes": ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top),

@@ -324,6 +324,12 @@ def decided_side(ledger: Ledger) -> str:
     return ledger.credit_side if ledger.credit_wins else ledger.debit_class
 
 
+def closing_odds(ledger: Ledger) -> str:
+    """The odds the closing balance gives, named for the side it favours (which a threshold may still overrule)."""
+    side = ledger.credit_side if ledger.closing > 0 else ledger.debit_class
+    return f"odds {odds_factor(ledger.closing)} for {side}"
+
+
 def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
     """The sentences under the closing balance: where it tipped, exactness, what "seen" counts, folding."""
     side = decided_side(ledger)
@@ -458,10 +464,9 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
         table.add_row("", Text("(no word the model knows)", style="italic"))
     console.print(table)
     console.print("═" * min(console.measure(table).maximum, console.width))
-    side = decided_side(ledger)
     closing = Text("closing balance ", style="bold")
     closing.append(f"{ledger.closing:+.2f}", style="bold")
-    closing.append(f"   odds {odds_factor(ledger.closing)} for {side}")
+    closing.append(f"   {closing_odds(ledger)}")
     console.print(closing)
     console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
     console.print(_legend(ledger, rows, mode, families))
