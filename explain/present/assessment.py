@@ -49,6 +49,7 @@ from explain.analysis.error_review import ReviewedMessage
 from explain.analysis.ranking import OperatingPoint
 from explain.analysis.rates import Estimate, Rate
 from explain.present.token_display import shown
+from explain.present.wording import probability
 
 SCHEMA = "nbledger.assess/1"
 
@@ -114,15 +115,11 @@ def _share_interval(e: Estimate) -> str:
     return _interval(e.value, e.low, e.high, 1 if math.isfinite(e.value) else 0)
 
 
-def _prob(p: float) -> str:
-    """A probability readable near 0 and 1, where naive Bayes puts most of them."""
+def prob(p: float) -> str:
+    """A probability readable near 0 and 1, where naive Bayes puts most of them (never rounded to certainty)."""
     if not math.isfinite(p):
         return "-"
-    if p >= 0.9995:
-        return "1 - " + (f"{1 - p:.2g}" if p < 1 else "<1e-16")
-    if p <= 0.0005:
-        return f"{p:.2g}"
-    return f"{p:.4f}"
+    return probability(p, (1.0 - p) if p < 1 else None)
 
 
 def _num(x: float, digits: int = 3) -> str:
@@ -280,7 +277,7 @@ def _operating_points(result: Assessment, console: Console) -> None:
         if f is None:
             rows.append([Text(point_label(p)), Text(f"not met: {p.note}", style="italic"), "", "", "", ""])
             continue
-        rows.append([Text(point_label(p)), _num(f.threshold_log_odds), _prob(f.threshold_probability),
+        rows.append([Text(point_label(p)), _num(f.threshold_log_odds), prob(f.threshold_probability),
                      _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_alarm_rate.value)])
         row = [Text(point_label(p)), f"{f.flagged_per_10k:.1f}", f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
         if result.costs is not None:
@@ -339,7 +336,7 @@ def _calibration(result: Assessment, console: Console) -> None:
     )
     rows = [
         [str(b + 1), str(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
-         _prob(cal.mean_predicted[b]),
+         prob(cal.mean_predicted[b]),
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
         for b in range(cal.n_bins)
     ]
@@ -358,7 +355,7 @@ def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, 
     heading = title if total is None else f"{title}: {total}" + (f" (showing {len(rows)})" if len(rows) < total else "")
     cells = [
         [Text(m.id + ("\nlabel may be wrong" if m.label_may_be_wrong else "")), Text(m.true_class),
-         Text(m.decided_class), _prob(m.flag_probability), f"{m.margin:+.2f}",
+         Text(m.decided_class), prob(m.flag_probability), f"{m.margin:+.2f}",
          Text(_tokens(m.toward_flag)), Text(_tokens(m.toward_normal))]
         for m in rows
     ]
@@ -418,7 +415,7 @@ def _label_errors(result: Assessment, console: Console) -> None:
     if le is None:
         return
     rows = [
-        [Text(s.id), Text(s.label), Text(s.favoured_class), _prob(s.label_probability), f"{s.log_odds:+.2f}",
+        [Text(s.id), Text(s.label), Text(s.favoured_class), prob(s.label_probability), f"{s.log_odds:+.2f}",
          Text(_tokens(s.toward_favoured))]
         for s in le.suspected
     ]

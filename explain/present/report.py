@@ -64,7 +64,7 @@ def environment():
 
 def _prob(p) -> str:
     """A probability as ``assess`` prints it: never rounded to certainty (``1 - 2.7e-15``)."""
-    return "–" if p is None else assessment_screen._prob(p)
+    return "–" if p is None else assessment_screen.prob(p)
 
 
 def _exact(x) -> str:
