@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import gzip
+
 import json
 import os
 import sys
@@ -45,7 +47,11 @@ def test_a_zip_bomb_declaring_too_much_is_refused_unopened(good_model, tmp_path)
     assert bomb.stat().st_size < 1 << 20  # small on disk
     code, err, peak = run_measured(["why", bomb, "fee", "--max-model-memory", "256M"], _env(tmp_path))
     assert code == 2 and "--max-model-memory" in err and "not opened" in err and "Traceback" not in err
-    assert peak < 256 << 20
+    # Against the same command on the good model (its imports are most of any run's memory): the 300 MiB the
+    # bomb declares would show far above it had anything been inflated.
+    _, _, usual = run_measured(["why", good_model, "fee", "--no-cache"], _env(tmp_path))
+    print(f"\npeak memory: refused bomb {peak / 2**20:.0f} MiB, good model {usual / 2**20:.0f} MiB")
+    assert peak < usual + (64 << 20)
 
 
 def test_a_zip_bomb_within_the_declared_limit_hits_the_memory_limit(good_model, tmp_path):
@@ -64,8 +70,16 @@ def test_a_gzip_bomb_is_stopped_at_the_data_limit(good_model, tmp_path):
     args = ["assess", good_model, bomb, "--text-col", "text", "--label-col", "label", "--max-data-bytes", "32M"]
     code, err, peak = run_measured(args, _env(tmp_path))
     assert code == 2 and "--max-data-bytes" in err and err.count("\n") == 1, err
-    print(f"\npeak memory reading a 256 MiB gzip bomb with a 32 MiB limit: {peak / 2**20:.0f} MiB")
-    assert peak < 256 << 20
+    small = tmp_path / "small.csv.gz"
+    small.write_bytes(gzip.compress(b"text,label\nfee now,scam\ntea at four,ok\n"))
+    _, _, usual = run_measured(
+        ["assess", good_model, small, "--text-col", "text", "--label-col", "label", "--max-data-bytes", "32M"],
+        _env(tmp_path),
+    )
+    print(f"\npeak memory reading a 256 MiB gzip bomb with a 32 MiB limit: {peak / 2**20:.0f} MiB "
+          f"(a two-row file: {usual / 2**20:.0f} MiB)")
+    # At most the 32 MiB the limit lets through (held twice while joined) above an ordinary run.
+    assert peak < usual + (96 << 20)
 
 
 def test_a_data_message_over_max_bytes_is_counted_and_refused(good_model, tmp_path, capsys):
