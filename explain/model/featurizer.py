@@ -1,8 +1,9 @@
 """From message text to the feature row a naive Bayes classifier multiplies.
 
 A :class:`Featurizer` wraps the fitted text steps of a pipeline
-(``CountVectorizer``, ``TfidfVectorizer`` or ``CountVectorizer`` followed by
-``TfidfTransformer``). It gives three things:
+(``CountVectorizer``, ``TfidfVectorizer``, ``HashingVectorizer``, or a
+``CountVectorizer`` or ``HashingVectorizer`` followed by ``TfidfTransformer``).
+It gives three things:
 
 - ``transform(texts)``: the pipeline's own feature matrix (scikit-learn does
   the work, so the numbers are the model's);
@@ -52,35 +53,63 @@ class Occurrences:
 class Featurizer:
     """The fitted text steps of a naive Bayes pipeline.
 
+    A ``HashingVectorizer`` stores no vocabulary: its columns are named
+    ``column j`` here, and :meth:`hashed_names` recovers the tokens behind a
+    column from texts at hand.
+
     Parameters
     ----------
-    vectorizer : fitted CountVectorizer or TfidfVectorizer.
+    vectorizer : fitted CountVectorizer or TfidfVectorizer, or a HashingVectorizer.
     tfidf : fitted TfidfTransformer applied after ``vectorizer``, or None.
     tokens : the vectorizer's feature names in column order, when already known
         (saves sorting a large vocabulary again).
     """
 
     def __init__(self, vectorizer, tfidf=None, tokens=None):
-        from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
+        from sklearn.feature_extraction.text import CountVectorizer, HashingVectorizer, TfidfVectorizer
 
-        if type(vectorizer) not in (CountVectorizer, TfidfVectorizer):
+        if type(vectorizer) not in (CountVectorizer, TfidfVectorizer, HashingVectorizer):
             raise NbledgerError(
-                f"the text step is {type(vectorizer).__name__}; supported: CountVectorizer, TfidfVectorizer"
+                f"the text step is {type(vectorizer).__name__}; "
+                "supported: CountVectorizer, TfidfVectorizer, HashingVectorizer"
             )
-        if not hasattr(vectorizer, "vocabulary_"):
+        self.hashed = type(vectorizer) is HashingVectorizer
+        if self.hashed and vectorizer.alternate_sign:
+            raise NbledgerError(
+                "the HashingVectorizer uses alternate_sign=True, which makes negative features; "
+                "naive Bayes needs non-negative features, so train it with alternate_sign=False"
+            )
+        if not self.hashed and not hasattr(vectorizer, "vocabulary_"):
             raise NbledgerError(f"the {type(vectorizer).__name__} in this file has not been fitted")
         self.vectorizer = vectorizer
         self.tfidf = vectorizer if isinstance(vectorizer, TfidfVectorizer) else tfidf
-        self.tokens = np.asarray(vectorizer.get_feature_names_out() if tokens is None else tokens, dtype=object)
         # The same tokenisation without binarising or weighting, so that one
         # pass gives both the raw counts and the features (see counts_and_features).
-        own = CountVectorizer().get_params()
-        self._counter = CountVectorizer(
-            **{k: v for k, v in vectorizer.get_params().items() if k in own and k != "vocabulary"},
-        ).set_params(binary=False, vocabulary=vectorizer.vocabulary_)
-        self._vocabulary = vectorizer.vocabulary_
+        if self.hashed:
+            n = int(vectorizer.n_features)
+            self.tokens = np.asarray(
+                [f"column {j}" for j in range(n)] if tokens is None else tokens, dtype=object
+            )
+            self._counter = HashingVectorizer(**vectorizer.get_params()).set_params(
+                binary=False, norm=None, alternate_sign=False, dtype=np.float64
+            )
+            self._vocabulary = _HashedColumns(n)
+            # The hashing step's own row normalisation comes before any TF-IDF step.
+            self._hash_norm = vectorizer.norm
+        else:
+            self.tokens = np.asarray(
+                vectorizer.get_feature_names_out() if tokens is None else tokens, dtype=object
+            )
+            own = CountVectorizer().get_params()
+            self._counter = CountVectorizer(
+                **{k: v for k, v in vectorizer.get_params().items() if k in own and k != "vocabulary"},
+            ).set_params(binary=False, vocabulary=vectorizer.vocabulary_)
+            self._vocabulary = vectorizer.vocabulary_
+            self._hash_norm = None
         self._analyzer = vectorizer.build_analyzer()
-        if self.tfidf is not None:
+        if self.tfidf is not None or self._hash_norm is not None:
+            # Normalised rows: a feature's value depends on the whole message,
+            # so evidence is re-scored, never added up (as for TF-IDF).
             self.feature_kind = "tfidf"
         elif vectorizer.binary:
             self.feature_kind = "binary"
@@ -108,6 +137,8 @@ class Featurizer:
         X = counts.copy()
         if self.vectorizer.binary:
             X.data.fill(1)
+        if self._hash_norm is not None:
+            X = normalize(X, norm=self._hash_norm, copy=False)
         if self.tfidf is not None:
             # TfidfVectorizer.transform is CountVectorizer.transform then its own TfidfTransformer.
             X = getattr(self.tfidf, "_tfidf", self.tfidf).transform(X, copy=False)
@@ -129,12 +160,16 @@ class Featurizer:
 
         Mirrors ``CountVectorizer(binary=...)`` and ``TfidfTransformer.transform``
         (sublinear tf, idf, then row normalisation), so that a count row with
-        occurrences removed can be re-scored without re-tokenising.
+        occurrences removed can be re-scored without re-tokenising. A
+        ``HashingVectorizer`` normalises its rows itself (its ``norm``) before
+        any TF-IDF step.
         """
         X = sp.csr_matrix(counts, dtype=np.float64, copy=True)
         X.eliminate_zeros()
         if self.vectorizer.binary:
             X.data[:] = 1.0
+        if self._hash_norm is not None:
+            X = sp.csr_matrix(normalize(X, norm=self._hash_norm, copy=False))
         if self.tfidf is None:
             return X
         if self.tfidf.sublinear_tf:
@@ -145,6 +180,19 @@ class Featurizer:
         if self.tfidf.norm is not None:
             X = normalize(X, norm=self.tfidf.norm, copy=False)
         return sp.csr_matrix(X)
+
+    def hashed_names(self, texts) -> dict[int, tuple[str, ...]]:
+        """Hashed models: column -> the distinct tokens of ``texts`` hashed into it (sorted).
+
+        A column with two or more tokens is a collision: its evidence is the
+        sum of all of them, and the model cannot tell them apart.
+        """
+        found: dict[int, set[str]] = {}
+        for text in texts:
+            occ = self.occurrences(text, with_spans=False)
+            for token, column in zip(occ.tokens, occ.columns.tolist()):
+                found.setdefault(column, set()).add(token)
+        return {c: tuple(sorted(t)) for c, t in sorted(found.items())}
 
     def occurrences(self, text: str, with_spans: bool = True) -> Occurrences:
         """Every token the analyzer makes of ``text``, with columns and spans."""
@@ -236,6 +284,28 @@ class Featurizer:
                 if offset == 0:
                     break
         return out
+
+
+class _HashedColumns:
+    """``get(token, default)`` like a vocabulary, for a HashingVectorizer's columns.
+
+    scikit-learn's own ``FeatureHasher`` (signed 32-bit MurmurHash3, seed 0,
+    column ``abs(h) % n_features``) computes each column, so the columns are
+    the model's; a token is hashed once and remembered.
+    """
+
+    def __init__(self, n_features: int):
+        from sklearn.feature_extraction import FeatureHasher
+
+        self._hasher = FeatureHasher(n_features, input_type="string", alternate_sign=False)
+        self._seen: dict[str, int] = {}
+
+    def get(self, token: str, default: int = -1) -> int:
+        column = self._seen.get(token)
+        if column is None:
+            column = int(self._hasher.transform([[token]]).indices[0])
+            self._seen[token] = column
+        return column
 
 
 def unknown_tokens(occ: Occurrences) -> list[tuple[str, int]]:

@@ -268,7 +268,8 @@ def split_pipeline(obj, vectorizer_obj=None):
         )
     names = " -> ".join(type(s).__name__ for s in [*text_steps, classifier])
     supported = (
-        "supported: CountVectorizer or TfidfVectorizer (optionally CountVectorizer -> TfidfTransformer) "
+        "supported: CountVectorizer, TfidfVectorizer or HashingVectorizer "
+        "(optionally CountVectorizer or HashingVectorizer -> TfidfTransformer) "
         "followed by MultinomialNB, ComplementNB or BernoulliNB"
     )
     if len(text_steps) == 1:

@@ -33,6 +33,9 @@ PROBE = "Pay the FEE now: £2.49 at http://x.example.net/q?a=1 — Café  déjà
 _PROBE_TOKENS = 400
 _VIEW_ARRAYS = ("weights", "baseline", "prior", "absence", "feature_count", "class_count")
 _COUNT_PARAMS = ("lowercase", "token_pattern", "ngram_range", "analyzer", "binary", "strip_accents", "max_df", "min_df")
+# A HashingVectorizer keeps no vocabulary; its own settings decide its columns.
+_HASH_PARAMS = ("lowercase", "token_pattern", "ngram_range", "analyzer", "binary", "strip_accents",
+                "n_features", "norm", "alternate_sign")
 _TFIDF_PARAMS = ("norm", "use_idf", "smooth_idf", "sublinear_tf")
 
 
@@ -119,7 +122,7 @@ def to_plain(featurizer, view, classifier=None) -> tuple[dict, dict]:
         "format": FORMAT,
         "vectorizer": type(vec).__name__,
         "tfidf_step": featurizer.tfidf is not None and featurizer.tfidf is not vec,
-        "params": {name: getattr(vec, name) for name in _COUNT_PARAMS},
+        "params": {name: getattr(vec, name) for name in (_HASH_PARAMS if featurizer.hashed else _COUNT_PARAMS)},
         "stop_words": stop if stop is None or isinstance(stop, str) else sorted(str(w) for w in stop),
         "dtype": np.dtype(vec.dtype).name,
         "fixed_vocabulary": bool(getattr(vec, "fixed_vocabulary_", False)),
@@ -133,7 +136,8 @@ def to_plain(featurizer, view, classifier=None) -> tuple[dict, dict]:
     }
     settings["params"]["ngram_range"] = list(vec.ngram_range)
     arrays = {name: np.asarray(getattr(view, name), dtype=np.float64) for name in _VIEW_ARRAYS}
-    arrays.update(_pack_strings(view.tokens, "token"))
+    # A hashed model's column names are rebuilt from n_features, not stored.
+    arrays.update(_pack_strings([] if featurizer.hashed else view.tokens, "token"))
     arrays.update(_pack_strings(view.classes, "class"))
     if featurizer.tfidf is not None:
         settings["tfidf"] = {name: getattr(featurizer.tfidf, name) for name in _TFIDF_PARAMS}
@@ -159,7 +163,7 @@ def _tfidf_transformer(options: dict, idf, n_features: int):
 
 def rebuild(arrays: dict, settings: dict, normal_class: str | None = None):
     """(Featurizer, ModelView) from the plain form, checked against its probe."""
-    from sklearn.feature_extraction.text import CountVectorizer, TfidfVectorizer
+    from sklearn.feature_extraction.text import CountVectorizer, HashingVectorizer, TfidfVectorizer
 
     from explain.model.featurizer import Featurizer
     from explain.model.model_view import ModelView
@@ -173,7 +177,8 @@ def rebuild(arrays: dict, settings: dict, normal_class: str | None = None):
         params["stop_words"] = settings["stop_words"]
         params["dtype"] = np.dtype(settings["dtype"]).type
         tfidf_options = settings["tfidf"]
-        n = len(tokens)
+        hashed = settings["vectorizer"] == "HashingVectorizer"
+        n = int(params["n_features"]) if hashed else len(tokens)
         idf = arrays.get("idf")
         if settings["vectorizer"] == "TfidfVectorizer":
             vectorizer = TfidfVectorizer(**params, **tfidf_options)
@@ -181,14 +186,16 @@ def rebuild(arrays: dict, settings: dict, normal_class: str | None = None):
             # the probe check below catches any change in that arrangement.
             vectorizer._tfidf = _tfidf_transformer(tfidf_options, idf, n)
             tfidf = None
-        elif settings["vectorizer"] == "CountVectorizer":
-            vectorizer = CountVectorizer(**params)
+        elif settings["vectorizer"] in ("CountVectorizer", "HashingVectorizer"):
+            vectorizer = (HashingVectorizer if hashed else CountVectorizer)(**params)
             tfidf = _tfidf_transformer(tfidf_options, idf, n) if settings["tfidf_step"] else None
         else:
             raise NbledgerError(f"the plain form names an unsupported text step {settings['vectorizer']!r}")
-        vectorizer.vocabulary_ = dict(zip(tokens.tolist(), range(n)))
-        vectorizer.fixed_vocabulary_ = settings["fixed_vocabulary"]
-        featurizer = Featurizer(vectorizer, tfidf, tokens=tokens)
+        if not hashed:
+            vectorizer.vocabulary_ = dict(zip(tokens.tolist(), range(n)))
+            vectorizer.fixed_vocabulary_ = settings["fixed_vocabulary"]
+        featurizer = Featurizer(vectorizer, tfidf, tokens=None if hashed else tokens)
+        tokens = featurizer.tokens
 
         probe = featurizer.transform([probe_text(tokens)])
     except (ValueError, TypeError, AttributeError, KeyError) as exc:  # settings scikit-learn does not accept

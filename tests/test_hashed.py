@@ -1,0 +1,123 @@
+"""Hashed features (HashingVectorizer) against scikit-learn itself."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import skops.io as sio
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from sklearn.feature_extraction.text import HashingVectorizer, TfidfTransformer
+from sklearn.pipeline import Pipeline
+
+from corpora import VARIANT_TYPES, WORDS, messages
+from explain.analysis.evidence import explain_message
+from explain.errors import NbledgerError
+from explain.model import plain_form
+from explain.model.featurizer import Featurizer
+from explain.model.loading import LoadedModel, load_model
+from explain.model.model_view import view_of
+
+PROPERTY = settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+def through_plain_form(pipeline) -> LoadedModel:
+    """The model as the loading process hands it back: plain form, then rebuilt and probe-checked."""
+    *text_steps, clf = [s for _, s in pipeline.steps]
+    featurizer = Featurizer(*text_steps)
+    view = view_of(clf, featurizer.tokens, featurizer.feature_kind)
+    featurizer, view = plain_form.rebuild(*plain_form.to_plain(featurizer, view, clf))
+    return LoadedModel(view, featurizer, path=None, sha256="", file_format="memory")
+
+
+@st.composite
+def hashed_pipelines(draw):
+    """A fitted random HashingVectorizer pipeline (every variant, norm, binary, n-gram range, TF-IDF step)."""
+    hasher = HashingVectorizer(
+        n_features=draw(st.sampled_from([4, 16, 2**10])),
+        alternate_sign=False,
+        binary=draw(st.booleans()),
+        norm=draw(st.sampled_from([None, "l1", "l2"])),
+        ngram_range=draw(st.sampled_from([(1, 1), (1, 2), (2, 2)])),
+        analyzer=draw(st.sampled_from(["word", "char_wb"])),
+    )
+    steps = [("v", hasher)]
+    if draw(st.booleans()):
+        # log(x) + 1 of a normalised value below 1/e is negative, which naive Bayes refuses
+        sublinear = hasher.norm is None and draw(st.booleans())
+        steps.append(("t", TfidfTransformer(sublinear_tf=sublinear)))
+    variant = draw(st.sampled_from(sorted(VARIANT_TYPES)))
+    docs = st.lists(st.sampled_from([w for w in WORDS if len(w) > 1]), min_size=2, max_size=8).map(" ".join)
+    texts, labels = [], []
+    for c in ["ok", "scam", "advert"][: draw(st.sampled_from([2, 3]))]:
+        for text in draw(st.lists(docs, min_size=1, max_size=5)):
+            texts.append(text)
+            labels.append(c)
+    return Pipeline(steps + [("nb", VARIANT_TYPES[variant](alpha=draw(st.sampled_from([1.0, 0.1]))))]).fit(texts, labels)
+
+
+def rel_close(a, b, tol=1e-9):
+    return abs(a - b) <= tol * max(1.0, abs(a), abs(b))
+
+
+# Reference: scikit-learn's predict_joint_log_proba on the pipeline's own features (scikit-learn 1.x docs).
+@PROPERTY
+@given(pipeline=hashed_pipelines(), text=messages.filter(lambda t: len(t.split()) >= 2))
+def test_hashed_evidence_matches_sklearn_joint_log_likelihood(pipeline, text):
+    model = through_plain_form(pipeline)
+    X = pipeline[:-1].transform([text])
+    jll = pipeline[-1].predict_joint_log_proba(X)[0]
+    e = explain_message(model, text)
+    assert e.predicted == pipeline.predict([text])[0]
+    np.testing.assert_allclose(e.jll, jll, rtol=1e-9)
+    a, b = e.classes.index(e.predicted), e.classes.index(e.runner_up)
+    assert rel_close(e.log_odds, jll[a] - jll[b])
+    # weigh() reproduces the features from counts, so removals re-score exactly
+    counts = model.featurizer.counts([text])
+    np.testing.assert_allclose(model.featurizer.weigh(counts).toarray(), X.toarray(), rtol=1e-12, atol=1e-15)
+
+
+@PROPERTY
+@given(pipeline=hashed_pipelines(), texts=st.lists(messages, min_size=1, max_size=4))
+def test_recovered_names_hash_to_the_column_reported(pipeline, texts):
+    featurizer = through_plain_form(pipeline).featurizer
+    hasher = pipeline[0]
+    # scikit-learn's own HashingVectorizer decides each token's column: one token alone, no normalisation.
+    reference = HashingVectorizer(**hasher.get_params()).set_params(analyzer=lambda doc: doc, norm=None)
+    for column, tokens in featurizer.hashed_names(texts).items():
+        for token in tokens:
+            assert reference.transform([[token]]).indices.tolist() == [column]
+
+
+def test_a_collision_is_reported_with_both_tokens():
+    pipeline = Pipeline([("v", HashingVectorizer(n_features=2, alternate_sign=False)),
+                         ("nb", VARIANT_TYPES["multinomial"]())]).fit(["prize fee", "tea harbour"], ["scam", "ok"])
+    names = through_plain_form(pipeline).featurizer.hashed_names(["prize fee tea harbour"])
+    assert sum(len(t) for t in names.values()) == 4
+    assert any(len(t) >= 2 for t in names.values())
+
+
+def test_alternate_sign_is_refused_in_one_line():
+    pipeline = Pipeline([("v", HashingVectorizer(n_features=16)), ("nb", VARIANT_TYPES["bernoulli"]())])
+    pipeline.fit(["prize fee", "tea harbour"], ["scam", "ok"])
+    with pytest.raises(NbledgerError) as err:
+        Featurizer(pipeline[0])
+    assert "alternate_sign" in str(err.value) and "non-negative" in str(err.value)
+    assert "\n" not in str(err.value)
+
+
+@pytest.mark.parametrize("with_tfidf", [False, True])
+def test_hashed_model_file_loads_through_the_child_process(tmp_path, with_tfidf):
+    steps = [("v", HashingVectorizer(n_features=2**12, alternate_sign=False, ngram_range=(1, 2)))]
+    if with_tfidf:
+        steps.append(("t", TfidfTransformer()))
+    texts = ["win a prize now", "tea at the harbour", "claim the prize fee", "kids club tea"]
+    labels = ["scam", "ok", "scam", "ok"]
+    pipeline = Pipeline(steps + [("nb", VARIANT_TYPES["complement"]())]).fit(texts, labels)
+    path = tmp_path / "hashed.skops"
+    sio.dump(pipeline, path)
+    model = load_model(path)
+    assert model.view.tokens[7] == "column 7"
+    X = pipeline[:-1].transform(texts)
+    np.testing.assert_allclose(model.view.joint_log_likelihood(model.featurizer.transform(texts)),
+                               pipeline[-1].predict_joint_log_proba(X), rtol=1e-9)
