@@ -23,7 +23,7 @@ exactly after each removal, and is labelled as greedy.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -114,6 +114,8 @@ class Explanation:
     variant: str
     #: what was read from a raw e-mail, else None
     mail: MailFacts | None = None
+    #: hashed features: ``(column, tokens)`` for each column two or more of the message's tokens share
+    collisions: tuple[tuple[int, tuple[str, ...]], ...] = ()
 
     @property
     def evidence_sum(self) -> float:
@@ -140,6 +142,12 @@ def explain_message(
         raise NbledgerError("the message must be text")
     if not text.strip():
         raise NbledgerError("the message is empty")
+    collisions = ()
+    if model.featurizer.hashed:
+        # No stored vocabulary: name each column by the message's own tokens hashed into it.
+        names = model.featurizer.hashed_names([text])
+        model = replace(model, view=model.view.with_names(names))
+        collisions = tuple((c, t) for c, t in names.items() if len(t) > 1)
     view, featurizer = model.view, model.featurizer
     rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     occ = featurizer.occurrences(text)
@@ -193,6 +201,7 @@ def explain_message(
         flip=flip_set(model, occ, rule, decision),
         feature_kind=view.feature_kind,
         variant=view.variant,
+        collisions=collisions,
     )
 
 

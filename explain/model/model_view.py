@@ -120,6 +120,19 @@ class ModelView:
     def normal_index(self) -> int | None:
         return None if self.normal_class is None else self.class_index(self.normal_class)
 
+    def with_names(self, names: dict[int, tuple[str, ...]]) -> "ModelView":
+        """The same view with columns renamed: ``names[j]`` are the tokens known to share column ``j``.
+
+        For hashed features, whose columns have no stored names; tokens that
+        collide in one column are joined by `` / ``.
+        """
+        if not names:
+            return self
+        tokens = self.tokens.copy()
+        for column, shared in names.items():
+            tokens[column] = " / ".join(shared)
+        return replace(self, tokens=tokens)
+
     def with_normal_class(self, name: str | None) -> "ModelView":
         """The same view with a designated normal class (validated)."""
         if name is None:

@@ -44,6 +44,9 @@ key                    meaning
 ``flip_reason``        why the flip set is empty, or null
 ``feature_kind``       ``counts``, ``binary`` or ``tfidf``
 ``variant``            ``multinomial``, ``complement`` or ``bernoulli``
+``collisions``         hashed features: list of ``{column, tokens}`` where two
+                       or more of the message's tokens share one column (their
+                       evidence is one entry); empty otherwise
 ``email``              for a raw e-mail, what was read (``text_view``, redacted
                        ``subject`` and ``sender``, ``attachments``,
                        ``undecodable_parts``, ``problems``); null for plain text
@@ -148,6 +151,7 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
         "flip_method": expl.flip.method,
         "flip_decision": expl.flip.new_decision,
         "flip_reason": expl.flip.reason,
+        "collisions": [{"column": c, "tokens": list(t)} for c, t in expl.collisions],
         "feature_kind": expl.feature_kind,
         "variant": expl.variant,
         "email": email_json(expl.mail),
@@ -330,6 +334,14 @@ def closing_odds(ledger: Ledger) -> str:
     return f"odds {odds_factor(ledger.closing)} for {side}"
 
 
+def collision_note(collisions) -> str:
+    """One sentence naming the hashed columns that several tokens share."""
+    listed = "; ".join(
+        f"column {c}: " + ", ".join(f"'{shown(t)}'" for t in tokens) for c, tokens in collisions
+    )
+    return f"Hashed features: these tokens share a column, so the model cannot tell them apart ({listed})."
+
+
 def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
     """The sentences under the closing balance: where it tipped, exactness, what "seen" counts, folding."""
     side = decided_side(ledger)
@@ -351,6 +363,8 @@ def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
         f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {credit_colour_class(ledger)}/{ledger.debit_class}"
         + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + "."
     )
+    if ledger.explanation.collisions:
+        notes.append(collision_note(ledger.explanation.collisions))
     if folding:
         s = ledger.summary(top)
         notes.append(
