@@ -300,6 +300,8 @@ class VocabReview:
     redaction: RedactionCheck
     watchlist: tuple[WatchEntry, ...]
     watchlist_source: str | None
+    #: hashed features: where the column names came from, else None
+    names_note: str | None = None
 
     @property
     def n_features(self) -> int:

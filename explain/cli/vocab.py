@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from dataclasses import replace
 from pathlib import Path
 from typing import List, Optional
 
@@ -18,6 +19,19 @@ from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT
 from explain.output_files import OutputSet
 
 FORMATS = ("text", "csv", "json")
+
+
+def read_names(path: Path) -> str:
+    """The text of ``--names-from`` (UTF-8, at most 64 MiB), or one error line."""
+    from explain.model.input_files import input_file
+
+    path = input_file(path, "names file")
+    if path.stat().st_size > 64 * 2**20:
+        fail(f"the names file {path} is larger than 64 MiB; give a sample of text")
+    try:
+        return path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError:
+        fail(f"the names file {path} is not UTF-8 text")
 
 
 @app.command()
@@ -50,6 +64,9 @@ def vocab(
     strong: float = typer.Option(
         4.0, "--strong", help="Odds factor one occurrence must reach to count as strong evidence."
     ),
+    names_from: Optional[Path] = typer.Option(
+        None, "--names-from", help="Hashed models: a text file whose tokens, hashed like the model's, name the columns."
+    ),
     vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
     allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
     trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
@@ -66,6 +83,7 @@ def vocab(
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
     from explain.analysis.vocab import LENSES, document_counts, review_vocabulary
+    from explain.model.featurizer import hashed_column_names
     from explain.model.training import rows_trained_on
 
     if output_format not in FORMATS:
@@ -78,7 +96,7 @@ def vocab(
         fail(f"--strong is an odds factor and must be above 1, got {strong}")
     if data is None and (raw_email or labels_from_folders or label is not None):
         fail("--raw-email, --labels-from-folders and --label describe --data; give --data")
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist, names_from]) as outputs:
         if out is not None:
             outputs.file(out)
         if images is not None:
@@ -108,8 +126,15 @@ def vocab(
                 data.name,
                 seen.note,
             )
+        view, names_note = loaded.view, None
+        if loaded.featurizer.hashed:
+            view, names_note = hashed_column_names(
+                loaded.featurizer, view, None if names_from is None else read_names(names_from), names_from
+            )
+        elif names_from is not None:
+            fail("--names-from names the columns of a hashed model; this model has a vocabulary")
         review = review_vocabulary(
-            loaded.view,
+            view,
             target=target,
             against=against,
             lens=by,
@@ -120,6 +145,7 @@ def vocab(
             redact_personal=redact,
             analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
         )
+        review = replace(review, names_note=names_note)
 
         from explain.present.vocab import render, to_csv, to_json
 

@@ -286,6 +286,26 @@ class Featurizer:
         return out
 
 
+def hashed_column_names(featurizer: Featurizer, view, text: str | None, source: str | None):
+    """(view, note) for a hashed model's vocabulary review: columns named by the tokens of ``text``.
+
+    Without ``text`` the columns keep their numbers. ``note`` is one line
+    saying where the names came from; ``view`` is a ModelView.
+    """
+    if text is None:
+        return view, (
+            "Hashed features: the model stores no vocabulary, so columns are shown by number; "
+            "name them from sample text with --names-from FILE."
+        )
+    names = featurizer.hashed_names([text])
+    shared = sum(len(t) > 1 for t in names.values())
+    return view.with_names(names), (
+        f"Hashed features: {len(names):,} of {featurizer.n_features:,} columns named by the tokens of {source}, "
+        f"hashed with the model's settings; {shared:,} shared by several tokens (joined by ' / '); "
+        "the rest are shown by number."
+    )
+
+
 class _HashedColumns:
     """``get(token, default)`` like a vocabulary, for a HashingVectorizer's columns.
 

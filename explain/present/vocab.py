@@ -118,6 +118,7 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
             "classes": list(review.classes),
             "normal_class": review.normal_class,
             "n_features": review.n_features,
+            "names_note": review.names_note,
             "ranked_by": review.lens,
             "top": review.top,
             "counts": {
@@ -340,6 +341,8 @@ def _header(review: VocabReview, console: Console) -> None:
         f"features {feature_words(review)}; classes {', '.join(review.classes)}"
         + (f"; normal class {review.normal_class}" if review.normal_class else "")
     )
+    if review.names_note is not None:
+        say(review.names_note)
     say(f"Ranked by {LENS_TITLES[review.lens]}; positive values favour the first class of each comparison.")
     say(
         f"2x2 tables (chi-square, G2, MI) count {_COUNT_WORDS[review.counts.kind]}: {review.counts.reason}. "
