@@ -121,3 +121,80 @@ def test_hashed_model_file_loads_through_the_child_process(tmp_path, with_tfidf)
     X = pipeline[:-1].transform(texts)
     np.testing.assert_allclose(model.view.joint_log_likelihood(model.featurizer.transform(texts)),
                                pipeline[-1].predict_joint_log_proba(X), rtol=1e-9)
+
+
+# --- the command line -------------------------------------------------------
+
+from clirun import nbledger  # noqa: E402
+
+TEXTS = ["win a prize now claim the fee", "tea at the harbour", "claim the prize fee link",
+         "kids club tea at the harbourmaster office", "parcel courier fee link", "sofa for sale"]
+LABELS = ["scam", "ok", "scam", "ok", "scam", "ok"]
+
+
+def _hashed_file(tmp_path, **options):
+    hasher = HashingVectorizer(**{"n_features": 8, "alternate_sign": False, **options})
+    pipeline = Pipeline([("v", hasher), ("nb", VARIANT_TYPES["multinomial"]())]).fit(TEXTS, LABELS)
+    path = tmp_path / "hashed.skops"
+    sio.dump(pipeline, path)
+    return path, pipeline
+
+
+def test_cli_refuses_alternate_sign_in_one_line(tmp_path, capsys):
+    hasher = HashingVectorizer(n_features=8)  # alternate_sign=True by default
+    pipeline = Pipeline([("v", hasher), ("nb", VARIANT_TYPES["bernoulli"]())]).fit(TEXTS, LABELS)
+    path = tmp_path / "signed.skops"
+    sio.dump(pipeline, path)
+    line = nbledger(capsys, "why", path, "claim the prize").one_error_line()
+    assert "alternate_sign" in line and "non-negative" in line
+
+
+def test_cli_why_reports_a_collision_with_both_tokens(tmp_path, capsys):
+    path, pipeline = _hashed_file(tmp_path)
+    text = "claim your prize fee at the harbourmaster office"
+    result = nbledger(capsys, "why", path, text, "--format", "json")
+    assert result.code == 0, result.err
+    import json
+
+    report = json.loads(result.out)
+    reference = HashingVectorizer(n_features=8, alternate_sign=False, analyzer=lambda d: d, norm=None)
+    assert report["collisions"]  # eight columns for eight distinct words: some must share
+    for entry in report["collisions"]:
+        assert len(entry["tokens"]) >= 2
+        for token in entry["tokens"]:
+            assert reference.transform([[token]]).indices.tolist() == [entry["column"]]
+    # every token row is named by the message's own words, not by a column number
+    assert all(not t["token"].startswith("column ") for t in report["tokens"])
+
+
+def test_cli_vocab_without_names_shows_columns_by_number_with_a_note(tmp_path, capsys):
+    path, _ = _hashed_file(tmp_path)
+    result = nbledger(capsys, "vocab", path, "--top", "3")
+    assert result.code == 0, result.err
+    assert "columns are shown by number" in result.out
+    assert "column " in result.out
+
+
+def test_cli_vocab_names_from_file(tmp_path, capsys):
+    path, _ = _hashed_file(tmp_path, n_features=2**12)
+    names = tmp_path / "sample.txt"
+    names.write_text("\n".join(TEXTS), encoding="utf-8")
+    result = nbledger(capsys, "vocab", path, "--top", "3", "--names-from", names, "--format", "json")
+    assert result.code == 0, result.err
+    import json
+
+    report = json.loads(result.out)
+    assert "named by the tokens of" in report["review"]["names_note"]
+    assert "fee" in result.out and "prize" in result.out
+
+
+def test_cli_names_from_refused_for_a_model_with_a_vocabulary(tmp_path, capsys):
+    from corpora import make_pipeline
+
+    pipeline = make_pipeline("counts", "multinomial").fit(TEXTS, LABELS)
+    path = tmp_path / "counts.skops"
+    sio.dump(pipeline, path)
+    names = tmp_path / "sample.txt"
+    names.write_text("fee", encoding="utf-8")
+    line = nbledger(capsys, "vocab", path, "--names-from", names).one_error_line()
+    assert "hashed" in line
