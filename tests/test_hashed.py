@@ -198,3 +198,15 @@ def test_cli_names_from_refused_for_a_model_with_a_vocabulary(tmp_path, capsys):
     names.write_text("fee", encoding="utf-8")
     line = nbledger(capsys, "vocab", path, "--names-from", names).one_error_line()
     assert "hashed" in line
+
+
+@pytest.mark.parametrize(
+    "hasher_options, with_tfidf, kind",
+    [({"norm": None}, False, "counts"), ({"norm": None, "binary": True}, False, "binary"),
+     ({"norm": "l2"}, False, "normalised"), ({"norm": "l1"}, True, "tfidf")],
+)
+def test_feature_kind_follows_the_hasher_norm_and_tfidf_step(hasher_options, with_tfidf, kind):
+    steps = [HashingVectorizer(n_features=16, alternate_sign=False, **hasher_options)]
+    if with_tfidf:
+        steps.append(TfidfTransformer().fit(steps[0].transform(TEXTS)))
+    assert Featurizer(*steps).feature_kind == kind

@@ -48,6 +48,7 @@ from sklearn.feature_extraction.text import CountVectorizer
 from explain.analysis.evidence import _presence_only, _score
 from explain.errors import NbledgerError
 from explain.model.decision import DecisionRule
+from explain.model.model_view import ROW_WEIGHTED
 
 #: Greedy steps score this many candidate tokens each (those pulling hardest toward normal).
 GREEDY_CANDIDATES = 200
@@ -177,7 +178,7 @@ def evasion_costs(model, texts, rule: DecisionRule, max_added: int = 50) -> Evas
     jll, decided = jll[rows], decided[rows]
     presence = _presence_only(view, featurizer)
     ok = addable(featurizer)
-    additive = featurizer.feature_kind != "tfidf" or (view.variant == "bernoulli" and view.binarize == 0.0)
+    additive = featurizer.feature_kind not in ROW_WEIGHTED or (view.variant == "bernoulli" and view.binarize == 0.0)
     exact = additive and view.n_classes == 2
     results = {}
     search = _exact if exact else _greedy

@@ -34,6 +34,7 @@ from explain.analysis.batch import by_row_then_value, top_two
 from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
+from explain.model.model_view import ROW_WEIGHTED
 
 if TYPE_CHECKING:  # mail_facts builds on this module, so the type is named only for checkers
     from explain.analysis.mail_facts import MailFacts
@@ -237,7 +238,7 @@ def exact_flip_possible(view, featurizer, rule: DecisionRule) -> bool:
     """True when sorting removals by their effect gives the proven minimum flip set."""
     # TF-IDF re-normalises the row on every removal, except when BernoulliNB
     # reduces the weights to presence (binarize=0): then removals are additive.
-    additive_features = featurizer.feature_kind != "tfidf" or (
+    additive_features = featurizer.feature_kind not in ROW_WEIGHTED or (
         view.variant == "bernoulli" and view.binarize == 0.0
     )
     return view.n_classes > 1 and additive_features and rule.additive

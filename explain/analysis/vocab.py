@@ -150,7 +150,7 @@ def document_counts(view: ModelView, X, labels, source: str, rows_note: str = ""
 
 @dataclass(frozen=True)
 class CountSource:
-    """What fills the 2x2 tables: ``"documents"``, ``"occurrences"`` or ``"tfidf-weights"``, and why.
+    """What fills the 2x2 tables: ``"documents"``, ``"occurrences"``, ``"tfidf-weights"`` or ``"normalised-weights"``, and why.
 
     With a labelled file, ``rows_counted`` is the number of its messages
     counted and ``rows_note`` which rows they are (see :class:`DocumentCounts`).
@@ -175,6 +175,12 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
         return CountSource(
             "documents",
             "the model's features are binary, so its training counts are messages containing each token",
+        )
+    if view.feature_kind == "normalised":
+        return CountSource(
+            "normalised-weights",
+            "the model was trained on hashed counts scaled by the hasher's norm and no labelled file was given: "
+            "the 2x2 tables and z-scores treat summed scaled counts as counts; give labelled data for message counts",
         )
     if view.feature_kind == "tfidf":
         return CountSource(

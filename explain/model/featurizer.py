@@ -107,10 +107,10 @@ class Featurizer:
             self._vocabulary = vectorizer.vocabulary_
             self._hash_norm = None
         self._analyzer = vectorizer.build_analyzer()
-        if self.tfidf is not None or self._hash_norm is not None:
-            # Normalised rows: a feature's value depends on the whole message,
-            # so evidence is re-scored, never added up (as for TF-IDF).
+        if self.tfidf is not None:
             self.feature_kind = "tfidf"
+        elif self._hash_norm is not None:
+            self.feature_kind = "normalised"
         elif vectorizer.binary:
             self.feature_kind = "binary"
         else:

@@ -34,7 +34,10 @@ from scipy.special import logsumexp
 from explain.errors import NbledgerError
 
 VARIANTS = ("multinomial", "complement", "bernoulli")
-FEATURE_KINDS = ("counts", "binary", "tfidf")
+FEATURE_KINDS = ("counts", "binary", "tfidf", "normalised")
+# Kinds whose feature values depend on the whole message (row normalisation):
+# evidence is re-scored after a removal, never summed per occurrence.
+ROW_WEIGHTED = ("tfidf", "normalised")
 
 
 @dataclass(frozen=True, eq=False)
@@ -65,7 +68,8 @@ class ModelView:
     class_count : ndarray of float64, shape (C,)
         Training messages per class (``class_count_``).
     feature_kind : str
-        ``"counts"``, ``"binary"`` or ``"tfidf"``: what a feature value is.
+        ``"counts"``, ``"binary"``, ``"tfidf"`` or ``"normalised"`` (a
+        HashingVectorizer's counts scaled by its ``norm``): what a feature value is.
     binarize : float or None
         BernoulliNB's threshold: a feature is present when its value is
         greater than this. None for the other variants or no binarisation.

@@ -149,7 +149,8 @@ def feature_kind_words(features: str, variant: str) -> str:
     """What the classifier multiplies per token: BernoulliNB binarises whatever it is given."""
     if variant == "bernoulli" or features == "binary":
         return "presence (0/1)"
-    return {"counts": "token counts", "tfidf": "TF-IDF weights"}[features]
+    kinds = {"counts": "token counts", "tfidf": "TF-IDF weights", "normalised": "normalised hashed counts"}
+    return kinds[features]
 
 
 def train_filter(texts, labels, settings: TrainSettings, ids=None) -> TrainedFilter:

@@ -244,7 +244,8 @@ PERSONAL_NAMES = {
     "phone": "phone numbers",
 }
 _COUNT_WORDS = {"documents": "messages containing each token", "occurrences": "token occurrences",
-                "tfidf-weights": "summed TF-IDF weights"}
+                "tfidf-weights": "summed TF-IDF weights",
+                "normalised-weights": "summed normalised counts"}
 
 
 def _listing(words) -> str:

@@ -166,7 +166,9 @@ def _label_points(ax, points) -> None:
 def _support_unit(review: VocabReview) -> str:
     if review.variant == "bernoulli" or review.feature_kind == "binary":
         return "messages containing the token"
-    return "summed TF-IDF weights" if review.feature_kind == "tfidf" else "occurrences"
+    return {"tfidf": "summed TF-IDF weights", "normalised": "summed normalised counts"}.get(
+        review.feature_kind, "occurrences"
+    )
 
 
 def bar_chart(review: VocabReview, index: int) -> bytes:

@@ -42,7 +42,7 @@ key                    meaning
 ``flip_method``        ``"exact"`` or ``"greedy"``
 ``flip_decision``      the decision after the removals, or null
 ``flip_reason``        why the flip set is empty, or null
-``feature_kind``       ``counts``, ``binary`` or ``tfidf``
+``feature_kind``       ``counts``, ``binary``, ``tfidf`` or ``normalised``
 ``variant``            ``multinomial``, ``complement`` or ``bernoulli``
 ``collisions``         hashed features: list of ``{column, tokens}`` where two
                        or more of the message's tokens share one column (their
@@ -101,6 +101,7 @@ SUPPORT_WORDS = {
     "documents": "training messages holding the word",
     "occurrences": "training occurrences of the word",
     "tfidf-weights": "summed TF-IDF weights of the word in training",
+    "normalised-weights": "summed normalised counts of the word in training",
 }
 
 
@@ -240,7 +241,7 @@ def support_cell(entry, ledger: Ledger) -> str:
     c, d = ledger.classes.index(credit_colour_class(ledger)), ledger.classes.index(ledger.debit_class)
 
     def n(x: float) -> str:
-        return f"{x:,.0f}" if ledger.support_kind != "tfidf-weights" else f"{x:,.1f}"
+        return f"{x:,.0f}" if ledger.support_kind not in ("tfidf-weights", "normalised-weights") else f"{x:,.1f}"
 
     return f"{n(entry.support[c])}/{n(entry.support[d])}"
 
