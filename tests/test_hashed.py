@@ -210,3 +210,18 @@ def test_feature_kind_follows_the_hasher_norm_and_tfidf_step(hasher_options, wit
     if with_tfidf:
         steps.append(TfidfTransformer().fit(steps[0].transform(TEXTS)))
     assert Featurizer(*steps).feature_kind == kind
+
+
+def test_batch_rows_name_hashed_columns_by_the_texts_tokens():
+    from explain.analysis.batch import score_texts
+
+    pipeline = Pipeline([("v", HashingVectorizer(n_features=2**12, alternate_sign=False, norm=None)),
+                         ("nb", VARIANT_TYPES["multinomial"]())]).fit(TEXTS, LABELS)
+    model = through_plain_form(pipeline)
+    texts = ["claim the prize fee now", "tea at the harbour"]
+    batch = score_texts(model, texts, top_k=2)
+    jll = pipeline[-1].predict_joint_log_proba(pipeline[:-1].transform(texts))
+    np.testing.assert_allclose(batch.jll, jll, rtol=1e-9)
+    words = {w for t in texts for w in t.split()}
+    named = {str(batch.tokens[c]) for c in pipeline[0].transform(texts).indices}
+    assert named and all(set(n.split(" / ")) <= words for n in named)

@@ -158,4 +158,5 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
 def score_texts(model, texts, threshold: float | None = None, top_k: int = 5) -> BatchEvidence:
     """Featurise ``texts`` with the model's own text steps, then :func:`batch_evidence`."""
     rule = DecisionRule.for_view(model.view, threshold)
+    model = model.named_for(texts)
     return batch_evidence(model.view, model.featurizer.transform(texts), rule, top_k)

@@ -23,7 +23,7 @@ exactly after each removal, and is labelled as greedy.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -143,12 +143,8 @@ def explain_message(
         raise NbledgerError("the message must be text")
     if not text.strip():
         raise NbledgerError("the message is empty")
-    collisions = ()
-    if model.featurizer.hashed:
-        # No stored vocabulary: name each column by the message's own tokens hashed into it.
-        names = model.featurizer.hashed_names([text])
-        model = replace(model, view=model.view.with_names(names))
-        collisions = tuple((c, t) for c, t in names.items() if len(t) > 1)
+    # Hashed features: no stored vocabulary, so columns are named by the message's own tokens.
+    model = model.named_for([text])
     view, featurizer = model.view, model.featurizer
     rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     occ = featurizer.occurrences(text)
@@ -202,8 +198,15 @@ def explain_message(
         flip=flip_set(model, occ, rule, decision),
         feature_kind=view.feature_kind,
         variant=view.variant,
-        collisions=collisions,
+        collisions=_collisions(featurizer, text),
     )
+
+
+def _collisions(featurizer, text: str) -> tuple[tuple[int, tuple[str, ...]], ...]:
+    """Hashed features: ``(column, tokens)`` for each column several of the message's tokens share."""
+    if not featurizer.hashed:
+        return ()
+    return tuple((c, t) for c, t in featurizer.hashed_names([text]).items() if len(t) > 1)
 
 
 # --- the flip set ---------------------------------------------------------

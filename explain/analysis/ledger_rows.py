@@ -68,6 +68,7 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
     ``features`` may hold ``featurizer.counts_and_features(texts)`` when the
     caller has computed it already. Returns ``(LedgerRows, FlagDrivers or None)``.
     """
+    model = model.named_for(texts)
     view, featurizer = model.view, model.featurizer
     counts, X = featurizer.counts_and_features(texts) if features is None else features
     batch = batch_evidence(view, X, rule, top_k)

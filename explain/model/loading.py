@@ -38,7 +38,7 @@ import sys
 import tempfile
 import time
 import zipfile
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable
 
@@ -93,6 +93,17 @@ class LoadedModel:
     @property
     def classes(self):
         return self.view.classes
+
+    def named_for(self, texts) -> "LoadedModel":
+        """Hashed features: the model with columns named by the tokens of ``texts`` (list of str).
+
+        A column's name is every distinct token of ``texts`` hashed into it,
+        joined by `` / ``; other columns keep their numbers. Unchanged for a
+        model with a vocabulary.
+        """
+        if not self.featurizer.hashed:
+            return self
+        return replace(self, view=self.view.with_names(self.featurizer.hashed_names(texts)))
 
     def unfitted_copy(self):
         """A new, unfitted pipeline with the same steps and settings (:func:`sklearn.base.clone`).
