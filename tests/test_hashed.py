@@ -225,3 +225,14 @@ def test_batch_rows_name_hashed_columns_by_the_texts_tokens():
     words = {w for t in texts for w in t.split()}
     named = {str(batch.tokens[c]) for c in pipeline[0].transform(texts).indices}
     assert named and all(set(n.split(" / ")) <= words for n in named)
+
+
+def test_plain_form_with_a_wrong_n_features_is_refused_before_naming_columns():
+    pipeline = Pipeline([("v", HashingVectorizer(n_features=16, alternate_sign=False)),
+                         ("nb", VARIANT_TYPES["multinomial"]())]).fit(TEXTS, LABELS)
+    featurizer = Featurizer(pipeline[0])
+    view = view_of(pipeline[-1], featurizer.tokens, featurizer.feature_kind)
+    arrays, settings = plain_form.to_plain(featurizer, view, pipeline[-1])
+    settings["params"]["n_features"] = 2**40  # naming 2**40 columns would exhaust memory
+    with pytest.raises(NbledgerError, match="do not fit together"):
+        plain_form.rebuild(arrays, settings)

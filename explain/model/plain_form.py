@@ -179,6 +179,9 @@ def rebuild(arrays: dict, settings: dict, normal_class: str | None = None):
         tfidf_options = settings["tfidf"]
         hashed = settings["vectorizer"] == "HashingVectorizer"
         n = int(params["n_features"]) if hashed else len(tokens)
+        if hashed and arrays["weights"].shape[1:] != (n,):
+            # checked before naming n columns, so a wrong n_features cannot exhaust memory
+            raise NbledgerError("the plain form's arrays do not fit together")
         idf = arrays.get("idf")
         if settings["vectorizer"] == "TfidfVectorizer":
             vectorizer = TfidfVectorizer(**params, **tfidf_options)
