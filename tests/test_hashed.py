@@ -236,3 +236,12 @@ def test_plain_form_with_a_wrong_n_features_is_refused_before_naming_columns():
     settings["params"]["n_features"] = 2**40  # naming 2**40 columns would exhaust memory
     with pytest.raises(NbledgerError, match="do not fit together"):
         plain_form.rebuild(arrays, settings)
+
+
+def test_cli_probe_is_refused_for_a_hashed_model_in_one_line(tmp_path, capsys):
+    path, _ = _hashed_file(tmp_path)
+    data = tmp_path / "d.csv"
+    data.write_text("text\nclaim the prize fee\n", encoding="utf-8")
+    line = nbledger(capsys, "probe", path, data, "--text-col", "text", "--evasion",
+                    "--normal-class", "ok").one_error_line()
+    assert "vocabulary" in line

@@ -52,6 +52,9 @@ def probe(
     ``swap_terms`` is a path to a swap-terms file or a parsed :class:`SwapTerms`.
     """
     view = model.view
+    if model.featurizer.hashed:
+        # Added words and swaps are chosen from the vocabulary, which a hashed model does not store.
+        raise NbledgerError("probing needs the model's vocabulary; a HashingVectorizer model stores none")
     rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     if rule.normal_index is None:
         raise NbledgerError("probing needs a normal class: name it with --normal-class")
