@@ -163,6 +163,16 @@ MAX_MODEL_MEMORY = typer.Option(
 )
 LOAD_TIMEOUT = typer.Option(300.0, "--load-timeout", help="Seconds the model file may take to open.")
 NO_CACHE = typer.Option(False, "--no-cache", help="Open the model file afresh, without the cache of loaded models.")
+# Options every command that opens a model or applies the decision rule shares: one declaration each.
+VECTORIZER = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier.")
+ALLOW_PICKLE = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file).")
+TRUST = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable).")
+NORMAL_CLASS = typer.Option(None, "--normal-class", help="The class that lets a message through.")
+THRESHOLD = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class).")
+THRESHOLD_LOG_ODDS = typer.Option(
+    None, "--threshold-log-odds",
+    help="Flag when the flag log-odds >= L, exactly (as printed for each operating point).",
+)
 MAX_BYTES = typer.Option(1 << 20, "--max-bytes", min=1, help="Refuse data files holding a message larger than this (bytes).")
 MAX_DATA_BYTES = typer.Option("1G", "--max-data-bytes", help="Refuse data files larger than this once decompressed.")
 

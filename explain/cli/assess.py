@@ -9,8 +9,9 @@ from typing import List, Optional
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
-    labelled_or_fail, load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
+    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, labelled_or_fail,
+    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
@@ -54,14 +55,9 @@ def assess(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column holding the message text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the true class."),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
-    ),
-    threshold_log_odds: Optional[float] = typer.Option(
-        None, "--threshold-log-odds",
-        help="Flag when the flag log-odds >= L, exactly (as printed for each operating point).",
-    ),
+    normal_class: Optional[str] = NORMAL_CLASS,
+    threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: project the figures to it."
     ),
@@ -88,9 +84,9 @@ def assess(
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
     top: int = typer.Option(10, "--top", min=0, help="Errors, borderline messages and error drivers to list."),
     bins: int = typer.Option(10, "--bins", min=1, help="Equal-count bins of the reliability diagram."),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     text_view: Optional[str] = TEXT_VIEW,
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,

@@ -8,8 +8,8 @@ from typing import List, Optional
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, fail, load_model_or_fail,
-    model_inputs, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, TRUST,
+    app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 
@@ -25,17 +25,15 @@ def compare(
     ),
     text_col: str = typer.Option("text", "--text-col", help="Column holding the message text."),
     label_col: Optional[str] = typer.Option("label", "--label-col", help="Column holding the true class ('' for none)."),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(not normal) >= P, for both models (default: the most probable class)."
-    ),
+    normal_class: Optional[str] = NORMAL_CLASS,
+    threshold: Optional[float] = THRESHOLD,
     top: int = typer.Option(10, "--top", help="Tokens listed per change."),
     show: int = typer.Option(20, "--show", help="Changed messages shown with both explanations."),
     redact: str = typer.Option("personal", "--redact", help="personal (mask e-mail, phone, URL, IP, digit runs) | none"),
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the comparison to a .pdf, .html or .json file."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,

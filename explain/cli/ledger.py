@@ -10,7 +10,10 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import EXIT_USER_ERROR, Interrupted, app, console, err_console, load_model_or_fail, warn
+from explain.cli import (
+    ALLOW_PICKLE, EXIT_USER_ERROR, NORMAL_CLASS, THRESHOLD, TRUST, VECTORIZER, Interrupted, app, console,
+    err_console, load_model_or_fail, warn,
+)
 from explain.errors import NbledgerError
 
 #: Plain progress lines (when standard error is not a terminal) come at most this often.
@@ -78,16 +81,16 @@ def ledger(
     top: int = typer.Option(5, "--top", min=0, help="Tokens to list for and against per message."),
     chunk_rows: int = typer.Option(20_000, "--chunk-rows", min=1, help="Messages per chunk (memory grows with this, not with the input)."),
     only_flagged: bool = typer.Option(False, "--only-flagged", help="Write rows for flagged messages only."),
-    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
+    threshold: Optional[float] = THRESHOLD,
     summary: Optional[Path] = typer.Option(None, "--summary", help="Also write the flag drivers (.csv or .json)."),
     engine: str = typer.Option("local", "--engine", help="local | dask"),
     scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler (tcp://host:port)."),
     workers: Optional[int] = typer.Option(None, "--workers", min=1, help="Worker processes of a local Dask cluster (default 2)."),
     connect_timeout: float = typer.Option(10.0, "--connect-timeout", min=0.1, help="Seconds to wait for a Dask scheduler."),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    normal_class: Optional[str] = NORMAL_CLASS,
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
 ):
     """Write the evidence for every message of a large input, chunk by chunk."""
     from explain.present.ledger_files import LedgerProgress, write_ledger

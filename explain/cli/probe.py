@@ -9,8 +9,9 @@ from typing import List, Optional
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
-    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
+    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
+    model_inputs, plain_text, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
@@ -26,9 +27,9 @@ def probe(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of DATA holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of DATA holding the class (read, not needed)."),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    threshold: Optional[float] = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."),
-    threshold_log_odds: Optional[float] = typer.Option(None, "--threshold-log-odds", help="The same threshold as flag log-odds, exactly."),
+    normal_class: Optional[str] = NORMAL_CLASS,
+    threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     evasion: bool = typer.Option(False, "--evasion", help="Find the fewest added tokens that let each flagged message through."),
     swap_terms: Optional[Path] = typer.Option(
         None, "--swap-terms", help="Groups of interchangeable terms (one group a line, commas between terms, # comments)."
@@ -37,9 +38,9 @@ def probe(
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
     images: Optional[Path] = typer.Option(None, "--images", help="Write the pictures (PNG) here."),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     text_view: Optional[str] = TEXT_VIEW,
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,

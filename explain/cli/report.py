@@ -13,8 +13,9 @@ import numpy as np
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, err_console, fail, load_model_or_fail,
-    model_inputs, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
+    read_messages_or_fail,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
@@ -92,14 +93,9 @@ def report(
     explain: Optional[Path] = typer.Option(
         None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt/.eml file of one message."
     ),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
-    threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
-    ),
-    threshold_log_odds: Optional[float] = typer.Option(
-        None, "--threshold-log-odds",
-        help="Flag when the flag log-odds >= L, exactly (as assess and the report print each operating point).",
-    ),
+    normal_class: Optional[str] = NORMAL_CLASS,
+    threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: the summary adds a projection."
     ),
@@ -124,9 +120,9 @@ def report(
     ),
     html: Optional[Path] = typer.Option(None, "--html", help="Also write the HTML twin (one self-contained file)."),
     json_out: Optional[Path] = typer.Option(None, "--json", help="Also write the JSON twin (every figure)."),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     text_view: Optional[str] = TEXT_VIEW,
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,

@@ -8,7 +8,9 @@ from typing import Optional
 
 import typer
 
-from explain.cli import MAX_BYTES, MAX_DATA_BYTES, app, console, fail, labelled_or_fail, read_messages_or_fail
+from explain.cli import (
+    MAX_BYTES, MAX_DATA_BYTES, NORMAL_CLASS, app, console, fail, labelled_or_fail, read_messages_or_fail,
+)
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
 
@@ -34,7 +36,7 @@ def train(
     variant: str = typer.Option("multinomial", help="multinomial | complement | bernoulli"),
     alpha: float = typer.Option(1.0, help="Additive smoothing."),
     min_df: float = typer.Option(1, "--min-df", help="Drop tokens in fewer documents (count, or fraction < 1)."),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    normal_class: Optional[str] = NORMAL_CLASS,
     holdout: float = typer.Option(0.0, help="Fraction held out (stratified) to measure accuracy and F1."),
     seed: int = typer.Option(0, help="Seed for the hold-out split."),
     text_view: Optional[str] = TEXT_VIEW,

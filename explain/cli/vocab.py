@@ -12,8 +12,9 @@ import numpy as np
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, app, console, deliver, fail,
-    labelled_or_fail, load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, TRUST, VECTORIZER, app,
+    console, deliver, fail, labelled_or_fail, load_model_or_fail, model_inputs, plain_text,
+    read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
@@ -67,9 +68,9 @@ def vocab(
     names_from: Optional[Path] = typer.Option(
         None, "--names-from", help="Hashed models: a text file whose tokens, hashed like the model's, name the columns."
     ),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     text_view: Optional[str] = TEXT_VIEW,
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,

@@ -11,7 +11,8 @@ from typing import List, Optional
 import typer
 
 from explain.cli import (
-    LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
+    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn,
 )
 from explain.cli.mail_options import TEXT_VIEW
 from explain.present.token_display import make_console
@@ -171,21 +172,17 @@ def why(
         None, "--label-col", help="Column of --data holding classes: support then counts training-like messages."
     ),
     top: int = typer.Option(10, "--top", min=1, help="Largest entries to keep when a long message is folded."),
-    threshold: Optional[float] = typer.Option(
-        None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class)."
-    ),
-    threshold_log_odds: Optional[float] = typer.Option(
-        None, "--threshold-log-odds", help="Flag when the flag log-odds >= L, exactly (as assess prints it)."
-    ),
-    normal_class: Optional[str] = typer.Option(None, "--normal-class", help="The class that lets a message through."),
+    threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
+    normal_class: Optional[str] = NORMAL_CLASS,
     output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
     redact: bool = typer.Option(False, "--redact", help="Mask personal-looking values in the text and the entries."),
     watchlist: Optional[Path] = typer.Option(None, "--watchlist", help="Terms to flag as watchlist (one a line)."),
     color: str = typer.Option("auto", "--color", help="auto | always | never (auto honours NO_COLOR)."),
-    vectorizer: Optional[Path] = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier."),
-    allow_pickle: bool = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file)."),
-    trust: Optional[List[str]] = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable)."),
+    vectorizer: Optional[Path] = VECTORIZER,
+    allow_pickle: bool = ALLOW_PICKLE,
+    trust: Optional[List[str]] = TRUST,
     max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
     as_email: bool = typer.Option(
         False, "--email", help="Read the message as a raw e-mail even if its headers are not recognised."
