@@ -192,3 +192,24 @@ def test_sigint_and_sigterm_at_random_moments_leave_old_or_new_complete_sets(tra
             leftovers = [p for p in tmp_path.rglob(".nbledger-*")] + [p for p in tmp_path.rglob(".*.skops.*")]
             assert leftovers == [], leftovers
     assert stopped >= 6  # most runs were really stopped part-way
+
+
+def test_a_signal_wrapped_by_python_during_a_class_definition_is_still_a_stop(monkeypatch, capsys):
+    """Python 3.11 wraps an exception raised in ``__set_name__`` in a RuntimeError.
+
+    A signal landing while a plotting module defines its classes once ended as
+    "internal problem" (exit 3); it must read as the stop it is.
+    """
+    import explain.cli as cli
+
+    class Tripwire:
+        def __set_name__(self, owner, name):
+            raise cli.Interrupted(signal.SIGTERM)
+
+    def app(**_):
+        type("Defined", (), {"field": Tripwire()})
+
+    monkeypatch.setattr(cli, "app", app)
+    assert cli.run(["anything"]) == cli.EXIT_SIGTERM
+    err = capsys.readouterr().err
+    assert err.startswith("error: stopped by SIGTERM") and err.count("\n") == 1

@@ -250,9 +250,7 @@ def _run(argv: list[str]) -> int:
         _say("error", "interrupted (SIGINT); no output was left half-written")
         return EXIT_SIGINT
     except Interrupted as stop:
-        name = signal.Signals(stop.signum).name
-        _say("error", f"stopped by {name}; no output was left half-written")
-        return EXIT_SIGTERM if stop.signum == signal.SIGTERM else EXIT_SIGINT
+        return _stopped(stop)
     except NoArgsIsHelpError:
         return 0  # the help has been printed
     except TyperException as exc:  # usage errors: unknown option, missing argument
@@ -266,9 +264,34 @@ def _run(argv: list[str]) -> int:
         _say("error", f"{where}{exc.strerror or type(exc).__name__}")
         return EXIT_USER_ERROR
     except Exception as exc:  # a defect: still one line, never a traceback
+        stop = _interrupt_behind(exc)
+        if stop is not None:
+            return _stopped(stop)
         first = str(exc).splitlines()[0] if str(exc) else ""
         _say("error", f"internal problem ({type(exc).__name__}: {first}); please report it")
         return EXIT_DEFECT
+
+
+def _stopped(stop: Interrupted) -> int:
+    name = signal.Signals(stop.signum).name
+    _say("error", f"stopped by {name}; no output was left half-written")
+    return EXIT_SIGTERM if stop.signum == signal.SIGTERM else EXIT_SIGINT
+
+
+def _interrupt_behind(exc: BaseException) -> Interrupted | None:
+    """The :class:`Interrupted` another exception wraps, if any.
+
+    A signal that arrives while Python runs ``__set_name__`` during a class
+    definition (an import of a plotting module, say) comes out as a
+    ``RuntimeError`` whose cause is our ``Interrupted``: still a stop, not a defect.
+    """
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, Interrupted):
+            return exc
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return None
 
 
 def main() -> None:
