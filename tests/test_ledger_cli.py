@@ -186,6 +186,27 @@ def test_an_interrupted_run_leaves_nothing_and_says_how_far_it_got(model, frame,
     assert f"error: interrupted by {signal.Signals(signum).name} after " in err and "messages (last read: in.csv data row " in err
     assert f"nothing was written to {out}" in err
     assert leftovers(tmp_path, "l.parquet") == []
+    # The tokenising helper (a fork, so it has the run's command line) ended with the run.
+    deadline = time.monotonic() + 5
+    while _processes_running(str(tmp_path / "in.csv")) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert _processes_running(str(tmp_path / "in.csv")) == []
+
+
+def _processes_running(argument: str) -> list:
+    """Process ids whose command line holds ``argument`` (zombies excluded)."""
+    found = []
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            line = (entry / "cmdline").read_bytes().split(b"\0")
+            state = (entry / "stat").read_text().rsplit(")", 1)[1].split()[0]
+        except OSError:
+            continue
+        if argument.encode() in line and state != "Z":
+            found.append(int(entry.name))
+    return found
 
 
 def test_without_a_normal_class_flags_are_not_known(capsys, model, frame, tmp_path):

@@ -299,7 +299,9 @@ class ExactFlips:
         return self.unit_cols[chosen], self.unit_sizes[chosen]
 
 
-def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.ndarray, confirm_all=False) -> ExactFlips:
+def exact_flips(
+    view, featurizer, rule, counts: sp.csr_matrix, decisions: np.ndarray, confirm_all=False, jll=None
+) -> ExactFlips:
     """Minimum flip sets of many messages at once, by sorting removals by their effect.
 
     ``counts`` (n, F) holds raw occurrence counts; ``decisions`` (n,) the
@@ -310,7 +312,8 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     over all rivals, is the minimum. Prefixes are found with running sums
     for every row at once; rows within rounding of a boundary (all rows with
     ``confirm_all``), and any row whose exact re-score disagrees, are
-    re-scored exactly step by step.
+    re-scored exactly step by step. ``jll`` may hold the scores of
+    ``counts`` (n, C) when the caller has them, as the ledger does.
     """
     counts = sp.csr_matrix(counts, dtype=np.float64)
     counts.eliminate_zeros()
@@ -318,7 +321,7 @@ def exact_flips(view, featurizer, rule, counts: sp.csr_matrix, decisions: np.nda
     n, C = counts.shape[0], view.n_classes
     decisions = np.asarray(decisions, dtype=np.int64)
     u_row, u_col, u_size = _units(view, featurizer, counts)
-    jll0 = _score(view, featurizer, counts)
+    jll0 = _score(view, featurizer, counts) if jll is None else jll
     tolerance = 1e-8 * (1.0 + np.abs(jll0).max(axis=1))
     rows_n = np.arange(n)
     if rule.threshold is not None:

@@ -74,7 +74,7 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
     batch = batch_evidence(view, X, rule, top_k)
     flip = np.full(len(texts), -1, dtype=np.int64)
     if exact_flip_possible(view, featurizer, rule) and len(texts):
-        flips = exact_flips(view, featurizer, rule, counts, batch.decision)
+        flips = exact_flips(view, featurizer, rule, counts, batch.decision, jll=batch.jll)
         flip = np.where(flips.units > 0, flips.size, -1)
     margin = flagged = probability = None
     if rule.normal_index is not None and view.n_classes > 1:
@@ -90,8 +90,8 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
         margin=margin,
         flagged=flagged,
         flip_size=flip,
-        empty=np.fromiter((not t.strip() for t in texts), dtype=bool, count=len(texts)),
-        large=sum(len(t) > LARGE_TEXT_BYTES // 4 and len(t.encode("utf-8", "surrogatepass")) > LARGE_TEXT_BYTES for t in texts),
+        empty=_empty(texts),
+        large=_large(texts),
     )
     found = None
     if drivers:
@@ -99,3 +99,18 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
         prepared.sort_indices()
         found = chunk_drivers(view, rule, prepared, batch.jll, batch.decision)
     return rows, found
+
+
+def _empty(texts: list) -> np.ndarray:
+    """Texts with no character other than white space, (n,) bool."""
+    blank = np.fromiter(map(str.isspace, texts), dtype=bool, count=len(texts))
+    return blank | (np.fromiter(map(len, texts), dtype=np.int64, count=len(texts)) == 0)
+
+
+def _large(texts: list) -> int:
+    """How many texts exceed :data:`LARGE_TEXT_BYTES` in UTF-8 (at most 4 bytes a character)."""
+    lengths = np.fromiter(map(len, texts), dtype=np.int64, count=len(texts))
+    return sum(
+        len(texts[i].encode("utf-8", "surrogatepass")) > LARGE_TEXT_BYTES
+        for i in np.flatnonzero(lengths > LARGE_TEXT_BYTES // 4)
+    )

@@ -33,8 +33,21 @@ def _progress_display():
             console=err_console, transient=True,
         )
         task = bar.add_task("ledger", total=1.0, messages=0, rate=0.0)
-        with bar:
-            yield lambda p: bar.update(task, completed=p.done, messages=p.messages, rate=p.messages / max(p.seconds, 1e-9))
+        started = []
+
+        def show(p):
+            # Started with the first chunk, not before: the bar's refresh thread
+            # would keep the run from forking its tokenising helper.
+            if not started:
+                bar.start()
+                started.append(True)
+            bar.update(task, completed=p.done, messages=p.messages, rate=p.messages / max(p.seconds, 1e-9))
+
+        try:
+            yield show
+        finally:
+            if started:
+                bar.stop()
         return
     last = [time.monotonic()]
 

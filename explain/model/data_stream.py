@@ -183,6 +183,8 @@ def _arrow_texts(column) -> tuple[list, int, int]:
             pass
     elif not (pa.types.is_string(column.type) or pa.types.is_large_string(column.type)):
         column = column.cast(pa.large_string())
+    if column.null_count == 0 and (pa.types.is_string(column.type) or pa.types.is_large_string(column.type)):
+        return column.to_pylist(), 0, 0  # every value is a str already: nothing to count or replace
     return _texts(column.to_pylist())
 
 

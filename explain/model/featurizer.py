@@ -103,7 +103,7 @@ class Featurizer:
             own = CountVectorizer().get_params()
             self._counter = CountVectorizer(
                 **{k: v for k, v in vectorizer.get_params().items() if k in own and k != "vocabulary"},
-            ).set_params(binary=False, vocabulary=vectorizer.vocabulary_)
+            ).set_params(binary=False, vocabulary=vectorizer.vocabulary_, dtype=np.float64)
             self._vocabulary = vectorizer.vocabulary_
             self._hash_norm = None
         self._analyzer = vectorizer.build_analyzer()
@@ -131,9 +131,12 @@ class Featurizer:
         """Raw occurrence counts and the pipeline's features from one tokenisation.
 
         Both are (n, n_features) float64 CSR; the features equal ``transform``
-        (the same scikit-learn steps, applied to the same count matrix).
+        (the same scikit-learn steps, applied to the same count matrix). For
+        plain counts the two are one matrix: callers must not change it in place.
         """
-        counts = sp.csr_matrix(self._counter.transform(texts))
+        counts = sp.csr_matrix(self._counter.transform(texts), dtype=np.float64)
+        if not (self.vectorizer.binary or self._hash_norm is not None or self.tfidf is not None):
+            return counts, counts
         X = counts.copy()
         if self.vectorizer.binary:
             X.data.fill(1)

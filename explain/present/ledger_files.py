@@ -17,7 +17,6 @@ import contextlib
 import gzip
 import json
 import time
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -286,13 +285,18 @@ def write_ledger(
     model, paths, text_col: str, out, *, id_col=None, top_k=5, chunk_rows=20_000,
     only_flagged=False, threshold=None, summary=None,
     on_chunk: Callable[[LedgerProgress], None] | None = None, progress: LedgerProgress | None = None,
+    helper: bool = True,
 ) -> LedgerProgress:
     """Write the ledger of every message in ``paths`` to ``out`` (and flag drivers to ``summary``).
 
     Returns the run's totals; ``progress`` (updated after each chunk) and
     ``on_chunk`` let a caller show how far it has got, also after an error.
+    ``helper`` lets a second process tokenise the next chunk while this one
+    computes (:mod:`explain.model.feature_worker`); the rows are the same
+    either way.
     """
     from explain.model.data_stream import stream_texts
+    from explain.model.feature_worker import featured
 
     fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger")
     rule, drivers = run_rule(model, threshold, only_flagged, summary)
@@ -300,34 +304,24 @@ def write_ledger(
     progress.flags_known = rule.normal_index is not None
     ids_seen = IdCounter() if id_col is not None else None
     start = time.perf_counter()
-    def finish(chunk, ids, done):
-        nonlocal drivers
-        rows, table, found = done.result()
-        writer.write(table)
-        if found is not None:
-            drivers = drivers.plus(found)
-        if ids_seen is not None:
-            ids_seen.add(ids)
-        progress.add(rows, model.view.classes, chunk.source, chunk.file_row, chunk.done, chunk.nulls, chunk.replaced)
-        progress.seconds = time.perf_counter() - start
-        if on_chunk is not None:
-            on_chunk(progress)
-
     with atomic_path(out) as tmp:
         writer = LedgerWriter(tmp, fmt, gzipped)
-        # Tokenising (Python, holds the GIL) overlaps with the previous chunk's
-        # array work (numpy and Arrow mostly release it): two chunks in flight.
-        with contextlib.closing(writer), ThreadPoolExecutor(max_workers=1) as pool:
-            pending = None
-            for chunk in stream_texts(paths, text_col, id_col, chunk_rows):
+        chunks = featured(stream_texts(paths, text_col, id_col, chunk_rows), model.featurizer, helper)
+        with contextlib.closing(writer), contextlib.closing(chunks):
+            for chunk, features in chunks:
                 ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
-                features = model.featurizer.counts_and_features(chunk.texts)
-                if pending is not None:
-                    finish(*pending)
-                work = pool.submit(ledger_chunk, model, rule, chunk.texts, ids, top_k, only_flagged, summary is not None, features)
-                pending = (chunk, ids, work)
-            if pending is not None:
-                finish(*pending)
+                rows, table, found = ledger_chunk(
+                    model, rule, chunk.texts, ids, top_k, only_flagged, summary is not None, features
+                )
+                writer.write(table)
+                if found is not None:
+                    drivers = drivers.plus(found)
+                if ids_seen is not None:
+                    ids_seen.add(ids)
+                progress.add(rows, model.view.classes, chunk.source, chunk.file_row, chunk.done, chunk.nulls, chunk.replaced)
+                progress.seconds = time.perf_counter() - start
+                if on_chunk is not None:
+                    on_chunk(progress)
         if progress.messages == 0:
             raise NbledgerError("the input holds no messages")
         if ids_seen is not None:
