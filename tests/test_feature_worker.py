@@ -24,7 +24,7 @@ def same_csr(a, b) -> bool:
 
 
 @settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(case=cases(), texts=st.lists(messages, min_size=0, max_size=6))
+@given(case=cases(), texts=st.lists(messages, min_size=1, max_size=6))
 def test_the_helper_computes_the_features_this_process_would(case, texts):
     featurizer = case.model.featurizer
     with FeatureWorker(featurizer) as worker:

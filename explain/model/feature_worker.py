@@ -11,25 +11,17 @@ helper waits for one, so neither side ever blocks on the other's full pipe.
 The helper ignores SIGINT and SIGTERM (this process decides how a run stops)
 and ends when its pipe closes, also when this process dies.
 
-It is used only where ``fork`` exists and this process runs no other thread
-(a fork copies one thread, and locks that other threads hold stay locked);
-:func:`can_fork` says whether that holds, and callers then featurise in
-their own process.
+It is used only where :func:`explain.model.forking.can_fork` says a fork is
+safe; otherwise this process tokenises.
 """
 
 from __future__ import annotations
 
 import multiprocessing
 import signal
-import sys
-import threading
 
 from explain.errors import NbledgerError
-
-
-def can_fork() -> bool:
-    """Whether a helper can be started safely: ``fork`` exists and no other thread runs."""
-    return sys.platform.startswith("linux") and threading.active_count() == 1
+from explain.model.forking import can_fork, flush_standard_streams
 
 
 def _serve(featurizer, conn, other_end) -> None:
@@ -95,6 +87,7 @@ class FeatureWorker:
     """
 
     def __init__(self, featurizer):
+        flush_standard_streams()
         context = multiprocessing.get_context("fork")
         self._conn, child = context.Pipe()
         self._process = context.Process(target=_serve, args=(featurizer, child, self._conn), daemon=True, name="nbledger-tokeniser")

@@ -1,7 +1,7 @@
-"""The separate loading process: ``python -m explain.model.load_child REQUEST``.
+"""The separate loading process: a fork of the caller, or ``python -m explain.model.load_child REQUEST``.
 
-It runs under an address-space limit (``RLIMIT_AS``, set before anything else
-is imported) and a CPU-time limit, opens the model file with
+It runs under an address-space limit (``RLIMIT_AS``, set before the file is
+opened) and a CPU-time limit, opens the model file with
 :func:`explain.model.loading.read_object` (skops allow-list, pickle only when
 allowed), checks the pipeline, and writes its plain form
 (:mod:`explain.model.plain_form`) into the folder it was given, with
@@ -41,8 +41,25 @@ def _load(request: dict, out: Path) -> dict:
     return {"ok": True}
 
 
-def main(argv: list[str]) -> int:
-    request = json.loads(argv[0])
+def address_space_bytes() -> int:
+    """This process's current virtual memory size (``VmSize``), 0 where it cannot be read."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as status:
+            for line in status:
+                if line.startswith("VmSize:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return 0
+
+
+def serve(request: dict) -> None:
+    """Load as ``request`` says, under its limits, and write ``result.json`` (never raises).
+
+    The process may use ``request["memory"]`` bytes of address space in all
+    (a fork counts what it shares with its parent, as a new interpreter counts
+    its imports); its CPU time limit counts from its own start.
+    """
     memory = int(request["memory"])
     resource.setrlimit(resource.RLIMIT_AS, (memory, memory))
     cpu = int(request["cpu_seconds"])
@@ -64,6 +81,10 @@ def main(argv: list[str]) -> int:
                   + (f": {first[0]}" if first else "")}
     result["peak_bytes"] = _peak_bytes()
     (out / "result.json").write_text(json.dumps(result, allow_nan=False), encoding="utf-8")
+
+
+def main(argv: list[str]) -> int:
+    serve(json.loads(argv[0]))
     return 0
 
 

@@ -9,7 +9,8 @@ A model file is hostile until proven otherwise:
   archives: the sizes their members declare once inflated are checked against
   the memory limit before anything is inflated (Python's ``zipfile`` never
   inflates a member past its declared size).
-- The file is then opened in a separate process (:mod:`explain.model.load_child`)
+- The file is then opened in a separate process (:mod:`explain.model.load_child`,
+  a fork of this one where that is safe, else a new interpreter)
   under a memory limit and a time limit (:class:`LoadLimits`), with skops'
   allow-list: types it does not trust are refused, named, and may be accepted
   one by one (``trust``). That process hands back only plain data
@@ -43,6 +44,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Callable
 
 from explain.errors import NbledgerError
+from explain.model.forking import can_fork, flush_standard_streams
 from explain.model.input_files import input_file
 from explain.model.model_view import ModelView, view_of
 
@@ -379,10 +381,10 @@ def load_in_child(files: list[Path], *, allow_pickle: bool, trust: tuple, limits
 
     Returns ``{"plain": (arrays, settings), "peak_bytes": n}``, or
     ``{"needs_code": reason}`` for a text step that runs code of its own.
-    Everything else ends in an :class:`NbledgerError`.
+    Everything else ends in an :class:`NbledgerError`. The process is a fork
+    of this one where that is safe and leaves room under the memory limit
+    (it starts in milliseconds), else a new interpreter.
     """
-    from explain.model import plain_form
-
     name = files[0].name
     folder = Path(tempfile.mkdtemp(prefix="nbledger-load-"))
     request = {
@@ -394,6 +396,78 @@ def load_in_child(files: list[Path], *, allow_pickle: bool, trust: tuple, limits
         "cpu_seconds": max(1, int(limits.timeout) + 1),
         "out": str(folder),
     }
+    child = None
+    try:
+        if _fork_fits(limits.memory):
+            started, child = time.monotonic(), _fork_loader(request, folder)
+            child.join(timeout=max(0.0, limits.timeout - (time.monotonic() - started)))
+            if child.is_alive():
+                raise NbledgerError(
+                    f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped"
+                )
+            returncode = child.exitcode
+        else:
+            started, returncode = _spawned_loader(request, folder, name, limits)
+        return _outcome(folder, name, limits, started, returncode)
+    finally:
+        if child is not None and child.is_alive():
+            child.kill()
+            child.join()
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+#: Address space a fork must have left under the limit to load a file in (else a new interpreter is started).
+FORK_HEADROOM = 256 << 20
+
+
+def _fork_fits(memory: int) -> bool:
+    """Whether to fork the loading process: safe here, and this process leaves room under ``memory``."""
+    from explain.model.load_child import address_space_bytes
+
+    return can_fork() and address_space_bytes() + FORK_HEADROOM <= memory
+
+
+def _fork_loader(request: dict, folder: Path):
+    """Start the loading process as a fork of this one (see :mod:`explain.model.forking`).
+
+    Everything the loading imports is imported here first, so that the fork
+    shares it instead of importing it again (this process needs most of it
+    anyway, to rebuild the text step).
+    """
+    import multiprocessing
+
+    import skops.io  # noqa: F401
+    import sklearn.feature_extraction.text  # noqa: F401
+    import sklearn.naive_bayes  # noqa: F401
+    import sklearn.pipeline  # noqa: F401
+
+    from explain.model import load_child, model_view, plain_form  # noqa: F401
+
+    flush_standard_streams()
+    child = multiprocessing.get_context("fork").Process(
+        target=_run_forked, args=(request, folder), daemon=True, name="nbledger-loader"
+    )
+    child.start()
+    return child
+
+
+def _run_forked(request: dict, folder: Path) -> None:
+    """The forked loading process: its own session, quiet standard streams, then :func:`load_child.serve`."""
+    from explain.model import load_child
+
+    os.setsid()
+    for signum in (signal.SIGINT, signal.SIGTERM):
+        signal.signal(signum, signal.SIG_DFL)
+    with open(os.devnull, "rb") as nothing, open(folder / "stderr.txt", "wb") as errors:
+        os.dup2(nothing.fileno(), 0)
+        os.dup2(errors.fileno(), 1)
+        os.dup2(errors.fileno(), 2)
+    sys.stdout = sys.stderr = open(2, "w", closefd=False)
+    load_child.serve(request)
+
+
+def _spawned_loader(request: dict, folder: Path, name: str, limits: LoadLimits) -> tuple[float, int]:
+    """Run the loading process as a new interpreter; returns (start time, exit status)."""
     env = dict(os.environ)
     # The child imports what this process would (a trusted custom type's module included).
     env["PYTHONPATH"] = os.pathsep.join([_package_root(), *(p for p in sys.path if p and os.path.isdir(p))])
@@ -418,30 +492,35 @@ def load_in_child(files: list[Path], *, allow_pickle: bool, trust: tuple, limits
                 raise NbledgerError(
                     f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped"
                 ) from None
-        result_file = folder / "result.json"
-        if not result_file.exists():
-            how = (f"signal {signal.Signals(-child.returncode).name}" if child.returncode < 0
-                   else f"exit status {child.returncode}")
-            tail = (folder / "stderr.txt").read_bytes()[-2000:].decode("utf-8", "replace").strip().splitlines()
-            if child.returncode == -signal.SIGXCPU or (time.monotonic() - started) >= limits.timeout:
-                raise NbledgerError(f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped")
-            raise NbledgerError(
-                f"loading {name} stopped ({how}{'; ' + tail[-1] if tail else ''}); "
-                f"it may need more than {limits.memory:,} bytes (--max-model-memory)"
-            )
-        result = json.loads(result_file.read_text(encoding="utf-8"))
-        if result.get("memory"):
-            raise NbledgerError(
-                f"loading {name} needed more than {limits.memory:,} bytes (--max-model-memory); it was stopped"
-            )
-        if "error" in result:
-            raise NbledgerError(result["error"])
-        if "needs_code" in result:
-            return result
-        result["plain"] = plain_form.load(folder)
-        return result
+        return started, child.returncode
     finally:
         if child is not None and child.poll() is None:
             os.killpg(child.pid, signal.SIGKILL)
             child.wait()
-        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _outcome(folder: Path, name: str, limits: LoadLimits, started: float, returncode: int) -> dict:
+    """What the loading process left in ``folder``, or the one-line error it comes to."""
+    from explain.model import plain_form
+
+    result_file = folder / "result.json"
+    if not result_file.exists():
+        how = f"signal {signal.Signals(-returncode).name}" if returncode < 0 else f"exit status {returncode}"
+        tail = (folder / "stderr.txt").read_bytes()[-2000:].decode("utf-8", "replace").strip().splitlines()
+        if returncode == -signal.SIGXCPU or (time.monotonic() - started) >= limits.timeout:
+            raise NbledgerError(f"loading {name} took longer than {limits.timeout:g} s (--load-timeout); it was stopped")
+        raise NbledgerError(
+            f"loading {name} stopped ({how}{'; ' + tail[-1] if tail else ''}); "
+            f"it may need more than {limits.memory:,} bytes (--max-model-memory)"
+        )
+    result = json.loads(result_file.read_text(encoding="utf-8"))
+    if result.get("memory"):
+        raise NbledgerError(
+            f"loading {name} needed more than {limits.memory:,} bytes (--max-model-memory); it was stopped"
+        )
+    if "error" in result:
+        raise NbledgerError(result["error"])
+    if "needs_code" in result:
+        return result
+    result["plain"] = plain_form.load(folder)
+    return result
