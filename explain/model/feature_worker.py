@@ -1,135 +1,141 @@
-"""Tokenising on a second core: a helper process that featurises chunks of texts.
+"""Reading and tokenising on a second core: a helper process that streams featurised chunks.
 
 Tokenising is Python code that holds the interpreter lock, so a thread cannot
 run it beside the array work of the previous chunk; a process can. The
 helper is a fork of this process, so it shares the loaded model without
-pickling it, and it runs nothing but :meth:`Featurizer.counts_and_features`:
-its results are the ones this process would compute, to the last bit.
+pickling it. It reads the input chunk by chunk (the same reader, with the
+same limits and errors) and runs :meth:`Featurizer.counts_and_features` on
+each chunk: its results are the ones this process would compute, to the last
+bit. It queues each chunk with its features and reads the next one while
+this process computes the evidence of the last; at most
+:data:`CHUNKS_AHEAD` chunks wait in the queue, so memory stays bounded.
 
-One chunk is in the helper at a time, and a chunk is sent only while the
-helper waits for one, so neither side ever blocks on the other's full pipe.
-The helper ignores SIGINT and SIGTERM (this process decides how a run stops)
-and ends when its pipe closes, also when this process dies.
-
-It is used only where :func:`explain.model.forking.can_fork` says a fork is
-safe; otherwise this process tokenises.
+The helper ignores SIGINT and SIGTERM (this process decides how a run stops),
+is ended when this process leaves early, and is ended by the kernel if this
+process dies. It is used only
+where :func:`explain.model.forking.can_fork` says a fork is safe; otherwise
+this process reads and tokenises.
 """
 
 from __future__ import annotations
 
 import multiprocessing
+import os
+import queue
 import signal
+from typing import Callable, Iterable
 
 from explain.errors import NbledgerError
 from explain.model.forking import can_fork, flush_standard_streams
 
+#: Chunks the helper may have ready before the caller takes them (memory grows with this and the chunk size).
+CHUNKS_AHEAD = 2
 
-def _serve(featurizer, conn, other_end) -> None:
-    other_end.close()  # else the pipe never reports the caller's end closed
+
+def featured(make_chunks: Callable[[], Iterable], featurizer, helper: bool = True):
+    """``(chunk, (counts, features))`` for each chunk ``make_chunks()`` yields (chunks have ``.texts``).
+
+    With ``helper`` (and where a fork is safe) a :class:`StreamWorker` reads
+    and tokenises; else this process does. Close the generator
+    (``contextlib.closing``) so that an early stop ends the helper.
+    """
+    if not (helper and can_fork()):
+        for chunk in make_chunks():
+            yield chunk, featurizer.counts_and_features(chunk.texts)
+        return
+    with StreamWorker(make_chunks, featurizer) as worker:
+        yield from worker
+
+
+def _serve(make_chunks, featurizer, out, parent: int) -> None:
+    _end_with_parent(parent)
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_IGN)
-    while True:
-        try:
-            texts = conn.recv()
-        except (EOFError, OSError):
-            return
-        try:
-            reply = ("ok", featurizer.counts_and_features(texts))
-        except MemoryError:
-            reply = ("error", "out of memory while tokenising")
-        except Exception as exc:  # the caller reports it as one line
-            reply = ("error", f"{type(exc).__name__}: {exc}")
-        try:
-            conn.send(reply)
-        except (EOFError, OSError):
-            return
+    with open(os.devnull, "wb") as nothing:  # what goes wrong travels as a message, never as a traceback
+        os.dup2(nothing.fileno(), 1)
+        os.dup2(nothing.fileno(), 2)
+    try:
+        for chunk in make_chunks():
+            out.put(("chunk", chunk, featurizer.counts_and_features(chunk.texts)))
+        reply = ("end", None)
+    except NbledgerError as exc:
+        reply = ("error", str(exc))
+    except MemoryError:
+        reply = ("error", "out of memory while reading and tokenising the input")
+    except Exception as exc:  # a defect; the caller reports it as one line
+        reply = ("defect", f"{type(exc).__name__}: {exc}")
+    out.put(reply)
 
 
-def featured(chunks, featurizer, helper: bool = True):
-    """``(chunk, (counts, features))`` for each chunk of an iterable of chunks with ``.texts``.
+def _end_with_parent(parent: int) -> None:
+    """Have the kernel end this process when its parent dies (Linux ``PR_SET_PDEATHSIG``)."""
+    try:
+        import ctypes
 
-    From the second chunk on, a :class:`FeatureWorker` tokenises the next
-    chunk while the caller works on the one yielded (the first chunk is
-    tokenised here while the helper takes the second); with a single chunk, or
-    where :func:`can_fork` says no or ``helper`` is False, this process
-    tokenises. Close the
-    generator (``contextlib.closing``) so that an early stop ends the helper.
-    """
-    chunks = iter(chunks)
-    first = next(chunks, None)
-    if first is None:
-        return
-    second = next(chunks, None)
-    if second is None or not helper or not can_fork():
-        for chunk in ([first] if second is None else [first, second]):
-            yield chunk, featurizer.counts_and_features(chunk.texts)
-        for chunk in chunks:
-            yield chunk, featurizer.counts_and_features(chunk.texts)
-        return
-    with FeatureWorker(featurizer) as worker:
-        # The helper takes the second chunk while this process tokenises the first.
-        worker.submit(second.texts)
-        yield first, featurizer.counts_and_features(first.texts)
-        pending = second
-        for chunk in chunks:
-            features = worker.result()
-            worker.submit(chunk.texts)
-            yield pending, features
-            pending = chunk
-        yield pending, worker.result()
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1: PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass
+    if os.getppid() != parent:  # the parent died before the request took effect
+        os._exit(0)
 
 
-class FeatureWorker:
-    """A forked helper featurising one chunk at a time (see the module note).
+class StreamWorker:
+    """A forked helper that reads and featurises the chunks of ``make_chunks()`` (see the module note).
 
-    ``submit(texts)`` hands it a chunk; ``result()`` waits for that chunk's
-    ``(counts, features)``. Use as a context manager: leaving stops the helper.
+    Iterate over it for ``(chunk, (counts, features))`` in input order; use it
+    as a context manager: leaving stops the helper.
     """
 
-    def __init__(self, featurizer):
+    def __init__(self, make_chunks: Callable[[], Iterable], featurizer):
         flush_standard_streams()
         context = multiprocessing.get_context("fork")
-        self._conn, child = context.Pipe()
-        self._process = context.Process(target=_serve, args=(featurizer, child, self._conn), daemon=True, name="nbledger-tokeniser")
+        self._queue = context.Queue(maxsize=CHUNKS_AHEAD)
+        self._process = context.Process(
+            target=_serve, args=(make_chunks, featurizer, self._queue, os.getpid()), daemon=True,
+            name="nbledger-reader",
+        )
         self._process.start()
-        child.close()
-        self._busy = False
+        self._done = False
 
-    def submit(self, texts: list) -> None:
-        if self._busy:
-            raise RuntimeError("the helper holds a chunk already; take its result first")
-        try:
-            self._conn.send(texts)
-        except OSError:
-            raise self._gone() from None
-        self._busy = True
-
-    def result(self):
-        self._busy = False
-        try:
-            kind, payload = self._conn.recv()
-        except (EOFError, OSError):
-            raise self._gone() from None
-        if kind == "error":
-            raise NbledgerError(f"tokenising failed: {payload}")
-        return payload
+    def __iter__(self):
+        while True:
+            try:
+                message = self._queue.get(timeout=0.5)
+            except queue.Empty:
+                if not self._process.is_alive():
+                    raise self._gone() from None
+                continue
+            except (EOFError, OSError):
+                raise self._gone() from None
+            kind = message[0]
+            if kind == "chunk":
+                yield message[1], message[2]
+            elif kind == "end":
+                self._done = True
+                return
+            elif kind == "error":
+                self._done = True
+                raise NbledgerError(message[1])
+            else:
+                self._done = True
+                raise RuntimeError(message[1])  # a defect in the helper: reported as one
 
     def _gone(self) -> NbledgerError:
         self._process.join(timeout=1.0)
         return NbledgerError(
-            f"the helper process that tokenises stopped unexpectedly (exit code {self._process.exitcode})"
+            f"the helper process that reads and tokenises stopped unexpectedly (exit code {self._process.exitcode})"
         )
 
     def close(self) -> None:
-        """Stop the helper: at once if it still holds a chunk (a run that stops early), else when its pipe closes."""
-        self._conn.close()
-        if not self._busy:
+        """Stop the helper: wait for it when it has finished, else end it at once (a run that stops early)."""
+        if self._done:
             self._process.join(timeout=2.0)
         if self._process.is_alive():
             self._process.kill()
             self._process.join()
+        self._queue.close()
 
-    def __enter__(self) -> "FeatureWorker":
+    def __enter__(self) -> "StreamWorker":
         return self
 
     def __exit__(self, *exc) -> None:

@@ -1,10 +1,12 @@
 """The ledger on a Dask cluster: the same rows as the local engine, computed by workers.
 
-The input becomes a Dask DataFrame (``dask.dataframe.from_map``) whose
-partitions are the pieces of :func:`explain.model.data_stream.input_pieces`:
-a Parquet row group, or a whole CSV / JSON Lines file. Each partition is read
-with the local engine's reader (same UTF-8 and missing-text policy) and
-explained in chunks by :func:`explain.present.ledger_files.ledger_chunk`. The
+The ledger is a Dask DataFrame (``dask.dataframe.from_map``) with one
+partition per piece of :func:`explain.model.data_stream.input_pieces` (a
+Parquet row group, or a whole CSV / JSON Lines file). Each partition is one
+task that reads its piece with the local engine's reader (same UTF-8 and
+missing-text policy) and explains it in chunks with
+:func:`explain.present.ledger_files.ledger_chunk`; the partition holds that
+part's result in one row. The
 model is scattered to every worker once (``Client.scatter(broadcast=True)``)
 and handed to the tasks as a future.
 
@@ -100,6 +102,24 @@ def _explain_partition(frame, first_row, model, rule, top_k, only_flagged, drive
     return table, progress, found_all, hashes
 
 
+def _ledger_piece(piece, first_row, part_path, text_col, id_col, chunk_rows, model, rule, top_k, only_flagged, drivers):
+    """One partition of the ledger: read ``piece`` and explain it, in one task.
+
+    Returns a one-row pandas DataFrame whose ``result`` cell holds
+    :func:`_explain_partition`'s tuple. Reading and explaining in one task
+    keeps the piece's texts on the worker that reads them.
+    """
+    import pandas as pd
+
+    frame = _piece_frame(piece, text_col, id_col, chunk_rows)
+    result = _explain_partition(
+        frame, int(first_row), model, rule, top_k, only_flagged, drivers, chunk_rows, part_path, id_col
+    )
+    cell = pd.Series([None], dtype=object)
+    cell.iloc[0] = result
+    return pd.DataFrame({"result": cell})
+
+
 @contextlib.contextmanager
 def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
     """A distributed Client on ``scheduler``, or on a local cluster of ``workers`` processes."""
@@ -170,30 +190,29 @@ def write_ledger_dask(
         import dask.dataframe as dd
         import pandas as pd
 
-        meta = pd.DataFrame({c: pd.Series(dtype=object if c in ("id", "text") else np.int64) for c in _FRAME_COLUMNS})
-        frame = dd.from_map(_piece_frame, pieces, args=(text_col, id_col, chunk_rows), meta=meta, enforce_metadata=False)
-        parts = frame.to_delayed()
         lengths = [p.rows for p in pieces]
         if id_col is None and any(n is None for n in lengths):
-            # Row numbers need each partition's offset: count the rows first.
-            lengths = list(client.compute(frame.map_partitions(len), sync=True))
-        offsets = np.concatenate(([0], np.cumsum([n or 0 for n in lengths])))[:-1]
+            # Row numbers need each partition's offset: count the rows of the texts' frame first.
+            meta = pd.DataFrame({c: pd.Series(dtype=object if c in ("id", "text") else np.int64) for c in _FRAME_COLUMNS})
+            texts = dd.from_map(_piece_frame, pieces, args=(text_col, id_col, chunk_rows), meta=meta, enforce_metadata=False)
+            lengths = list(client.compute(texts.map_partitions(len), sync=True))
+        offsets = [int(o) for o in np.concatenate(([0], np.cumsum([n or 0 for n in lengths])))[:-1]]
         shipped = client.scatter(model, broadcast=True)
         target = atomic_path(out) if single else _atomic_folder(out)
-        with target as tmp:
-            tasks = [
-                dask.delayed(_explain_partition)(
-                    part, int(offset), shipped, rule, top_k, only_flagged, drivers is not None, chunk_rows,
-                    None if single else str(tmp / f"part.{i:05d}.parquet"), id_col,
-                )
-                for i, (part, offset) in enumerate(zip(parts, offsets))
-            ]
-            futures = client.compute(tasks)
+        # The cells hold Python objects: Dask must not turn the object column into strings.
+        with target as tmp, dask.config.set({"dataframe.convert-string": False}):
+            part_paths = [None if single else str(tmp / f"part.{i:05d}.parquet") for i in range(len(pieces))]
+            ledger = dd.from_map(
+                _ledger_piece, pieces, offsets, part_paths,
+                args=(text_col, id_col, chunk_rows, shipped, rule, top_k, only_flagged, drivers is not None),
+                meta=pd.DataFrame({"result": pd.Series(dtype=object)}), enforce_metadata=False,
+            )
+            futures = client.compute(ledger.to_delayed())
             ids_seen = IdCounter() if id_col is not None else None
             writer = LedgerWriter(tmp, fmt, gzipped) if single else None
             try:
                 for i, future in enumerate(futures):
-                    table, part_progress, found, hashes = future.result()
+                    table, part_progress, found, hashes = future.result()["result"].iloc[0]
                     future.release()
                     if writer is not None and table is not None:
                         writer.write(table)

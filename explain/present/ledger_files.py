@@ -291,9 +291,9 @@ def write_ledger(
 
     Returns the run's totals; ``progress`` (updated after each chunk) and
     ``on_chunk`` let a caller show how far it has got, also after an error.
-    ``helper`` lets a second process tokenise the next chunk while this one
-    computes (:mod:`explain.model.feature_worker`); the rows are the same
-    either way.
+    ``helper`` lets a second process read and tokenise the next chunk while
+    this one computes (:mod:`explain.model.feature_worker`); the rows are the
+    same either way.
     """
     from explain.model.data_stream import stream_texts
     from explain.model.feature_worker import featured
@@ -306,7 +306,7 @@ def write_ledger(
     start = time.perf_counter()
     with atomic_path(out) as tmp:
         writer = LedgerWriter(tmp, fmt, gzipped)
-        chunks = featured(stream_texts(paths, text_col, id_col, chunk_rows), model.featurizer, helper)
+        chunks = featured(lambda: stream_texts(paths, text_col, id_col, chunk_rows), model.featurizer, helper)
         with contextlib.closing(writer), contextlib.closing(chunks):
             for chunk, features in chunks:
                 ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
