@@ -21,6 +21,7 @@ model's own analyzer reads them (its case folding and word boundaries).
 from __future__ import annotations
 
 import re
+from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -34,6 +35,8 @@ from explain.errors import NbledgerError
 from explain.model.decision import DecisionRule
 
 MAX_FILE_BYTES = 1 << 20
+#: Texts tokenised at a time when looking for terms (memory for their tokens, not for all of them).
+TOKENISE_ROWS = 10_000
 
 
 @dataclass(frozen=True)
@@ -229,9 +232,10 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
         raise NbledgerError("term swaps need a normal class: name it with --normal-class")
     token_group = {tok: (g, i) for g, group in enumerate(terms.groups) for i, tok in enumerate(group.tokens)}
     rows, sources, targets, found, already = [], [], [], [], []
-    hits = []
-    for i, counts in _term_counts(featurizer, texts, token_group):
+    hits, hit_tokens = [], []
+    for i, counts, tokens in _term_counts(featurizer, texts, token_group):
         hits.append(i)
+        hit_tokens.append(tokens)
         for tok, n in counts.items():
             g, s = token_group[tok]
             for t in range(len(terms.groups[g].tokens)):
@@ -243,7 +247,12 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
                     already.append(counts.get(terms.groups[g].tokens[t], 0))
     message = np.asarray(rows, dtype=np.int64)
     if len(message):
-        before = raw_counts(featurizer, [texts[i] for i in hits])
+        if all(t is not None for t in hit_tokens):  # the texts were tokenised once already
+            before = featurizer.counts_of_tokens(hit_tokens)
+            if featurizer.vectorizer.binary:
+                before.data[:] = 1.0
+        else:
+            before = raw_counts(featurizer, [texts[i] for i in hits])
         where = {i: r for r, i in enumerate(hits)}
         base = before[[where[i] for i in message]]
         group_of = np.array([g for g, _ in sources], dtype=np.int64)
@@ -282,37 +291,25 @@ def term_swaps(model, texts, rule: DecisionRule, terms: SwapTerms) -> TermSwaps:
 
 
 def _term_counts(featurizer, texts, token_group):
-    """``(row, {token: occurrences})`` for every text holding a term, as the model's analyzer reads it.
+    """``(row, {token: occurrences}, tokens)`` for every text holding a term, as the model's analyzer reads it.
 
-    With scikit-learn's default word analyzer (lower-casing, the default
-    token pattern, nothing else changing the text) a token is a run of word
-    characters between non-word characters, so one regular expression finds
-    the terms without tokenising whole messages; otherwise the analyzer runs.
+    With a plain word analyzer (:meth:`Featurizer.plain_tokens`) each text is
+    tokenised once and its tokens come along, so that the counts before the
+    swap need no second pass; otherwise scikit-learn's analyzer runs and
+    ``tokens`` is None. Texts are tokenised :data:`TOKENISE_ROWS` at a time.
     """
-    vec = featurizer.vectorizer
-    plain = (
-        vec.token_pattern == r"(?u)\b\w\w+\b" and vec.lowercase and vec.strip_accents is None
-        and vec.preprocessor is None and vec.tokenizer is None and not callable(vec.analyzer)
-    )
-    if plain:
-        alternatives = "|".join(re.escape(t) for t in sorted(token_group, key=len, reverse=True))
-        pattern = re.compile(rf"\b(?:{alternatives})\b")
-        for i, text in enumerate(texts):
-            found = pattern.findall(text.lower())
-            if found:
-                counts: dict[str, int] = {}
-                for tok in found:
-                    counts[tok] = counts.get(tok, 0) + 1
-                yield i, counts
-        return
+    terms = frozenset(token_group)
     analyze = featurizer._analyzer
-    for i, text in enumerate(texts):
-        counts = {}
-        for tok in analyze(text):
-            if tok in token_group:
-                counts[tok] = counts.get(tok, 0) + 1
-        if counts:
-            yield i, counts
+    for start in range(0, len(texts), TOKENISE_ROWS):
+        batch = texts[start : start + TOKENISE_ROWS]
+        lists = featurizer.plain_tokens(batch) or [None] * len(batch)
+        for i, (text, tokens) in enumerate(zip(batch, lists), start=start):
+            if tokens is None:
+                found = Counter(t for t in analyze(text) if t in terms)
+                if found:
+                    yield i, dict(found), None
+            elif not terms.isdisjoint(tokens):
+                yield i, dict(Counter(t for t in tokens if t in terms)), tokens
 
 
 def _substituted(model, texts, message, base, src_tok, tgt_tok, found, already) -> sp.csr_matrix:

@@ -16,6 +16,7 @@ It gives three things:
 
 from __future__ import annotations
 
+import itertools
 import re
 from collections import Counter
 from dataclasses import dataclass
@@ -135,8 +136,9 @@ class Featurizer:
         (the same scikit-learn steps, applied to the same count matrix). For
         plain counts the two are one matrix: callers must not change it in place.
         """
-        if self._plain is not None and all(type(t) is str for t in texts):
-            counts = self._plain_counts(texts)
+        token_lists = self.plain_tokens(texts)
+        if token_lists is not None:
+            counts = self.counts_of_tokens(token_lists)
         else:
             counts = sp.csr_matrix(self._counter.transform(texts), dtype=np.float64)
         if not (self.vectorizer.binary or self._hash_norm is not None or self.tfidf is not None):
@@ -151,28 +153,34 @@ class Featurizer:
             X = getattr(self.tfidf, "_tfidf", self.tfidf).transform(X, copy=False)
         return sp.csr_matrix(counts, dtype=np.float64), sp.csr_matrix(X, dtype=np.float64)
 
-    def _plain_counts(self, texts: list) -> sp.csr_matrix:
-        """What ``CountVectorizer.transform`` gives for a plain word analyzer (see :func:`_plain_words`).
+    def plain_tokens(self, texts) -> list[list[str]] | None:
+        """Each text's tokens as a plain word analyzer makes them (see :func:`_plain_words`), or None.
 
-        The same steps (lower-casing, the token pattern's ``findall``, the
-        stop-word filter, the vocabulary lookup, duplicates summed) without
-        the per-token Python calls, for the whole chunk at once; equal to
-        scikit-learn's matrix entry for entry (tested over random texts).
+        The same steps as scikit-learn's analyzer (lower-casing, the token
+        pattern's ``findall``, the stop-word filter) without its per-text
+        function calls; with :meth:`counts_of_tokens` equal to
+        ``CountVectorizer.transform`` entry for entry (tested over random
+        texts). None when the analyzer is not plain or a text is not a
+        ``str``: then only scikit-learn's own analyzer says what the tokens are.
         """
+        if self._plain is None or not all(type(t) is str for t in texts):
+            return None
         find, lower, stop = self._plain
-        tokens, lengths = [], np.empty(len(texts), dtype=np.int64)
-        for i, text in enumerate(texts):
-            found = find(text.lower() if lower else text)
-            if stop:
-                found = [t for t in found if t not in stop]
-            tokens.extend(found)
-            lengths[i] = len(found)
+        out = [find(text.lower() if lower else text) for text in texts]
+        if stop:
+            out = [[t for t in found if t not in stop] for found in out]
+        return out
+
+    def counts_of_tokens(self, token_lists: list[list[str]]) -> sp.csr_matrix:
+        """Raw counts (n, n_features) float64 CSR of the vocabulary's tokens in each list, duplicates summed."""
+        tokens = list(itertools.chain.from_iterable(token_lists))
+        lengths = np.fromiter(map(len, token_lists), dtype=np.int64, count=len(token_lists))
         get = self._vocabulary.get
-        cols = np.fromiter((get(t, -1) for t in tokens), dtype=np.int64, count=len(tokens))
-        rows = np.repeat(np.arange(len(texts)), lengths)
+        cols = np.fromiter(map(get, tokens, itertools.repeat(-1)), dtype=np.int64, count=len(tokens))
+        rows = np.repeat(np.arange(len(token_lists)), lengths)
         known = cols >= 0
         X = sp.csr_matrix(
-            (np.ones(int(known.sum())), (rows[known], cols[known])), shape=(len(texts), self.n_features)
+            (np.ones(int(known.sum())), (rows[known], cols[known])), shape=(len(token_lists), self.n_features)
         )
         X.sum_duplicates()
         return X
