@@ -117,7 +117,7 @@ def main() -> None:
     t_alone = best_of(args.repeats, lambda: write_ledger(model, [csv], "text", out, id_col="id", helper=False))
     print(f"\n1. {args.n:,} messages from CSV: predict_proba {t_proba:.2f} s ({args.n / t_proba:,.0f}/s), "
           f"ledger {t_ledger:.2f} s ({args.n / t_ledger:,.0f}/s); ratio {t_ledger / t_proba:.2f} (target <= 1.3); "
-          f"CPU seconds of this process {cpu_proba:.2f} and {cpu_ledger:.2f} (the ledger's helper process tokenises "
+          f"CPU seconds of this process {cpu_proba:.2f} and {cpu_ledger:.2f} (the ledger's helper process reads and tokenises "
           f"on the second core); ledger in one process {t_alone:.2f} s, ratio {t_alone / t_proba:.2f}")
 
     # 2. peak memory, each size in a child process
