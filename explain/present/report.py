@@ -54,7 +54,7 @@ def environment():
         lstrip_blocks=True,
         keep_trailing_newline=True,
     )
-    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, probability=wording.probability_of_log_odds,
+    env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, share=_share, probability=wording.probability_of_log_odds,
                        exact=_exact, prob=_prob, flag_label=lambda name: FLAG_LABELS.get(name, name))
     return env
 
@@ -86,6 +86,13 @@ def _num(x, digits: int = 3) -> str:
 
 def _count(x) -> str:
     return "–" if x is None else f"{x:,.0f}"
+
+
+def _share(value, low, high, digits: int = 1) -> str:
+    """A share with its interval, in the glossary's one style (as :func:`_rate` prints a rate)."""
+    if value is None:
+        return "–"
+    return _rate({"value": value, "low": low, "high": high, "denominator": 1}, digits)
 
 
 def _rate(r: dict, digits: int = 1) -> str:
