@@ -245,3 +245,43 @@ def test_cli_probe_is_refused_for_a_hashed_model_in_one_line(tmp_path, capsys):
     line = nbledger(capsys, "probe", path, data, "--text-col", "text", "--evasion",
                     "--normal-class", "ok").one_error_line()
     assert "vocabulary" in line
+
+
+def test_report_names_hashed_columns_by_the_tokens_of_its_messages(tmp_path, capsys):
+    import json
+
+    path, pipeline = _hashed_file(tmp_path, n_features=2**12)
+    data = tmp_path / "labelled.csv"
+    data.write_text("text,label\n" + "".join(f"{t},{lab}\n" for t, lab in zip(TEXTS, LABELS)), encoding="utf-8")
+    twin = tmp_path / "r.json"
+    result = nbledger(capsys, "report", path, "--data", data, "--text-col", "text", "--label-col", "label",
+                      "--normal-class", "ok", "--out", tmp_path / "r.pdf", "--json", twin)
+    assert result.code == 0, result.err
+    document = json.loads(twin.read_text(encoding="utf-8"))
+    assert document["model"]["hashed"] is True
+    listed = [t["token"] for c in document["vocabulary"]["comparisons"] for t in c["top_for"]]
+    assert listed and all(not t.startswith("column ") for t in listed)
+    # every name is made of words of the data, and all words of one name hash into one column
+    words = set(" ".join(TEXTS).split())
+    for name in listed:
+        parts = name.split(" / ")
+        assert set(parts) <= words
+        assert len({pipeline[0].transform([p]).indices[0] for p in parts}) == 1
+
+
+def test_compare_with_data_names_hashed_columns_by_the_data(tmp_path, capsys):
+    import json
+
+    path, _ = _hashed_file(tmp_path, n_features=2**12)
+    other = tmp_path / "other.skops"
+    hasher = HashingVectorizer(n_features=2**12, alternate_sign=False)
+    sio.dump(Pipeline([("v", hasher), ("nb", VARIANT_TYPES["multinomial"](alpha=0.1))]).fit(TEXTS, LABELS), other)
+    data = tmp_path / "labelled.csv"
+    data.write_text("text,label\n" + "".join(f"{t},{lab}\n" for t, lab in zip(TEXTS, LABELS)), encoding="utf-8")
+    result = nbledger(capsys, "compare", path, other, "--data", data, "--text-col", "text", "--label-col", "label",
+                      "--normal-class", "ok", "--format", "json")
+    assert result.code == 0, result.err
+    document = json.loads(result.out)
+    assert any("hashed columns are named" in n for n in document["notes"])
+    shifted = [s["token"] for c in document["vocabulary"]["contrasts"] for s in c["gained"] + c["lost"]]
+    assert shifted and all(not t.startswith("column ") for t in shifted)

@@ -373,6 +373,11 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
     if not same_steps:
         notes.append("the models cut text into tokens differently: evidence is compared on the tokens both make, "
                      "decisions and metrics on the messages as each model reads them")
+    if messages is not None and (old.featurizer.hashed or new.featurizer.hashed):
+        # Hashed features store no vocabulary: name each column by the tokens of the data hashed into it.
+        old, new = old.named_for(messages.texts), new.named_for(messages.texts)
+        notes.append("hashed columns are named by the tokens of the data that hash into them; "
+                     "columns no such token reaches keep their numbers")
     vocabulary = vocabulary_change(old, new, normal, top)
     decisions = None
     if messages is not None:

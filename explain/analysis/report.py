@@ -86,6 +86,7 @@ class ModelFacts:
     classes: tuple[ClassFacts, ...]
     card_created: str | None
     training_data_sha256: str | None
+    hashed: bool = False
 
 
 def model_facts(model) -> ModelFacts:
@@ -104,6 +105,7 @@ def model_facts(model) -> ModelFacts:
         ),
         card_created=card.get("created"),
         training_data_sha256=(card.get("data") or {}).get("sha256"),
+        hashed=bool(model.featurizer.hashed),
     )
 
 
@@ -265,6 +267,8 @@ def build_report(
     date = report_date()
     redact = settings.redact
     on_step("reviewing the vocabulary")
+    # Hashed features store no vocabulary: name each column by the tokens of the report's texts hashed into it.
+    model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
     vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none")
     assessment = None
     if data is not None:
