@@ -126,6 +126,12 @@ class OutputSet:
         self._folders.append(path)
         return path
 
+    def not_input(self, path) -> Path:
+        """Refuse ``path`` now if it is (or resolves to) an input of the run; for outputs written elsewhere."""
+        path = Path(path)
+        self._check_not_input(path)
+        return path
+
     def _check_not_input(self, path: Path) -> None:
         for source in self._inputs:
             if _same_file(path, source):

@@ -46,8 +46,16 @@ def leftovers(folder: Path, name: str) -> list:
 
 
 def staged_size(folder: Path, name: str) -> int:
-    """Bytes written so far to the staged copy of output ``name`` (0 before it exists)."""
-    return max((p.stat().st_size for p in folder.glob(f".nbledger-*/*{name}")), default=0)
+    """Bytes written so far to the staged copy of output ``name``, or to its temporary file (0 before either exists)."""
+    sizes = []
+    for stage in folder.glob(".nbledger-*"):
+        for where, _, files in os.walk(stage):
+            for file in files:
+                try:
+                    sizes.append(os.stat(os.path.join(where, file)).st_size if name in file else 0)
+                except OSError:  # renamed or removed while we looked
+                    pass
+    return max(sizes, default=0)
 
 
 def test_totals_line_and_drivers_json(capsys, model, frame, tmp_path):

@@ -55,6 +55,9 @@ def test_outputs_that_are_inputs_are_refused(trained, tmp_path, capsys):
         ("assess", model, data, *data_args, "--out", data),
         ("assess", model, data, *data_args, "--out", tmp_path / "." / "m.skops"),
         ("train", data, *data_args, "--out", data),
+        ("ledger", model, data, "--text-col", "text", "--out", data),
+        ("ledger", model, data, "--text-col", "text", "--out", tmp_path / "l.parquet", "--summary", card),
+        ("ledger", model, data, "--text-col", "text", "--engine", "dask", "--out", model),
     ]
     for args in runs:
         line = nbledger(capsys, *args).one_error_line()

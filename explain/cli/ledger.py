@@ -12,9 +12,10 @@ import typer
 
 from explain.cli import (
     ALLOW_PICKLE, EXIT_USER_ERROR, NORMAL_CLASS, THRESHOLD, TRUST, VECTORIZER, Interrupted, app, console,
-    err_console, load_model_or_fail, warn,
+    err_console, load_model_or_fail, model_inputs, warn,
 )
 from explain.errors import NbledgerError
+from explain.output_files import OutputSet
 
 #: Plain progress lines (when standard error is not a terminal) come at most this often.
 PLAIN_EVERY_SECONDS = 10.0
@@ -114,25 +115,38 @@ def ledger(
         raise NbledgerError("--scheduler and --workers need --engine dask")
     if scheduler is not None and workers is not None:
         raise NbledgerError("give --scheduler or --workers, not both")
+    from explain.present.ledger_files import LEDGER_FORMATS
+
+    # The ledger and its flag drivers are one transaction, and neither may replace an input of the run.
+    outputs = OutputSet(inputs=[*model_inputs(model, vectorizer), *data])
+    single = engine == "local" or out.suffix.lower() in LEDGER_FORMATS or out.name.lower().endswith((".csv.gz", ".jsonl.gz"))
+    if single:
+        outputs.file(out)
+    else:
+        outputs.not_input(out)  # a Parquet data set folder, put in place whole by the Dask engine
+    if summary is not None:
+        outputs.file(summary)
     loaded = load_model_or_fail(
         model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
     )
     progress = LedgerProgress()
     options = dict(
         id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
-        threshold=threshold, summary=summary, progress=progress,
+        threshold=threshold, progress=progress,
     )
     try:
-        with _progress_display() as show:
+        with outputs, _progress_display() as show:
+            target = outputs.staged(out) if single else out
+            staged_summary = outputs.staged(summary) if summary is not None else None
             if engine == "dask":
                 from explain.present.ledger_dask import write_ledger_dask
 
                 write_ledger_dask(
-                    loaded, data, text_col, out, scheduler=scheduler, workers=workers or 2,
-                    connect_timeout=connect_timeout, on_chunk=show, **options,
+                    loaded, data, text_col, target, scheduler=scheduler, workers=workers or 2,
+                    connect_timeout=connect_timeout, on_chunk=show, summary=staged_summary, **options,
                 )
             else:
-                write_ledger(loaded, data, text_col, out, on_chunk=show, **options)
+                write_ledger(loaded, data, text_col, target, on_chunk=show, summary=staged_summary, **options)
     except (KeyboardInterrupt, Interrupted) as stop:
         signum = getattr(stop, "signum", signal.SIGINT)
         name = signal.Signals(signum).name
