@@ -216,3 +216,27 @@ def test_a_signal_wrapped_by_python_during_a_class_definition_is_still_a_stop(mo
     assert cli.run(["anything"]) == cli.EXIT_SIGTERM
     err = capsys.readouterr().err
     assert err.startswith("error: stopped by SIGTERM") and err.count("\n") == 1
+
+
+def test_a_swallowed_signal_is_sent_again_once_the_hook_has_returned():
+    """A signal raised where Python swallows exceptions (a weakref callback) is re-sent, never inside the hook.
+
+    It was once re-sent at once from a thread, and could land while the hook
+    was still starting that thread: a traceback on standard error.
+    """
+    from types import SimpleNamespace
+
+    import explain.cli as cli
+
+    landed = []
+    old = signal.signal(signal.SIGUSR1, lambda signum, frame: landed.append(time.monotonic()))
+    try:
+        swallowed = SimpleNamespace(exc_value=cli.Interrupted(signal.SIGUSR1), exc_type=cli.Interrupted, object=None)
+        cli._unraisable(swallowed)
+        returned = time.monotonic()
+        deadline = returned + 5
+        while not landed and time.monotonic() < deadline:
+            time.sleep(0.005)
+        assert landed and landed[0] >= returned
+    finally:
+        signal.signal(signal.SIGUSR1, old)

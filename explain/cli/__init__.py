@@ -213,10 +213,29 @@ def _unraisable(unraisable) -> None:
     warning line, never a traceback.
     """
     if isinstance(unraisable.exc_value, Interrupted):
-        # Sent from another thread, so that the handler runs after this hook has returned.
-        threading.Thread(target=os.kill, args=(os.getpid(), unraisable.exc_value.signum), daemon=True).start()
+        _send_again(unraisable.exc_value.signum)
         return
     warn(f"ignored {unraisable.exc_type.__name__} in {getattr(unraisable.object, '__qualname__', 'cleanup')}")
+
+
+#: Seconds before a swallowed signal is sent again: long enough for the hook to have returned.
+RESEND_DELAY = 0.05
+
+
+def _send_again(signum: int) -> None:
+    """Send ``signum`` to this process again, from a timer thread, once the unraisable hook has returned.
+
+    A signal arriving while the timer starts (another Ctrl-C) is caught here and
+    the timer started anew, so that nothing escapes the hook as a traceback.
+    """
+    for _ in range(5):
+        timer = threading.Timer(RESEND_DELAY, os.kill, args=(os.getpid(), signum))
+        timer.daemon = True
+        try:
+            timer.start()
+            return
+        except Interrupted as again:
+            signum = again.signum
 
 
 def run(argv: list[str]) -> int:

@@ -140,7 +140,7 @@ def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
 
     # The cluster is ours. Its workers keep glibc's own memory trimming: Dask's
     # default (MALLOC_TRIM_THRESHOLD_=65536) hands freed pages back at once, so
-    # every large temporary array faults in fresh pages, about 30 % slower here.
+    # every large temporary array faults in fresh pages, about a third slower here.
     # They need no sampling profiler either (a stack walk every 10 ms).
     with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
                           "distributed.worker.profile.enabled": False}):
