@@ -111,8 +111,12 @@ def find_suspected(truth: np.ndarray, out_of_sample: np.ndarray) -> np.ndarray:
     """Indices of the suspected label errors, most suspicious first (cleanlab, see the module)."""
     from cleanlab.filter import find_label_issues
 
+    # n_jobs=1: cleanlab otherwise forks a process pool from this process, which may hold other
+    # threads (pyarrow's allocator starts one); a pool worker once hung on a lock copied mid-use.
+    # The result does not depend on n_jobs (cleanlab's documentation).
     return np.asarray(
-        find_label_issues(truth, out_of_sample, return_indices_ranked_by="self_confidence"), dtype=np.int64
+        find_label_issues(truth, out_of_sample, return_indices_ranked_by="self_confidence", n_jobs=1),
+        dtype=np.int64,
     )
 
 
