@@ -4,8 +4,10 @@ A fork starts in milliseconds and shares what this process has imported and
 loaded; a new interpreter takes a second or more to import the numerical
 libraries again. But a fork copies only the calling thread: locks that other
 threads hold stay locked in the child. So a fork is used only on Linux and
-only while this process runs a single thread; otherwise callers start a new
-interpreter (or work in this process).
+only while this process runs a single Python thread; otherwise callers start a
+new interpreter (or work in this process). Threads that native libraries start
+on their own (pyarrow's allocator keeps one) are not seen here; those
+libraries re-arm their locks and thread pools in a forked child themselves.
 """
 
 from __future__ import annotations
