@@ -107,3 +107,7 @@ def test_the_ledger_is_the_same_with_and_without_the_helper(tmp_path, monkeypatc
                  helper=False)
     assert forked == [1]
     assert pq.read_table(tmp_path / "with.parquet").equals(pq.read_table(tmp_path / "without.parquet"))
+    # the helper reads quarter chunks, yet the row groups stay one chunk each
+    groups = [[f.metadata.row_group(i).num_rows for i in range(f.metadata.num_row_groups)]
+              for f in (pq.ParquetFile(tmp_path / "with.parquet"), pq.ParquetFile(tmp_path / "without.parquet"))]
+    assert groups[0] == groups[1] == [60] * 8 + [20]

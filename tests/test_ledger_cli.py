@@ -83,7 +83,10 @@ def test_plain_progress_lines_when_not_on_a_terminal(capsys, model, frame, tmp_p
     r = nbledger(capsys, "ledger", model, tmp_path / "in.csv", "--text-col", "text", "--out", tmp_path / "l.csv", "--chunk-rows", "40")
     assert r.code == 0
     progress = [l for l in r.err.splitlines() if l.startswith("ledger: ")]
-    assert [l.split(" messages")[0] for l in progress] == ["ledger: 40", "ledger: 80", "ledger: 100"]
+    counts = [int(l.split(" messages")[0].removeprefix("ledger: ")) for l in progress]
+    # one line per chunk, or per piece of a chunk when the reading helper reads (never more than a chunk apart)
+    assert counts[-1] == 100 and len(counts) >= 3
+    assert all(0 < b - a <= 40 for a, b in zip([0, *counts], counts))
 
 
 def test_only_flagged_writes_flagged_rows(capsys, model, frame, tmp_path):

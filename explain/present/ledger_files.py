@@ -126,20 +126,29 @@ def _pairs(names, values) -> list:
 class LedgerWriter:
     """Appends ledger tables to one file (Parquet, JSON Lines or CSV, see the module note)."""
 
-    def __init__(self, path: Path, fmt: str, gzipped: bool):
+    def __init__(self, path: Path, fmt: str, gzipped: bool, group_rows: int | None = None):
         import pyarrow.parquet as pq
 
         self.fmt = fmt
         self._parquet = pq.ParquetWriter(path, ledger_schema()) if fmt == "parquet" else None
         self._text = None if fmt == "parquet" else (gzip.open(path, "wb") if gzipped else open(path, "wb"))
         self._header = True
+        # Parquet row groups of ``group_rows`` rows, however the tables come (None: one group per table).
+        self._group_rows = group_rows
+        self._pending, self._pending_rows = [], 0
 
     def write(self, table) -> None:
         import pyarrow as pa
         import pyarrow.csv as pcsv
 
         if self._parquet is not None:
-            self._parquet.write_table(table)
+            if self._group_rows is None:
+                self._parquet.write_table(table)
+                return
+            self._pending.append(table)
+            self._pending_rows += table.num_rows
+            if self._pending_rows >= self._group_rows:
+                self._flush()
         elif self.fmt == "jsonl":
             for row in table.to_pylist():
                 self._text.write(json.dumps(row, ensure_ascii=False).encode("utf-8") + b"\n")
@@ -152,8 +161,18 @@ class LedgerWriter:
             pcsv.write_csv(flat, self._text, pcsv.WriteOptions(include_header=self._header))
             self._header = False
 
-    def close(self) -> None:
+    def _flush(self) -> None:
+        import pyarrow as pa
+
+        if self._pending:
+            self._parquet.write_table(pa.concat_tables(self._pending), row_group_size=max(self._pending_rows, 1))
+        self._pending, self._pending_rows = [], 0
+
+    def close(self, complete: bool = True) -> None:
+        """Write what is pending and close; ``complete=False`` (a run that failed) only closes."""
         if self._parquet is not None:
+            if complete:
+                self._flush()
             self._parquet.close()
         else:
             self._text.close()
@@ -305,8 +324,8 @@ def write_ledger(
     ids_seen = IdCounter() if id_col is not None else None
     start = time.perf_counter()
     with atomic_path(out) as tmp:
-        writer = LedgerWriter(tmp, fmt, gzipped)
-        chunks = featured(lambda: stream_texts(paths, text_col, id_col, chunk_rows), model.featurizer, helper)
+        writer = LedgerWriter(tmp, fmt, gzipped, group_rows=chunk_rows)
+        chunks = featured(lambda rows: stream_texts(paths, text_col, id_col, rows), model.featurizer, chunk_rows, helper)
         with contextlib.closing(writer), contextlib.closing(chunks):
             for chunk, features in chunks:
                 ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
