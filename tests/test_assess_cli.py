@@ -197,3 +197,18 @@ def test_labels_are_not_confused_with_text(files, capsys):
     held = pd.read_csv(files / "held.csv", dtype=str, keep_default_na=False)
     assert int(np.sum(got["confusion"]["counts"])) == len(held)
     assert got["base_rates"]["counts"] == [int((held.label == c).sum()) for c in got["classes"]]
+
+
+def test_counts_on_the_screen_carry_thousands_separators(files, capsys):
+    code, out, err = assess_cli(
+        capsys, files / "model.skops", files / "held.csv", "--text-col", "text", "--label-col", "label",
+        "--normal-class", "ok",
+    )
+    assert code == 0, err
+    import re
+
+    table_rows = [line for line in out.splitlines() if line.startswith("│")]
+    # every run of four or more digits is part of a decimal or grouped by commas
+    bare = [m.group() for line in table_rows for m in re.finditer(r"(?<![\d.,])\d{4,}(?![\d.])", line)]
+    assert bare == [], bare
+    assert re.search(r"\b\d,\d{3} \(", out)  # e.g. "2,310 (97.4 %)" in the confusion matrix

@@ -209,16 +209,21 @@ def _emit(console: Console, title: str | None, columns, rows, *, right_from: int
 
 def _base_rates(result: Assessment, console: Console) -> None:
     b = result.base_rates
-    rows = [[Text(name), str(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
+    rows = [[Text(name), _count(count), _rate(share)] for name, count, share in zip(b.classes, b.counts, b.shares)]
     if b.flagged is not None:
-        rows.append([Text("any flagged class", style="bold"), str(b.flagged.numerator), _rate(b.flagged)])
+        rows.append([Text("any flagged class", style="bold"), _count(b.flagged.numerator), _rate(b.flagged)])
     _emit(console, f"base rates ({b.n_messages:,} messages)", ["class", "messages", f"base rate ({_level(result)} Wilson interval)"], rows)
+
+
+def _count(n) -> str:
+    """A count with thousands separators, as every count on nbledger's screens."""
+    return f"{int(n):,}"
 
 
 def _confusion(matrix, title: str, console: Console) -> None:
     rows = [
-        [Text(name), *(f"{matrix.counts[i, j]} ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))),
-         str(matrix.counts[i].sum())]
+        [Text(name), *(f"{_count(matrix.counts[i, j])} ({_pct(matrix.row_rates[i, j])})" for j in range(len(matrix.labels))),
+         _count(matrix.counts[i].sum())]
         for i, name in enumerate(matrix.labels)
     ]
     _emit(console, title, ["true \\ decided", *matrix.labels, "total"], rows)
@@ -250,7 +255,7 @@ def _ranking(result: Assessment, console: Console) -> None:
             f"{r.auc.auc:.4f}" if not math.isfinite(r.auc.variance)
             else f"{r.auc.auc:.4f} ({r.auc.low:.4f} to {r.auc.high:.4f})"
         )
-        rows.append([Text(r.positive), str(r.n_positive), str(r.n_negative), interval, f"{r.average_precision:.4f}"])
+        rows.append([Text(r.positive), _count(r.n_positive), _count(r.n_negative), interval, f"{r.average_precision:.4f}"])
     _emit(
         console,
         f"ranking quality (AUC with {_level(result)} DeLong interval)",
@@ -335,7 +340,7 @@ def _calibration(result: Assessment, console: Console) -> None:
         )
     )
     rows = [
-        [str(b + 1), str(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
+        [str(b + 1), _count(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
          prob(cal.mean_predicted[b]),
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
         for b in range(cal.n_bins)
@@ -366,7 +371,7 @@ def _messages(title: str, rows: tuple[ReviewedMessage, ...], total: int | None, 
 def _drivers(title: str, drivers, console: Console) -> None:
     if not drivers:
         return
-    rows = [[Text(d.token), f"{d.evidence:.2f}", str(d.pushed), str(d.tipped)] for d in drivers]
+    rows = [[Text(d.token), f"{d.evidence:.2f}", _count(d.pushed), _count(d.tipped)] for d in drivers]
     _emit(console, f"{title}; evidence summed over the errors", ["token", "evidence", "pushed", "tipped"], rows)
 
 
@@ -392,7 +397,7 @@ def _slices(result: Assessment, console: Console) -> None:
     if rep is None:
         return
     rows = [
-        [Text(f"{s.group}: {s.name}"), str(s.n_messages), _rate(s.false_alarm_rate), _rate(s.miss_rate),
+        [Text(f"{s.group}: {s.name}"), _count(s.n_messages), _rate(s.false_alarm_rate), _rate(s.miss_rate),
          _num(s.adjusted_p_value, 4)]
         for s in rep.slices
     ]
