@@ -104,7 +104,7 @@ def main() -> None:
 
     print(f"model: {view.n_features:,} features, {view.n_classes} classes, skops file {size / 2**20:.1f} MiB "
           f"(built in {built:.1f} s)")
-    print(f"comparisons: {', '.join(c.label for c in review.contrasts)}; lenses ranked per comparison: 5")
+    print(f"comparisons: {', '.join(c.label for c in review.comparisons)}; lenses ranked per comparison: 5")
     print(f"best of {args.repeat}:")
     print(f"  load_model                       {load_s:8.3f} s")
     print(f"  review_vocabulary (every lens)   {review_s:8.3f} s")

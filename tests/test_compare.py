@@ -102,12 +102,12 @@ def test_evidence_shifts_are_the_models_own_log_probabilities(old, new):
     assert result.vocabulary.shared == len(set(old_vocab) & set(new_vocab))
     assert set(result.vocabulary.added) == set(new_vocab) - set(old_vocab)
     assert set(result.vocabulary.removed) == set(old_vocab) - set(new_vocab)
-    (contrast,) = result.vocabulary.contrasts
-    assert contrast.shifts_up or contrast.shifts_down or result.vocabulary.shared == 0 or _same_weights(old, new)
-    for shift in contrast.shifts_up + contrast.shifts_down:
+    (comparison,) = result.vocabulary.comparisons
+    assert comparison.shifts_up or comparison.shifts_down or result.vocabulary.shared == 0 or _same_weights(old, new)
+    for shift in comparison.shifts_up + comparison.shifts_down:
         for pipeline, value in ((old.pipeline, shift.old), (new.pipeline, shift.new)):
             assert value == pytest.approx(_per_unit(pipeline, shift.token), abs=1e-9)
-    ups = [s.change for s in contrast.shifts_up]
+    ups = [s.change for s in comparison.shifts_up]
     assert all(x > 0 for x in ups) and ups == sorted(ups, reverse=True)
 
 
@@ -117,6 +117,6 @@ def test_same_file_twice_changes_nothing(case):
     result = compare_models(case.model, case.model, _messages(case.texts, case.labels), normal_class="class0")
     assert result.same_file and any("the same" in n for n in result.notes)
     assert result.decisions.changed == 0 and result.decisions.mcnemar.b == result.decisions.mcnemar.c == 0
-    for contrast in result.vocabulary.contrasts:
-        assert contrast.shifts_up == () == contrast.shifts_down
-        assert all(r.old_rank == r.new_rank for r in contrast.ranks)
+    for comparison in result.vocabulary.comparisons:
+        assert comparison.shifts_up == () == comparison.shifts_down
+        assert all(r.old_rank == r.new_rank for r in comparison.ranks)

@@ -68,7 +68,7 @@ def test_different_class_sets_compare_what_can_be(models, capsys):
     doc = json.loads(nbledger(capsys, "compare", f / "two.skops", f / "old.skops", "--data", f / "test.csv",
                               "--format", "json").out)
     assert any("only the new has advert" in n for n in doc["notes"])
-    assert [k["target"] for k in doc["vocabulary"]["contrasts"]] == ["scam"]
+    assert [k["target"] for k in doc["vocabulary"]["comparisons"]] == ["scam"]
     assert {p["class"]: p["old_share"] for p in doc["vocabulary"]["priors"]}["advert"] is None
     assert doc["decisions"]["mcnemar"] is not None
 

@@ -299,12 +299,12 @@ def test_flagged_evidence_is_content_not_placeholders(demo):
     model, _ = demo
     review = review_vocabulary(model.view, lens="zscore")
     seen = set()
-    for contrast in review.contrasts:
-        if contrast.target == "ok":
+    for comparison in review.comparisons:
+        if comparison.target == "ok":
             continue
-        top = {str(review.tokens[j]) for j in contrast.top("zscore", 15)}
-        assert len(top) == 15 and not top & PLACEHOLDER_TOKENS, (contrast.label, sorted(top))
-        seen.add(contrast.target)
+        top = {str(review.tokens[j]) for j in comparison.top("zscore", 15)}
+        assert len(top) == 15 and not top & PLACEHOLDER_TOKENS, (comparison.label, sorted(top))
+        seen.add(comparison.target)
     assert seen == {"scam", "advert"}
 
 
@@ -316,7 +316,7 @@ def test_some_watchlist_term_carries_flagged_evidence(demo):
     tokens = [str(t) for t in review.tokens]
     strongest = max(
         (float(c.zscore[tokens.index(t)]), t, c.label)
-        for c in review.contrasts if c.target != "ok"
+        for c in review.comparisons if c.target != "ok"
         for t in _watchlist_terms() if t in tokens
     )
     assert strongest[0] > 1.96, strongest  # two-sided 5 % for a z-score

@@ -92,10 +92,10 @@ def _review(trained, files, lens="zscore"):
 @pytest.mark.parametrize("lens", LENSES)
 def test_vocab_screen_terms_are_in_the_glossary(trained, files, width, lens):
     review = _review(trained, files, lens)
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     tables = [present._token_table(review, c, c.top(lens, 5, side), side, width >= present.WIDE_TERMINAL)
               for side in ("for", "against")]
-    tables += [present._watchlist(review, c) for c in review.contrasts]
+    tables += [present._watchlist(review, c) for c in review.comparisons]
     for table in tables:
         for column in table.columns:
             heading = str(column.header).split("\n")[0]

@@ -283,5 +283,5 @@ def test_compare_with_data_names_hashed_columns_by_the_data(tmp_path, capsys):
     assert result.code == 0, result.err
     document = json.loads(result.out)
     assert any("hashed columns are named" in n for n in document["notes"])
-    shifted = [s["token"] for c in document["vocabulary"]["contrasts"] for s in c["gained"] + c["lost"]]
+    shifted = [s["token"] for c in document["vocabulary"]["comparisons"] for s in c["gained"] + c["lost"]]
     assert shifted and all(not t.startswith("column ") for t in shifted)

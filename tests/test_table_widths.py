@@ -59,17 +59,17 @@ def assert_numbers_whole(table, width: int) -> None:
 def test_vocab_tables_keep_numbers_whole(data, width, lens):
     view = load_model(data / "m.skops").view
     review = review_vocabulary(view, lens=lens, top=20, watchlist=Watchlist(("harbour", "roma", "polish"), "w.txt"))
-    for c in review.contrasts:
+    for c in review.comparisons:
         for side in ("for", "against"):
             table = present._token_table(review, c, c.top(lens, 20, side), side, width >= present.WIDE_TERMINAL)
             assert_numbers_whole(table, width)
-    for c in review.contrasts:
+    for c in review.comparisons:
         assert_numbers_whole(present._watchlist(review, c), width)
 
 
 def test_the_wide_layout_fits_its_width(data):
     review = review_vocabulary(load_model(data / "m.skops").view, lens="chi2", top=20)
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     table = present._token_table(review, c, c.top("chi2", 20, "for"), "for", True)
     assert_numbers_whole(table, present.WIDE_TERMINAL)
     headers = [str(col.header) for col in table.columns]

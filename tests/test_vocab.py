@@ -1,4 +1,4 @@
-"""The vocabulary review: lenses, contrasts, tables, rankings (explain.analysis.vocab)."""
+"""The vocabulary review: lenses, comparisons, tables, rankings (explain.analysis.vocab)."""
 
 import math
 
@@ -19,7 +19,7 @@ from explain.analysis.vocab import (
     REST,
     document_counts,
     monroe_zscore,
-    plan_contrasts,
+    plan_comparisons,
     review_vocabulary,
 )
 
@@ -113,10 +113,10 @@ def trained(draw, variant=MultinomialNB, n_classes=3):
 def test_two_class_ratio_is_the_difference_of_feature_log_probs(model):
     clf, X, y, view = model
     review = review_vocabulary(view)
-    (c,) = review.contrasts
+    (c,) = review.comparisons
     assert (c.target, c.other) == ("scam", "ok")
     np.testing.assert_array_equal(c.ratio, clf.feature_log_prob_[1] - clf.feature_log_prob_[0])
-    rest = review_vocabulary(view, target="scam", against=REST).contrasts[0]
+    rest = review_vocabulary(view, target="scam", against=REST).comparisons[0]
     np.testing.assert_allclose(rest.ratio, c.ratio, rtol=0, atol=1e-12)
 
 
@@ -126,7 +126,7 @@ def test_ratio_against_rest_is_the_log_odds_change_of_one_occurrence(model, targ
     # Reproduced with scikit-learn itself: predict_joint_log_proba of a message holding
     # one occurrence of token j, minus that of an empty message.
     clf, X, y, view = model
-    c = review_vocabulary(view, target=target, against=REST).contrasts[0]
+    c = review_vocabulary(view, target=target, against=REST).comparisons[0]
     F = X.shape[1]
     t = CLASSES3.index(target)
     others = [k for k in range(3) if k != t]
@@ -144,7 +144,7 @@ def test_ratio_against_rest_is_the_log_odds_change_of_one_occurrence(model, targ
 def test_class_against_class_uses_both_rows_and_counts(model, target, other):
     assume(target != other)
     clf, X, y, view = model
-    c = review_vocabulary(view, target=target, against=other).contrasts[0]
+    c = review_vocabulary(view, target=target, against=other).comparisons[0]
     t, o = CLASSES3.index(target), CLASSES3.index(other)
     np.testing.assert_array_equal(c.ratio, clf.feature_log_prob_[t] - clf.feature_log_prob_[o])
     np.testing.assert_array_equal(c.support_target, clf.feature_count_[t])
@@ -162,7 +162,7 @@ def test_class_against_class_uses_both_rows_and_counts(model, target, other):
 @given(trained(), st.sampled_from(CLASSES3))
 def test_rest_pools_the_counts_of_the_other_classes(model, target):
     clf, X, y, view = model
-    c = review_vocabulary(view, target=target, against=REST).contrasts[0]
+    c = review_vocabulary(view, target=target, against=REST).comparisons[0]
     others = [k for k in range(3) if CLASSES3[k] != target]
     np.testing.assert_array_equal(c.support_other, clf.feature_count_[others].sum(axis=0))
     assert c.messages_other == clf.class_count_[others].sum()
@@ -176,7 +176,7 @@ def test_occurrence_tables_without_data_match_scipy(model):
     clf, X, y, view = model
     review = review_vocabulary(view, target="scam", against="ok")
     assert review.counts.kind == "occurrences"
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     y_t, y_o = clf.feature_count_[2], clf.feature_count_[1]
     for j in range(X.shape[1]):
         table = np.array([[y_t[j], y_o[j]], [y_t.sum() - y_t[j], y_o.sum() - y_o[j]]])
@@ -195,7 +195,7 @@ def test_bernoulli_counts_are_documents(model):
     clf, X, y, view = model
     review = review_vocabulary(view, target="scam", against="ok")
     assert review.counts.kind == "documents"
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     present = X > 0
     np.testing.assert_array_equal(c.documents_target, present[y == "scam"].sum(axis=0))
     np.testing.assert_array_equal(c.table[2], (y == "scam").sum() - present[y == "scam"].sum(axis=0))
@@ -208,7 +208,7 @@ def test_labelled_data_gives_document_tables(model):
     docs = document_counts(view, sp.csr_matrix(X), y, "labelled.csv")
     review = review_vocabulary(view, target="advert", against=REST, documents=docs)
     assert review.counts.kind == "documents" and "labelled.csv" in review.counts.reason
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     present = X > 0
     mine, theirs = y == "advert", y != "advert"
     np.testing.assert_array_equal(c.table[0], present[mine].sum(axis=0))
@@ -236,17 +236,17 @@ def test_labels_the_model_lacks_are_named():
 
 def test_plan_with_a_normal_class_compares_every_flagged_class_with_it():
     view = _small_view(normal_class="ok")
-    names = [(view.classes[t], [view.classes[o] for o in others]) for t, others in plan_contrasts(view)]
+    names = [(view.classes[t], [view.classes[o] for o in others]) for t, others in plan_comparisons(view)]
     assert names == [("advert", ["ok"]), ("scam", ["ok"])]
-    assert plan_contrasts(view, target="scam") == [(2, (1,))]
-    assert plan_contrasts(view, target="ok") == [(1, (0, 2))]
+    assert plan_comparisons(view, target="scam") == [(2, (1,))]
+    assert plan_comparisons(view, target="ok") == [(1, (0, 2))]
 
 
 def test_plan_without_a_normal_class():
     view = _small_view()
-    assert plan_contrasts(view) == [(0, (1, 2)), (1, (0, 2)), (2, (0, 1))]
-    assert plan_contrasts(view, against="ok") == [(0, (1,)), (2, (1,))]
-    assert plan_contrasts(view, target="advert", against="scam") == [(0, (2,))]
+    assert plan_comparisons(view) == [(0, (1, 2)), (1, (0, 2)), (2, (0, 1))]
+    assert plan_comparisons(view, against="ok") == [(0, (1,)), (2, (1,))]
+    assert plan_comparisons(view, target="advert", against="scam") == [(0, (2,))]
 
 
 def test_unknown_or_repeated_class_is_one_line_error():
@@ -263,7 +263,7 @@ def test_unknown_or_repeated_class_is_one_line_error():
 @given(trained(), st.sampled_from(LENSES))
 def test_rankings_sort_each_lens_and_top_lists_respect_the_sign(model, lens):
     clf, X, y, view = model
-    c = review_vocabulary(view, target="scam", against=REST).contrasts[0]
+    c = review_vocabulary(view, target="scam", against=REST).comparisons[0]
     l = LENSES.index(lens)
     values = c.values(lens)
     assert np.all(np.diff(values[c.order[l]]) <= 0)
@@ -284,7 +284,7 @@ def test_flags_counts_and_watchlist_in_the_review():
     view = view_of(clf, tokens, "counts", "ok")
     watch = Watchlist(("Prize", "asylum", "warden@example.org"), "watch.txt")
     review = review_vocabulary(view, watchlist=watch)
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     assert c.flag_counts == {name: int(c.flag(name).sum()) for name in FLAGS}
     assert c.flag("personal").tolist() == [False, False, False, True, True]
     assert c.flag("watchlist").tolist() == [False, True, False, True, False]
@@ -298,4 +298,4 @@ def test_flags_counts_and_watchlist_in_the_review():
     assert hidden.redacted and hidden.redacted_count == 2
     shown = list(hidden.tokens) + [w.term for w in hidden.watchlist]
     assert not any("example.org" in s or "555-0142" in s for s in shown)
-    np.testing.assert_array_equal(hidden.contrasts[0].zscore, c.zscore)
+    np.testing.assert_array_equal(hidden.comparisons[0].zscore, c.zscore)

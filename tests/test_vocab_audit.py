@@ -45,7 +45,7 @@ def test_watchlist_strong_and_stopword_follow_the_glossary(case, against, strong
     target = None if against != "rest" else normal
     review = review_vocabulary(view, target=target, against=REST if against else None,
                                watchlist=watch, thresholds=thresholds)
-    for c in review.contrasts:
+    for c in review.comparisons:
         expected = []
         for j in range(review.n_features):
             side = [c.target] if c.ratio[j] > 0 else list(c.other_classes)
@@ -60,7 +60,7 @@ def test_watchlist_strong_on_the_demo_filter(model_files):
     model, _ = model_files
     review = review_vocabulary(load_model(model).view, watchlist=Watchlist(("polish", "the"), "w.txt"))
     column = {str(t): j for j, t in enumerate(review.tokens)}
-    for c in review.contrasts:
+    for c in review.comparisons:
         j = column["polish"]
         strong_toward_target = c.ratio[j] >= review.thresholds.strong_log_odds
         assert bool(c.flag("watchlist_strong")[j]) == bool(strong_toward_target)  # target is flagged, other is ok
@@ -156,7 +156,7 @@ def test_a_support_map_per_comparison(model_files, tmp_path):
     review = review_vocabulary(load_model(model).view, lens="zscore", top=5)
     pictures = vocab_pictures.draw_all(review)
     maps = sorted(name for name in pictures if name.startswith("support_"))
-    assert maps == sorted(f"support_{c.target}_vs_{c.other}.png" for c in review.contrasts)
+    assert maps == sorted(f"support_{c.target}_vs_{c.other}.png" for c in review.comparisons)
     for name in maps:
         image = Image.open(io.BytesIO(pictures[name]))
         assert image.format == "PNG" and image.width > 1000 and image.height > 700
@@ -172,7 +172,7 @@ def test_the_support_map_names_the_top_tokens_and_rings_thin_ones(model_files, m
     vocab_pictures.support_map(review, 0)
     (fig,) = figures
     ax = fig.axes[0]
-    c = review.contrasts[0]
+    c = review.comparisons[0]
     named = {t.get_text() for t in ax.texts}
     expected = [str(review.tokens[j]) for side in ("for", "against")
                 for j in c.top("ratio", vocab_pictures.MAP_LABELS, side)

@@ -71,7 +71,7 @@ def test_json_carries_the_library_result(files, capsys):
     assert code == 0, err
     doc = json.loads(out)
     review = review_vocabulary(load_model(files / "model.skops").view, target="scam", against="rest", lens="g2", top=7)
-    (c,) = review.contrasts
+    (c,) = review.comparisons
     (got,) = doc["comparisons"]
     assert doc["schema"] == "nbledger.vocab/1" and doc["review"]["ranked_by"] == "g2"
     assert (got["target"], got["other"]) == ("scam", "rest")
@@ -102,8 +102,8 @@ def test_csv_has_every_token_and_the_documented_columns(files, capsys, tmp_path)
     for column in expected:
         documented = column.startswith(("rank_", "support_", "n1", "n0")) or column in FLAGS
         assert f"``{column}``" in presenter.__doc__ or documented
-    assert len(table) == len(review.contrasts) * review.n_features
-    for c in review.contrasts:
+    assert len(table) == len(review.comparisons) * review.n_features
+    for c in review.comparisons:
         part = table[table.comparison == c.label]
         order = c.order[LENSES.index("zscore")]
         assert list(part.token.astype(str)) == [str(t) for t in review.tokens[order]]

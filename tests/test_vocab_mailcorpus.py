@@ -35,7 +35,7 @@ def review():
 
 @pytest.mark.parametrize("side", ["for", "against"])
 def test_ratio_crowns_thinly_supported_tokens_zscore_does_not(review, side):
-    (c,) = review.contrasts
+    (c,) = review.comparisons
     assert (c.target, c.other) == ("spam", "ham")
     support = c.support_target + c.support_other
     medians = {}
@@ -50,7 +50,7 @@ def test_ratio_crowns_thinly_supported_tokens_zscore_does_not(review, side):
 
 
 def test_flag_counts_on_real_mail(review):
-    (c,) = review.contrasts
+    (c,) = review.comparisons
     print("\nflags on the mail corpus (spam vs ham):", dict(c.flag_counts))
     # thin tokens are a subset of the strong ones, all of them with little support
     thin = c.flag("thin")

@@ -60,8 +60,8 @@ class RankChange:
 
 
 @dataclass(frozen=True)
-class ContrastChange:
-    """Changes in one contrast (``target`` against ``other``), on the shared tokens."""
+class ComparisonChange:
+    """Changes in one comparison (``target`` against ``other``), on the shared tokens."""
 
     target: str
     other: str
@@ -87,7 +87,7 @@ class PriorChange:
 
 @dataclass(frozen=True)
 class VocabularyChange:
-    """Tokens added, removed and shared (by text), and the contrasts compared on the shared ones.
+    """Tokens added, removed and shared (by text), and the class comparisons, on the shared ones.
 
     ``added`` and ``removed`` are ordered by use in training, most used first.
     """
@@ -97,7 +97,7 @@ class VocabularyChange:
     shared: int
     added: tuple[str, ...]
     removed: tuple[str, ...]
-    contrasts: tuple[ContrastChange, ...]
+    comparisons: tuple[ComparisonChange, ...]
     priors: tuple[PriorChange, ...]
 
 
@@ -193,7 +193,7 @@ def _normal_class(old, new, normal_class: str | None) -> str | None:
     return None
 
 
-def _contrast_change(old_view, new_view, target: str, other: str, old_cols, new_cols, tokens, old_review, new_review, top):
+def _comparison_change(old_view, new_view, target: str, other: str, old_cols, new_cols, tokens, old_review, new_review, top):
     def per_unit(view, cols):
         t, o = view.class_index(target), view.class_index(other)
         return view.weights[t, cols] - view.weights[o, cols]
@@ -208,7 +208,7 @@ def _contrast_change(old_view, new_view, target: str, other: str, old_cols, new_
     ranks: tuple[RankChange, ...] = ()
     label = f"{target} vs {other}"
     found = [
-        next((c for c in review.contrasts if c.label == label), None) for review in (old_review, new_review)
+        next((c for c in review.comparisons if c.label == label), None) for review in (old_review, new_review)
     ]
     if all(c is not None for c in found):
         from explain.analysis.vocab import LENSES
@@ -228,7 +228,7 @@ def _contrast_change(old_view, new_view, target: str, other: str, old_cols, new_
             RankChange(str(tokens[i]), int(old_rank[i]), int(new_rank[i]), float(old_z[i]), float(new_z[i]))
             for i in leading
         )
-    return ContrastChange(target, other, up, down, ranks)
+    return ComparisonChange(target, other, up, down, ranks)
 
 
 def _by_use(view, tokens: np.ndarray, keep: np.ndarray) -> tuple[str, ...]:
@@ -257,14 +257,14 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     in_old[new_cols] = True
     added = _by_use(new_view, new_tokens, ~in_old)
     removed = _by_use(old_view, old_tokens, found < 0)
-    contrasts: list[ContrastChange] = []
+    comparisons: list[ComparisonChange] = []
     if normal_class is not None and len(shared):
         reviews = [review_vocabulary(m.view.with_normal_class(normal_class), lens="zscore") for m in (old, new)]
         for target in old_view.classes:
             if target == normal_class or target not in set(new_view.classes):
                 continue
-            contrasts.append(
-                _contrast_change(old_view, new_view, str(target), normal_class, old_cols, new_cols, shared,
+            comparisons.append(
+                _comparison_change(old_view, new_view, str(target), normal_class, old_cols, new_cols, shared,
                                  *reviews, top)
             )
 
@@ -278,7 +278,7 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     priors = tuple(PriorChange(c, *(v for pair in zip(share(old_view, c), share(new_view, c)) for v in pair)) for c in every)
     return VocabularyChange(
         old_size=len(old_tokens), new_size=len(new_tokens), shared=len(shared),
-        added=added, removed=removed, contrasts=tuple(contrasts), priors=priors,
+        added=added, removed=removed, comparisons=tuple(comparisons), priors=priors,
     )
 
 
@@ -409,9 +409,9 @@ def redacted_comparison(comparison: Comparison) -> Comparison:
         vocab,
         added=tuple(map(mask_value, vocab.added)),
         removed=tuple(map(mask_value, vocab.removed)),
-        contrasts=tuple(
+        comparisons=tuple(
             replace(c, shifts_up=shifts(c.shifts_up), shifts_down=shifts(c.shifts_down), ranks=shifts(c.ranks))
-            for c in vocab.contrasts
+            for c in vocab.comparisons
         ),
     )
     decisions = comparison.decisions

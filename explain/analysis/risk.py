@@ -7,7 +7,7 @@ these flags (names as they appear in every table and file):
 ``thin``
     Strong evidence resting on few training occurrences: ``|ratio| >=
     strong_log_odds`` and fewer than ``thin_below`` training occurrences in
-    the two sides of the contrast together. Defaults: ``thin_below = 10``,
+    the two sides of the comparison together. Defaults: ``thin_below = 10``,
     ``strong_log_odds = ln 4`` (one occurrence at least quadruples, or
     quarters, the odds). Both are settable; the defaults are a reviewer's
     rule of thumb (common practice, no source).

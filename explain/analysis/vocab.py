@@ -197,7 +197,7 @@ def count_source(view: ModelView, documents: DocumentCounts | None) -> CountSour
 
 
 @dataclass(frozen=True, eq=False)
-class Contrast:
+class VocabComparison:
     """Every lens, support column and flag of one comparison (arrays of shape (F,)).
 
     ``order[l]`` lists the columns from strongest evidence for the target to
@@ -294,7 +294,7 @@ class VocabReview:
     feature_kind: str
     tokens: np.ndarray
     support_by_class: np.ndarray
-    contrasts: tuple[Contrast, ...]
+    comparisons: tuple[VocabComparison, ...]
     traits: TokenTraits
     counts: CountSource
     prior_scale: float | None
@@ -320,7 +320,7 @@ def _check_lens(lens: str) -> str:
     return lens
 
 
-def plan_contrasts(view: ModelView, target: str | None = None, against: str | None = None) -> list[tuple[int, tuple[int, ...]]]:
+def plan_comparisons(view: ModelView, target: str | None = None, against: str | None = None) -> list[tuple[int, tuple[int, ...]]]:
     """Which comparisons to make: a list of (target index, indices of the other side).
 
     - ``target`` and ``against`` given: that one (``against="rest"`` pools the others);
@@ -409,7 +409,7 @@ def _ranking(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return order, rank
 
 
-def _contrast(
+def _comparison(
     view: ModelView,
     t: int,
     others: tuple[int, ...],
@@ -418,7 +418,7 @@ def _contrast(
     watched: np.ndarray,
     thresholds: RiskThresholds,
     prior_scale: float | None,
-) -> Contrast:
+) -> VocabComparison:
     idx = list(others)
     fc, cc = view.feature_count, view.class_count
     y_t, y_o = fc[t], fc[idx].sum(axis=0)
@@ -447,7 +447,7 @@ def _contrast(
     flags = risk_flags(traits, ratio, y_t + y_o, watched, thresholds, flagged_sides)
     columns = {"zscore": z, "ratio": ratio, "mass": mass, "chi2": direction * chi2, "g2": direction * g2}
     rankings = [_ranking(columns[lens]) for lens in LENSES]
-    return Contrast(
+    return VocabComparison(
         target=str(view.classes[t]),
         other=str(view.classes[idx[0]]) if len(idx) == 1 else REST,
         other_classes=tuple(str(view.classes[o]) for o in idx),
@@ -492,7 +492,7 @@ def review_vocabulary(
     Parameters
     ----------
     view : the model's normalised arrays.
-    target, against : which comparisons (:func:`plan_contrasts`).
+    target, against : which comparisons (:func:`plan_comparisons`).
     lens : the ranking presenters lead with, one of :data:`LENSES`.
     top : how many tokens for and against presenters list.
     documents : message counts from a labelled file (:func:`document_counts`).
@@ -509,21 +509,21 @@ def review_vocabulary(
     >>> from explain.model.model_view import view_of
     >>> clf = MultinomialNB().fit([[5, 1, 0], [0, 1, 4]], ["ok", "scam"])
     >>> review = review_vocabulary(view_of(clf, ["moorings", "the", "prize"], "counts"))
-    >>> c = review.contrasts[0]
+    >>> c = review.comparisons[0]
     >>> c.label, review.tokens[c.top("zscore", 1)], review.tokens[c.top("zscore", 1, "against")]
     ('scam vs ok', array(['prize'], dtype=object), array(['moorings'], dtype=object))
     """
     _check_lens(lens)
     if top < 1:
         raise NbledgerError(f"--top must be at least 1, got {top}")
-    plan = plan_contrasts(view, target, against)
+    plan = plan_comparisons(view, target, against)
     traits = token_traits(view.tokens)
     terms = watchlist.terms if watchlist is not None else ()
     columns = watchlist_columns(terms, view.tokens)
     watched = np.zeros(view.n_features, dtype=bool)
     watched[columns[columns >= 0]] = True
-    contrasts = tuple(
-        _contrast(view, t, others, documents, traits, watched, thresholds, prior_scale) for t, others in plan
+    comparisons = tuple(
+        _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale) for t, others in plan
     )
     tokens = redact(view.tokens, traits) if redact_personal else np.asarray(view.tokens, dtype=object)
     shown = list(terms)
@@ -541,7 +541,7 @@ def review_vocabulary(
         feature_kind=view.feature_kind,
         tokens=tokens,
         support_by_class=view.feature_count,
-        contrasts=contrasts,
+        comparisons=comparisons,
         traits=traits,
         counts=count_source(view, documents),
         prior_scale=prior_scale,

@@ -66,7 +66,7 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
                  "old_log_prior": p.old_log_prior, "new_log_prior": p.new_log_prior}
                 for p in v.priors
             ],
-            "contrasts": [
+            "comparisons": [
                 {
                     "target": k.target, "other": k.other,
                     "gained": [{"token": s.token, "old": s.old, "new": s.new, "change": s.change} for s in k.shifts_up],
@@ -77,7 +77,7 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
                         for r in k.ranks
                     ],
                 }
-                for k in v.contrasts
+                for k in v.comparisons
             ],
         },
         "decisions": None if d is None else {
@@ -167,7 +167,7 @@ def _lines(c: Comparison, top: int) -> list[str]:
         old = "absent" if p.old_share is None else f"{p.old_share:.3f}"
         new = "absent" if p.new_share is None else f"{p.new_share:.3f}"
         out.append(f"    {p.cls}: {old} -> {new}")
-    for k in v.contrasts:
+    for k in v.comparisons:
         out += ["", f"Evidence per occurrence, {k.label} (log-odds, old -> new)"]
         for title, items in (("gained", k.shifts_up), ("lost", k.shifts_down)):
             if items:

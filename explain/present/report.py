@@ -113,7 +113,7 @@ def draw_pictures(report: Report) -> dict[str, bytes]:
     pictures = {}
     if report.assessment is not None:
         pictures.update(assess_pictures.draw_all(report.assessment))
-    for i, _ in enumerate(report.vocab.contrasts):
+    for i, _ in enumerate(report.vocab.comparisons):
         pictures[f"bars_{i}.png"] = vocab_pictures.bar_chart(report.vocab, i)
         pictures[f"cloud_{i}.png"] = vocab_pictures.word_cloud(report.vocab, i, "for")
     if report.probe is not None:  # robustness and fairness section

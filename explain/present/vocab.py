@@ -71,7 +71,7 @@ from rich.text import Text
 
 from explain.analysis.risk import FLAG_LABELS, FLAGS, PERSONAL_KINDS
 from explain.present.token_display import shown
-from explain.analysis.vocab import LENS_TITLES, LENSES, Contrast, VocabReview
+from explain.analysis.vocab import LENS_TITLES, LENSES, VocabComparison, VocabReview
 
 SCHEMA = "nbledger.vocab/1"
 VALUE_COLUMNS = ("zscore", "weighted_log_odds", "ratio", "mass", "chi2", "g2", "mi", "direction")
@@ -87,7 +87,7 @@ def _number(x):
     return x if math.isfinite(x) else None
 
 
-def _row(review: VocabReview, c: Contrast, j: int) -> dict:
+def _row(review: VocabReview, c: VocabComparison, j: int) -> dict:
     """One token of one comparison, with the documented keys."""
     lens_at = LENSES.index(review.lens)
     row = {"rank": int(c.rank[lens_at, j]), "token": str(review.tokens[j])}
@@ -159,7 +159,7 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
                     if name != "watchlist"
                 },
             }
-            for c in review.contrasts
+            for c in review.comparisons
         ],
         "watchlist": None
         if review.watchlist_source is None
@@ -171,7 +171,7 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
                     "in_vocabulary": w.column >= 0,
                     "rows": [
                         {"comparison": c.label, **_row(review, c, w.column)} if w.column >= 0 else None
-                        for c in review.contrasts
+                        for c in review.comparisons
                     ],
                 }
                 for w in review.watchlist
@@ -186,7 +186,7 @@ def to_csv(review: VocabReview) -> str:
 
     lens_at = LENSES.index(review.lens)
     frames = []
-    for c in review.contrasts:
+    for c in review.comparisons:
         order = c.order[lens_at]
         columns = {
             "comparison": c.label,
@@ -273,20 +273,20 @@ def redaction_lines(review: VocabReview) -> list[str]:
     return lines
 
 
-def _shown_value(c: Contrast, lens: str, j: int) -> str:
+def _shown_value(c: VocabComparison, lens: str, j: int) -> str:
     """A lens value as shown: signed for z-score, ratio and mass, unsigned for chi-square, G2 and MI."""
     return _fmt(getattr(c, lens)[j])
 
 
-def _direction(c: Contrast, j: int) -> str:
+def _direction(c: VocabComparison, j: int) -> str:
     return {1: c.target, -1: c.other}.get(int(c.direction[j]), "neither")
 
 
-def _flags(c: Contrast, j: int, skip=()) -> str:
+def _flags(c: VocabComparison, j: int, skip=()) -> str:
     return ", ".join(FLAG_LABELS[name] for k, name in enumerate(FLAGS) if c.flags[k, j] and name not in skip)
 
 
-def _token_table(review: VocabReview, c: Contrast, picked, side: str, wide: bool) -> Table:
+def _token_table(review: VocabReview, c: VocabComparison, picked, side: str, wide: bool) -> Table:
     """Rows of ``picked``; ``rank`` counts from the end of the ranking that ``side`` starts at.
 
     Numbers never wrap: their columns do not fold, and only the token and
@@ -358,7 +358,7 @@ def _header(review: VocabReview, console: Console) -> None:
     )
 
 
-def _contrast(review: VocabReview, c: Contrast, console: Console) -> None:
+def _comparison(review: VocabReview, c: VocabComparison, console: Console) -> None:
     console.print()
     console.rule(
         Text(f"{c.label}: {_count(c.messages_target)} vs {_count(c.messages_other)} training messages"), style="none"
@@ -388,7 +388,7 @@ def _hanging(line: str, width: int) -> str:
     return textwrap.fill(line, width=width, subsequent_indent="      ", break_long_words=False, break_on_hyphens=False)
 
 
-def _watchlist(review: VocabReview, c: Contrast) -> Table:
+def _watchlist(review: VocabReview, c: VocabComparison) -> Table:
     """The watchlist terms the vocabulary has, in one comparison (the others are listed after the tables)."""
     table = Table(
         title=Text(f"watchlist, {c.label}"),
@@ -424,13 +424,13 @@ def _watchlist(review: VocabReview, c: Contrast) -> Table:
 def render(review: VocabReview, console: Console) -> None:
     """The review as terminal tables, the personal-data check last."""
     _header(review, console)
-    for c in review.contrasts:
-        _contrast(review, c, console)
+    for c in review.comparisons:
+        _comparison(review, c, console)
     if review.watchlist_source is not None:
         console.print()
         console.print(f"Watchlist {review.watchlist_source}: every term in every comparison.", markup=False)
         if any(w.column >= 0 for w in review.watchlist):
-            for c in review.contrasts:
+            for c in review.comparisons:
                 console.print(_watchlist(review, c))
         missing = [w.term for w in review.watchlist if w.column < 0]
         if missing:

@@ -26,7 +26,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from explain.analysis.risk import FLAG_LABELS, FLAGS
-from explain.analysis.vocab import LENS_TITLES, Contrast, VocabReview
+from explain.analysis.vocab import LENS_TITLES, VocabComparison, VocabReview
 from explain.present.drawing import INK, NEUTRAL, class_colours, png_bytes
 from explain.present.token_display import shown
 from explain.present.vocab import redaction_lines
@@ -37,20 +37,20 @@ CLOUD_WORDS = 80
 MAP_LABELS = 8
 
 
-def _side_names(c: Contrast, side: str) -> tuple[str, str]:
+def _side_names(c: VocabComparison, side: str) -> tuple[str, str]:
     return (c.target, c.other) if side == "for" else (c.other, c.target)
 
 
-def _flag_note(c: Contrast, j: int) -> str:
+def _flag_note(c: VocabComparison, j: int) -> str:
     raised = [FLAG_LABELS[name] for i, name in enumerate(FLAGS) if c.flags[i, j]]
     return f"  [{', '.join(raised)}]" if raised else ""
 
 
 def word_cloud(review: VocabReview, index: int, side: str = "for") -> bytes:
-    """Word cloud of the tokens whose evidence points to one side of contrast ``index``."""
+    """Word cloud of the tokens whose evidence points to one side of comparison ``index``."""
     from wordcloud import WordCloud
 
-    c = review.contrasts[index]
+    c = review.comparisons[index]
     lens = review.lens
     picked = c.top(lens, max(CLOUD_WORDS, review.top), side)
     sizes = np.abs(c.values(lens)[picked])
@@ -105,7 +105,7 @@ def support_map(review: VocabReview, index: int) -> bytes:
     Tokens with no support at all cannot sit on a log axis and are counted
     in the title instead.
     """
-    c = review.contrasts[index]
+    c = review.comparisons[index]
     colours = class_colours(review.classes, review.normal_class)
     support = c.support_target + c.support_other
     placed = support > 0
@@ -173,7 +173,7 @@ def _support_unit(review: VocabReview) -> str:
 
 def bar_chart(review: VocabReview, index: int) -> bytes:
     """The ``review.top`` strongest tokens for and against the target, ranked, with values and flags."""
-    c = review.contrasts[index]
+    c = review.comparisons[index]
     lens = review.lens
     values = c.values(lens)
     colours = class_colours(review.classes, review.normal_class)
@@ -211,7 +211,7 @@ def _slug(name: str) -> str:
 def draw_all(review: VocabReview) -> dict[str, bytes]:
     """File name -> PNG bytes: for each comparison, its bar chart, support map and a word cloud per side."""
     pictures = {}
-    for i, c in enumerate(review.contrasts):
+    for i, c in enumerate(review.comparisons):
         pair = f"{_slug(c.target)}_vs_{_slug(c.other)}"
         pictures[f"bars_{pair}.png"] = bar_chart(review, i)
         pictures[f"support_{pair}.png"] = support_map(review, i)
