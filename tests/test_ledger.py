@@ -151,3 +151,22 @@ def test_redaction_moves_spans_to_the_masked_text(before, after, value):
             # Each span shows its word, or the placeholder of the value it was part of.
             assert piece.lower() == e.token or (piece.startswith("[") and piece.endswith("]"))
     assert close(ledger.opening + math.fsum(e.amount for e in ledger.entries), ledger.closing)
+
+
+def test_display_names_in_sender_lines_are_masked():
+    """A raw message read with its headers names people beside their addresses (RFC 5322 3.6.2-3.6.3)."""
+    from explain.analysis.ledger import redacted
+    from explain.analysis.risk import display_names
+
+    header = 'From: Marta Quill <marta@example.org>\nTo: "Levy Office, Tideway" <levy@example.net>, Ann Lee <ann@example.com>\n'
+    names = [header[s:e] for s, e, _ in display_names(header + "Subject: from Marta <m@example.org>\n\nHello")]
+    assert names == ["Marta Quill", "Levy Office, Tideway", "Ann Lee"]  # not in the Subject line
+    pipeline = make_pipeline("counts", "multinomial").fit(
+        ["pay the fee now", "fee link now example net", "tea at the hall", "the hall is open"],
+        ["scam", "scam", "ok", "ok"],
+    )
+    text = header + "\nPay the levy fee now."
+    ledger = redacted(ledger_of(loaded(pipeline, normal_class="ok"), text))
+    for name in ("Marta", "Quill", "Levy Office", "Ann Lee", "@example"):
+        assert name not in ledger.text, name
+    assert "[name 1]" in ledger.text and "Pay the levy fee now." in ledger.text

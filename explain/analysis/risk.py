@@ -360,11 +360,33 @@ def watchlist_columns(terms, tokens) -> np.ndarray:
     )
 
 
+# A header line that names people (RFC 5322 section 3.6.2-3.6.3), and one "Display Name <address>" in it.
+_ADDRESS_HEADER = re.compile(r"^(?:from|to|cc|bcc|reply-to|sender|resent-from|resent-to)[ \t]*:[^\n]*", re.I | re.M)
+_DISPLAY_NAME = re.compile(r'(?:"([^"\n]*[^"\s])\s*"|([^"<>,:;\s][^"<>,:;\n]*?))[ \t]*<[^<>\n]*>')
+
+
+def display_names(text: str) -> list[tuple[int, int, str]]:
+    """``(start, end, "name")`` of the display names in a message's address header lines.
+
+    In ``From: Jane Doe <jane@example.org>`` the address is found by the
+    e-mail pattern; the name before it is personal data too (a sender line
+    of a raw message read with a ``headers+body`` view).
+    """
+    spans = []
+    for line in _ADDRESS_HEADER.finditer(text):
+        value_at = line.start() + line.group().index(":")
+        for m in _DISPLAY_NAME.finditer(text, value_at + 1, line.end()):
+            group = 1 if m.group(1) is not None else 2
+            spans.append((m.start(group), m.end(group), "name"))
+    return spans
+
+
 def personal_spans(text: str) -> list[tuple[int, int, str]]:
     """``(start, end, kind)`` of personal-looking values in free text, left to right, not overlapping.
 
     The same patterns as the ``personal`` flag, searched in the whole text
-    rather than in single tokens: a vectorizer that splits
+    rather than in single tokens, and the display names of address header
+    lines (:func:`display_names`): a vectorizer that splits
     ``warden@example.org`` into pieces leaves the text itself to be masked.
     The patterns find where a value starts (a URL's scheme, say), so each
     match is widened to the whole run of non-space characters around it, less
@@ -381,8 +403,9 @@ def personal_spans(text: str) -> list[tuple[int, int, str]]:
     # blanking it keeps every offset.
     plain = re.sub(r"[.,;:!?](?=\s|$)", " ", text)
     found = sorted(
-        ((*widened(m), PERSONAL_KINDS[k]) for k, pattern in enumerate(_PERSONAL_PATTERNS)
-         for m in pattern.finditer(plain) if m.end() > m.start()),
+        [*((*widened(m), PERSONAL_KINDS[k]) for k, pattern in enumerate(_PERSONAL_PATTERNS)
+           for m in pattern.finditer(plain) if m.end() > m.start()),
+         *display_names(text)],
         key=lambda s: (s[0], -(s[1] - s[0])),
     )
     kept: list[tuple[int, int, str]] = []
