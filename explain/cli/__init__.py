@@ -64,6 +64,12 @@ def fail(message: str) -> NoReturn:
     raise typer.Exit(EXIT_USER_ERROR)
 
 
+def one_threshold(threshold, threshold_log_odds) -> None:
+    """Refuse ``--threshold`` together with ``--threshold-log-odds``: they are two scales of one setting."""
+    if threshold is not None and threshold_log_odds is not None:
+        fail("give --threshold or --threshold-log-odds, not both")
+
+
 def warn(message: str) -> None:
     _say("warning", message)
 

@@ -11,7 +11,7 @@ import typer
 from explain.cli import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
     THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, labelled_or_fail,
-    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail,
+    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail, one_threshold,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
@@ -110,8 +110,7 @@ def assess(
     )
     cost_pair = parse_costs(costs)
     prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
-    if threshold is not None and threshold_log_odds is not None:
-        fail("give --threshold or --threshold-log-odds, not both")
+    one_threshold(threshold, threshold_log_odds)
     check_folds(folds)
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
         if out is not None:

@@ -11,7 +11,7 @@ import typer
 from explain.cli import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
     THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
-    model_inputs, plain_text, read_messages_or_fail,
+    model_inputs, plain_text, read_messages_or_fail, one_threshold,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
@@ -58,8 +58,7 @@ def probe(
         fail(f"--format must be text or json, got {output_format!r}")
     if max_added < 1:
         fail(f"--max-added must be at least 1, got {max_added}")
-    if threshold is not None and threshold_log_odds is not None:
-        fail("give --threshold or --threshold-log-odds, not both")
+    one_threshold(threshold, threshold_log_odds)
     if not evasion and swap_terms is None:
         fail("nothing to probe: ask for --evasion, --swap-terms FILE or both")
     if evasion and data is None:

@@ -12,7 +12,7 @@ import typer
 
 from explain.cli import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
-    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn,
+    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn, one_threshold,
 )
 from explain.cli.mail_options import TEXT_VIEW
 from explain.present.token_display import make_console
@@ -211,8 +211,7 @@ def why(
         fail("give the message as TEXT, with --file, or from --data, not several")
     if message_id is not None and ids is not None:
         fail("give --id or --ids, not both")
-    if threshold is not None and threshold_log_odds is not None:
-        fail("give --threshold or --threshold-log-odds, not both")
+    one_threshold(threshold, threshold_log_odds)
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file]) as outputs:
         if out is not None:
             outputs.file(out)  # checked before any work: never an input, a link or a folder

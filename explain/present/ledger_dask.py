@@ -40,12 +40,11 @@ from explain.present.ledger_files import (
     IdCounter,
     LedgerProgress,
     LedgerWriter,
-    drivers_header,
+    finish_run,
     ledger_chunk,
     output_format,
     row_numbers,
     run_rule,
-    write_drivers,
 )
 
 _FRAME_COLUMNS = ("id", "text", "missing", "replaced")
@@ -240,11 +239,6 @@ def write_ledger_dask(
             finally:
                 if writer is not None:
                     writer.close()
-            if progress.messages == 0:
-                raise NbledgerError("the input holds no messages")
-            if ids_seen is not None:
-                progress.duplicate_ids = ids_seen.duplicates()
-            if summary is not None:
-                write_drivers(Path(summary), drivers, drivers_header(model, rule, progress))
+            finish_run(model, rule, progress, ids_seen, drivers, summary)
     progress.seconds = time.perf_counter() - start
     return progress

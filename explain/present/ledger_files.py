@@ -341,11 +341,16 @@ def write_ledger(
                 progress.seconds = time.perf_counter() - start
                 if on_chunk is not None:
                     on_chunk(progress)
-        if progress.messages == 0:
-            raise NbledgerError("the input holds no messages")
-        if ids_seen is not None:
-            progress.duplicate_ids = ids_seen.duplicates()
-        if summary is not None:
-            write_drivers(Path(summary), drivers, drivers_header(model, rule, progress))
+        finish_run(model, rule, progress, ids_seen, drivers, summary)
     progress.seconds = time.perf_counter() - start
     return progress
+
+
+def finish_run(model, rule, progress: LedgerProgress, ids_seen, drivers, summary) -> None:
+    """The end of a run, either engine: refuse an empty input, count repeated ids, write the flag drivers."""
+    if progress.messages == 0:
+        raise NbledgerError("the input holds no messages")
+    if ids_seen is not None:
+        progress.duplicate_ids = ids_seen.duplicates()
+    if summary is not None:
+        write_drivers(Path(summary), drivers, drivers_header(model, rule, progress))
