@@ -194,20 +194,22 @@ def test_a_cached_load_gives_the_same_view_and_a_foreign_entry_is_ignored(good_m
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     fresh = load_model(good_model)
     entries = {p.name for p in model_cache.cache_folder().iterdir()}
-    assert entries == {f"{fresh.sha256}.json", f"{fresh.sha256}.npz", "digests"}
+    assert entries == {f"{fresh.sha256}.entry"}
     cached = load_model(good_model)
+    assert cached.from_cache and not fresh.from_cache
     for name in ("weights", "baseline", "prior", "absence", "feature_count", "class_count", "tokens", "classes"):
         assert np.array_equal(getattr(cached.view, name), getattr(fresh.view, name))
     assert np.array_equal(cached.featurizer.transform(TEXTS).toarray(), fresh.featurizer.transform(TEXTS).toarray())
-    # An entry whose recorded hash does not match is ignored (and rebuilt).
-    entry = model_cache.cache_folder() / f"{fresh.sha256}.json"
-    record = json.loads(entry.read_text())
-    record["npz_sha256"] = "0" * 64
-    entry.write_text(json.dumps(record))
-    assert model_cache.read(fresh.sha256) is None
+    # An entry whose tag does not match is ignored (and rebuilt); tests/test_model_cache.py has the forgeries.
+    entry = model_cache.entry_path(fresh.sha256)
+    raw = bytearray(entry.read_bytes())
+    raw[len(model_cache.MAGIC)] ^= 1
+    entry.write_bytes(bytes(raw))
+    size, limit = good_model.stat().st_size, 1 << 30
+    assert model_cache.read(fresh.sha256, fresh.sha256, size, limit) is None
     again = load_model(good_model)
-    assert np.array_equal(again.view.weights, fresh.view.weights)
-    assert model_cache.read(fresh.sha256) is not None  # rewritten
+    assert np.array_equal(again.view.weights, fresh.view.weights) and not again.from_cache
+    assert model_cache.read(fresh.sha256, fresh.sha256, size, limit) is not None  # rewritten
 
 
 def test_a_remembered_digest_is_used_only_for_the_same_unchanged_file(good_model, tmp_path, monkeypatch):
@@ -226,10 +228,17 @@ def test_the_cache_never_unpickles(tmp_path, monkeypatch):
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     folder = model_cache.cache_folder()
     folder.mkdir(parents=True)
-    np.save(folder / "x.npy", np.array([object()], dtype=object), allow_pickle=True)
-    (folder / f"{'a' * 64}.npz").write_bytes(b"PK\x03\x04 not an archive")
-    (folder / f"{'a' * 64}.json").write_text(json.dumps({"key": "a" * 64, "npz_sha256": "0", "settings": {}}))
-    assert model_cache.read("a" * 64) is None
+    key = "a" * 64
+    # Even correctly tagged, an archive holding a pickled object array is refused (allow_pickle=False).
+    import io
+
+    buffer = io.BytesIO()
+    np.savez(buffer, weights=np.array([object()], dtype=object), allow_pickle=True)
+    body = buffer.getvalue()
+    tag = model_cache._tag(model_cache.secret(), b"nbledger.entry/2", model_cache._entry_fields(key, 1), io.BytesIO(body).read)
+    model_cache.entry_path(key).write_bytes(model_cache.MAGIC + tag + body)
+    seen = []
+    assert model_cache.read(key, key, 1, 1 << 30, seen.append) is None and seen
 
 
 # --- numbers that cannot be trusted ----------------------------------------------

@@ -279,6 +279,8 @@ class Ledger:
     explanation: Explanation
     #: True when the tokens are character n-grams (analyzer "char" or "char_wb"), which overlap
     character_ngrams: bool = False
+    #: True when the model's view came from the cache of loaded models rather than the model file
+    model_from_cache: bool = False
 
     def character_heat(self) -> np.ndarray:
         """Evidence per character of ``text``, shape (len(text),), in log-odds.
@@ -485,6 +487,7 @@ def ledger_of(
         redacted=False,
         explanation=expl,
         character_ngrams=str(model.featurizer.vectorizer.analyzer) in ("char", "char_wb"),
+        model_from_cache=bool(getattr(model, "from_cache", False)),
     )
 
 

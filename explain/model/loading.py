@@ -91,6 +91,7 @@ class LoadedModel:
     file_format: str
     card: dict | None = None
     classifier_settings: dict | None = None
+    from_cache: bool = False
 
     @property
     def classes(self):
@@ -327,25 +328,29 @@ def load_model(
     for file in files:
         if sniff_format(file) == "skops":
             check_archive(file, limits.memory)
-    digest = model_cache.file_sha256(path, limits.cache)
+    digest = model_cache.file_sha256(path, limits.cache, on_warning)
     if len(files) > 1:
-        key = hashlib.sha256(f"{digest}+{model_cache.file_sha256(files[1], limits.cache)}".encode()).hexdigest()
+        second = model_cache.file_sha256(files[1], limits.cache, on_warning)
+        key = hashlib.sha256(f"{digest}+{second}".encode()).hexdigest()
     else:
         key = digest
+    size = sum(os.stat(f).st_size for f in files)
     card = read_card(path, digest, on_warning)
     if normal_class is None and card is not None:
         normal_class = (card.get("settings") or {}).get("normal_class")
 
-    cached = model_cache.read(key) if limits.cache else None
+    cached = model_cache.read(key, key, size, limits.memory, on_warning) if limits.cache else None
     if cached is not None:
         try:
             featurizer, view = plain_form.rebuild(*cached)
-        except (NbledgerError, KeyError, ValueError, TypeError):
+        except (NbledgerError, KeyError, ValueError, TypeError) as exc:
             cached = None  # an entry of another version of nbledger or scikit-learn: load afresh
+            if on_warning is not None:
+                on_warning(f"the cached copy of this model was not used ({_first_line(exc)}); loading the model file afresh")
         else:
             return LoadedModel(
                 view.with_normal_class(normal_class), featurizer, path, digest, kind, card,
-                cached[1].get("classifier"),
+                cached[1].get("classifier"), from_cache=True,
             )
     outcome = load_in_child(files, allow_pickle=allow_pickle, trust=tuple(trust), limits=limits)
     if "needs_code" in outcome:
@@ -364,7 +369,7 @@ def load_model(
         featurizer, view = plain_form.rebuild(arrays, settings)
         classifier_settings = settings.get("classifier")
         if limits.cache:
-            model_cache.write(key, arrays, settings)
+            model_cache.write(key, arrays, settings, key, size)
     return LoadedModel(
         view.with_normal_class(normal_class), featurizer, path, digest, kind, card, classifier_settings
     )

@@ -17,7 +17,8 @@ lines that keep the running balance right. Each word is tinted by
 key                    meaning
 =====================  ==========================================================
 ``schema``             ``"nbledger.why/1"``
-``model``              ``{path, sha256}`` of the model file
+``model``              ``{path, sha256, from_cache}`` of the model file (``from_cache``:
+                       its view came from the cache of loaded models)
 ``classes``            class labels in the model's order
 ``predicted``          most probable class (scikit-learn's ``predict``)
 ``runner_up``          second most probable class
@@ -120,7 +121,9 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
     index = {id(e): i for i, e in enumerate(ledger.entries)}
     return {
         "schema": SCHEMA,
-        "model": None if ledger.model_path is None else {"path": ledger.model_path, "sha256": ledger.model_sha256},
+        "model": None if ledger.model_path is None else {
+            "path": ledger.model_path, "sha256": ledger.model_sha256, "from_cache": ledger.model_from_cache,
+        },
         "classes": list(expl.classes),
         "predicted": expl.predicted,
         "runner_up": expl.runner_up,
