@@ -9,8 +9,9 @@ STAMP := $(VENV)/.installed
 OUT := demo_out
 # System libraries WeasyPrint (the PDF report) needs, and fonts for pictures.
 SYSTEM_PACKAGES := libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz0b fonts-dejavu-core \
-	poppler-utils chromium
-# (poppler-utils: pdftoppm for the README's picture; chromium: the test that opens the HTML twin)
+	poppler-utils chromium postgresql
+# (poppler-utils: pdftoppm for the README's picture; chromium: the tests that open the HTML twin and the
+# review desk; postgresql: the review desk's tests start a PostgreSQL server of their own)
 
 .PHONY: demo test install system-packages benchmark clean docs-picture
 

@@ -335,3 +335,4 @@ from explain.cli import report  # noqa: E402,F401
 from explain.cli import demo  # noqa: E402,F401
 from explain.cli import compare  # noqa: E402,F401
 from explain.cli import probe  # noqa: E402,F401
+from explain.cli import serve, user, reviews  # noqa: E402,F401

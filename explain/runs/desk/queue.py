@@ -1,0 +1,146 @@
+"""The desk's queue: messages read once at start, scored in chunks, each with its decision and risk flags.
+
+Scores are the model's joint log-likelihoods (:meth:`ModelView.joint_log_likelihood`, equal to
+scikit-learn's ``predict_joint_log_proba``); the flag log-odds and the decision come from the one
+:class:`~explain.model.decision.DecisionRule`. A message's *closeness* to the decision line is
+``|flag log-odds - threshold log-odds|`` under a threshold, and the log-odds of its decided class
+against the runner-up under argmax: the smaller, the nearer the message came to the other decision.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+from scipy.special import expit
+
+from explain.analysis.batch import top_two
+from explain.analysis.risk import FLAGS, RiskThresholds, risk_flags, token_traits
+from explain.errors import NbledgerError
+from explain.model.decision import DecisionRule
+
+#: Messages scored at a time while a queue loads (one progress step each).
+CHUNK = 2000
+
+
+@dataclass(frozen=True)
+class QueueItem:
+    """One queued message and how the model decided it."""
+
+    position: int
+    id: str
+    text: str
+    decision: str
+    flagged: bool
+    flag_probability: float
+    log_odds: float
+    closeness: float
+    flags: tuple[str, ...]
+
+    def as_json(self, outcome: str | None) -> dict:
+        return {
+            "id": self.id,
+            "decision": self.decision,
+            "flagged": self.flagged,
+            "flag_probability": self.flag_probability,
+            "log_odds": self.log_odds,
+            "closeness": self.closeness,
+            "flags": list(self.flags),
+            "reviewed": outcome is not None,
+            "outcome": outcome,
+        }
+
+
+@dataclass(frozen=True)
+class Queue:
+    items: tuple[QueueItem, ...]
+    source: str
+
+    def __post_init__(self):
+        object.__setattr__(self, "_by_id", {})
+        for item in self.items:
+            self._by_id.setdefault(item.id, item)  # a repeated id: the first message is the one shown
+
+    def get(self, message_id: str) -> QueueItem | None:
+        return self._by_id.get(message_id)
+
+    def __len__(self) -> int:
+        return len(self.items)
+
+
+def _token_flags(view, rule: DecisionRule, thresholds: RiskThresholds) -> dict[int, np.ndarray]:
+    """Per flagged class c, the risk flags of every column weighed toward c against the normal class,
+    a bool array (F, len(FLAGS)) (the same :func:`risk_flags` a ledger's entries get)."""
+    traits = token_traits(list(view.tokens))
+    normal = rule.normal_index
+    watched = np.zeros(view.n_features, dtype=bool)
+    out = {}
+    for c in rule.flagged_indices:
+        ratio = view.weights[c] - view.weights[normal]
+        support = view.feature_count[[c, normal]].sum(axis=0)
+        out[int(c)] = risk_flags(traits, ratio, support, watched, thresholds).T.copy()
+    return out
+
+
+def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, int], None] | None = None) -> Queue:
+    """Score ``messages`` (:class:`explain.model.data_io.Messages`) in chunks of :data:`CHUNK`."""
+    view, featurizer = loaded.view, loaded.featurizer
+    if rule.normal_index is None:
+        raise NbledgerError("the desk needs a normal class to weigh flagged messages against: give --normal-class")
+    flags_by_class = _token_flags(view, rule, RiskThresholds())
+    items: list[QueueItem] = []
+    texts, ids, n = messages.texts, [str(i) for i in messages.ids], len(messages)
+    for start in range(0, n, CHUNK):
+        stop = min(start + CHUNK, n)
+        X = view.prepare(featurizer.transform(texts[start:stop]))
+        jll = view.joint_log_likelihood(X)
+        flag = rule.flag_log_odds(jll)
+        decided = rule.decide(jll)
+        best, second = top_two(jll)
+        rows = np.arange(len(jll))
+        if rule.threshold is None:
+            closeness = jll[rows, best] - jll[rows, second]
+        else:
+            closeness = np.abs(flag - rule.threshold_log_odds)
+        top_flagged = rule.flagged_indices[np.argmax(jll[:, rule.flagged_indices], axis=1)]
+        present = (X != 0).astype(np.int8).tocsr()
+        for k in range(len(jll)):
+            cols = present.indices[present.indptr[k]:present.indptr[k + 1]]
+            having = flags_by_class[int(top_flagged[k])][cols].any(axis=0)
+            items.append(QueueItem(
+                position=start + k,
+                id=ids[start + k],
+                text=texts[start + k],
+                decision=str(view.classes[decided[k]]),
+                flagged=bool(decided[k] != rule.normal_index),
+                flag_probability=float(expit(flag[k])),
+                log_odds=float(flag[k]),
+                closeness=float(closeness[k]),
+                flags=tuple(FLAGS[j] for j in np.flatnonzero(having)),
+            ))
+        if progress is not None:
+            progress(stop, n)
+    return Queue(tuple(items), str(messages.source))
+
+
+ORDERS = ("closeness", "arrival")
+
+
+def select(queue: Queue, outcomes: dict[str, str], *, decision=None, flag=None, reviewed=None,
+           order: str = "closeness") -> list[QueueItem]:
+    """The queue filtered (decision class, risk flag, reviewed or not) and ordered.
+
+    ``order``: ``closeness`` (nearest the decision line first) or ``arrival`` (file order).
+    """
+    if order not in ORDERS:
+        raise NbledgerError(f"order must be one of {', '.join(ORDERS)}")
+    chosen = [
+        item for item in queue.items
+        if (decision is None or item.decision == decision or (decision == "flagged" and item.flagged))
+        and (flag is None or flag in item.flags)
+        and (reviewed is None or (item.id in outcomes) == reviewed)
+    ]
+    if order == "closeness":
+        chosen.sort(key=lambda item: (item.closeness, item.position))
+    return chosen
