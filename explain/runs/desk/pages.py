@@ -58,7 +58,7 @@ def queue_selection(request):
         return [], outcomes
     q = request.query_params
     reviewed = {"yes": True, "true": True, "no": False, "false": False}.get(q.get("reviewed", ""), None)
-    order = q.get("order") or "closeness"
+    order = q.get("order") or "margin"
     if order not in ORDERS:
         raise _Refused(400, f"order must be one of {', '.join(ORDERS)}")
     picked = select(settings.queue, outcomes, decision=_flag_query(q.get("decision")), flag=_flag_query(q.get("flag")),

@@ -2,9 +2,9 @@
 
 Scores are the model's joint log-likelihoods (:meth:`ModelView.joint_log_likelihood`, equal to
 scikit-learn's ``predict_joint_log_proba``); the flag log-odds and the decision come from the one
-:class:`~explain.model.decision.DecisionRule`. A message's *closeness* to the decision line is
-``|flag log-odds - threshold log-odds|`` under a threshold, and the log-odds of its decided class
-against the runner-up under argmax: the smaller, the nearer the message came to the other decision.
+:class:`~explain.model.decision.DecisionRule`, the glossary's *margin* (how far the decision was from
+going the other way, positive on the flagged side) from :func:`explain.analysis.drivers.flag_margin`.
+The queue puts the messages with the smallest absolute margin first.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ from typing import Callable
 import numpy as np
 from scipy.special import expit
 
-from explain.analysis.batch import top_two
+from explain.analysis.drivers import flag_margin
 from explain.analysis.risk import FLAGS, RiskThresholds, risk_flags, token_traits
 from explain.errors import NbledgerError
 from explain.model.decision import DecisionRule
@@ -35,7 +35,7 @@ class QueueItem:
     flagged: bool
     flag_probability: float
     log_odds: float
-    closeness: float
+    margin: float
     flags: tuple[str, ...]
 
     def as_json(self, outcome: str | None) -> dict:
@@ -45,7 +45,7 @@ class QueueItem:
             "flagged": self.flagged,
             "flag_probability": self.flag_probability,
             "log_odds": self.log_odds,
-            "closeness": self.closeness,
+            "margin": self.margin,
             "flags": list(self.flags),
             "reviewed": outcome is not None,
             "outcome": outcome,
@@ -97,12 +97,7 @@ def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, i
         jll = view.joint_log_likelihood(X)
         flag = rule.flag_log_odds(jll)
         decided = rule.decide(jll)
-        best, second = top_two(jll)
-        rows = np.arange(len(jll))
-        if rule.threshold is None:
-            closeness = jll[rows, best] - jll[rows, second]
-        else:
-            closeness = np.abs(flag - rule.threshold_log_odds)
+        margin = flag_margin(rule, jll)
         top_flagged = rule.flagged_indices[np.argmax(jll[:, rule.flagged_indices], axis=1)]
         present = (X != 0).astype(np.int8).tocsr()
         for k in range(len(jll)):
@@ -116,7 +111,7 @@ def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, i
                 flagged=bool(decided[k] != rule.normal_index),
                 flag_probability=float(expit(flag[k])),
                 log_odds=float(flag[k]),
-                closeness=float(closeness[k]),
+                margin=float(margin[k]),
                 flags=tuple(FLAGS[j] for j in np.flatnonzero(having)),
             ))
         if progress is not None:
@@ -124,14 +119,14 @@ def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, i
     return Queue(tuple(items), str(messages.source))
 
 
-ORDERS = ("closeness", "arrival")
+ORDERS = ("margin", "arrival")
 
 
 def select(queue: Queue, outcomes: dict[str, str], *, decision=None, flag=None, reviewed=None,
-           order: str = "closeness") -> list[QueueItem]:
+           order: str = "margin") -> list[QueueItem]:
     """The queue filtered (decision class, risk flag, reviewed or not) and ordered.
 
-    ``order``: ``closeness`` (nearest the decision line first) or ``arrival`` (file order).
+    ``order``: ``margin`` (smallest absolute margin first: nearest the other decision) or ``arrival`` (file order).
     """
     if order not in ORDERS:
         raise NbledgerError(f"order must be one of {', '.join(ORDERS)}")
@@ -141,6 +136,6 @@ def select(queue: Queue, outcomes: dict[str, str], *, decision=None, flag=None, 
         and (flag is None or flag in item.flags)
         and (reviewed is None or (item.id in outcomes) == reviewed)
     ]
-    if order == "closeness":
-        chosen.sort(key=lambda item: (item.closeness, item.position))
+    if order == "margin":
+        chosen.sort(key=lambda item: (abs(item.margin), item.position))
     return chosen
