@@ -10,7 +10,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from rich.console import Console
-from scipy.stats import binomtest, false_discovery_control, fisher_exact
+from scipy.stats import binomtest, fisher_exact
+from statsmodels.stats.multitest import multipletests
 
 from explain.analysis import slices as slicing
 from explain.analysis.assessment import assess, class_indices
@@ -152,28 +153,61 @@ def test_slice_rates_match_pandas_and_scipy(files, capsys):
     pipe = load(files / "model.skops", trusted=get_untrusted_types(file=files / "model.skops"))
     proba = pipe.predict_proba(frame.text.tolist())
     frame["flagged"] = proba[:, list(pipe.classes_).index("ok")] <= 0.5
-    frame["false_alarm"] = (frame.label == "ok") & frame.flagged
+    frame["normal"] = frame.label == "ok"
+    frame["error"] = frame.normal == frame.flagged  # a false alarm among normal, a miss among flagged-class
     frame["month"] = pd.to_datetime(frame.sent_at, utc=True).dt.strftime("%Y-%m")
     got = {s["name"]: s for s in doc["slices"]["slices"] if s["group"] == "sent_at by month"}
-    normal = frame[frame.label == "ok"]
-    counts = normal.groupby("month").false_alarm.agg(["sum", "count"])
-    assert sorted(got) == sorted(counts.index)
-    p_values = []
-    for month, (k, n) in counts.iterrows():
-        rate = got[month]["false_alarm_rate"]
-        ci = binomtest(int(k), int(n)).proportion_ci(method="wilson")
-        assert (rate["numerator"], rate["denominator"]) == (k, n)
-        assert rate["low"] == pytest.approx(ci.low, abs=1e-12) and rate["high"] == pytest.approx(ci.high, abs=1e-12)
-        rest = normal[normal.month != month].false_alarm
-        p = fisher_exact([[k, n - k], [rest.sum(), len(rest) - rest.sum()]]).pvalue
-        assert got[month]["p_value"] == pytest.approx(p, rel=1e-12)
-        p_values.append(p)
+    assert sorted(got) == sorted(frame.month.unique())
+    checked = 0
+    for key, population in (("false_alarm_test", frame[frame.normal]), ("miss_test", frame[~frame.normal])):
+        counts = population.groupby("month").error.agg(["sum", "count"])
+        for month, (k, n) in counts.iterrows():
+            test = got[month][key]
+            ci = binomtest(int(k), int(n)).proportion_ci(method="wilson")
+            assert (test["rate"]["numerator"], test["rate"]["denominator"]) == (k, n)
+            assert test["rate"]["low"] == pytest.approx(ci.low, abs=1e-12)
+            assert test["rate"]["high"] == pytest.approx(ci.high, abs=1e-12)
+            rest = population[population.month != month].error
+            assert (test["rest"]["numerator"], test["rest"]["denominator"]) == (rest.sum(), len(rest))
+            # the reference: scipy's own Fisher exact test on the same 2x2 table, for both rates
+            p = fisher_exact([[k, n - k], [rest.sum(), len(rest) - rest.sum()]]).pvalue
+            assert test["p_value"] == pytest.approx(p, rel=1e-12), (key, month)
+            checked += 1
+    assert checked >= 6
     # the length slices partition the messages
     lengths = [s for s in doc["slices"]["slices"] if s["group"] == "message length"]
     assert sum(s["n_messages"] for s in lengths) == len(frame)
-    all_p = [s["p_value"] for s in doc["slices"]["slices"] if s["p_value"] is not None]
-    adjusted = [s["adjusted_p_value"] for s in doc["slices"]["slices"] if s["p_value"] is not None]
-    np.testing.assert_allclose(adjusted, false_discovery_control(all_p, method="bh"), rtol=1e-12)
+    # one Benjamini-Hochberg family over every test of the table, both rates: statsmodels' multipletests
+    tests = [s[key] for s in doc["slices"]["slices"] for key in ("false_alarm_test", "miss_test")
+             if s[key]["p_value"] is not None]
+    assert len(tests) == doc["slices"]["n_tests"] > len(doc["slices"]["slices"])
+    reject, expected, *_ = multipletests([t["p_value"] for t in tests], alpha=0.05, method="fdr_bh")
+    np.testing.assert_allclose([t["adjusted_p_value"] for t in tests], expected, rtol=1e-12)
+    assert [t["outcome"] in ("higher", "lower") for t in tests] == list(reject)
+
+
+def test_a_slice_that_differs_in_misses_only_says_so():
+    # the issue's case: short messages miss 6 of 13 flagged-class messages against 2.4 % elsewhere, with
+    # false alarms alike; the false-alarm test alone would call every slice alike
+    n_short, n_long = 40, 400
+    short = np.arange(n_short + n_long) < n_short
+    truth = np.zeros(n_short + n_long, dtype=bool)
+    truth[:13] = True  # 13 flagged-class short messages
+    truth[n_short:n_short + 250] = True  # 250 flagged-class long ones
+    decided = truth.copy()
+    decided[:6] = False  # 6 of the 13 short ones missed
+    decided[n_short:n_short + 6] = False  # 6 of 250 = 2.4 % missed elsewhere
+    decided[20:21] = True  # a false alarm in each slice
+    decided[n_short + 300:n_short + 305] = True
+    report = slicing.slice_report([slicing.by_values(np.where(short, "short", "long"), "length")], truth,
+                                  decided, 0.95)
+    by_name = {s.name: s for s in report.slices}
+    assert by_name["short"].verdict == "miss rate higher" and by_name["long"].verdict == "miss rate lower"
+    assert by_name["short"].false_alarm_test.outcome == "no difference"
+    assert by_name["short"].miss_test.p_value == pytest.approx(
+        fisher_exact([[6, 7], [6, 244]]).pvalue, rel=1e-12)  # scipy on the same table
+    assert by_name["short"].miss_test.p_value < 1e-4
+    assert [s.name for s in report.differing] == ["long", "short"]  # equal p: by name
 
 
 def test_a_slice_that_differs_is_named():
@@ -184,12 +218,19 @@ def test_a_slice_that_differs_is_named():
     values = np.where(np.arange(400) < 40, "b", "a")
     report = slicing.slice_report([slicing.by_values(values, "house")], truth, decided, 0.95)
     assert sorted(s.name for s in report.differing) == ["a", "b"]
-    assert all(s.adjusted_p_value < 1e-10 for s in report.differing)
+    assert all(s.false_alarm_test.adjusted_p_value < 1e-10 for s in report.differing)
+    assert {s.name: s.verdict for s in report.slices} == {"a": "false-alarm rate lower", "b": "false-alarm rate higher"}
+    # no flagged-class message at all: the miss rate is untested, never "no difference"
+    assert all(s.miss_test.outcome == "untested" and np.isnan(s.miss_test.p_value) for s in report.slices)
+    assert report.n_tests == 2
     # with no difference, none differs but the closest are still named
     calm = slicing.slice_report([slicing.by_values(values, "house")], truth, np.zeros(400, dtype=bool), 0.95)
     assert calm.differing == () and sorted(s.name for s in calm.most_different) == ["a", "b"]
-    assert all(s.adjusted_p_value == 1.0 for s in calm.most_different)
-
+    assert all(s.false_alarm_test.adjusted_p_value == 1.0 and s.verdict == "no difference"
+               for s in calm.most_different)
+    # a slice holding every message has no rest: both rates untested
+    whole = slicing.slice_report([slicing.by_values(["x"] * 400, "house")], truth, decided, 0.95)
+    assert whole.slices[0].verdict == "untested" and whole.n_tests == 0 and whole.most_different == ()
 
 
 def test_a_date_column_with_non_dates_is_one_error(files, capsys):

@@ -6,6 +6,7 @@ import scipy.sparse as sp
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy.special import expit, logsumexp
+from scipy.stats import binomtest
 from sklearn.calibration import calibration_curve
 from sklearn.metrics import (
     average_precision_score,
@@ -19,6 +20,7 @@ from sklearn.metrics import (
 from sklearn.naive_bayes import BernoulliNB, ComplementNB, MultinomialNB
 
 from explain.analysis.assessment import PER_MESSAGES, assess
+from explain.analysis.calibration import calibration_of
 from explain.errors import NbledgerError
 from explain.model.model_view import ModelView, view_of
 
@@ -168,6 +170,24 @@ def test_calibration_matches_sklearn(seed, k, n_bins):
     observed, predicted = calibration_curve(flag_truth, probability, n_bins=n_bins, strategy="quantile")
     np.testing.assert_allclose(cal.observed, observed, atol=1e-12)
     np.testing.assert_allclose(cal.mean_predicted, predicted, atol=1e-12)
+    # maximum calibration error (Naeini, Cooper & Hauskrecht 2015) over scikit-learn's own bins
+    assert cal.maximum_calibration_error == pytest.approx(np.max(np.abs(observed - predicted)), abs=1e-12)
+    assert cal.maximum_calibration_error >= cal.expected_calibration_error - 1e-12
+    # overconfident: mean P(flag) beyond the Wilson interval (scipy's binomtest), on the side away from 1/2
+    for b in range(cal.n_bins):
+        ci = binomtest(int(round(observed[b] * cal.counts[b])), int(cal.counts[b])).proportion_ci(method="wilson")
+        p = predicted[b]
+        assert bool(cal.overconfident[b]) == bool((p > 0.5 and p > ci.high) or (p < 0.5 and p < ci.low)), b
+
+
+def test_overconfident_bins_are_named():
+    # 40 messages at P(flag) ~ 0.9999 of which half are flagged-class, 40 at ~1e-4 all normal:
+    # the top bin is overconfident, the bottom one is not (common practice, no source)
+    scores = np.concatenate([np.full(40, -9.2), np.full(40, 9.2)])
+    truth = np.concatenate([np.zeros(40, bool), np.arange(40) % 2 == 0])
+    cal = calibration_of(scores, truth, 2, 0.95)
+    assert cal.overconfident.tolist() == [False, True]
+    assert cal.maximum_calibration_error == pytest.approx(abs(0.5 - expit(9.2)), abs=1e-12)
 
 
 def brute_force(scores, truth, tau):

@@ -150,6 +150,15 @@ def test_term_swaps_equal_scikit_learn_on_the_substituted_texts(case, extra, gro
                 if re.search(rf"(?<!\w){s}(?!\w)", text):
                     expected_rows += len(group.terms) - 1
     assert len(swaps.message) == expected_rows
+    # untested is not fair: a group or pair no message holds has no gap (None), never 0
+    for g in swaps.groups:
+        held = any(re.search(rf"(?<!\w){s}(?!\w)", text) for text in texts for s in
+                   next(x for x in swaps.terms.groups if x.name == g.group).terms)
+        assert g.tested == held and (g.gap is None) == (not held) and (g.messages == 0) == (not held)
+    for pair in swaps.pairs:
+        held = sum(bool(re.search(rf"(?<!\w){pair.source}(?!\w)", text)) for text in texts)
+        assert pair.messages == held and (pair.gap is None) == (held == 0) and pair.tested == (held > 0)
+    assert len(swaps.pairs) == sum(len(g.terms) * (len(g.terms) - 1) for g in swaps.terms.groups)
     if not expected_rows:
         return
     new = [_reference_swap(texts[m], s, t) for m, s, t in zip(swaps.message, swaps.source, swaps.target)]
@@ -167,6 +176,7 @@ def test_term_swaps_equal_scikit_learn_on_the_substituted_texts(case, extra, gro
         for k in np.flatnonzero(swaps.group == g.group):
             per_message.setdefault(int(swaps.message[k]), []).append(abs(p_new[k] - p_old[k]))
         if per_message:
+            assert g.tested
             assert g.gap == pytest.approx(np.mean([np.mean(v) for v in per_message.values()]), abs=1e-9)
             assert g.decisions_changed == int(sum((swaps.group == g.group) & (swaps.decision_after != swaps.decision_before)))
 

@@ -67,6 +67,26 @@ def test_terminal_output_names_the_figures(files, capsys):
     assert "Evasion cost" not in result.out
 
 
+def test_untested_groups_and_pairs_are_listed_apart_with_no_gap(files, capsys, tmp_path):
+    # "zzqx", "xxzy" and "qqvv" are in no message: their group and the pairs from them are untested, not fair
+    swaps = tmp_path / "swaps.txt"
+    swaps.write_text("people: she, he, zzqx\nnowhere: xxzy, qqvv\n", encoding="utf-8")
+    common = (files / "model.skops", files / "messages.csv", "--text-col", "text", "--swap-terms", swaps)
+    doc = json.loads(nbledger(capsys, "probe", *common, "--format", "json").out)["term_swaps"]
+    groups = {g["group"]: g for g in doc["groups"]}
+    assert groups["nowhere"] == {"group": "nowhere", "messages": 0, "swaps": 0, "decisions_changed": 0,
+                                 "fairness_gap": None, "tested": False}
+    assert groups["people"]["tested"] and groups["people"]["fairness_gap"] is not None
+    from_zzqx = [p for p in doc["pairs"] if p["source"] == "zzqx"]
+    assert len(from_zzqx) == 2 and all(p["fairness_gap"] is None and p["messages"] == 0 and not p["tested"]
+                                       and p["mean_log_odds_shift"] is None for p in from_zzqx)
+    assert all(p["tested"] for p in doc["pairs"] if p["source"] in ("she", "he"))
+    out = nbledger(capsys, "probe", *common).out
+    assert "untested (0 messages), no gap: nowhere" in out
+    assert "term pairs untested (0 messages hold the term), no gap: zzqx (people, 2 pairs)" in out
+    assert "zzqx ->" not in out and "│ nowhere" not in out  # no row of an untested pair or group in the tables
+
+
 @pytest.mark.parametrize(
     "args, message",
     [

@@ -28,7 +28,13 @@ class Calibration:
     difference between probability and truth (Brier 1950, Monthly Weather
     Review 78(1)). Expected calibration error: ``sum_b (n_b / N)
     |observed_b - mean_predicted_b|`` (Naeini, Cooper & Hauskrecht 2015,
-    AAAI, "Obtaining well calibrated probabilities using Bayesian binning").
+    AAAI, "Obtaining well calibrated probabilities using Bayesian binning");
+    maximum calibration error: ``max_b |observed_b - mean_predicted_b|`` (the
+    same paper). A weighted mean hides a few badly calibrated bins, so both
+    are kept, and ``overconfident[b]`` marks the bins where the filter is more
+    certain than the data: the mean P(flag) lies outside the Wilson interval of
+    the observed share, on the far side from 1/2 (above the interval when
+    mean P(flag) > 1/2, below it when < 1/2).
 
     The same on the log-odds scale, where naive Bayes probabilities spread
     out: ``mean_predicted_log_odds`` is ``logit(mean_predicted)`` computed
@@ -47,6 +53,8 @@ class Calibration:
     log_odds_high: np.ndarray
     brier_score: float
     expected_calibration_error: float
+    maximum_calibration_error: float
+    overconfident: np.ndarray
     mean_predicted_log_odds: np.ndarray
     observed_log_odds: np.ndarray
     observed_log_odds_low: np.ndarray
@@ -97,6 +105,8 @@ def calibration_of(scores: np.ndarray, positive: np.ndarray, n_bins: int, confid
         log_odds_high=frozen([scores[g[-1]] for g in groups]),
         brier_score=float(np.mean((probability - positive) ** 2)),
         expected_calibration_error=float(np.sum(counts / len(scores) * np.abs(observed - mean_predicted))),
+        maximum_calibration_error=float(np.max(np.abs(observed - mean_predicted))),
+        overconfident=frozen(((mean_predicted > 0.5) & (mean_predicted > hi)) | ((mean_predicted < 0.5) & (mean_predicted < lo))),
         mean_predicted_log_odds=frozen(
             [logsumexp(log_expit(scores[g])) - logsumexp(log_expit(-scores[g])) for g in groups]
         ),

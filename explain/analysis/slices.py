@@ -2,19 +2,22 @@
 
 A slice is a set of messages that share something: a value of a column, a
 month or week of a date column, a range of message lengths, or a watchlist
-term. For each slice the false-alarm rate (normal messages flagged, among the
-slice's normal messages) and the miss rate (messages of a flagged class let
-through, among the slice's flagged-class messages) carry Wilson intervals.
+term. For each slice two error rates carry Wilson intervals: the false-alarm
+rate (normal messages flagged, among the slice's normal-class messages) and
+the miss rate (messages of a flagged class let through, among the slice's
+flagged-class messages).
 
-Whether a slice's false-alarm rate differs from that of the other messages
-is tested with Fisher's exact test (two-sided) on the 2x2 table (slice or
-rest) x (false alarm or not), through :func:`scipy.stats.fisher_exact`
-(Fisher 1922, "On the interpretation of chi-square from contingency tables",
-JRSS 85(1)). With many slices some differ by chance, so the p-values of all
-slices tested together are adjusted by the Benjamini-Hochberg procedure
-(Benjamini & Hochberg 1995, "Controlling the false discovery rate", JRSS B
-57(1)) with :func:`scipy.stats.false_discovery_control`; a slice *differs*
-when its adjusted p-value is below ``alpha``.
+Each rate of each slice is tested against the same rate of the other
+messages with Fisher's exact test (two-sided) on the 2x2 table (slice or
+rest) x (error or not), through :func:`scipy.stats.fisher_exact` (Fisher
+1922, "On the interpretation of chi-square from contingency tables", JRSS
+85(1)). With many tests some differ by chance, so the p-values of all tests
+of the table (both rates of every slice, one family) are adjusted together by
+the Benjamini-Hochberg procedure (Benjamini & Hochberg 1995, "Controlling the
+false discovery rate", JRSS B 57(1)) with
+:func:`scipy.stats.false_discovery_control`; a rate of a slice *differs* when
+its adjusted p-value is below ``alpha``, and the slice's verdict says which
+rate differs and in which direction.
 """
 
 from __future__ import annotations
@@ -35,9 +38,13 @@ MAX_SLICES = 60
 SHOWN_CLOSEST = 3
 PERIODS = ("month", "week")
 TEST = (
-    "Fisher's exact test of each slice's false-alarm rate against the rest (two-sided, scipy.stats.fisher_exact); "
-    "p-values adjusted for the number of slices by Benjamini-Hochberg (scipy.stats.false_discovery_control)"
+    "Fisher's exact test of each slice's false-alarm rate and miss rate against the same rate of the other "
+    "messages (two-sided, scipy.stats.fisher_exact); the p-values of all tests of the table adjusted together "
+    "by Benjamini-Hochberg (scipy.stats.false_discovery_control)"
 )
+#: A rate test's outcome: the slice's rate is above or below the rest's (adjusted p < alpha), neither, or
+#: the rate could not be tested (no message of its class in the slice or in the rest).
+OUTCOMES = ("higher", "lower", "no difference", "untested")
 
 
 @dataclass(frozen=True, eq=False)
@@ -50,35 +57,76 @@ class SliceGroup:
 
 
 @dataclass(frozen=True)
-class Slice:
-    """The error rates of one slice, and its false-alarm rate against the other messages.
+class RateTest:
+    """One error rate of a slice against the same rate of the other messages.
 
-    ``p_value`` is Fisher's exact test of the slice against the rest (NaN when
-    either side holds no normal message), ``adjusted_p_value`` after the
-    Benjamini-Hochberg adjustment.
+    ``rate`` is the slice's, ``rest`` the other messages'; ``p_value`` is
+    Fisher's exact test of the 2x2 table ``[[errors in, others in], [errors
+    out, others out]]`` (NaN when the slice or the rest holds no message of
+    the rate's class), ``adjusted_p_value`` after the Benjamini-Hochberg
+    adjustment over every test of the table; ``outcome`` is one of
+    :data:`OUTCOMES`.
+    """
+
+    rate: Rate
+    rest: Rate
+    p_value: float
+    adjusted_p_value: float
+    outcome: str
+
+    @property
+    def differs(self) -> bool:
+        return self.outcome in ("higher", "lower")
+
+
+@dataclass(frozen=True)
+class Slice:
+    """The two error rates of one slice, each tested against the other messages.
+
+    ``verdict`` names what differs, e.g. ``"miss rate higher"``,
+    ``"false-alarm rate lower, miss rate higher"``, ``"no difference"`` or
+    ``"untested"`` (neither rate could be tested).
     """
 
     group: str
     name: str
     n_messages: int
-    false_alarm_rate: Rate
-    miss_rate: Rate
-    rest_false_alarm_rate: Rate
-    p_value: float
-    adjusted_p_value: float
+    false_alarm_test: RateTest
+    miss_test: RateTest
+    verdict: str
+
+    @property
+    def false_alarm_rate(self) -> Rate:
+        return self.false_alarm_test.rate
+
+    @property
+    def miss_rate(self) -> Rate:
+        return self.miss_test.rate
+
+    @property
+    def differs(self) -> bool:
+        return self.false_alarm_test.differs or self.miss_test.differs
+
+    @property
+    def smallest_adjusted_p_value(self) -> float:
+        values = [t.adjusted_p_value for t in (self.false_alarm_test, self.miss_test) if np.isfinite(t.adjusted_p_value)]
+        return min(values) if values else float("nan")
 
 
 @dataclass(frozen=True)
 class SliceReport:
-    """Every slice, by group; the slices that differ, most significant first.
+    """Every slice, by group; the slices where a rate differs, most significant first.
 
     ``most_different`` holds the :data:`SHOWN_CLOSEST` tested slices with the
-    smallest adjusted p-values, whether or not they pass ``alpha``.
+    smallest adjusted p-value (of either rate), whether or not they pass
+    ``alpha``. ``n_tests`` counts the tests adjusted together.
     """
 
     test: str
     alpha: float
     overall_false_alarm_rate: Rate
+    overall_miss_rate: Rate
+    n_tests: int
     slices: tuple[Slice, ...]
     differing: tuple[Slice, ...]
     most_different: tuple[Slice, ...] = ()
@@ -136,44 +184,76 @@ def by_terms(texts, terms) -> SliceGroup:
     return SliceGroup("watchlist term", tuple(terms), members)
 
 
+def _fisher(errors: np.ndarray, population: np.ndarray, member: np.ndarray) -> tuple[int, int, int, int, float]:
+    """Errors and population inside and outside the slice, and Fisher's two-sided p (NaN if a side is empty)."""
+    from scipy.stats import fisher_exact
+
+    k_in, n_in = int((errors & member).sum()), int((population & member).sum())
+    k_out, n_out = int((errors & ~member).sum()), int((population & ~member).sum())
+    p = float("nan")
+    if n_in and n_out:
+        p = float(fisher_exact([[k_in, n_in - k_in], [k_out, n_out - k_out]]).pvalue)
+    return k_in, n_in, k_out, n_out, p
+
+
+def _outcome(rate: Rate, rest: Rate, adjusted: float, alpha: float) -> str:
+    if not np.isfinite(adjusted):
+        return "untested"
+    if adjusted >= alpha:
+        return "no difference"
+    return "higher" if rate.value > rest.value else "lower"
+
+
+def _verdict(fa: RateTest, miss: RateTest) -> str:
+    """What differs in a slice, in words: ``"miss rate higher"``, ``"no difference"`` ..."""
+    parts = [f"{name} {t.outcome}" for name, t in (("false-alarm rate", fa), ("miss rate", miss)) if t.differs]
+    if parts:
+        return ", ".join(parts)
+    if fa.outcome == miss.outcome == "untested":
+        return "untested"
+    return "no difference"
+
+
 def slice_report(
     groups, truth_flagged: np.ndarray, decided_flagged: np.ndarray, confidence: float, alpha: float = 0.05
 ) -> SliceReport:
-    """Rates per slice and the test of each against the rest.
+    """Both error rates per slice and the test of each against the rest.
 
     ``truth_flagged``/``decided_flagged`` are bool arrays (n,): a message
-    belongs to a flagged class / was flagged. Empty slices are left out.
+    belongs to a flagged class / was flagged. Empty slices are left out. The
+    p-values of every test (two per slice) form one Benjamini-Hochberg family.
     """
-    from scipy.stats import false_discovery_control, fisher_exact
+    from scipy.stats import false_discovery_control
 
     normal = ~truth_flagged
-    false_alarm = normal & decided_flagged
-    missed = truth_flagged & ~decided_flagged
+    errors = ((normal & decided_flagged, normal), (truth_flagged & ~decided_flagged, truth_flagged))
     rows = []
     for group in groups:
         for name, member in zip(group.slices, np.asarray(group.members, dtype=bool)):
-            if not member.any():
-                continue
-            fa_in, n_in = int((false_alarm & member).sum()), int((normal & member).sum())
-            fa_out, n_out = int((false_alarm & ~member).sum()), int((normal & ~member).sum())
-            p = float("nan")
-            if n_in and n_out:
-                p = float(fisher_exact([[fa_in, n_in - fa_in], [fa_out, n_out - fa_out]]).pvalue)
-            rows.append((group.name, name, int(member.sum()), rate_of(fa_in, n_in, confidence),
-                         rate_of(int((missed & member).sum()), int((truth_flagged & member).sum()), confidence),
-                         rate_of(fa_out, n_out, confidence), p))
-    p_values = np.array([r[-1] for r in rows], dtype=float)
-    adjusted = np.full(len(rows), np.nan)
+            if member.any():
+                rows.append((group.name, name, int(member.sum()), [_fisher(e, pop, member) for e, pop in errors]))
+    p_values = np.array([t[-1] for *_, tests in rows for t in tests], dtype=float)
+    adjusted = np.full(len(p_values), np.nan)
     tested = np.isfinite(p_values)
     if tested.any():
         adjusted[tested] = false_discovery_control(p_values[tested], method="bh")
-    slices = tuple(Slice(*row, float(a)) for row, a in zip(rows, adjusted))
+    slices = []
+    for i, (group, name, n, tests) in enumerate(rows):
+        made = []
+        for (k_in, n_in, k_out, n_out, p), adj in zip(tests, adjusted[2 * i: 2 * i + 2]):
+            rate, rest = rate_of(k_in, n_in, confidence), rate_of(k_out, n_out, confidence)
+            made.append(RateTest(rate, rest, p, float(adj), _outcome(rate, rest, float(adj), alpha)))
+        slices.append(Slice(group, name, n, made[0], made[1], _verdict(*made)))
     ranked = sorted(
-        (s for s in slices if np.isfinite(s.adjusted_p_value)), key=lambda s: (s.adjusted_p_value, s.p_value, s.group, s.name)
+        (s for s in slices if np.isfinite(s.smallest_adjusted_p_value)),
+        key=lambda s: (s.smallest_adjusted_p_value, s.group, s.name),
     )
-    differing = tuple(s for s in ranked if s.adjusted_p_value < alpha)
-    overall = rate_of(int(false_alarm.sum()), int(normal.sum()), confidence)
-    return SliceReport(TEST, alpha, overall, slices, differing, tuple(ranked[:SHOWN_CLOSEST]))
+    return SliceReport(
+        TEST, alpha,
+        rate_of(int(errors[0][0].sum()), int(normal.sum()), confidence),
+        rate_of(int(errors[1][0].sum()), int(truth_flagged.sum()), confidence),
+        int(tested.sum()), tuple(slices), tuple(s for s in ranked if s.differs), tuple(ranked[:SHOWN_CLOSEST]),
+    )
 
 
 def parse_slice_spec(spec: str) -> tuple[str, str | None]:

@@ -9,7 +9,9 @@ through Robustness", AIES 2019). Their *counterfactual token fairness gap*
 of a message ``x`` with counterfactuals ``Phi(x)`` is
 ``mean over x' in Phi(x) of |f(x) - f(x')|``, here with ``f`` = P(flag);
 a group's gap is the mean over the messages holding one of its terms, a term
-pair's gap the mean over the messages holding the first term.
+pair's gap the mean over the messages holding the first term. A group or a
+pair that no message holds is *untested*: its gap is None (null in JSON),
+never 0, which would read as "treated alike".
 
 A substitution changes only the counts of the two tokens (for a word
 analyzer of single words), so the new rows are built from the count matrix
@@ -78,7 +80,8 @@ class PairShift:
     """Swapping ``source`` for ``target`` in every message holding ``source``.
 
     Shifts are target minus source; ``gap`` is the mean absolute change in
-    P(flag) (Garg et al.'s gap restricted to this pair).
+    P(flag) (Garg et al.'s gap restricted to this pair). A pair whose source
+    no message holds is untested: ``messages`` 0 and the shifts and gap None.
     """
 
     group: str
@@ -86,20 +89,31 @@ class PairShift:
     target: str
     messages: int
     decisions_changed: int
-    mean_log_odds_shift: float
-    mean_probability_shift: float
-    gap: float
+    mean_log_odds_shift: float | None
+    mean_probability_shift: float | None
+    gap: float | None
+
+    @property
+    def tested(self) -> bool:
+        return self.messages > 0
 
 
 @dataclass(frozen=True)
 class GroupFairness:
-    """One group over the data: messages holding a term, swaps scored, decisions changed, the gap."""
+    """One group over the data: messages holding a term, swaps scored, decisions changed, the gap.
+
+    ``gap`` is None when no message holds a term of the group (untested).
+    """
 
     group: str
     messages: int
     swaps: int
     decisions_changed: int
-    gap: float
+    gap: float | None
+
+    @property
+    def tested(self) -> bool:
+        return self.messages > 0
 
 
 @dataclass(frozen=True, eq=False)
@@ -354,6 +368,7 @@ def substitute(featurizer, text: str, source: str, target: str) -> str:
 
 
 def _pairs(terms, group_name, src, tgt, message, lo_shift, p_shift, changed) -> tuple[PairShift, ...]:
+    """Every ordered pair of every group; those whose source no message holds are untested (None figures)."""
     out = []
     for group in terms.groups:
         for a in group.terms:
@@ -362,6 +377,7 @@ def _pairs(terms, group_name, src, tgt, message, lo_shift, p_shift, changed) -> 
                     continue
                 sel = (group_name == group.name) & (src == a) & (tgt == b)
                 if not sel.any():
+                    out.append(PairShift(group.name, a, b, 0, 0, None, None, None))
                     continue
                 out.append(
                     PairShift(
@@ -382,7 +398,7 @@ def _groups(terms, group_name, message, p_shift, changed) -> tuple[GroupFairness
         out.append(
             GroupFairness(
                 group.name, int(len(held)), int(sel.sum()), int(changed[sel].sum()),
-                float(gaps.mean()) if len(gaps) else 0.0,
+                float(gaps.mean()) if len(gaps) else None,
             )
         )
     return tuple(out)

@@ -127,6 +127,9 @@ def reliability_picture(result: Assessment) -> bytes:
     edge = ~np.isfinite(y)
     ax.plot(x[~edge], shown[~edge], "o-", color=family.base,
             label=f"bins of about {int(np.median(cal.counts))} messages ({100 * result.confidence:g} % Wilson intervals)")
+    over = np.asarray(cal.overconfident, dtype=bool)
+    if over.any():
+        ax.plot(x[over], shown[over], "s", color=family.shade(0.9), ms=6, label="overconfident bin")
     if edge.any():
         ax.plot(x[edge], shown[edge], "v" if np.all(y[edge] < 0) else "^", mfc="none", color=family.base,
                 label="observed share 0 or 1 (drawn at the edge)")
@@ -135,7 +138,9 @@ def reliability_picture(result: Assessment) -> bytes:
     ax.set_xlabel("mean P(flag), as flag log-odds")
     ax.set_ylabel("observed share flagged-class, as log-odds")
     ax.set_title(
-        f"reliability: Brier {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f}",
+        f"reliability: Brier {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f},\n"
+        f"maximum calibration error {cal.maximum_calibration_error:.4f}, "
+        f"{int(np.sum(cal.overconfident))} of {cal.n_bins} bins overconfident (filled squares)",
         fontsize=10,
     )
     ax.grid(alpha=0.3)
@@ -166,25 +171,35 @@ def score_picture(result: Assessment) -> bytes:
 
 
 def slices_picture(result: Assessment) -> bytes:
-    """False-alarm rate per slice with its Wilson interval, the rate over all messages as a line."""
+    """Both error rates per slice with their Wilson intervals, each rate over all messages as a line.
+
+    Left the false-alarm rate, right the miss rate; a rate that differs from
+    the rest's (adjusted p < alpha) is drawn in colour.
+    """
     rep = result.slices
-    shown = [s for s in rep.slices if s.false_alarm_rate.denominator > 0]
-    fig = Figure(figsize=(7, 1.2 + 0.28 * len(shown)))
-    ax = fig.subplots()
+    shown = list(rep.slices)
+    fig = Figure(figsize=(7, 1.3 + 0.28 * len(shown)))
+    axes = fig.subplots(1, 2, sharey=True)
     y = np.arange(len(shown))[::-1]
-    differs = {(s.group, s.name) for s in rep.differing}
-    for yi, s in zip(y, shown):
-        r = s.false_alarm_rate
-        colour = PALETTE[2].base if (s.group, s.name) in differs else NEUTRAL.shade(0.7)
-        ax.errorbar(100 * r.value, yi, xerr=[[100 * (r.value - r.low)], [100 * (r.high - r.value)]], fmt="o",
-                    color=colour, capsize=2, ms=4)
-    overall = rep.overall_false_alarm_rate
-    ax.axvline(100 * overall.value, color=MARK, ls="--", lw=1, label=f"all messages {100 * overall.value:.2f} %")
-    ax.set_yticks(y, [f"{s.group}: {s.name}" for s in shown], fontsize=7)
-    ax.set_xlabel(f"false-alarm rate, % ({100 * result.confidence:g} % Wilson intervals)")
-    ax.set_title(f"false-alarm rate per slice (differing at adjusted p < {rep.alpha:g} in colour)", fontsize=9)
-    ax.grid(alpha=0.3, axis="x")
-    ax.legend(fontsize=7, loc="upper right")
+    panels = (("false-alarm rate", "false_alarm_test", rep.overall_false_alarm_rate),
+              ("miss rate", "miss_test", rep.overall_miss_rate))
+    for ax, (title, key, overall) in zip(axes, panels):
+        for yi, s in zip(y, shown):
+            t = getattr(s, key)
+            if t.rate.denominator == 0:
+                continue
+            r = t.rate
+            colour = PALETTE[2].base if t.differs else NEUTRAL.shade(0.7)
+            ax.errorbar(100 * r.value, yi, xerr=[[100 * (r.value - r.low)], [100 * (r.high - r.value)]], fmt="o",
+                        color=colour, capsize=2, ms=4)
+        ax.axvline(100 * overall.value, color=MARK, ls="--", lw=1, label=f"all messages {100 * overall.value:.1f} %")
+        ax.set_xlabel(f"{title}, %", fontsize=8)
+        ax.set_title(title, fontsize=9)
+        ax.grid(alpha=0.3, axis="x")
+        ax.legend(fontsize=7, loc="upper right")
+    axes[0].set_yticks(y, [f"{s.group}: {s.name}" for s in shown], fontsize=7)
+    fig.suptitle(f"error rates per slice ({100 * result.confidence:g} % Wilson intervals; "
+                 f"differing at adjusted p < {rep.alpha:g} in colour)", fontsize=9)
     return png_bytes(fig)
 
 

@@ -335,17 +335,21 @@ def _calibration(result: Assessment, console: Console) -> None:
     console.print(
         Text.assemble(
             ("calibration", "bold"),
-            f": Brier score {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f} "
-            f"({cal.n_bins} bins of equal count)",
+            f": Brier score {cal.brier_score:.4f}, expected calibration error {cal.expected_calibration_error:.4f}, "
+            f"maximum calibration error {cal.maximum_calibration_error:.4f} ({cal.n_bins} bins of equal count)",
         )
     )
+    over = [str(b + 1) for b in np.flatnonzero(cal.overconfident)]
+    _say(console, f"overconfident bins (mean P(flag) beyond the observed share's interval, away from 1/2): "
+                  f"{', '.join(over) if over else 'none'}")
     rows = [
         [str(b + 1), _count(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
          prob(cal.mean_predicted[b]),
-         _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b])]
+         _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b]),
+         "overconfident" if cal.overconfident[b] else ""]
         for b in range(cal.n_bins)
     ]
-    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class"], rows)
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class", ""], rows)
     s = result.scores
     rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
     _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)
@@ -397,22 +401,25 @@ def _slices(result: Assessment, console: Console) -> None:
     if rep is None:
         return
     rows = [
-        [Text(f"{s.group}: {s.name}"), _count(s.n_messages), _rate(s.false_alarm_rate), _rate(s.miss_rate),
-         _num(s.adjusted_p_value, 4)]
+        [Text(f"{s.group}: {s.name}"), _count(s.n_messages), _rate(s.false_alarm_rate),
+         _num(s.false_alarm_test.adjusted_p_value, 4), _rate(s.miss_rate), _num(s.miss_test.adjusted_p_value, 4)]
         for s in rep.slices
     ]
     _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",
-          ["slice", "messages", "false-alarm\nrate", "miss rate", "adjusted\np-value"], rows)
-    _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}. Test: {rep.test}.")
-    shown_slices = rep.differing or rep.most_different
+          ["slice", "messages", "false-alarm\nrate", "adjusted\np-value", "miss rate", "adjusted\np-value"], rows)
+    _say(console, f"all messages: false-alarm rate {_rate(rep.overall_false_alarm_rate)}, miss rate "
+                  f"{_rate(rep.overall_miss_rate)}. Test: {rep.test} ({rep.n_tests} tests).")
     if rep.differing:
-        _say(console, f"false-alarm rate differs from the rest (adjusted p < {rep.alpha:g}):", "bold")
+        _say(console, f"slices where a rate differs from the rest's (adjusted p < {rep.alpha:g}):", "bold")
     else:
-        _say(console, f"no slice's false-alarm rate differs from the rest's at adjusted p < {rep.alpha:g}; "
-                      "the closest:")
-    for s in shown_slices:
-        _say(console, f"  {s.group}: {s.name}: {_rate(s.false_alarm_rate)} against {_rate(s.rest_false_alarm_rate)} "
-                      f"for the rest (p {s.p_value:.2g}, adjusted {s.adjusted_p_value:.2g})")
+        _say(console, f"no slice's false-alarm rate or miss rate differs from the rest's at adjusted p < "
+                      f"{rep.alpha:g}; the closest:")
+    for s in rep.differing or rep.most_different:
+        _say(console, f"  {s.group}: {s.name}: {s.verdict}")
+        for label, t in (("false-alarm rate", s.false_alarm_test), ("miss rate", s.miss_test)):
+            if t.outcome != "untested":
+                _say(console, f"    {label} {_rate(t.rate)} against {_rate(t.rest)} for the rest "
+                              f"(p {t.p_value:.2g}, adjusted {t.adjusted_p_value:.2g})")
 
 
 def _label_errors(result: Assessment, console: Console) -> None:

@@ -16,9 +16,12 @@ and ``attacks`` (``row``, ``decided``, ``cost``: null when not evaded,
 ``additions`` as ``{token, occurrences}``); ``term_evidence`` (``group``,
 ``term``, ``token``, ``known``, ``evidence`` keyed by class, ``support``);
 ``swap_notes``; ``term_swaps`` (null without data): ``groups`` (``group``,
-``messages``, ``swaps``, ``decisions_changed``, ``fairness_gap``) and ``pairs``
-(``group``, ``source``, ``target``, ``messages``, ``decisions_changed``,
-``mean_log_odds_shift``, ``mean_flag_probability_shift``, ``fairness_gap``).
+``messages``, ``swaps``, ``decisions_changed``, ``fairness_gap``, ``tested``) and
+``pairs`` (``group``, ``source``, ``target``, ``messages``, ``decisions_changed``,
+``mean_log_odds_shift``, ``mean_flag_probability_shift``, ``fairness_gap``,
+``tested``): a group or pair that no message holds is untested, ``tested``
+false with ``messages`` 0 and null shifts and gap (never 0, which would read
+as fair).
 """
 
 from __future__ import annotations
@@ -102,29 +105,52 @@ def render(result: ProbeResult, console) -> None:
         console.print(table)
     for note in result.swap_notes:
         console.print(f"swap-terms: {shown(note)}")
-    sw = result.swaps
-    if sw is not None:
-        console.print()
-        table = Table(title="Term swaps: counterfactual token fairness gap (Garg et al. 2019)", title_justify="left")
-        for name in ("group", "messages", "swaps", "decisions changed", "gap"):
-            table.add_column(name, justify="left" if name == "group" else "right")
-        for g in sw.groups:
-            table.add_row(shown(g.group), f"{g.messages:,}", f"{g.swaps:,}", f"{g.decisions_changed:,}", f"{g.gap:.4f}")
-        console.print(table)
-        if sw.pairs:
-            ranked = sorted(sw.pairs, key=lambda p: -p.gap)[:PAIRS_SHOWN]
-            pairs = Table(title=f"largest term pairs (of {len(sw.pairs)})", title_justify="left")
-            for name in ("swap", "messages", "changed", "flag log-odds shift", "P(flag) shift", "gap"):
-                pairs.add_column(name, justify="left" if name == "swap" else "right")
-            for p in ranked:
-                pairs.add_row(
-                    f"{shown(p.source)} -> {shown(p.target)}", f"{p.messages:,}", f"{p.decisions_changed:,}",
-                    amount(p.mean_log_odds_shift), f"{p.mean_probability_shift:+.4f}", f"{p.gap:.4f}",
-                )
-            console.print(pairs)
+    if result.swaps is not None:
+        _print_swaps(result.swaps, console)
     console.print()
     for caution in CAUTIONS:
         console.print(f"[dim]{caution}[/dim]")
+
+
+def untested_pairs(pairs) -> list[tuple[str, str, int]]:
+    """``(group, source term, pairs)`` for every source term no message holds, in file order."""
+    out: dict[tuple[str, str], int] = {}
+    for p in pairs:
+        if not p.tested:
+            out[(p.group, p.source)] = out.get((p.group, p.source), 0) + 1
+    return [(g, t, n) for (g, t), n in out.items()]
+
+
+def _print_swaps(sw, console) -> None:
+    """Tested groups and pairs in tables; what no message holds listed apart as untested, never as a gap of 0."""
+    console.print()
+    table = Table(title="Term swaps: counterfactual token fairness gap (Garg et al. 2019)", title_justify="left")
+    for name in ("group", "messages", "swaps", "decisions changed", "gap"):
+        table.add_column(name, justify="left" if name == "group" else "right")
+    for g in sw.groups:
+        if g.tested:
+            table.add_row(shown(g.group), f"{g.messages:,}", f"{g.swaps:,}", f"{g.decisions_changed:,}", f"{g.gap:.4f}")
+    if any(g.tested for g in sw.groups):
+        console.print(table)
+    tested = [p for p in sw.pairs if p.tested]
+    if tested:
+        ranked = sorted(tested, key=lambda p: -p.gap)[:PAIRS_SHOWN]
+        pairs = Table(title=f"largest term pairs (of {len(tested)} tested)", title_justify="left")
+        for name in ("swap", "messages", "changed", "flag log-odds shift", "P(flag) shift", "gap"):
+            pairs.add_column(name, justify="left" if name == "swap" else "right")
+        for p in ranked:
+            pairs.add_row(
+                f"{shown(p.source)} -> {shown(p.target)}", f"{p.messages:,}", f"{p.decisions_changed:,}",
+                amount(p.mean_log_odds_shift), f"{p.mean_probability_shift:+.4f}", f"{p.gap:.4f}",
+            )
+        console.print(pairs)
+    untested_groups = [g.group for g in sw.groups if not g.tested]
+    if untested_groups:
+        console.print(f"untested (0 messages), no gap: {', '.join(shown(g) for g in untested_groups)}")
+    terms = [(g, t, n) for g, t, n in untested_pairs(sw.pairs) if g not in untested_groups]
+    if terms:
+        listed = ", ".join(f"{shown(t)} ({shown(g)}, {plural(n, 'pair')})" for g, t, n in terms)
+        console.print(f"term pairs untested (0 messages hold the term), no gap: {listed}")
 
 
 def _none_if_beyond(value):
@@ -188,13 +214,14 @@ def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
         "term_swaps": None if sw is None else {
             "groups": [
                 {"group": g.group, "messages": g.messages, "swaps": g.swaps,
-                 "decisions_changed": g.decisions_changed, "fairness_gap": g.gap}
+                 "decisions_changed": g.decisions_changed, "fairness_gap": g.gap, "tested": g.tested}
                 for g in sw.groups
             ],
             "pairs": [
                 {"group": p.group, "source": p.source, "target": p.target, "messages": p.messages,
                  "decisions_changed": p.decisions_changed, "mean_log_odds_shift": p.mean_log_odds_shift,
-                 "mean_flag_probability_shift": p.mean_probability_shift, "fairness_gap": p.gap}
+                 "mean_flag_probability_shift": p.mean_probability_shift, "fairness_gap": p.gap,
+                 "tested": p.tested}
                 for p in sw.pairs
             ],
         },

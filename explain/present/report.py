@@ -55,7 +55,7 @@ def environment():
         keep_trailing_newline=True,
     )
     env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, share=_share, probability=wording.probability_of_log_odds,
-                       exact=_exact, prob=_prob, flag_label=lambda name: FLAG_LABELS.get(name, name))
+                       exact=_exact, prob=_prob, pvalue=_pvalue, flag_label=lambda name: FLAG_LABELS.get(name, name))
     return env
 
 
@@ -82,6 +82,11 @@ def _pct(x, digits: int = 1) -> str:
 
 def _num(x, digits: int = 3) -> str:
     return "–" if x is None else f"{x:.{digits}f}"
+
+
+def _pvalue(x) -> str:
+    """A p-value to three significant figures; an untested one (null) as a dash."""
+    return "–" if x is None else f"{x:.3g}"
 
 
 def _count(x) -> str:
