@@ -16,9 +16,19 @@ Checks made when a path is declared (so a run never computes for nothing):
   card, the data, a symbolic link to one of them) is refused;
 - an existing symbolic link, folder, device or other special file at the
   target is refused (never replaced by a plain file);
+- two outputs of one run that are the same path or the same file (a link,
+  ``./a`` and ``a``, a file inside a declared data set folder) are refused;
 - a folder that does not exist is created at the end, but the nearest existing
   folder above it must be a folder in which we can write: a staging folder
-  (``.nbledger-XXXX``) is made there at once, which also proves it is writable.
+  (``.nbledger-XXXX``) is made there at once, which also proves it is writable;
+- a data set folder (:meth:`OutputSet.dataset`, replaced whole) must be new,
+  empty or hold only the ``part.NNNNN.parquet`` files an earlier run wrote:
+  anything else in it (or a file, link, FIFO or device in its place) is refused.
+
+Staged files are named by a number and the target's suffixes (``3.csv.gz``),
+so a staged name stays short whatever the target's length (``NAME_MAX``) and
+is never shown to the user. Use the ``with`` block from the first declaration:
+a refused declaration then removes the staging folder too.
 
 Files are written into the staging folder. When the ``with`` block ends
 normally, they are moved into place with ``os.replace`` while SIGINT and
@@ -32,6 +42,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import re
 import shutil
 import signal
 import stat
@@ -41,6 +52,10 @@ from pathlib import Path
 from explain.errors import NbledgerError
 
 _HELD = {signal.SIGINT, signal.SIGTERM}
+#: The files a data set folder written by :meth:`OutputSet.dataset` holds.
+DATASET_PART = re.compile(r"part\.\d{5}\.parquet")
+#: Longest suffix kept on a staged name (the rest of a staged name is a number).
+_SUFFIX_KEPT = 24
 
 
 def _usual_mode() -> int:
@@ -93,7 +108,9 @@ class OutputSet:
         self._inputs = [Path(p) for p in inputs if p is not None and os.path.lexists(p)]
         self._targets: dict[Path, Path] = {}  # target -> staged path
         self._folders: list[Path] = []
+        self._datasets: dict[Path, Path] = {}  # target folder -> staged folder
         self._stages: dict[Path, Path] = {}  # existing ancestor -> staging folder
+        self._count = 0
 
     # --- declaring -------------------------------------------------------
 
@@ -101,6 +118,7 @@ class OutputSet:
         """Declare an output file; refuse it now if it can never be written safely."""
         path = Path(path)
         self._check_not_input(path)
+        self._check_not_other_output(path)
         if os.path.lexists(path):
             mode = os.lstat(path).st_mode
             if stat.S_ISLNK(mode):
@@ -113,24 +131,69 @@ class OutputSet:
         self._targets.setdefault(path, None)
         return path
 
-    def folder(self, path) -> Path:
-        """Declare a folder whose files (written with :meth:`write`) are outputs."""
+    def folder(self, path, suffixes=(".png",)) -> Path:
+        """Declare a folder whose files (written with :meth:`write`) are outputs.
+
+        Refused now if it is an input, or holds an input whose suffix is one of
+        ``suffixes`` (the kind of file the run will write into it).
+        """
         path = Path(path)
+        self._check_not_input(path)
         if os.path.lexists(path):
             mode = os.lstat(path).st_mode
             if stat.S_ISLNK(mode) and not path.is_dir():
                 raise NbledgerError(f"{path} is a symbolic link to something that is not a folder")
             if not path.is_dir():
                 raise NbledgerError(f"{path} must be a folder; it is a file")
+            for source in self._inputs:
+                if source.suffix.lower() in suffixes and _same_file(source.parent, path):
+                    raise NbledgerError(
+                        f"{path} holds {source.name}, an input of this run, which the run could overwrite; choose another folder"
+                    )
         self._stage_for(path)
         self._folders.append(path)
         return path
+
+    def dataset(self, path) -> Path:
+        """Declare a folder that the run writes whole (a Parquet data set) and that replaces ``path`` at the end.
+
+        Refused now unless ``path`` is new, or a real folder (not a link) that is
+        empty or holds only ``part.NNNNN.parquet`` files; nor may it be or hold
+        an input, or another output. The run writes into :meth:`staged_folder`.
+        """
+        path = Path(path)
+        self._check_not_input(path)
+        self._check_not_other_output(path)
+        for source in self._inputs:
+            if _inside(source, path):
+                raise NbledgerError(f"refusing to replace the folder {path}: it holds {source.name}, an input of this run")
+        _check_dataset_folder(path)
+        self._datasets[path] = None
+        self._stage_for(path.parent)
+        return path
+
+    def staged_folder(self, path) -> Path:
+        """The temporary folder where the data set ``path`` (declared with :meth:`dataset`) is to be written."""
+        path = Path(path)
+        if path not in self._datasets:
+            raise ValueError(f"{path} was not declared as a data set")
+        if self._datasets[path] is None:
+            self._count += 1
+            folder = self._stage_for(path.parent) / f"{self._count}.d"
+            folder.mkdir()
+            self._datasets[path] = folder
+        return self._datasets[path]
 
     def not_input(self, path) -> Path:
         """Refuse ``path`` now if it is (or resolves to) an input of the run; for outputs written elsewhere."""
         path = Path(path)
         self._check_not_input(path)
         return path
+
+    def _check_not_other_output(self, path: Path) -> None:
+        for other in [*self._targets, *self._datasets]:
+            if other == path or _same_file(path, other) or _inside(path, other) or _inside(other, path):
+                raise NbledgerError(f"{path} and {other} are both outputs of this run; give each its own name")
 
     def _check_not_input(self, path: Path) -> None:
         for source in self._inputs:
@@ -158,7 +221,8 @@ class OutputSet:
             self.file(path)
         if self._targets[path] is None:
             stage = self._stage_for(path.parent)
-            self._targets[path] = stage / f"{len(self._targets)}-{path.name}"
+            self._count += 1
+            self._targets[path] = stage / f"{self._count}{_kept_suffix(path)}"
         return self._targets[path]
 
     def write(self, path, data: bytes | str) -> Path:
@@ -191,9 +255,67 @@ class OutputSet:
         for target, staged in ready:
             mode = stat.S_IMODE(os.stat(target).st_mode) if target.exists() else _usual_mode()
             os.chmod(staged, mode)
+        folders = [(t, s) for t, s in self._datasets.items() if s is not None]
+        for target, staged in folders:
+            _check_dataset_folder(target)  # again: it may have changed while we computed
+            os.chmod(staged, 0o777 & ~_umask())
         for target, staged in ready:
             target.parent.mkdir(parents=True, exist_ok=True)
             os.replace(staged, target)
+        for target, staged in folders:
+            target.parent.mkdir(parents=True, exist_ok=True)
+            if os.path.lexists(target):  # an earlier run's parts: moved into the staging folder, removed with it
+                os.replace(target, staged.with_name(staged.name + ".old"))
+            os.replace(staged, target)
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def _inside(path: Path, folder: Path) -> bool:
+    """Whether ``path`` lies (lexically or once resolved) strictly inside ``folder``."""
+    a, b = Path(os.path.abspath(path)), Path(os.path.abspath(folder))
+    if b in a.parents:
+        return True
+    try:
+        return Path(os.path.realpath(folder)) in Path(os.path.realpath(path)).parents
+    except OSError:
+        return False
+
+
+def _kept_suffix(path: Path) -> str:
+    """The target's suffixes (``.csv.gz``) for its staged name, when short and plain; else its last suffix, cut."""
+    kept = "".join(path.suffixes[-2:])
+    if len(kept) > _SUFFIX_KEPT or not kept.replace(".", "").isalnum():
+        kept = path.suffix if path.suffix[1:].isalnum() else ""
+    return kept[:_SUFFIX_KEPT]
+
+
+def _check_dataset_folder(path: Path) -> None:
+    """Refuse ``path`` as a data set folder unless new, or a real folder holding only ``part.NNNNN.parquet`` files."""
+    if not os.path.lexists(path):
+        return
+    mode = os.lstat(path).st_mode
+    if stat.S_ISLNK(mode):
+        raise NbledgerError(f"{path} is a symbolic link; nbledger does not replace links, give the real path")
+    if not stat.S_ISDIR(mode):
+        kind = "a file" if stat.S_ISREG(mode) else "a special file (device, pipe or socket)"
+        raise NbledgerError(f"{path} is {kind}; a Parquet data set needs a new or empty folder")
+    foreign = []
+    with os.scandir(path) as entries:
+        for entry in entries:
+            if not (DATASET_PART.fullmatch(entry.name) and entry.is_file(follow_symlinks=False)):
+                foreign.append(entry.name)
+                if len(foreign) == 3:
+                    break
+    if foreign:
+        raise NbledgerError(
+            f"{path} holds files this run would not write ({', '.join(sorted(foreign))}); "
+            "a Parquet data set replaces its whole folder, so give a new or empty folder"
+        )
 
 
 def write_atomic(path, data: bytes | str) -> None:
@@ -207,3 +329,15 @@ def atomic_path(path):
     """Yield a temporary path; when the block succeeds it becomes ``path``."""
     with OutputSet() as outputs:
         yield outputs.staged(outputs.file(path))
+
+
+@contextlib.contextmanager
+def atomic_folder(path):
+    """Yield a temporary folder; when the block succeeds it replaces the data set folder ``path``.
+
+    ``path`` is checked as :meth:`OutputSet.dataset` says (new, empty, or only
+    ``part.NNNNN.parquet`` files; never a file, link or device).
+    """
+    with OutputSet() as outputs:
+        outputs.dataset(path)
+        yield outputs.staged_folder(path)

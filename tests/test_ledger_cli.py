@@ -46,13 +46,16 @@ def leftovers(folder: Path, name: str) -> list:
 
 
 def staged_size(folder: Path, name: str) -> int:
-    """Bytes written so far to the staged copy of output ``name``, or to its temporary file (0 before either exists)."""
+    """Bytes written so far to the staged copy of output ``name``, or to its temporary file (0 before either exists).
+
+    Staged names are a number and the target's suffixes (``3.parquet``), never the target's own name.
+    """
     sizes = []
     for stage in folder.glob(".nbledger-*"):
         for where, _, files in os.walk(stage):
             for file in files:
                 try:
-                    sizes.append(os.stat(os.path.join(where, file)).st_size if name in file else 0)
+                    sizes.append(os.stat(os.path.join(where, file)).st_size if file.endswith(Path(name).suffix) else 0)
                 except OSError:  # renamed or removed while we looked
                     pass
     return max(sizes, default=0)

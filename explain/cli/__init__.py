@@ -23,6 +23,7 @@ from typer.exceptions import TyperException
 
 from explain.errors import NbledgerError
 from explain.output_files import OutputSet
+from explain.run_folder import run_scope
 from explain.present.token_display import make_console, safe_line, safe_text
 
 app = typer.Typer(
@@ -255,7 +256,8 @@ def run(argv: list[str]) -> int:
             # Unclosed files after an interrupt are the interpreter's housekeeping, not the user's concern.
             warnings.simplefilter("ignore", ResourceWarning)
             warnings.showwarning = _library_warning
-            return _run(argv)
+            with run_scope():
+                return _run(argv)
     finally:
         sys.unraisablehook = old_hook
         for s, handler in old.items():

@@ -115,38 +115,46 @@ def ledger(
         raise NbledgerError("--scheduler and --workers need --engine dask")
     if scheduler is not None and workers is not None:
         raise NbledgerError("give --scheduler or --workers, not both")
-    from explain.present.ledger_files import LEDGER_FORMATS
+    from explain.present.ledger_files import DRIVER_FORMATS, LEDGER_FORMATS, output_format
 
-    # The ledger and its flag drivers are one transaction, and neither may replace an input of the run.
-    outputs = OutputSet(inputs=[*model_inputs(model, vectorizer), *data])
     single = engine == "local" or out.suffix.lower() in LEDGER_FORMATS or out.name.lower().endswith((".csv.gz", ".jsonl.gz"))
+    # Formats are checked on the names the user gave, before anything is staged or computed.
     if single:
-        outputs.file(out)
-    else:
-        outputs.not_input(out)  # a Parquet data set folder, put in place whole by the Dask engine
+        output_format(out, LEDGER_FORMATS, "ledger")
     if summary is not None:
-        outputs.file(summary)
-    loaded = load_model_or_fail(
-        model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
-    )
+        output_format(summary, DRIVER_FORMATS, "flag-driver")
     progress = LedgerProgress()
-    options = dict(
-        id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
-        threshold=threshold, progress=progress,
-    )
+    started = False
     try:
-        with outputs, _progress_display() as show:
-            target = outputs.staged(out) if single else out
-            staged_summary = outputs.staged(summary) if summary is not None else None
-            if engine == "dask":
-                from explain.present.ledger_dask import write_ledger_dask
-
-                write_ledger_dask(
-                    loaded, data, text_col, target, scheduler=scheduler, workers=workers or 2,
-                    connect_timeout=connect_timeout, on_chunk=show, summary=staged_summary, **options,
-                )
+        # The ledger and its flag drivers are one transaction, and neither may replace an input of the run
+        # nor each other; the block is entered first, so a refused path leaves no staging folder behind.
+        with OutputSet(inputs=[*model_inputs(model, vectorizer), *data]) as outputs:
+            if single:
+                outputs.file(out)
             else:
-                write_ledger(loaded, data, text_col, target, on_chunk=show, summary=staged_summary, **options)
+                outputs.dataset(out)  # a Parquet data set folder, put in place whole
+            if summary is not None:
+                outputs.file(summary)
+            loaded = load_model_or_fail(
+                model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+            )
+            options = dict(
+                id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
+                threshold=threshold, progress=progress,
+            )
+            started = True
+            with _progress_display() as show:
+                target = outputs.staged(out) if single else outputs.staged_folder(out)
+                staged_summary = outputs.staged(summary) if summary is not None else None
+                if engine == "dask":
+                    from explain.present.ledger_dask import write_ledger_dask
+
+                    write_ledger_dask(
+                        loaded, data, text_col, target, scheduler=scheduler, workers=workers or 2,
+                        connect_timeout=connect_timeout, on_chunk=show, summary=staged_summary, **options,
+                    )
+                else:
+                    write_ledger(loaded, data, text_col, target, on_chunk=show, summary=staged_summary, **options)
     except (KeyboardInterrupt, Interrupted) as stop:
         signum = getattr(stop, "signum", signal.SIGINT)
         name = signal.Signals(signum).name
@@ -155,6 +163,8 @@ def ledger(
         )
         raise typer.Exit(128 + signum) from None
     except NbledgerError as exc:
+        if not started:
+            raise  # refused before any work: the plain one-line error
         err_console.print(f"error: {exc}; stopped {_how_far(progress)}, nothing was written to {out}", markup=False, soft_wrap=True)
         raise typer.Exit(EXIT_USER_ERROR) from None
     _report(progress, out, summary)

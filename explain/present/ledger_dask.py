@@ -25,16 +25,13 @@ from __future__ import annotations
 
 import contextlib
 import logging
-import os
-import shutil
-import tempfile
 import time
 from pathlib import Path
 
 import numpy as np
 
 from explain.errors import NbledgerError
-from explain.output_files import atomic_path
+from explain.output_files import atomic_folder, atomic_path
 from explain.present.ledger_files import (
     LEDGER_FORMATS,
     IdCounter,
@@ -141,39 +138,18 @@ def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
     # default (MALLOC_TRIM_THRESHOLD_=65536) hands freed pages back at once, so
     # every large temporary array faults in fresh pages, about a third slower here.
     # They need no sampling profiler either (a stack walk every 10 ms).
+    # Its scratch space (spilled data, locks) lives in the run's own temporary folder, removed with it.
+    from explain.run_folder import run_folder
+
+    scratch = str(run_folder())
     with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
-                          "distributed.worker.profile.enabled": False}):
+                          "distributed.worker.profile.enabled": False, "temporary-directory": scratch}):
         cluster = LocalCluster(
             n_workers=workers, threads_per_worker=1, processes=True,
-            dashboard_address=":0", silence_logs=logging.CRITICAL,
+            dashboard_address=":0", silence_logs=logging.CRITICAL, local_directory=scratch,
         )
     with cluster, Client(cluster, set_as_default=False) as client:
         yield client
-
-
-@contextlib.contextmanager
-def _atomic_folder(path: Path):
-    """Yield a temporary folder beside ``path``; on success it replaces ``path``."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{path.name}.", dir=path.parent))
-    try:
-        yield tmp
-        os.chmod(tmp, 0o777 & ~_umask())
-        old = None
-        if path.exists():
-            old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old.", dir=path.parent))
-            os.replace(path, old / path.name)
-        os.replace(tmp, path)
-        if old is not None:
-            shutil.rmtree(old, ignore_errors=True)
-    finally:
-        shutil.rmtree(tmp, ignore_errors=True)
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
 
 
 def write_ledger_dask(
@@ -205,7 +181,7 @@ def write_ledger_dask(
             lengths = list(client.compute(texts.map_partitions(len), sync=True))
         offsets = [int(o) for o in np.concatenate(([0], np.cumsum([n or 0 for n in lengths])))[:-1]]
         shipped = client.scatter(model, broadcast=True)
-        target = atomic_path(out) if single else _atomic_folder(out)
+        target = atomic_path(out) if single else atomic_folder(out)
         # The cells hold Python objects: Dask must not turn the object column into strings.
         with target as tmp, dask.config.set({"dataframe.convert-string": False}):
             part_paths = [None if single else str(tmp / f"part.{i:05d}.parquet") for i in range(len(pieces))]
