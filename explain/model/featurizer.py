@@ -74,6 +74,7 @@ class Featurizer:
                 f"the text step is {type(vectorizer).__name__}; "
                 "supported: CountVectorizer, TfidfVectorizer, HashingVectorizer"
             )
+        refuse_reading(vectorizer)
         self.hashed = type(vectorizer) is HashingVectorizer
         if self.hashed and vectorizer.alternate_sign:
             raise NbledgerError(
@@ -367,6 +368,24 @@ class _HashedColumns:
             column = int(self._hasher.transform([[token]]).indices[0])
             self._seen[token] = column
         return column
+
+
+def refuse_reading(vectorizer) -> None:
+    """Refuse a text step that would read or fetch anything instead of taking the message text itself.
+
+    scikit-learn's text steps take ``input='filename'`` or ``'file'`` to treat
+    each message as a path (or an open file) and read it: a model file could
+    then make ``why`` print any file the user can read. Only ``'content'`` is
+    accepted, whatever ``--trust`` says.
+    """
+    source = getattr(vectorizer, "input", "content")
+    if isinstance(source, str) and source == "content":
+        return
+    shown = repr(source)[:40] if isinstance(source, str) else type(source).__name__
+    raise NbledgerError(
+        f"the text step has input={shown}: it would read each message as a file name or file rather than "
+        "take its text; nbledger never loads such a model (no --trust changes that)"
+    )
 
 
 def unknown_tokens(occ: Occurrences) -> list[tuple[str, int]]:

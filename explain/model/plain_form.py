@@ -81,8 +81,6 @@ def code_in(vectorizer) -> str | None:
     for name in ("analyzer", "preprocessor", "tokenizer", "strip_accents"):
         if callable(getattr(vectorizer, name, None)):
             return f"its {name} is custom code"
-    if getattr(vectorizer, "input", "content") != "content":
-        return f"it reads input={vectorizer.input!r}, not the message text"
     return None
 
 
