@@ -91,17 +91,7 @@ class ModelView:
     normal_class: str | None = None
 
     def __post_init__(self):
-        # A NaN or infinite weight makes every score it touches meaningless
-        # (NaN) or absolute (inf): neither can be explained as a sum.
-        for name in ("weights", "baseline"):
-            values = np.asarray(getattr(self, name))
-            if not np.isfinite(values).all():
-                nan = int(np.isnan(values).sum())
-                inf = int(np.isinf(values).sum())
-                raise NbledgerError(
-                    f"the model's {name} are not all finite ({nan} not a number, {inf} infinite); "
-                    "it cannot be scored or explained exactly (a model trained with alpha = 0 has infinite weights)"
-                )
+        check_numbers(self)
 
     @property
     def n_classes(self) -> int:
@@ -165,6 +155,56 @@ class ModelView:
         return np.exp(jll - logsumexp(jll, axis=-1, keepdims=True))
 
 
+#: Largest a class's |baseline| + sum of |weights| may be: far above any trained filter's (tens to
+#: thousands), yet leaving a factor of 10^100 for counts before a score could overflow float64.
+MAX_WEIGHT_SUM = 1e200
+
+
+def check_numbers(view: ModelView) -> None:
+    """Refuse numbers no trained naive Bayes filter has, with one line each.
+
+    - weights, baseline, prior and absence not finite: a NaN makes every score
+      it touches meaningless, an infinity makes it absolute (a model trained
+      with alpha = 0 has infinite weights); neither can be explained as a sum;
+    - training counts (``feature_count``, ``class_count``) NaN, infinite or
+      negative: counts of messages and tokens are never so;
+    - a class with no training messages (``class_count`` 0): nothing was learnt for it;
+    - weights whose sum per class overflows float64 (or comes near to it), so
+      that a message's score could be infinite although every weight is finite.
+    """
+    for name in ("weights", "baseline", "prior", "absence"):
+        values = np.asarray(getattr(view, name), dtype=np.float64)
+        if not np.isfinite(values).all():
+            nan, inf = int(np.isnan(values).sum()), int(np.isinf(values).sum())
+            raise NbledgerError(
+                f"the model's {name} are not all finite ({nan} not a number, {inf} infinite); "
+                "it cannot be scored or explained exactly (a model trained with alpha = 0 has infinite weights)"
+            )
+    for name in ("feature_count", "class_count"):
+        values = np.asarray(getattr(view, name), dtype=np.float64)
+        bad = int((~np.isfinite(values)).sum())
+        negative = int((values < 0).sum())
+        if bad or negative:
+            raise NbledgerError(
+                f"the model's training counts ({name}) hold {bad} values that are not finite numbers and "
+                f"{negative} negative ones; counts of messages and tokens never are, so the file cannot be trusted"
+            )
+    empty = np.flatnonzero(np.asarray(view.class_count, dtype=np.float64) == 0)
+    if len(empty):
+        names = ", ".join(str(view.classes[i]) for i in empty[:5]) + (" ..." if len(empty) > 5 else "")
+        raise NbledgerError(
+            f"{len(empty)} of the model's classes had no training messages ({names}); "
+            "nothing was learnt for them, so their scores mean nothing"
+        )
+    with np.errstate(over="ignore", invalid="ignore"):
+        totals = np.abs(np.asarray(view.weights, dtype=np.float64)).sum(axis=1) + np.abs(np.asarray(view.baseline))
+    if not (np.isfinite(totals).all() and (totals <= MAX_WEIGHT_SUM).all()):
+        raise NbledgerError(
+            f"the model's weights are so large that their sum for one class exceeds {MAX_WEIGHT_SUM:.0e} "
+            "(or overflows); a message's score could overflow, so it is not scored"
+        )
+
+
 def view_of(classifier, tokens, feature_kind: str, normal_class: str | None = None) -> ModelView:
     """Build the normalised view of a fitted scikit-learn naive Bayes classifier.
 
@@ -216,10 +256,11 @@ def view_of(classifier, tokens, feature_kind: str, normal_class: str | None = No
         prior = log_prior if len(classes) == 1 else np.zeros(len(classes))
     else:
         # Same expression as scikit-learn, so that the sums agree to the last bits.
-        neg = np.log(1 - np.exp(flp))
-        weights = flp - neg
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):  # refused below, in one line
+            neg = np.log(1 - np.exp(flp))
+            weights = flp - neg
+            absence = neg.sum(axis=1)
         prior = log_prior
-        absence = neg.sum(axis=1)
         binarize = None if classifier.binarize is None else float(classifier.binarize)
         feature_kind = "binary" if binarize is not None else feature_kind
 
