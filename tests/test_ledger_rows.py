@@ -27,7 +27,7 @@ TOP = 4
 def ledger_dicts(model, texts, threshold=None, top=TOP):
     rule = DecisionRule.for_view(model.view, threshold)
     rows, _ = ledger_rows(model, texts, [str(i) for i in range(len(texts))], rule, top)
-    return ledger_table(rows, "sha").to_pylist(), rule
+    return ledger_table(rows, "sha", fingerprint="fp").to_pylist(), rule
 
 
 def check_rows_equal_why(model, texts, threshold):
@@ -59,7 +59,7 @@ def check_rows_equal_why(model, texts, threshold):
             assert row["flip_size"] == e.flip.size
         else:
             assert row["flip_size"] is None
-        assert row["model_sha256"] == "sha"
+        assert row["model_sha256"] == "sha" and row["model_fingerprint"] == "fp"
 
 
 @PROPERTY

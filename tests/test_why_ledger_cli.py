@@ -80,11 +80,12 @@ def test_records_carry_fingerprint_id_threshold_and_date(demo, capsys, tmp_path,
         assert result.code == 0, result.err
         assert result.out == ""
         written = out.read_text()
-        for needle in (sha, card["created"], "m2", "2026-05-28T20:26:40Z", "0.9"):
+        for needle in (sha, card["model"]["fingerprint"], card["created"], "m2", "2026-05-28T20:26:40Z", "0.9"):
             assert needle in written, (suffix, needle)
     doc = json.loads((tmp_path / "record.json").read_text())
     assert doc["message_id"] == "m2" and doc["threshold"] == 0.9 and doc["date"] == "2026-05-28T20:26:40Z"
     assert doc["card_date"] == card["created"] and doc["model"]["sha256"] == sha
+    assert doc["model"]["fingerprint"] == card["model"]["fingerprint"]
 
 
 def test_several_ids_into_one_output(demo, capsys, tmp_path):

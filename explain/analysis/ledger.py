@@ -229,6 +229,8 @@ class Ledger:
     model_path : str or None
     model_sha256 : str
         SHA-256 of the model file ("" for a model built in memory).
+    model_fingerprint : str or None
+        SHA-256 of what decides (:mod:`explain.model.fingerprint`); None when unknown.
     card_date : str or None
         The model card's ``created`` timestamp, when there is a card.
     variant, feature_kind : str
@@ -281,6 +283,7 @@ class Ledger:
     character_ngrams: bool = False
     #: True when the model's view came from the cache of loaded models rather than the model file
     model_from_cache: bool = False
+    model_fingerprint: str | None = None
 
     def character_heat(self) -> np.ndarray:
         """Evidence per character of ``text``, shape (len(text),), in log-odds.
@@ -480,6 +483,7 @@ def ledger_of(
         support_source=None if documents is None else documents.source,
         model_path=None if model.path is None else str(model.path),
         model_sha256=model.sha256,
+        model_fingerprint=getattr(model, "fingerprint", None),
         card_date=card.get("created"),
         variant=expl.variant,
         feature_kind=expl.feature_kind,

@@ -75,7 +75,7 @@ class ClassFacts:
 
 @dataclass(frozen=True)
 class ModelFacts:
-    """The model's fingerprint for the cover."""
+    """What identifies the model, for the cover: its file's SHA-256 and its fingerprint (what decides)."""
 
     file: str
     sha256: str
@@ -87,6 +87,7 @@ class ModelFacts:
     card_created: str | None
     training_data_sha256: str | None
     hashed: bool = False
+    fingerprint: str | None = None
 
 
 def model_facts(model) -> ModelFacts:
@@ -106,6 +107,7 @@ def model_facts(model) -> ModelFacts:
         card_created=card.get("created"),
         training_data_sha256=(card.get("data") or {}).get("sha256"),
         hashed=bool(model.featurizer.hashed),
+        fingerprint=model.fingerprint,
     )
 
 

@@ -29,6 +29,7 @@ classifier file plus a separate vectorizer file.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 import os
@@ -96,6 +97,13 @@ class LoadedModel:
     @property
     def classes(self):
         return self.view.classes
+
+    @functools.cached_property
+    def fingerprint(self) -> str | None:
+        """SHA-256 of what decides (:mod:`explain.model.fingerprint`); None for a text step of custom code."""
+        from explain.model.fingerprint import fingerprint
+
+        return fingerprint(self.view, self.featurizer, self.card)
 
     def named_for(self, texts) -> "LoadedModel":
         """Hashed features: the model with columns named by the tokens of ``texts`` (list of str).

@@ -241,8 +241,10 @@ def library_versions() -> dict:
 
 
 def model_card(trained: TrainedFilter, *, model_file: str, model_sha256: str, data: dict) -> dict:
-    """The JSON model card written beside the model file."""
-    return {
+    """The JSON model card written beside the model file (with the model's fingerprint, :mod:`explain.model.fingerprint`)."""
+    from explain.model.fingerprint import of_pipeline
+
+    card = {
         "card_version": 1,
         "created": _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
         "model": {"file": model_file, "sha256": model_sha256},
@@ -254,6 +256,8 @@ def model_card(trained: TrainedFilter, *, model_file: str, model_sha256: str, da
         "holdout": trained.holdout,
         "versions": library_versions(),
     }
+    card["model"]["fingerprint"] = of_pipeline(trained.pipeline, card)
+    return card
 
 
 @dataclass(frozen=True, eq=False)

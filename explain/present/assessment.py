@@ -74,7 +74,9 @@ def to_json(result: Assessment, model=None, data=None) -> dict:
     """The documented JSON object of one assessment."""
     return {
         "schema": SCHEMA,
-        "model": None if model is None else {"path": str(model.path), "sha256": model.sha256},
+        "model": None if model is None else {
+            "path": str(model.path), "sha256": model.sha256, "fingerprint": getattr(model, "fingerprint", None),
+        },
         "data": None if data is None else {"path": str(data.source), "sha256": data.sha256},
         "assessment": _plain(result),
     }

@@ -59,6 +59,7 @@ def ledger_schema():
         ("top_for", tokens), ("top_for_evidence", values),
         ("top_against", tokens), ("top_against_evidence", values),
         ("flip_size", pa.int64()), ("model_sha256", pa.string()),
+        ("model_fingerprint", pa.string()),
     ])
 
 
@@ -81,7 +82,7 @@ def _names(index: np.ndarray, names):
     return pa.DictionaryArray.from_arrays(pa.array(index.astype(np.int32)), names).cast(pa.string())
 
 
-def ledger_table(rows, sha256: str, only_flagged: bool = False):
+def ledger_table(rows, sha256: str, only_flagged: bool = False, fingerprint: str | None = None):
     """A :class:`~explain.analysis.ledger_rows.LedgerRows` as an Arrow table (:func:`ledger_schema`)."""
     import pyarrow as pa
 
@@ -108,6 +109,7 @@ def ledger_table(rows, sha256: str, only_flagged: bool = False):
             for_names, for_values, against_names, against_values,
             pa.array(flip, mask=flip < 0, type=pa.int64()),
             pa.array(np.full(n, sha256, dtype=object), type=pa.string()),
+            pa.array(np.full(n, fingerprint, dtype=object), type=pa.string()),
         ],
         schema=ledger_schema(),
     )
@@ -270,14 +272,17 @@ def ledger_chunk(model, rule, texts, ids, top_k, only_flagged, drivers, features
     from explain.analysis.ledger_rows import ledger_rows
 
     rows, found = ledger_rows(model, texts, ids, rule, top_k, drivers=drivers, features=features)
-    return rows, ledger_table(rows, model.sha256, only_flagged), found
+    return rows, ledger_table(rows, model.sha256, only_flagged, getattr(model, "fingerprint", None)), found
 
 
 def drivers_header(model, rule, progress: LedgerProgress) -> dict:
     """What the flag-driver file says about its run (see ``docs/ledger.md``)."""
     view = model.view
     return {
-        "model": {"path": None if model.path is None else str(model.path), "sha256": model.sha256},
+        "model": {
+            "path": None if model.path is None else str(model.path), "sha256": model.sha256,
+            "fingerprint": model.fingerprint,
+        },
         "classes": [str(c) for c in view.classes],
         "normal_class": str(view.classes[rule.normal_index]),
         "threshold": rule.threshold,

@@ -161,6 +161,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "date": date,
         "model_file": model_name,
         "model_sha256": ledger.model_sha256,
+        "model_fingerprint": ledger.model_fingerprint or "none",
         "card_date": ledger.card_date,
         "redaction": redaction,
         "decision": ledger.decision,

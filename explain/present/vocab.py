@@ -110,7 +110,9 @@ def to_json(review: VocabReview, model=None, data=None) -> dict:
     rows = lambda c, columns: [_row(review, c, int(j)) for j in columns]  # noqa: E731
     return {
         "schema": SCHEMA,
-        "model": None if model is None else {"path": str(model.path), "sha256": model.sha256},
+        "model": None if model is None else {
+            "path": str(model.path), "sha256": model.sha256, "fingerprint": getattr(model, "fingerprint", None),
+        },
         "data": None if data is None else {"path": str(data.source), "sha256": data.sha256},
         "review": {
             "variant": review.variant,

@@ -17,8 +17,8 @@ lines that keep the running balance right. Each word is tinted by
 key                    meaning
 =====================  ==========================================================
 ``schema``             ``"nbledger.why/1"``
-``model``              ``{path, sha256, from_cache}`` of the model file (``from_cache``:
-                       its view came from the cache of loaded models)
+``model``              ``{path, sha256, fingerprint, from_cache}``: the model file, its SHA-256, the
+                       model's fingerprint and whether its view came from the cache of loaded models
 ``classes``            class labels in the model's order
 ``predicted``          most probable class (scikit-learn's ``predict``)
 ``runner_up``          second most probable class
@@ -122,7 +122,8 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
     return {
         "schema": SCHEMA,
         "model": None if ledger.model_path is None else {
-            "path": ledger.model_path, "sha256": ledger.model_sha256, "from_cache": ledger.model_from_cache,
+            "path": ledger.model_path, "sha256": ledger.model_sha256, "fingerprint": ledger.model_fingerprint,
+            "from_cache": ledger.model_from_cache,
         },
         "classes": list(expl.classes),
         "predicted": expl.predicted,
@@ -289,6 +290,7 @@ def _head(ledger: Ledger, date: str | None) -> list[Text]:
         card = f"card of {ledger.card_date}" if ledger.card_date else "no model card"
         lines.append(Text(f"model {name} ({card})"))
         lines.append(Text(f"sha256 {ledger.model_sha256}"))
+        lines.append(Text(f"fingerprint {ledger.model_fingerprint or 'none'}"))
     if ledger.redacted:
         lines.append(Text("personal-looking values are masked ([e-mail 1], [phone 2] ...)"))
     return lines
