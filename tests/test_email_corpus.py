@@ -44,7 +44,8 @@ def _digest(texts) -> str:
 @pytest.mark.mailcorpus
 @pytest.mark.parametrize("view", sorted(BEFORE_THE_MOVE))
 def test_texts_are_those_of_the_loader_before_the_move(raw_corpus, view):
-    assert _digest(mailcorpus.load(view=view).texts) == BEFORE_THE_MOVE[view]
+    # Text rules "1" are the reader as it was then (models whose card has no text_rules read this way).
+    assert _digest(mailcorpus.load(view=view, rules="1").texts) == BEFORE_THE_MOVE[view]
 
 
 @pytest.mark.mailcorpus

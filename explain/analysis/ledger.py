@@ -55,6 +55,7 @@ from scipy.special import logit, logsumexp
 
 from explain.analysis.evidence import Explanation, FlipSet, explain_message
 from explain.analysis.lookalike import lookalikes
+from explain.analysis.mail_facts import decoding_flags
 from explain.analysis.risk import (
     FLAGS,
     PERSONAL_KINDS,
@@ -432,7 +433,9 @@ def ledger_of(
             spans=t.spans,
             first_at=int(first_at(t)),
             support=tuple(float(v) for v in counts[:, t.column]),
-            flags=tuple(FLAGS[k] for k in np.flatnonzero(flag_mask[:, i])),
+            flags=decoding_flags(
+                tuple(FLAGS[k] for k in np.flatnonzero(flag_mask[:, i])), t.spans, getattr(expl.mail, "fallback_ranges", ()),
+            ),
             exact=additive,
         )
         for i, t in enumerate(tokens)

@@ -32,6 +32,8 @@ class MailFacts:
     attachments: tuple[Attachment, ...]
     undecodable: tuple[UndecodablePart, ...]
     problems: tuple[str, ...]
+    #: ``(start, end)`` character ranges of the text read (in ``view``) that came from parts decoded with a fallback
+    fallback_ranges: tuple[tuple[int, int], ...] = ()
 
 
 def redact_line(line: str) -> str:
@@ -63,7 +65,23 @@ def mail_facts(email: EmailText, view: str) -> MailFacts:
         attachments=email.attachments,
         undecodable=email.undecodable,
         problems=email.problems,
+        fallback_ranges=email.fallback_ranges(view),
     )
+
+
+def decoding_flags(flags: tuple[str, ...], spans, ranges) -> tuple[str, ...]:
+    """An entry's risk flags, with ``decoding`` for a token read from a part decoded with a fallback.
+
+    A token all of whose occurrences (``spans``, character ranges, or None when unknown)
+    lie in ``ranges`` came from such a part: its letters may be an accident of the
+    decoding, so ``mixed_script`` (a sign of disguise) is replaced by ``decoding``.
+    """
+    if not ranges or not spans:
+        return flags
+    inside = all(any(a <= s and e <= b for a, b in ranges) for s, e in spans)
+    if not inside:
+        return flags
+    return tuple(f for f in flags if f != "mixed_script") + ("decoding",)
 
 
 def explain_email(model, email: EmailText, view: str, threshold: float | None = None):

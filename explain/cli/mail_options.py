@@ -21,7 +21,9 @@ LABEL = typer.Option(None, "--label", help="The label of every message of an mbo
 
 def mail_input(card: dict | None, text_view: str | None, raw_email=False, labels_from_folders=False, label=None):
     """The e-mail reading settings of a data command, the view resolved against the model card."""
-    from explain.model.email_reader import resolve_text_view
+    from explain.model.email_reader import resolve_text_view, text_rules_of
     from explain.model.mail_data import MailInput
 
-    return MailInput(raw_email, labels_from_folders, label, resolve_text_view(card, text_view))
+    return MailInput(
+        raw_email, labels_from_folders, label, resolve_text_view(card, text_view), rules=text_rules_of(card)
+    )

@@ -61,6 +61,7 @@ def train(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
         alpha=alpha, min_df=min_df, normal_class=normal_class, tokens=tokens, holdout=holdout, seed=seed,
         text_view=mail.view if from_mail else None,
+        text_rules=mail.rules if from_mail else None,
     )
     card_path = card_path_for(out)
     # Model and card are one transaction: both appear, or neither; and the card
@@ -90,6 +91,8 @@ def train(
                 "label_col": label_col,
                 "id_col": messages.id_col,
                 "replaced_utf8_sequences": messages.replaced_chars,
+                # raw e-mail: how many messages each of the reader's text rules changed
+                "messages_touched": None if messages.mail is None else messages.mail.touched,
             },
         )
         outputs.write(card_path, json.dumps(card, indent=2, allow_nan=False) + "\n")

@@ -69,6 +69,8 @@ class Messages:
     sha256: str
     notes: tuple = ()
     id_col: str | None = None
+    #: raw e-mail only: :class:`explain.model.mail_data.MailColumns` (folder, sender, date, list per message)
+    mail: object = None
 
     def __len__(self) -> int:
         return len(self.texts)

@@ -53,9 +53,26 @@ from email.message import Message
 from html.parser import HTMLParser
 
 from explain.errors import NbledgerError
+from explain.model.text_blobs import looks_like_html, split_blobs
 
 VIEWS: tuple[str, ...] = ("body", "subject+body", "headers+body")
 DEFAULT_VIEW = "body"
+
+#: Versions of the reader's text rules, recorded in the model card as ``settings.text_rules``.
+#: ``"1"``: the parts' text as decoded. ``"2"``: also HTML in ``text/plain`` parts read as
+#: visible text, and uuencoded files and long base64 or hex runs cut out of text parts and
+#: listed as attachments (:data:`CLEANING`). A card without the setting was trained under ``"1"``.
+TEXT_RULES: tuple[str, ...] = ("1", "2")
+CURRENT_RULES = "2"
+#: The rules of text-rules ``"2"``, as counted per message (``EmailText.cleaned``).
+#: The content type an encoded file cut out of a text part is listed with.
+_BLOB_TYPES = {"uuencode": "uuencoded in the text", "base64-run": "base64 in the text", "hex-run": "hex digits in the text"}
+CLEANING = {
+    "html-in-plain": "HTML in a text/plain part, read as its visible text",
+    "uuencode": "uuencoded file cut out of the text",
+    "base64-run": "long base64 run cut out of the text",
+    "hex-run": "long hex run cut out of the text",
+}
 
 # Header fields that mark the start of a raw message (RFC 5322 section 3.6), with the
 # MIME and trace fields that mail servers add. Two of them before the first blank line
@@ -133,25 +150,58 @@ class EmailText:
     subject: str = ""
     sender: str = ""
     message_id: str = ""
+    #: the Date and List-Id header values as written ("" when absent)
+    date: str = ""
+    list_id: str = ""
     attachments: tuple[Attachment, ...] = ()
     undecodable: tuple[UndecodablePart, ...] = ()
     problems: tuple[str, ...] = ()
     #: True when the MIME structure could not be read and the raw text stands in for it
     raw_fallback: bool = False
+    #: the rules of :data:`CLEANING` that changed this message's text, in order
+    cleaned: tuple[str, ...] = ()
+    #: ``(start, end)`` character ranges of ``body`` read from parts decoded with a fallback
+    fallback_spans: tuple[tuple[int, int], ...] = ()
+
+    def _prefix(self, view: str) -> str:
+        check_view(view)
+        if view == "body":
+            return ""
+        if view == "subject+body":
+            return f"{self.subject}\n\n"
+        return f"{self.header_text}\n\n"
 
     def text(self, view: str = DEFAULT_VIEW) -> str:
         """The text a filter reads in ``view`` (one of :data:`VIEWS`)."""
-        check_view(view)
-        if view == "body":
-            return self.body
-        if view == "subject+body":
-            return f"{self.subject}\n\n{self.body}"
-        return f"{self.header_text}\n\n{self.body}"
+        return self._prefix(view) + self.body
+
+    def fallback_ranges(self, view: str = DEFAULT_VIEW) -> tuple[tuple[int, int], ...]:
+        """``fallback_spans`` as character ranges of ``text(view)``."""
+        shift = len(self._prefix(view))
+        return tuple((a + shift, b + shift) for a, b in self.fallback_spans)
 
     @property
     def attachment_only(self) -> bool:
         """True when the message carries attachments and no body text at all."""
         return bool(self.attachments) and not self.body.strip()
+
+
+def check_rules(rules: str) -> str:
+    if rules not in TEXT_RULES:
+        raise NbledgerError(
+            f"unknown text rules {rules!r} (a model card of a newer nbledger?); known: {', '.join(TEXT_RULES)}"
+        )
+    return rules
+
+
+def text_rules_of(card: dict | None) -> str:
+    """The reader's text rules a model was trained under: the card's ``settings.text_rules``;
+    ``"1"`` for a card that trained on raw e-mail before the setting existed; else the current rules."""
+    settings = (card or {}).get("settings") or {}
+    recorded = settings.get("text_rules")
+    if recorded is not None:
+        return check_rules(str(recorded))
+    return "1" if settings.get("text_view") is not None else CURRENT_RULES
 
 
 def check_view(view: str) -> str:
@@ -289,11 +339,17 @@ class _Walk:
     """What the MIME walk has found and spent so far (one per message)."""
 
     limits: Limits
+    rules: str = CURRENT_RULES
     parts: int = 0
     decoded: int = 0
     attachments: list = field(default_factory=list)
     undecodable: list = field(default_factory=list)
     problems: list = field(default_factory=list)
+    cleaned: list = field(default_factory=list)
+
+    def touched(self, rule: str) -> None:
+        if rule not in self.cleaned:
+            self.cleaned.append(rule)
 
     def note(self, problem: str) -> None:
         if problem not in self.problems:
@@ -332,8 +388,8 @@ class _Walk:
         )
         return payload.decode(charset, errors="replace")
 
-    def text_parts(self, part: Message, depth: int = 0) -> list[str]:
-        """Text of the text leaves under ``part``, in order; HTML rendered to text."""
+    def text_parts(self, part: Message, depth: int = 0) -> list[tuple[str, bool]]:
+        """``(text, read with a fallback)`` of the text leaves under ``part``, in order; HTML rendered to text."""
         self.parts += 1
         if self.parts > self.limits.max_parts:
             self.note(f"parts past the first {self.limits.max_parts:,} were not read")
@@ -347,7 +403,7 @@ class _Walk:
             if content_type != "multipart/alternative":
                 return [text for child in children for text in self.text_parts(child, depth + 1)]
             renderings = [(child.get_content_type(), self.text_parts(child, depth + 1)) for child in children]
-            filled = [(kind, texts) for kind, texts in renderings if "".join(texts).strip()]
+            filled = [(kind, texts) for kind, texts in renderings if "".join(t for t, _ in texts).strip()]
             plain = [texts for kind, texts in filled if kind == "text/plain"]
             return plain[0] if plain else (filled[-1][1] if filled else [])
         maintype, _, subtype = content_type.partition("/")
@@ -359,9 +415,26 @@ class _Walk:
             return []
         payload = self.payload(part)
         if payload is None:  # past the size limit, or a defective multipart left as a list
-            return [""] if isinstance(part.get_payload(), list) else []
+            return [("", False)] if isinstance(part.get_payload(), list) else []
+        before = len(self.undecodable)
         text = self.decode(part, payload, f"{content_type} part {self.parts}")
-        return [html_to_text(text) if maintype == "text" and subtype.startswith("html") else text]
+        fallback = len(self.undecodable) > before
+        if maintype == "text" and subtype.startswith("html"):
+            return [(html_to_text(text), fallback)]
+        if self.rules != "1":
+            text = self.cut_blobs(text)
+            if looks_like_html(text):
+                self.touched("html-in-plain")
+                text = html_to_text(text)
+        return [(text, fallback)]
+
+    def cut_blobs(self, text: str) -> str:
+        """``text`` with uuencoded files and long base64 or hex runs cut out, each listed as an attachment."""
+        text, blobs = split_blobs(text)
+        for blob in blobs:
+            self.touched(blob.kind)
+            self.attachments.append(Attachment(blob.name, _BLOB_TYPES[blob.kind], blob.size))
+        return text
 
     def _list_attachment(self, part: Message, content_type: str) -> None:
         payload = self.payload(part)
@@ -401,9 +474,20 @@ def _field(lines: list[str], name: str) -> str:
     return ""
 
 
-def read_email(data: bytes, limits: Limits = Limits()) -> EmailText:
-    """Read one raw message (bytes as stored) under ``limits``; never raises on bad input."""
-    walk = _Walk(limits)
+def _joined(pieces: list[tuple[str, bool]]) -> tuple[str, tuple[tuple[int, int], ...]]:
+    """The body (pieces joined by line breaks) and the ranges of the pieces read with a fallback."""
+    spans, at = [], 0
+    for text, fallback in pieces:
+        if fallback and text:
+            spans.append((at, at + len(text)))
+        at += len(text) + 1
+    return "\n".join(text for text, _ in pieces), tuple(spans)
+
+
+def read_email(data: bytes, limits: Limits = Limits(), rules: str = CURRENT_RULES) -> EmailText:
+    """Read one raw message (bytes as stored) under ``limits`` and text ``rules``; never raises on bad input."""
+    check_rules(rules)
+    walk = _Walk(limits, rules)
     declared = len(_MULTIPART_DECLARATION.findall(data))
     if declared > limits.max_multiparts:
         walk.note(f"more than {limits.max_multiparts:,} multipart parts; the MIME structure was not read")
@@ -411,7 +495,7 @@ def read_email(data: bytes, limits: Limits = Limits()) -> EmailText:
     try:
         message = email.message_from_bytes(data, policy=_POLICY)
         lines = _header_lines(message, walk)
-        body = "\n".join(walk.text_parts(message))
+        body, spans = _joined(walk.text_parts(message))
     except RecursionError:
         walk.note("the MIME structure is nested too deeply to read")
         return _raw_fallback(data, walk)
@@ -424,9 +508,13 @@ def read_email(data: bytes, limits: Limits = Limits()) -> EmailText:
         subject=_field(lines, "subject"),
         sender=_field(lines, "from"),
         message_id=_field(lines, "message-id"),
+        date=_field(lines, "date"),
+        list_id=_field(lines, "list-id"),
         attachments=tuple(walk.attachments),
         undecodable=tuple(walk.undecodable),
         problems=tuple(walk.problems),
+        cleaned=tuple(walk.cleaned),
+        fallback_spans=spans,
     )
 
 

@@ -28,7 +28,9 @@ import numpy as np
 
 from explain.errors import NbledgerError
 from explain.model.data_io import Messages, read_messages
-from explain.model.email_reader import DEFAULT_VIEW, EmailText, Limits, check_view, read_email, summarise
+from explain.model.email_reader import (
+    CLEANING, CURRENT_RULES, DEFAULT_VIEW, EmailText, Limits, check_rules, check_view, read_email, summarise,
+)
 
 MBOX_SUFFIXES = (".mbox", ".mbx")
 _TABLE_SUFFIXES = (".csv", ".jsonl", ".ndjson", ".parquet", ".gz")
@@ -44,9 +46,12 @@ class MailInput:
     label: str | None = None
     view: str = DEFAULT_VIEW
     limits: Limits = Limits()
+    #: the reader's text rules (:data:`explain.model.email_reader.TEXT_RULES`), from the model card
+    rules: str = CURRENT_RULES
 
     def __post_init__(self):
         check_view(self.view)
+        check_rules(self.rules)
         if self.label is not None and not self.label.strip():
             raise NbledgerError("--label must not be empty")
         if self.labels_from_folders and self.label is not None:
@@ -98,8 +103,11 @@ def read_data(
     messages = read_messages(path, text_col, label_col, id_col, max_message_bytes=max_message_bytes, **limits)
     if not mail.raw_email:
         return messages
-    emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits) for text in messages.texts]
-    return replace(messages, texts=[e.text(mail.view) for e in emails], notes=messages.notes + summarise(emails))
+    emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits, mail.rules) for text in messages.texts]
+    return replace(
+        messages, texts=[e.text(mail.view) for e in emails], notes=messages.notes + summarise(emails),
+        mail=mail_columns(emails, [""] * len(emails), mail),
+    )
 
 
 def _read_limited(path: Path, limit: int) -> tuple[bytes, bool]:
@@ -130,9 +138,10 @@ def _read_folder(folder: Path, mail: MailInput) -> Messages:
         name = path.relative_to(folder).as_posix()
         digest.update(name.encode("utf-8", errors="surrogateescape") + b"\0")
         digest.update(hashlib.sha256(data).digest())
-        emails.append(read_email(data, mail.limits))
+        emails.append(read_email(data, mail.limits, mail.rules))
         names.append(name)
-    return _messages(emails, names, labels, folder, digest.hexdigest(), mail, cut)
+    folders = [p.parent.relative_to(folder).as_posix().removeprefix(".") for p in files]
+    return _messages(emails, names, labels, folder, digest.hexdigest(), mail, cut, folders)
 
 
 def _read_mbox(path: Path, mail: MailInput) -> Messages:
@@ -146,7 +155,7 @@ def _read_mbox(path: Path, mail: MailInput) -> Messages:
         for n, key in enumerate(box.iterkeys(), start=1):
             data = box.get_bytes(key)
             cut += len(data) > mail.limits.max_message_bytes
-            emails.append(read_email(data[: mail.limits.max_message_bytes], mail.limits))
+            emails.append(read_email(data[: mail.limits.max_message_bytes], mail.limits, mail.rules))
             names.append(f"{path.name}#{n}")
     finally:
         box.close()
@@ -156,7 +165,43 @@ def _read_mbox(path: Path, mail: MailInput) -> Messages:
     return _messages(emails, names, labels, path, file_digest, mail, cut)
 
 
-def _messages(emails: list[EmailText], names, labels, source: Path, sha256: str, mail: MailInput, cut: int) -> Messages:
+@dataclass(frozen=True, eq=False)
+class MailColumns:
+    """What a data set of raw e-mail says about each message beside its text (for mail slices).
+
+    Arrays of str, one per message: ``folder`` (the path of the message's folder below the
+    data folder, "" at the top and for mbox files and tables), ``sender`` (the From header,
+    decoded), ``date`` (the Date header as written), ``list_id`` (the List-Id header); "" when
+    absent. ``touched`` counts the messages each text rule changed (:data:`CLEANING`, plus
+    ``decoding``: messages with a part read with a fallback charset); ``rules`` the text rules.
+    """
+
+    folder: np.ndarray
+    sender: np.ndarray
+    date: np.ndarray
+    list_id: np.ndarray
+    touched: dict
+    rules: str
+
+
+def mail_columns(emails: list[EmailText], folders, mail: MailInput) -> MailColumns:
+    """The :class:`MailColumns` of ``emails`` read under ``mail``."""
+    column = lambda values: np.asarray(list(values), dtype=object)  # noqa: E731
+    touched = {rule: sum(rule in e.cleaned for e in emails) for rule in CLEANING}
+    touched["decoding"] = sum(bool(e.undecodable) for e in emails)
+    return MailColumns(
+        folder=column(folders),
+        sender=column(e.sender for e in emails),
+        date=column(e.date for e in emails),
+        list_id=column(e.list_id for e in emails),
+        touched=touched,
+        rules=mail.rules,
+    )
+
+
+def _messages(
+    emails: list[EmailText], names, labels, source: Path, sha256: str, mail: MailInput, cut: int, folders=None
+) -> Messages:
     notes = summarise(emails)
     if cut:
         notes += (f"{cut} of {len(emails)} messages were larger than {mail.limits.max_message_bytes:,} bytes and were cut",)
@@ -168,6 +213,7 @@ def _messages(emails: list[EmailText], names, labels, source: Path, sha256: str,
         source=source,
         sha256=sha256,
         notes=notes,
+        mail=mail_columns(emails, folders or [""] * len(emails), mail),
     )
 
 

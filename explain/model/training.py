@@ -40,6 +40,8 @@ class TrainSettings:
     text_view: str | None = None
     #: the named token pattern of the word analyzer (explain.model.token_patterns)
     tokens: str = "words"
+    #: the e-mail reader's text rules (explain.model.email_reader.TEXT_RULES); None for plain text
+    text_rules: str | None = None
 
     def __post_init__(self):
         if self.text_view is not None:
