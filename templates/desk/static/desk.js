@@ -27,7 +27,9 @@
         method: "POST",
         credentials: "same-origin",
         headers: { "Content-Type": "application/json", "X-CSRF-Token": csrf },
-        body: JSON.stringify({ text: area.value, message_id: area.dataset.messageId }),
+        // An edited text is not the queued message: its ledger carries no message id.
+        body: JSON.stringify(area.value === original ? { text: area.value, message_id: area.dataset.messageId }
+                                                     : { text: area.value }),
       });
     } catch (err) {
       say("The desk did not answer; the ledger below is the last one explained.");
