@@ -75,12 +75,9 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
 
 
 def model_fingerprint(loaded) -> str | None:
-    """The model's fingerprint (``explain.model.fingerprint``), when that module is there."""
-    try:
-        from explain.model import fingerprint
-    except ImportError:
-        return None
-    return fingerprint.model_fingerprint(loaded)
+    """The model's fingerprint (``LoadedModel.fingerprint``, of ``explain.model.fingerprint``), computed once."""
+    value = getattr(loaded, "fingerprint", None)
+    return value if isinstance(value, str) else None
 
 
 @app.command()

@@ -13,6 +13,8 @@ import csv
 import functools
 import io
 import json
+import threading
+from collections import OrderedDict
 
 import jinja2
 from starlette.applications import Starlette
@@ -110,6 +112,34 @@ def record_of(ledger) -> dict:
     return to_json(ledger, date=record_time())
 
 
+class QueuedLedgers:
+    """The ledgers of queued messages, each explained once and kept (least recently used out first).
+
+    A queued text and the model do not change while the desk runs, so its ledger and record are
+    the same each time; only the record's ``date`` is set when it is served.
+    """
+
+    def __init__(self, size: int = 256):
+        self.size = size
+        self._kept: OrderedDict = OrderedDict()
+        self._lock = threading.Lock()
+
+    def get(self, settings: DeskSettings, item) -> tuple[object, dict]:
+        """``(ledger, record)`` of a queued item, the record dated now."""
+        with self._lock:
+            found = self._kept.get(item.id)
+            if found is not None:
+                self._kept.move_to_end(item.id)
+        if found is None:
+            ledger = ledger_for(settings, item.text, item.id)
+            found = (ledger, record_of(ledger))
+            with self._lock:
+                self._kept[item.id] = found
+                while len(self._kept) > self.size:
+                    self._kept.popitem(last=False)
+        return found[0], {**found[1], "date": record_time()}
+
+
 def queued(request, message_id: str):
     queue = request.app.state.settings.queue
     item = None if queue is None else queue.get(message_id)
@@ -143,8 +173,8 @@ async def api_queue(request):
 @guarded()
 async def api_message_ledger(request):
     item = queued(request, request.path_params["message_id"])
-    ledger = await run_in_threadpool(ledger_for, request.app.state.settings, item.text, item.id)
-    return JSONResponse(record_of(ledger))
+    _, record = await run_in_threadpool(request.app.state.ledgers.get, request.app.state.settings, item)
+    return JSONResponse(record)
 
 
 @guarded()
@@ -183,10 +213,12 @@ def review_fields(data: dict, settings: DeskSettings) -> dict:
     return fields
 
 
-def store_review(settings: DeskSettings, item, user, fields: dict) -> tuple[dict, bool]:
-    """Explain the queued message, then store the review with everything it was based on (committed)."""
-    ledger = ledger_for(settings, item.text, item.id)
-    record = record_of(ledger)
+def store_review(request, item, user, fields: dict) -> tuple[dict, bool]:
+    """Store the review with the queued message's ledger and everything else it was based on (committed)."""
+    from explain.present.why import rule_line
+
+    settings = request.app.state.settings
+    ledger, record = request.app.state.ledgers.get(settings, item)
     row = {
         **fields,
         "message_id": item.id,
@@ -196,7 +228,7 @@ def store_review(settings: DeskSettings, item, user, fields: dict) -> tuple[dict
         "flagged": item.flagged,
         "model_sha256": settings.model_sha256,
         "model_fingerprint": settings.fingerprint,
-        "rule": ledger.rule,
+        "rule": rule_line(ledger),
         "text": ledger.text,
         "ledger": json.dumps(record, ensure_ascii=False, allow_nan=False),
     }
@@ -210,7 +242,7 @@ async def api_add_review(request):
     fields = review_fields(await json_body(request), settings)
     if "review_key" not in fields and request.headers.get("idempotency-key"):
         fields = review_fields({**fields, "review_key": request.headers["idempotency-key"]}, settings)
-    review, new = await run_in_threadpool(store_review, settings, item, request.state.user, fields)
+    review, new = await run_in_threadpool(store_review, request, item, request.state.user, fields)
     return JSONResponse(review, status_code=201 if new else 200)
 
 
@@ -282,5 +314,6 @@ def build_app(settings: DeskSettings) -> Starlette:
         exception_handlers={_Refused: refused, NbledgerError: user_error, 404: not_found},
     )
     app.state.settings = settings
+    app.state.ledgers = QueuedLedgers()
     app.state.templates = pages.environment()
     return app

@@ -97,13 +97,13 @@ def ledger_view(settings, ledger) -> dict:
 
 
 async def message_page(request):
-    from explain.runs.desk.app import guarded, ledger_for, queued
+    from explain.runs.desk.app import guarded, queued
 
     @guarded(page=True)
     async def show(request):
         settings = request.app.state.settings
         item = queued(request, request.path_params["message_id"])
-        ledger = await run_in_threadpool(ledger_for, settings, item.text, item.id)
+        ledger, _ = await run_in_threadpool(request.app.state.ledgers.get, settings, item)
         history = await run_in_threadpool(lambda: settings.store.select(message_id=item.id))
         return render(
             request, "message.html.j2", item=item, lv=ledger_view(settings, ledger), closing_exact=repr(ledger.closing),
@@ -147,7 +147,7 @@ async def review_form(request):
             raise _Refused(403, "missing or stale CSRF token: reload the page")
         item = queued(request, request.path_params["message_id"])
         fields = review_fields({k: form.get(k) for k in ("outcome", "reason", "note", "label", "supersedes", "review_key")}, settings)
-        review, _ = await run_in_threadpool(store_review, settings, item, request.state.user, fields)
+        review, _ = await run_in_threadpool(store_review, request, item, request.state.user, fields)
         return RedirectResponse(f"{request.url.path.rsplit('/reviews', 1)[0]}?saved={review['id']}#history", status_code=303)
 
     return await save(request)
