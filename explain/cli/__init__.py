@@ -24,7 +24,7 @@ from typer.exceptions import TyperException
 from explain.errors import NbledgerError
 from explain.output_files import OutputSet
 from explain.run_folder import run_scope
-from explain.present.token_display import make_console, safe_line, safe_text
+from explain.present.token_display import for_terminal, make_console, safe_line, safe_text
 
 app = typer.Typer(
     name="nbledger",
@@ -133,7 +133,10 @@ def plain_text(render, result, width: int) -> str:
     return buffer.getvalue()
 
 
-def deliver(outputs: OutputSet, *, text: str | None, out: Path | None, pictures: dict, images: Path | None, show) -> None:
+def deliver(
+    outputs: OutputSet, *, text: str | None, out: Path | None, pictures: dict, images: Path | None, show,
+    is_json: bool = False,
+) -> None:
     """Stage the pictures and the output in ``outputs``; call once everything is computed.
 
     ``text`` goes to ``out`` (or standard output); with neither, ``show()``
@@ -146,7 +149,7 @@ def deliver(outputs: OutputSet, *, text: str | None, out: Path | None, pictures:
         outputs.write(out, text)
     elif text is not None:
         # Files keep the text exactly; a terminal gets controls made visible.
-        typer.echo(safe_text(text) if sys.stdout.isatty() else text, nl=False)
+        typer.echo(for_terminal(text, is_json) if sys.stdout.isatty() else text, nl=False)
     else:
         show()
 

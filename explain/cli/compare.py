@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from pathlib import Path
 from typing import List, Optional
 
@@ -12,6 +14,7 @@ from explain.cli import (
     app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.present.token_display import for_terminal
 
 SUFFIXES = (".pdf", ".html", ".htm", ".json")
 
@@ -87,7 +90,7 @@ def compare(
             if out is not None:
                 files.write(out, text)
             else:
-                typer.echo(text, nl=False)
+                typer.echo(for_terminal(text, is_json=True) if sys.stdout.isatty() else text, nl=False)
         else:
             for line in present.text_lines(result, top=top, width=max(40, console.width)):
                 console.print(line, markup=False, highlight=False, soft_wrap=True)

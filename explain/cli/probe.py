@@ -94,4 +94,4 @@ def probe(
             text = json.dumps(to_json(result), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
         else:
             text = plain_text(render, result, 100) if out is not None else None
-        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(result, console))
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, is_json=output_format == "json" and out is None, show=lambda: render(result, console))

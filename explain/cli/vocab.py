@@ -161,4 +161,4 @@ def vocab(
             text = to_csv(review)
         else:
             text = plain_text(render, review, 160) if out is not None else None
-        deliver(outputs, text=text, out=out, pictures=pictures, images=images, show=lambda: render(review, console))
+        deliver(outputs, text=text, out=out, pictures=pictures, images=images, is_json=output_format == "json" and out is None, show=lambda: render(review, console))

@@ -15,7 +15,7 @@ from explain.cli import (
     TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn, one_threshold,
 )
 from explain.cli.mail_options import TEXT_VIEW
-from explain.present.token_display import make_console
+from explain.present.token_display import for_terminal, make_console
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
 #: direct message of megabytes is far more likely an attack than a message.
@@ -259,7 +259,8 @@ def why(
         if out is not None:
             outputs.write(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
         elif output_format == "json":
-            sys.stdout.write(WRITERS[".json"](ledgers, date=date, top=top))
+            document = WRITERS[".json"](ledgers, date=date, top=top)
+            sys.stdout.write(for_terminal(document, is_json=True) if sys.stdout.isatty() else document)
         else:
             screen = console_for(color)
             for n, ledger in enumerate(ledgers):

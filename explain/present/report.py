@@ -32,6 +32,7 @@ from explain.present import assessment as assessment_screen
 from explain.present import wording
 from explain.present.drawing import class_colours
 from explain.present.report_json import LEDGER_ROWS, to_json
+from explain.present.token_display import html_visible
 
 
 
@@ -49,6 +50,7 @@ def environment():
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         autoescape=True,
+        finalize=html_visible,  # controls and bidi characters from input shown, never obeyed (then escaped)
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,

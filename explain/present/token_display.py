@@ -15,6 +15,18 @@ character n-grams ``"ns. "`` and ``"ns."`` look different. ``safe_text`` is for
 message texts laid out over several lines (line breaks and tabs kept).
 ``safe_line`` is for one-line messages (errors, file names). Files meant for
 programs (JSON, CSV) keep the text exactly.
+
+One function per medium, for labels, tokens, file names and message text alike:
+
+- terminal: :func:`make_console` (every presenter prints through it) and
+  :func:`for_terminal` for text written to standard output directly;
+- JSON on a terminal: :func:`json_for_terminal` writes what JSON allows as
+  ASCII escapes (``\u202e``), so the document stays valid and exact;
+- HTML (and the PDF rendered from it): :func:`html_visible` is the Jinja2
+  ``finalize`` hook of every template environment: each value a template
+  prints passes through :func:`safe_text` and then Jinja2's autoescaping, so
+  no control or bidirectional character reaches the page raw and no markup
+  from input becomes an element (nothing from input is marked safe).
 """
 
 from __future__ import annotations
@@ -47,6 +59,34 @@ def safe_line(text: str) -> str:
 def safe_text(text: str) -> str:
     """``text`` with line breaks and tabs kept, other controls and bidi characters visible."""
     return _UNSAFE_KEEP_LINES.sub(_visible, str(text).replace("\r\n", "\n"))
+
+
+# What JSON keeps raw inside strings even when it escapes C0 controls: DEL, C1 and the bidi characters.
+_UNSAFE_IN_JSON = re.compile(f"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f{_BIDI}]")
+
+
+def json_for_terminal(text: str) -> str:
+    """A JSON document for a terminal: controls and bidi characters as ``\\uXXXX`` escapes (the same JSON value)."""
+    return _UNSAFE_IN_JSON.sub(lambda m: f"\\u{ord(m.group()):04x}", str(text))
+
+
+def for_terminal(text: str, is_json: bool = False) -> str:
+    """Text bound for a terminal: JSON with ASCII escapes, anything else with controls made visible."""
+    return json_for_terminal(text) if is_json else safe_text(text)
+
+
+def html_visible(value):
+    """Jinja2 ``finalize`` hook: strings printed by a template get controls and bidi characters visible.
+
+    Autoescaping then escapes the result, so ``<U+202E>`` is shown as text.
+    Values already marked safe (made by the templates themselves, never from
+    input) and non-strings pass unchanged.
+    """
+    from markupsafe import Markup
+
+    if isinstance(value, str) and not isinstance(value, Markup):
+        return safe_text(value)
+    return value
 
 
 def shown(token: str) -> str:
