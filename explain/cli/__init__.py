@@ -324,13 +324,6 @@ def _interrupt_behind(exc: BaseException) -> Interrupted | None:
     return None
 
 
-def main() -> None:
-    """Console-script entry point of older installs; the entry point is :func:`explain.__main__.main`."""
-    from explain.__main__ import main as entry
-
-    entry()
-
-
 # Command modules register themselves on import; keep these lines last.
 from explain.cli import train, why  # noqa: E402,F401
 from explain.cli import ledger  # noqa: E402,F401
