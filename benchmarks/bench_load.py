@@ -55,7 +55,9 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as scratch:
         scratch = Path(scratch)
         os.environ["XDG_CACHE_HOME"] = str(scratch / "cache")
-        from explain.model.loading import LoadLimits, load_in_child, load_model, read_object, split_pipeline
+        from explain.model.load_process import load_in_child
+        from explain.model.loading import LoadLimits, load_model
+        from explain.model.model_files import read_object, split_pipeline
         from explain.model.model_view import view_of
 
         started = time.perf_counter()
@@ -84,7 +86,7 @@ def main() -> None:
         # there too) against loading in a separate process, imports included in both.
         fresh = lambda code: subprocess.run([sys.executable, "-c", code], check=True, capture_output=True)  # noqa: E731
         fresh_old_s, _ = best_of(args.repeat, lambda: fresh(
-            "from explain.model.loading import read_object, split_pipeline; from explain.model.model_view import view_of; "
+            "from explain.model.model_files import read_object, split_pipeline; from explain.model.model_view import view_of; "
             f"f, c = split_pipeline(read_object({str(small)!r})[0]); view_of(c, f.tokens, f.feature_kind)"))
         fresh_child_s, _ = best_of(args.repeat, lambda: fresh(
             "from explain.model.loading import load_model, LoadLimits; "

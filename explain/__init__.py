@@ -25,7 +25,7 @@ _PUBLIC = {
     "NbledgerError": "explain.errors",
     "load_model": "explain.model.loading",
     "LoadedModel": "explain.model.loading",
-    "LoadLimits": "explain.model.loading",
+    "LoadLimits": "explain.model.load_process",
     "OutputSet": "explain.output_files",
     "read_messages": "explain.model.data_io",
     "Messages": "explain.model.data_io",

@@ -21,7 +21,8 @@ from clirun import nbledger
 from corpora import WORDS, loaded
 from explain.errors import NbledgerError
 from explain.model import model_cache, plain_form
-from explain.model.loading import LoadLimits, card_path_for, load_model
+from explain.model.loading import LoadLimits, load_model
+from explain.model.model_files import card_path_for
 from hostile import gzip_bomb, run_measured, skops_bomb, split_words
 
 TEXTS = ["pay the parcel fee", "fee link now", "tea at the workshop", "kids tea party", "sofa for sale", "sofa deal"]

@@ -18,7 +18,8 @@ from sklearn.pipeline import make_pipeline
 
 from clirun import nbledger
 from explain.errors import NbledgerError
-from explain.model.loading import card_path_for, load_model
+from explain.model.loading import load_model
+from explain.model.model_files import card_path_for
 
 TEXTS = ["pay the parcel fee", "fee link now", "tea at the workshop", "kids tea party"]
 LABELS = ["scam", "scam", "ok", "ok"]

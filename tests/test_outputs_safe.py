@@ -17,7 +17,7 @@ import pytest
 
 from clirun import nbledger
 from explain.errors import NbledgerError
-from explain.model.loading import card_path_for
+from explain.model.model_files import card_path_for
 from explain.output_files import OutputSet
 
 ROOT = Path(__file__).resolve().parent.parent

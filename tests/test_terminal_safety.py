@@ -14,7 +14,7 @@ from sklearn.naive_bayes import MultinomialNB
 from sklearn.pipeline import make_pipeline
 
 from clirun import nbledger
-from explain.model.loading import card_path_for
+from explain.model.model_files import card_path_for
 from explain.present.token_display import safe_line, safe_text, shown
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -83,7 +83,7 @@ def _library_warning(message, category, filename, lineno, file=None, line=None) 
 
 def model_inputs(model: Path, vectorizer: Path | None = None) -> list[Path]:
     """The model file, its card and the vectorizer file: inputs no output may replace."""
-    from explain.model.loading import card_path_for
+    from explain.model.model_files import card_path_for
 
     return [model, card_path_for(model), vectorizer]
 

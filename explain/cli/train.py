@@ -49,7 +49,7 @@ def train(
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
 
-    from explain.model.loading import card_path_for, sha256_of
+    from explain.model.model_files import card_path_for, sha256_of
     from explain.model.mail_data import input_kind, is_mail_source
     from explain.model.training import TrainSettings, model_card, parse_ngrams, train_filter
 

@@ -119,7 +119,7 @@ def support_labels(loaded, data: Path, label_col: Optional[str]) -> tuple[Option
     When ``data`` is the very file the model card says the model was trained
     on (same SHA-256), its label column is known without ``--label-col``.
     """
-    from explain.model.loading import sha256_of
+    from explain.model.model_files import sha256_of
 
     recorded = (loaded.card or {}).get("data") or {}
     if data.is_file() and recorded.get("sha256") == sha256_of(data):

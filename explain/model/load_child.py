@@ -2,7 +2,7 @@
 
 It runs under an address-space limit (``RLIMIT_AS``, set before the file is
 opened) and a CPU-time limit, opens the model file with
-:func:`explain.model.loading.read_object` (skops allow-list, pickle only when
+:func:`explain.model.model_files.read_object` (skops allow-list, pickle only when
 allowed), checks the pipeline, and writes its plain form
 (:mod:`explain.model.plain_form`) into the folder it was given, with
 ``result.json`` saying how it went. It never sends a Python object back: a
@@ -22,7 +22,7 @@ def _peak_bytes() -> int:
 
 
 def _load(request: dict, out: Path) -> dict:
-    from explain.model.loading import read_object, split_pipeline
+    from explain.model.model_files import read_object, split_pipeline
     from explain.model.model_view import view_of
     from explain.model import plain_form
 
