@@ -175,7 +175,7 @@ def test_the_heading_check_can_fail():
 
 def test_ledger_screen_says_p_flag_and_uses_glossary_headings(trained):
     from explain.analysis.ledger import ledger_of
-    from explain.present.why import render as render_ledger
+    from explain.present.ledger_terminal import render as render_ledger
 
     model = load_model(trained)
     text = "Your parcel came to Customs House by mistake, pay the fee at http://fee.example.net today"

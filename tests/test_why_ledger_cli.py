@@ -191,7 +191,7 @@ def test_sixteen_colours_show_strength_by_weight_not_by_brightness(demo):
     from explain.analysis.ledger import ledger_of
     from explain.model.loading import load_model
     from explain.present.drawing import class_colours
-    from explain.present.why import _word, colour_mode, render
+    from explain.present.ledger_terminal import _word, colour_mode, render
 
     ledger = ledger_of(load_model(demo[0]), "pay the parcel fee at the depot today")
     buffer = io.StringIO()

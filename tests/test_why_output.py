@@ -8,7 +8,7 @@ import math
 import pytest
 
 from clirun import nbledger
-from explain.present.why import SCHEMA
+from explain.present.ledger_json import SCHEMA
 from explain.present.token_display import shown
 
 DOCUMENTED_KEYS = {

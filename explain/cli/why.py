@@ -195,7 +195,7 @@ def why(
     """Why did the filter decide this message the way it did? Told as a ledger."""
     from explain.model.email_reader import resolve_text_view
     from explain.output_files import OutputSet
-    from explain.present.why import WRITERS
+    from explain.runs.ledger_records import WRITERS
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
@@ -228,7 +228,7 @@ def why(
         # Imported after loading, so that their imports overlap the loading process.
         from explain.analysis.ledger import ledger_of, redacted
         from explain.analysis.risk import read_watchlist
-        from explain.present.why import render
+        from explain.present.ledger_terminal import render
 
         terms = read_watchlist(watchlist) if watchlist is not None else None
         messages = documents = None

@@ -9,7 +9,7 @@ changed message).
 from __future__ import annotations
 
 from explain.analysis.compare import Comparison
-from explain.present.why import CAUTION
+from explain.present.ledger_words import CAUTION
 
 CAUTIONS = (
     CAUTION,
@@ -44,7 +44,7 @@ def _score(s) -> dict | None:
 
 def to_json(c: Comparison, *, top: int = 10) -> dict:
     """The comparison as plain data (``nbledger.compare/1``); each changed message with both ledgers as ``nbledger.why/2``."""
-    from explain.present.why import to_json as ledger_json
+    from explain.present.ledger_json import to_json as ledger_json
 
     v = c.vocabulary
     d = c.decisions

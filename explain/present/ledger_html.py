@@ -7,7 +7,7 @@ context under the name ``lv``::
 
     {% with lv = ledger_view %}{% include "partials/ledger.html.j2" %}{% endwith %}
 
-The words are those of the terminal ledger (:mod:`explain.present.why`) and
+The words are those of the terminal ledger (:mod:`explain.present.ledger_words`) and
 the tints those of :mod:`explain.present.tint`, so screen and paper agree.
 """
 
@@ -19,16 +19,16 @@ from explain.analysis.ledger import Ledger, redacted
 from explain.present.drawing import class_colours
 from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
-from explain.present.why import (
+from explain.present.ledger_words import (
     CAUTION,
-    credit_colour_class,
     closing_odds,
+    credit_colour_class,
     ledger_notes,
-    ledger_rows,
     money,
     opening_lines,
     probability_line,
     rule_line,
+    shown_rows,
     support_cell,
     word_notes,
 )
@@ -122,18 +122,18 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         }
 
     looks = {e.column: look(e) for e in ledger.entries}
-    rows = ledger_rows(ledger, top)
+    rows = shown_rows(ledger, top)
     number = {id(e): i for i, e in enumerate(ledger.entries)}
-    shown_rows = []
+    row_views = []
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
-            shown_rows.append(
+            row_views.append(
                 {"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"}
             )
             continue
         i = number[id(row)]
-        shown_rows.append({
+        row_views.append({
             "kind": "entry",
             "number": str(i + 1),
             "token": shown(row.token),
@@ -149,7 +149,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
     opening = [
         {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)
     ]
-    directions = {r["direction"] for r in shown_rows if r["kind"] == "entry"}
+    directions = {r["direction"] for r in row_views if r["kind"] == "entry"}
     legend = [
         {"mark": MARKS[d], "text": f"{d}, toward {side}", "swatch": families[side].shade(0.55)}
         for d, side in (("credit", credit_class), ("debit", ledger.debit_class))
@@ -170,9 +170,9 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "credit_label": credit_class if len(ledger.credit_classes) == 1 else ledger.credit_side,
         "debit_label": ledger.debit_class,
         "seen_label": f"{credit_class}/{ledger.debit_class}",
-        "has_flags": any(r.get("flags") for r in shown_rows),
+        "has_flags": any(r.get("flags") for r in row_views),
         "opening": opening,
-        "rows": shown_rows,
+        "rows": row_views,
         "closing": f"{ledger.closing:+.2f}",
         "closing_odds": closing_odds(ledger),
         "rule": rule_line(ledger),

@@ -20,7 +20,7 @@ from explain.analysis.report import Report
 from explain.present import assessment as assessment_json
 from explain.present import probe as probe_present
 from explain.present import vocab as vocab_json
-from explain.present import why as why_json
+from explain.present.ledger_json import to_json as why_json
 
 SCHEMA = "nbledger.report/1"
 
@@ -97,7 +97,7 @@ def ledger_json(ledger, top: int = LEDGER_ROWS) -> dict:
     return {
         "id": ledger.message_id,
         "text": ledger.text or None,
-        **_without(why_json.to_json(ledger, top=top), "schema", "model", "date", "message_id"),
+        **_without(why_json(ledger, top=top), "schema", "model", "date", "message_id"),
     }
 
 

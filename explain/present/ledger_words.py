@@ -1,0 +1,181 @@
+"""The ledger's words, shared by the terminal ledger and its HTML fragment.
+
+:mod:`explain.present.ledger_terminal` prints them and
+:mod:`explain.present.ledger_html` hands them to the template, so screen and
+paper say the same thing. Nothing here computes a figure: every value comes
+from the :class:`~explain.analysis.ledger.Ledger`.
+"""
+
+from __future__ import annotations
+
+import math
+
+from explain.analysis.ledger import Ledger
+from explain.present.token_display import shown
+from explain.present.wording import amount, flip_sentence, folded, odds_factor, plural, probability
+
+#: Messages with more entries than this show their largest and fold the rest.
+SHOW_ALL = 40
+
+
+UNKNOWN_SHOWN = 15
+
+
+CAUTION = (
+    "This ledger describes what the model computed, not whether the message is truly what it "
+    "was taken for; error rates are estimates. The message is personal data. Decisions stay "
+    "with trained staff, under local law and qualified advice."
+)
+
+
+SUPPORT_WORDS = {
+    "documents": "training messages holding the word",
+    "occurrences": "training occurrences of the word",
+    "tfidf-weights": "summed TF-IDF weights of the word in training",
+    "normalised-weights": "summed normalised counts of the word in training",
+}
+
+
+def support_cell(entry, ledger: Ledger) -> str:
+    c, d = ledger.classes.index(credit_colour_class(ledger)), ledger.classes.index(ledger.debit_class)
+
+    def n(x: float) -> str:
+        return f"{x:,.0f}" if ledger.support_kind not in ("tfidf-weights", "normalised-weights") else f"{x:,.1f}"
+
+    return f"{n(entry.support[c])}/{n(entry.support[d])}"
+
+
+def credit_colour_class(ledger: Ledger) -> str:
+    """The class credits are drawn in: the credit class, or the most probable flagged class."""
+    if len(ledger.credit_classes) == 1:
+        return ledger.credit_classes[0]
+    probs = dict(zip(ledger.classes, ledger.probabilities))
+    return max(ledger.credit_classes, key=lambda c: probs[c])
+
+
+def shown_rows(ledger: Ledger, top: int):
+    """Entries to show, with ``(count, total, balance_after)`` folds standing between them."""
+    entries = ledger.entries
+    if len(entries) <= max(SHOW_ALL, top):
+        return list(entries)
+    keep = {id(e) for e in ledger.summary(top).largest}
+    rows, run = [], []
+    for e in entries:
+        if id(e) in keep:
+            if run:
+                rows.append((len(run), math.fsum(r.amount for r in run), run[-1].balance_after))
+                run = []
+            rows.append(e)
+        else:
+            run.append(e)
+    if run:
+        rows.append((len(run), math.fsum(r.amount for r in run), run[-1].balance_after))
+    return rows
+
+
+def probability_line(ledger: Ledger) -> str:
+    probs = dict(zip(ledger.classes, ledger.probabilities))
+    if ledger.normal_class is not None and ledger.flag_probability is not None:
+        # the glossary's one name, said once in the normal class's own words
+        return f"P(flag) = P(not {ledger.normal_class}) = " + probability(
+            ledger.flag_probability, probs[ledger.normal_class]
+        )
+    top = ledger.explanation.predicted
+    return f"P({top}) = {probability(probs[top])}"
+
+
+def rule_line(ledger: Ledger) -> str:
+    if ledger.rule == "threshold":
+        return (
+            f"rule: flag when P(flag) >= {ledger.threshold:g}, that is when the "
+            f"balance is at least logit({ledger.threshold:g}) = {ledger.decision_line:+.2f}"
+        )
+    tie = "or equal to " if ledger.line_inclusive else ""
+    return f"rule: the most probable class; {ledger.credit_side} when the balance is above {tie}0"
+
+
+def money(x: float) -> tuple[str, str]:
+    """The (debit, credit) cells of an amount: its size in the column of its side."""
+    return (f"{-x:.2f}", "") if x < 0 else ("", f"{x:.2f}")
+
+
+def opening_lines(ledger: Ledger) -> list[tuple[str, float, float]]:
+    """``(label, amount, balance after)`` of the opening balance's lines."""
+    lines = [("opening: priors", ledger.opening_prior, ledger.opening_prior)]
+    if ledger.variant == "bernoulli":
+        lines.append(("opening: absent words", ledger.opening_absence, ledger.opening))
+    return lines
+
+
+def decided_side(ledger: Ledger) -> str:
+    return ledger.credit_side if ledger.credit_wins else ledger.debit_class
+
+
+def closing_odds(ledger: Ledger) -> str:
+    """The odds the closing balance gives, named for the side it favours (which a threshold may still overrule)."""
+    side = ledger.credit_side if ledger.closing > 0 else ledger.debit_class
+    return f"odds {odds_factor(ledger.closing)} for {side}"
+
+
+def collision_note(collisions) -> str:
+    """One sentence naming the hashed columns that several tokens share."""
+    listed = "; ".join(
+        f"column {c}: " + ", ".join(f"'{shown(t)}'" for t in tokens) for c, tokens in collisions
+    )
+    return f"Hashed features: these tokens share a column, so the model cannot tell them apart ({listed})."
+
+
+def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
+    """The sentences under the closing balance: where it tipped, exactness, what "seen" counts, folding."""
+    side = decided_side(ledger)
+    notes = []
+    if ledger.tipped_at is not None:
+        e = ledger.entries[ledger.tipped_at]
+        notes.append(
+            f"◀ the balance crosses the decision line at '{shown(e.token)}' (entry {ledger.tipped_at + 1}) "
+            f"and stays on the {side} side."
+        )
+    else:
+        notes.append(f"The opening balance is already on the {side} side and no entry takes it across.")
+    if not ledger.exact:
+        notes.append(
+            "Entries are approximate: a logsumexp over several classes does not split into shares, so each "
+            "entry is the change it makes where it first appears (its size depends on the order, the sum does not)."
+        )
+    notes.append(
+        f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {credit_colour_class(ledger)}/{ledger.debit_class}"
+        + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + "."
+    )
+    if ledger.explanation.collisions:
+        notes.append(collision_note(ledger.explanation.collisions))
+    if folding:
+        s = ledger.summary(top)
+        notes.append(
+            f"Largest {plural(len(s.largest), 'entry', 'entries')} shown; "
+            f"{folded(s.folded_count, s.folded_total)} are folded between them."
+        )
+    return notes
+
+
+def word_notes(ledger: Ledger) -> list[str]:
+    """Disguised words, unknown words and the flip set, in sentences."""
+    lines = []
+    for u in ledger.disguised:
+        toward = credit_colour_class(ledger) if u.avoided > 0 else ledger.debit_class
+        lines.append(
+            f"disguised word: '{shown(u.token)}' looks like '{shown(u.looks_like)}' (Unicode look-alike "
+            f"letters, UTS #39); written plainly it would have moved the balance {amount(u.avoided)}, "
+            f"toward {toward}."
+        )
+    plain_unknown = [u for u in ledger.unknown if u.looks_like is None]
+    if plain_unknown:
+        names = ", ".join(
+            shown(u.token) + (f" x{u.count}" if u.count > 1 else "") for u in plain_unknown[:UNKNOWN_SHOWN]
+        )
+        more = len(plain_unknown) - UNKNOWN_SHOWN
+        lines.append(
+            f"not in the vocabulary (no effect): {names}" + (f" and {plural(more, 'more word')}" if more > 0 else "")
+        )
+    lines.append(flip_sentence(ledger.flip))
+    return lines
+
