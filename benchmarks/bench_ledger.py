@@ -68,7 +68,7 @@ def trained_model(work: Path) -> Path:
 def peak_rss_mb(model: Path, source: Path, out: Path) -> float:
     """Peak resident memory (MB) of a child process writing the ledger of ``source``."""
     code = (
-        "from explain.model.loading import load_model; from explain.present.ledger_files import write_ledger; "
+        "from explain.model.loading import load_model; from explain.runs.ledger_local import write_ledger; "
         f"write_ledger(load_model({str(model)!r}), [{str(source)!r}], 'text', {str(out)!r}, id_col='id')"
     )
     env = dict(os.environ, PYTHONPATH=str(ROOT))
@@ -93,8 +93,8 @@ def main() -> None:
     import skops.io as sio
 
     from explain.model.loading import load_model
-    from explain.present.ledger_dask import dask_client, write_ledger_dask
-    from explain.present.ledger_files import write_ledger
+    from explain.runs.ledger_dask import dask_client, write_ledger_dask
+    from explain.runs.ledger_local import write_ledger
 
     model_path = trained_model(args.work)
     model = load_model(model_path)

@@ -33,8 +33,8 @@ _PUBLIC = {
     "LedgerRows": "explain.analysis.ledger_rows",
     "FlagDrivers": "explain.analysis.drivers",
     "stream_texts": "explain.model.data_stream",
-    "write_ledger": "explain.present.ledger_files",
-    "write_ledger_dask": "explain.present.ledger_dask",
+    "write_ledger": "explain.runs.ledger_local",
+    "write_ledger_dask": "explain.runs.ledger_dask",
     "DecisionRule": "explain.model.decision",
     "ModelView": "explain.model.model_view",
     "TrainSettings": "explain.model.training",
@@ -72,7 +72,7 @@ _PUBLIC = {
     "resolve_text_view": "explain.model.email_reader",
     "read_data": "explain.model.mail_data",
     "MailInput": "explain.model.mail_data",
-    "explain_email": "explain.analysis.mail_facts",
+    "explain_email": "explain.analysis.evidence",
 }
 
 __all__ = sorted(_PUBLIC) + ["__version__"]

@@ -18,7 +18,7 @@ import explain.model.feature_worker as feature_worker
 from corpora import cases, loaded, make_pipeline, messages
 from explain.errors import NbledgerError
 from explain.model.feature_worker import StreamWorker, featured
-from explain.present.ledger_files import write_ledger
+from explain.runs.ledger_local import write_ledger
 
 CORPUS = Path(__file__).resolve().parent.parent / "demo_corpus" / "messages.csv"
 

@@ -16,8 +16,8 @@ from clirun import nbledger  # noqa: E402
 import skops.io as sio  # noqa: E402
 from corpora import make_pipeline  # noqa: E402
 from explain.model.loading import load_model  # noqa: E402
-from explain.present.ledger_dask import write_ledger_dask  # noqa: E402
-from explain.present.ledger_files import write_ledger  # noqa: E402
+from explain.runs.ledger_dask import write_ledger_dask  # noqa: E402
+from explain.runs.ledger_local import write_ledger  # noqa: E402
 
 CORPUS = Path(__file__).resolve().parent.parent / "demo_corpus" / "messages.csv"
 

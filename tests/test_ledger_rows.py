@@ -18,7 +18,8 @@ from explain.analysis.drivers import flag_margin
 from explain.analysis.evidence import explain_message
 from explain.analysis.ledger_rows import ledger_rows
 from explain.model.decision import DecisionRule
-from explain.present.ledger_files import ledger_table, write_ledger
+from explain.present.ledger_files import ledger_table
+from explain.runs.ledger_local import write_ledger
 
 PROPERTY = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 TOP = 4

@@ -25,7 +25,8 @@ from hypothesis import strategies as st
 
 from clirun import nbledger
 from corpora import messages as random_messages
-from explain.analysis.mail_facts import explain_email, redact_line
+from explain.analysis.evidence import explain_email
+from explain.analysis.mail_facts import redact_line
 from explain.errors import NbledgerError
 from explain.model.email_reader import Limits, read_email
 from explain.model.loading import load_model

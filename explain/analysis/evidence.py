@@ -24,20 +24,17 @@ exactly after each removal, and is labelled as greedy.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
 import scipy.sparse as sp
 from scipy.special import expit
 
 from explain.analysis.batch import by_row_then_value, top_two
+from explain.analysis.mail_facts import MailFacts, mail_facts
 from explain.model.decision import DecisionRule
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
 from explain.model.model_view import ROW_WEIGHTED
-
-if TYPE_CHECKING:  # mail_facts builds on this module, so the type is named only for checkers
-    from explain.analysis.mail_facts import MailFacts
 
 #: Greedy flip search stops after this many removals (a cost bound for huge messages).
 GREEDY_STEP_LIMIT = 400
@@ -132,12 +129,16 @@ class Explanation:
 
 
 def explain_message(
-    model, text: str, threshold: float | None = None, threshold_log_odds: float | None = None
+    model, text: str, threshold: float | None = None, threshold_log_odds: float | None = None,
+    *, mail: MailFacts | None = None,
 ) -> Explanation:
     """The exact per-token account of ``text`` under a loaded model.
 
     The threshold is a probability of not normal (``threshold``) or, exactly,
-    flag log-odds (``threshold_log_odds``, as ``assess`` prints them).
+    flag log-odds (``threshold_log_odds``, as ``assess`` prints them). ``mail``
+    says what was read when ``text`` came from a raw e-mail: the one way mail
+    facts reach an explanation (:func:`explain_email` and
+    :func:`explain.analysis.ledger.ledger_of` both pass them here).
     """
     if not isinstance(text, str):
         raise NbledgerError("the message must be text")
@@ -199,7 +200,14 @@ def explain_message(
         feature_kind=view.feature_kind,
         variant=view.variant,
         collisions=_collisions(featurizer, text),
+        mail=mail,
     )
+
+
+def explain_email(model, email, view: str, threshold: float | None = None) -> Explanation:
+    """The :class:`Explanation` of ``email`` (an :class:`~explain.model.email_reader.EmailText`)
+    read in ``view``, carrying its :class:`~explain.analysis.mail_facts.MailFacts` as ``mail``."""
+    return explain_message(model, email.text(view), threshold, mail=mail_facts(email, view))
 
 
 def _collisions(featurizer, text: str) -> tuple[tuple[int, tuple[str, ...]], ...]:

@@ -340,11 +340,9 @@ def ledger_of(
     (:class:`explain.analysis.mail_facts.MailFacts`) says what was read when
     ``text`` came from a raw e-mail; it travels on the explanation.
     """
-    expl = explain_message(model, text, threshold, threshold_log_odds)
+    expl = explain_message(model, text, threshold, threshold_log_odds, mail=mail)
     if threshold_log_odds is not None:
         threshold = expl.threshold  # expit of it, for display; the line below stays exact
-    if mail is not None:
-        expl = replace(expl, mail=mail)
     view, featurizer = model.view, model.featurizer
     classes = list(expl.classes)
     normal = None if expl.normal_class is None else classes.index(expl.normal_class)

@@ -13,7 +13,7 @@ in the vocabulary review.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 from explain.analysis.risk import PERSONAL_KINDS, token_traits
 from explain.model.email_reader import Attachment, EmailText, UndecodablePart
@@ -82,11 +82,3 @@ def decoding_flags(flags: tuple[str, ...], spans, ranges) -> tuple[str, ...]:
     if not inside:
         return flags
     return tuple(f for f in flags if f != "mixed_script") + ("decoding",)
-
-
-def explain_email(model, email: EmailText, view: str, threshold: float | None = None):
-    """The :class:`~explain.analysis.evidence.Explanation` of ``email`` read in ``view``,
-    carrying its :class:`MailFacts` as ``mail``."""
-    from explain.analysis.evidence import explain_message
-
-    return replace(explain_message(model, email.text(view), threshold), mail=mail_facts(email, view))

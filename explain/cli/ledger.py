@@ -107,7 +107,7 @@ def ledger(
     trust: Optional[List[str]] = TRUST,
 ):
     """Write the evidence for every message of a large input, chunk by chunk."""
-    from explain.present.ledger_files import LedgerProgress, write_ledger
+    from explain.runs.ledger_local import LedgerProgress, write_ledger
 
     if engine not in ("local", "dask"):
         raise NbledgerError(f"--engine must be local or dask, got {engine!r}")
@@ -147,7 +147,7 @@ def ledger(
                 target = outputs.staged(out) if single else outputs.staged_folder(out)
                 staged_summary = outputs.staged(summary) if summary is not None else None
                 if engine == "dask":
-                    from explain.present.ledger_dask import write_ledger_dask
+                    from explain.runs.ledger_dask import write_ledger_dask
 
                     write_ledger_dask(
                         loaded, data, text_col, target, scheduler=scheduler, workers=workers or 2,

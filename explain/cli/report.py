@@ -133,12 +133,11 @@ def report(
     max_data_bytes: str = MAX_DATA_BYTES,
 ):
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
-    from explain.analysis.report import ReportSettings, build_report
+    from explain.analysis.report import ReportSettings
     from explain.analysis.risk import read_watchlist
     from explain.cli.assess import parse_fraction
     from explain.output_files import OutputSet
-    from explain.present.report import draw_pictures, render_html, render_pdf
-    from explain.present.report_json import dumps, to_json
+    from explain.runs.report_build import build_report_files
 
     outputs = {out: check_output(out, "--out", (".pdf",))}
     if html is not None:
@@ -183,17 +182,11 @@ def report(
                 terms=terms.terms if (slice_by and terms is not None) else None, label_errors=label_errors,
                 folds=folds, max_data_bytes=max_data_bytes,
             )
-        result = build_report(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
-                              on_step=step, slices=groups, label_errors=suspected,
-                              probe_evasion=probe_evasion, swap_terms=swap_terms)
-        step("drawing the pictures")
-        twin = to_json(result)
-        pictures = draw_pictures(result)
-        step("rendering the PDF")
-        page = render_html(result, twin, pictures)
-        pdf = render_pdf(page, result.date.isoformat())
+        built = build_report_files(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
+                                   on_step=step, slices=groups, label_errors=suspected,
+                                   probe_evasion=probe_evasion, swap_terms=swap_terms)
         step("writing the files")
-        contents = {out: pdf, html: page, json_out: dumps(result)}
+        contents = {out: built.pdf, html: built.html, json_out: built.json}
         # Staged now; all are moved into place together when the block ends without error.
         for path in outputs:
             files.write(path, contents[path])

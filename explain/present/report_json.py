@@ -114,4 +114,9 @@ def missing_sections(report: Report) -> list[tuple[str, str]]:
 
 def dumps(report: Report) -> str:
     """The JSON twin as text: two-space indents, UTF-8 characters kept, a final newline."""
-    return json.dumps(to_json(report), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return twin_text(to_json(report))
+
+
+def twin_text(twin: dict) -> str:
+    """A JSON twin already built (:func:`to_json`) as text, as :func:`dumps` writes it."""
+    return json.dumps(twin, indent=2, ensure_ascii=False, allow_nan=False) + "\n"

@@ -5,7 +5,7 @@ partition per piece of :func:`explain.model.data_stream.input_pieces` (a
 Parquet row group, or a whole CSV / JSON Lines file). Each partition is one
 task that reads its piece with the local engine's reader (same UTF-8 and
 missing-text policy) and explains it in chunks with
-:func:`explain.present.ledger_files.ledger_chunk`; the partition holds that
+:func:`explain.runs.ledger_local.ledger_chunk`; the partition holds that
 part's result in one row. The
 model is scattered to every worker once (``Client.scatter(broadcast=True)``)
 and handed to the tasks as a future.
@@ -32,17 +32,8 @@ import numpy as np
 
 from explain.errors import NbledgerError
 from explain.output_files import atomic_folder, atomic_path
-from explain.present.ledger_files import (
-    LEDGER_FORMATS,
-    IdCounter,
-    LedgerProgress,
-    LedgerWriter,
-    finish_run,
-    ledger_chunk,
-    output_format,
-    row_numbers,
-    run_rule,
-)
+from explain.present.ledger_files import LEDGER_FORMATS, LedgerWriter, output_format
+from explain.runs.ledger_local import IdCounter, LedgerProgress, finish_run, ledger_chunk, row_numbers, run_rule
 
 _FRAME_COLUMNS = ("id", "text", "missing", "replaced")
 
@@ -157,7 +148,7 @@ def write_ledger_dask(
     id_col=None, top_k=5, chunk_rows=20_000, only_flagged=False, threshold=None, summary=None,
     on_chunk=None, progress=None,
 ) -> LedgerProgress:
-    """Like :func:`~explain.present.ledger_files.write_ledger`, on a Dask cluster."""
+    """Like :func:`~explain.runs.ledger_local.write_ledger`, on a Dask cluster."""
     from explain.model.data_stream import input_pieces
 
     out = Path(out)
