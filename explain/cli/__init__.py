@@ -1,6 +1,7 @@
 """The ``nbledger`` command line: thin wrappers that parse, call the library, print.
 
-Every command lives in its own module here and registers itself on ``app``.
+Every command lives in its own module here and registers itself on ``app``
+(:mod:`explain.cli.common`, with what the commands share); :func:`run` runs it.
 Errors the user can fix arrive as :class:`~explain.errors.NbledgerError` and
 end as one ``error: ...`` line on stderr with exit status 2; anything else is
 a defect and still ends as one line (exit status 3), never a traceback.
@@ -8,206 +9,27 @@ a defect and still ends as one line (exit status 3), never a traceback.
 
 from __future__ import annotations
 
-import io
 import os
 import signal
 import sys
 import threading
 import warnings
-from pathlib import Path
-from typing import NoReturn
 
 import typer
 from typer._click.exceptions import NoArgsIsHelpError
 from typer.exceptions import TyperException
 
-from explain.errors import NbledgerError
-from explain.output_files import OutputSet
-from explain.run_folder import run_scope
-from explain.present.token_display import for_terminal, make_console, safe_line, safe_text
-
-app = typer.Typer(
-    name="nbledger",
-    help="Explain, review and assess a trained naive Bayes message filter.",
-    no_args_is_help=True,
-    add_completion=False,
-    pretty_exceptions_enable=False,
+from explain.cli.common import (
+    EXIT_DEFECT, EXIT_SIGINT, EXIT_SIGTERM, EXIT_USER_ERROR, Interrupted, app, say, warn,
 )
-console = make_console(highlight=False)
-err_console = make_console(stderr=True, highlight=False)
-
-EXIT_USER_ERROR = 2
-EXIT_DEFECT = 3
-EXIT_SIGINT = 130  # 128 + signal number, as shells report it
-EXIT_SIGTERM = 143
-
-
-class Interrupted(BaseException):
-    """SIGINT or SIGTERM, raised so that every cleanup runs.
-
-    Not a KeyboardInterrupt: the command-line library would turn that into a
-    silent exit status.
-    """
-
-    def __init__(self, signum: int):
-        super().__init__(signum)
-        self.signum = signum
-
-
-def _say(prefix: str, message: str) -> None:
-    # File names and message texts inside errors are hostile: controls made visible.
-    err_console.print(f"{prefix}: {safe_line(str(message))}", markup=False, soft_wrap=True)
-
-
-def fail(message: str) -> NoReturn:
-    """End the command with one error line and a non-zero exit."""
-    _say("error", message)
-    raise typer.Exit(EXIT_USER_ERROR)
-
-
-def one_threshold(threshold, threshold_log_odds) -> None:
-    """Refuse ``--threshold`` together with ``--threshold-log-odds``: they are two scales of one setting."""
-    if threshold is not None and threshold_log_odds is not None:
-        fail("give --threshold or --threshold-log-odds, not both")
-
-
-def warn(message: str) -> None:
-    _say("warning", message)
+from explain.errors import NbledgerError
+from explain.run_folder import run_scope
 
 
 def _library_warning(message, category, filename, lineno, file=None, line=None) -> None:
     """A warning from numpy, scikit-learn ... as one line of ours, without source paths."""
     text = str(message).strip().splitlines()
     warn(f"{category.__name__}: {text[0] if text else ''}")
-
-
-def model_inputs(model: Path, vectorizer: Path | None = None) -> list[Path]:
-    """The model file, its card and the vectorizer file: inputs no output may replace."""
-    from explain.model.model_files import card_path_for
-
-    return [model, card_path_for(model), vectorizer]
-
-
-def read_messages_or_fail(
-    data: Path,
-    text_col: str | None,
-    label_col: str | None = None,
-    mail=None,
-    id_col: str | None = None,
-    *,
-    max_data_bytes="1G",
-    max_bytes: int | None = None,
-):
-    """Read a table, a folder of .eml files or an mbox file within the size limits; say what was replaced or cut.
-
-    ``mail`` is an ``explain.model.mail_data.MailInput``; when ``label_col`` is given
-    (or the e-mail options give labels) every message must have a label.
-    """
-    from explain.model.mail_data import MailInput, read_data
-
-    messages = read_data(
-        data, text_col, label_col, mail or MailInput(), id_col=id_col,
-        max_bytes=parse_size(max_data_bytes, "--max-data-bytes"), max_message_bytes=max_bytes,
-    )
-    if messages.replaced_chars:
-        warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
-    for note in messages.notes:
-        warn(f"{data.name}: {note}")
-    return messages
-
-
-def labelled_or_fail(messages, data: Path):
-    """``messages`` if they carry labels, else one error line saying how to give them."""
-    if messages.labels is None:
-        fail(
-            f"{data.name} gives no labels: use --label-col for a table, "
-            "--labels-from-folders or --label for e-mail"
-        )
-    return messages
-
-
-def plain_text(render, result, width: int) -> str:
-    """What ``render(result, console)`` prints, as plain text of a given width (for --out)."""
-    buffer = io.StringIO()
-    render(result, make_console(file=buffer, width=width, no_color=True, highlight=False))
-    return buffer.getvalue()
-
-
-def deliver(
-    outputs: OutputSet, *, text: str | None, out: Path | None, pictures: dict, images: Path | None, show,
-    is_json: bool = False,
-) -> None:
-    """Stage the pictures and the output in ``outputs``; call once everything is computed.
-
-    ``text`` goes to ``out`` (or standard output); with neither, ``show()``
-    prints to the terminal. ``out`` and ``images`` must have been declared on
-    ``outputs`` (``outputs.file(out)``, ``outputs.folder(images)``) before computing.
-    """
-    for name, png in pictures.items():
-        outputs.write(images / name, png)
-    if out is not None:
-        outputs.write(out, text)
-    elif text is not None:
-        # Files keep the text exactly; a terminal gets controls made visible.
-        typer.echo(for_terminal(text, is_json) if sys.stdout.isatty() else text, nl=False)
-    else:
-        show()
-
-
-def parse_size(text: str, option: str) -> int:
-    """``"4G"``, ``"512M"``, ``"64K"`` or a number of bytes -> bytes (powers of 1024)."""
-    raw = str(text).strip().upper().removesuffix("B").removesuffix("I")
-    scale = {"K": 1 << 10, "M": 1 << 20, "G": 1 << 30, "T": 1 << 40}.get(raw[-1:], 1)
-    try:
-        value = float(raw[:-1] if scale > 1 else raw) * scale
-    except ValueError:
-        fail(f"{option} takes a size such as 512M or 4G, got {text!r}")
-    if not 0 < value < float(1 << 62):
-        fail(f"{option} must be a positive size, got {text!r}")
-    return int(value)
-
-
-# Options shared by every command that loads a model (one definition, many commands).
-MAX_MODEL_MEMORY = typer.Option(
-    "8G", "--max-model-memory", help="Memory the separate process that opens the model file may use (e.g. 2G)."
-)
-LOAD_TIMEOUT = typer.Option(300.0, "--load-timeout", help="Seconds the model file may take to open.")
-NO_CACHE = typer.Option(False, "--no-cache", help="Open the model file afresh, without the cache of loaded models.")
-# Options every command that opens a model or applies the decision rule shares: one declaration each.
-VECTORIZER = typer.Option(None, "--vectorizer", help="Vectorizer file, when MODEL is a bare classifier.")
-ALLOW_PICKLE = typer.Option(False, "--allow-pickle", help="Allow pickle/joblib files (runs code from the file).")
-TRUST = typer.Option(None, "--trust", help="Accept this type from a skops file (repeatable).")
-NORMAL_CLASS = typer.Option(None, "--normal-class", help="The class that lets a message through.")
-THRESHOLD = typer.Option(None, "--threshold", help="Flag when P(flag) >= P (default: the most probable class).")
-THRESHOLD_LOG_ODDS = typer.Option(
-    None, "--threshold-log-odds",
-    help="Flag when the flag log-odds >= L, exactly (as printed for each operating point).",
-)
-MAX_BYTES = typer.Option(1 << 20, "--max-bytes", min=1, help="Refuse data files holding a message larger than this (bytes).")
-MAX_DATA_BYTES = typer.Option("1G", "--max-data-bytes", help="Refuse data files larger than this once decompressed.")
-
-
-def load_model_or_fail(
-    model: Path, *, vectorizer=None, allow_pickle=False, trust=(), normal_class=None,
-    max_model_memory="8G", load_timeout=300.0, no_cache=False,
-):
-    """The CLI's one way to load a model: warnings to stderr, errors as one line."""
-    from explain.model.loading import LoadLimits, load_model
-
-    if not load_timeout > 0:
-        fail(f"--load-timeout must be a positive number of seconds, got {load_timeout}")
-    limits = LoadLimits(
-        memory=parse_size(max_model_memory, "--max-model-memory"), timeout=load_timeout, cache=not no_cache
-    )
-    return load_model(
-        model,
-        vectorizer_path=vectorizer,
-        allow_pickle=allow_pickle,
-        trust=tuple(trust or ()),
-        normal_class=normal_class,
-        on_warning=warn,
-        limits=limits,
-    )
 
 
 def _on_signal(signum, frame) -> None:
@@ -272,39 +94,39 @@ def _run(argv: list[str]) -> int:
         result = app(args=list(argv), prog_name="nbledger", standalone_mode=False)
         return result if isinstance(result, int) else 0
     except NbledgerError as exc:
-        _say("error", exc)
+        say("error", exc)
         return EXIT_USER_ERROR
     except typer.Exit as exc:
         return exc.exit_code
     except (typer.Abort, KeyboardInterrupt):
-        _say("error", "interrupted (SIGINT); no output was left half-written")
+        say("error", "interrupted (SIGINT); no output was left half-written")
         return EXIT_SIGINT
     except Interrupted as stop:
         return _stopped(stop)
     except NoArgsIsHelpError:
         return 0  # the help has been printed
     except TyperException as exc:  # usage errors: unknown option, missing argument
-        _say("error", exc.format_message())
+        say("error", exc.format_message())
         return EXIT_USER_ERROR
     except MemoryError:
-        _say("error", "out of memory")
+        say("error", "out of memory")
         return EXIT_DEFECT
     except OSError as exc:  # the environment: permissions, missing paths, special files, full disks
         where = f"{exc.filename}: " if exc.filename else ""
-        _say("error", f"{where}{exc.strerror or type(exc).__name__}")
+        say("error", f"{where}{exc.strerror or type(exc).__name__}")
         return EXIT_USER_ERROR
     except Exception as exc:  # a defect: still one line, never a traceback
         stop = _interrupt_behind(exc)
         if stop is not None:
             return _stopped(stop)
         first = str(exc).splitlines()[0] if str(exc) else ""
-        _say("error", f"internal problem ({type(exc).__name__}: {first}); please report it")
+        say("error", f"internal problem ({type(exc).__name__}: {first}); please report it")
         return EXIT_DEFECT
 
 
 def _stopped(stop: Interrupted) -> int:
     name = signal.Signals(stop.signum).name
-    _say("error", f"stopped by {name}; no output was left half-written")
+    say("error", f"stopped by {name}; no output was left half-written")
     return EXIT_SIGTERM if stop.signum == signal.SIGTERM else EXIT_SIGINT
 
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Sequence
 
-from explain.cli import fail, parse_size
+from explain.cli.common import fail, parse_size
 
 SLICE_BY_HELP = "Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month)."
 LABEL_ERRORS_HELP = "List messages whose label may be wrong (refits the model's pipeline on folds of DATA)."

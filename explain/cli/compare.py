@@ -9,7 +9,7 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, TRUST,
     app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
 )

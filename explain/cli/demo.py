@@ -15,19 +15,17 @@ from typing import Optional
 
 import typer
 
-from explain.cli import app, console, fail
+from explain.cli.common import app, console, fail
 
 #: The two decisions printed as one-page sheets: a clear scam and a false alarm.
 SHEETS = ("clear_scam", "false_alarm")
 
 
 def _step(argv: list[str]) -> None:
-    """Run one nbledger command in this process; stop the demo if it fails."""
-    from explain.cli import run
-
+    """Run one nbledger command in this process; its error, if any, ends the demo with that command's one line."""
     console.print(f"$ nbledger {' '.join(argv)}", markup=False, highlight=False, style="dim")
-    status = run(argv)
-    if status:
+    status = app(args=list(argv), prog_name="nbledger", standalone_mode=False)
+    if isinstance(status, int) and status:
         raise typer.Exit(status)
 
 

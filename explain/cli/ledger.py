@@ -10,7 +10,7 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     ALLOW_PICKLE, EXIT_USER_ERROR, NORMAL_CLASS, THRESHOLD, TRUST, VECTORIZER, Interrupted, app, console,
     err_console, load_model_or_fail, model_inputs, warn,
 )

@@ -8,7 +8,7 @@ from typing import List, Optional
 
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
     THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
     model_inputs, plain_text, read_messages_or_fail, one_threshold,

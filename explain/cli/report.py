@@ -12,7 +12,7 @@ from typing import List, Optional
 import numpy as np
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
     read_messages_or_fail,

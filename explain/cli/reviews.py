@@ -8,7 +8,7 @@ from pathlib import Path
 
 import typer
 
-from explain.cli import app, warn
+from explain.cli.common import app, warn
 
 reviews_app = typer.Typer(help="The review desk's database (nbledger serve --db).", no_args_is_help=True)
 app.add_typer(reviews_app, name="reviews")

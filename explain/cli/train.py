@@ -8,7 +8,7 @@ from typing import Optional
 
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     MAX_BYTES, MAX_DATA_BYTES, NORMAL_CLASS, app, console, fail, labelled_or_fail, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input

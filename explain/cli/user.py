@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from explain.cli import app
+from explain.cli.common import app
 
 user_app = typer.Typer(help="Users of the review desk (nbledger serve --users FILE).", no_args_is_help=True)
 app.add_typer(user_app, name="user")

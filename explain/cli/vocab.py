@@ -11,7 +11,7 @@ from typing import List, Optional
 import numpy as np
 import typer
 
-from explain.cli import (
+from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, TRUST, VECTORIZER, app,
     console, deliver, fail, labelled_or_fail, load_model_or_fail, model_inputs, plain_text,
     read_messages_or_fail,
