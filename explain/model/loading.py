@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import functools
 import hashlib
+import os
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable
@@ -39,7 +40,9 @@ from typing import TYPE_CHECKING, Callable
 from explain.errors import NbledgerError
 from explain.model.input_files import input_file
 from explain.model.load_process import LoadLimits, load_in_child
-from explain.model.model_files import check_archive, checked_format, read_card, read_object, sniff_format, split_pipeline
+from explain.model.model_files import (
+    check_archive, checked_format, first_line, read_card, read_object, sniff_format, split_pipeline,
+)
 from explain.model.model_view import ModelView, view_of
 
 if TYPE_CHECKING:
@@ -144,7 +147,7 @@ def load_model(
         except (NbledgerError, KeyError, ValueError, TypeError) as exc:
             cached = None  # an entry of another version of nbledger or scikit-learn: load afresh
             if on_warning is not None:
-                on_warning(f"the cached copy of this model was not used ({_first_line(exc)}); loading the model file afresh")
+                on_warning(f"the cached copy of this model was not used ({first_line(exc)}); loading the model file afresh")
         else:
             return LoadedModel(
                 view.with_normal_class(normal_class), featurizer, path, digest, kind, card,

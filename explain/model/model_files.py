@@ -86,7 +86,7 @@ def read_object(
         try:
             return joblib.load(path), kind
         except Exception as exc:  # a broken or truncated pickle can raise anything
-            raise NbledgerError(f"could not read {path.name} as a pickle: {_first_line(exc)}") from None
+            raise NbledgerError(f"could not read {path.name} as a pickle: {first_line(exc)}") from None
 
 
 def checked_format(path: Path, allow_pickle: bool, on_warning=None) -> str:
@@ -114,7 +114,7 @@ def check_archive(path: Path, limit: int) -> None:
         with zipfile.ZipFile(path) as archive:
             members = archive.infolist()
     except (zipfile.BadZipFile, OSError, ValueError, EOFError) as exc:
-        raise NbledgerError(f"{path.name} is not a readable skops file: {_first_line(exc)}") from None
+        raise NbledgerError(f"{path.name} is not a readable skops file: {first_line(exc)}") from None
     declared = sum(m.file_size for m in members)
     if len(members) > _MAX_MEMBERS or declared > limit:
         raise NbledgerError(
@@ -129,7 +129,7 @@ def _read_skops(path: Path, trust: tuple[str, ...]):
     try:
         untrusted = sio.get_untrusted_types(file=path)
     except (zipfile.BadZipFile, KeyError, ValueError, json.JSONDecodeError, EOFError, OSError) as exc:
-        raise NbledgerError(f"{path.name} is not a readable skops file: {_first_line(exc)}") from None
+        raise NbledgerError(f"{path.name} is not a readable skops file: {first_line(exc)}") from None
     refused = sorted(set(untrusted) - set(trust))
     if refused:
         raise NbledgerError(
@@ -139,10 +139,11 @@ def _read_skops(path: Path, trust: tuple[str, ...]):
     try:
         return sio.load(path, trusted=list(untrusted))
     except Exception as exc:  # skops raises many kinds on damaged archives
-        raise NbledgerError(f"could not load {path.name}: {_first_line(exc)}") from None
+        raise NbledgerError(f"could not load {path.name}: {first_line(exc)}") from None
 
 
-def _first_line(exc: BaseException) -> str:
+def first_line(exc: BaseException) -> str:
+    """An exception as one line: its type and the first line of its message."""
     text = str(exc).strip().splitlines()
     return f"{type(exc).__name__}: {text[0]}" if text else type(exc).__name__
 
@@ -162,7 +163,7 @@ def read_card(model_path: Path, sha256: str, on_warning=None) -> dict | None:
     except OSError as exc:
         raise NbledgerError(f"the model card {path} cannot be read: {exc.strerror}") from None
     except (ValueError, UnicodeDecodeError) as exc:
-        raise NbledgerError(f"the model card {path.name} is not valid: {_first_line(exc)}") from None
+        raise NbledgerError(f"the model card {path.name} is not valid: {first_line(exc)}") from None
     recorded = (card.get("model") or {}).get("sha256")
     if recorded != sha256:
         if on_warning is not None:
