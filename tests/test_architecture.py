@@ -73,12 +73,22 @@ def _cycles(graph) -> list[list[str]]:
     return found
 
 
+#: Cycles known and not yet cut, each with who cuts it; the list only shrinks.
+#: (Keep in step with ``ignore_imports`` in pyproject.toml.)
+KNOWN_CYCLES = [
+    ["explain.runs.desk.app", "explain.runs.desk.pages"],  # the review desk's: pages imports helpers of app
+]
+
+
 def test_no_import_cycle_among_the_files_of_explain():
     import grimp
 
     graph = grimp.build_graph("explain", include_external_packages=False)
     assert "explain.analysis.evidence" in graph.modules  # the graph is the package's, not an empty one
-    assert _cycles(graph) == []
+    found = _cycles(graph)
+    assert [c for c in found if c not in KNOWN_CYCLES] == []
+    # a known cycle that is gone comes off the list
+    assert [c for c in KNOWN_CYCLES if c not in found] == []
 
 
 def test_the_cycle_finder_finds_a_cycle():
