@@ -16,7 +16,7 @@ import pytest
 
 from clirun import nbledger
 from explain.errors import NbledgerError
-from explain.model.loading import card_path_for
+from explain.model.model_files import card_path_for
 from explain.output_files import OutputSet, atomic_folder
 
 ROOT = Path(__file__).resolve().parent.parent

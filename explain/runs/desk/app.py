@@ -2,7 +2,7 @@
 
 State lives on the app (``app.state.settings``), never in module globals, so tests and ``nbledger
 serve`` run the same object. Handlers are thin: a ledger is :func:`explain.analysis.ledger.ledger_of`
-presented by :func:`explain.present.why.to_json` (the ``nbledger.why/2`` record) or by
+presented by :func:`explain.present.ledger_json.to_json` (the ``nbledger.why/2`` record) or by
 :func:`explain.present.ledger_html.ledger_context` (the report's ledger partial); reviews go to
 :class:`explain.runs.desk.store.Store`, committed before the 201 is sent.
 """
@@ -107,7 +107,7 @@ def ledger_for(settings: DeskSettings, text: str, message_id: str | None = None)
 
 
 def record_of(ledger) -> dict:
-    from explain.present.why import to_json
+    from explain.present.ledger_json import to_json
 
     return to_json(ledger, date=record_time())
 
