@@ -143,7 +143,7 @@ def fingerprint(view, featurizer, card: dict | None) -> str | None:
 
 def of_pipeline(pipeline, card: dict | None) -> str | None:
     """The fingerprint of a fitted scikit-learn pipeline (text steps, then a naive Bayes classifier)."""
-    from explain.model.loading import split_pipeline
+    from explain.model.model_files import split_pipeline
     from explain.model.model_view import view_of
 
     featurizer, classifier = split_pipeline(pipeline)

@@ -215,7 +215,7 @@ def review_fields(data: dict, settings: DeskSettings) -> dict:
 
 def store_review(request, item, user, fields: dict) -> tuple[dict, bool]:
     """Store the review with the queued message's ledger and everything else it was based on (committed)."""
-    from explain.present.why import rule_line
+    from explain.present.ledger_words import rule_line
 
     settings = request.app.state.settings
     ledger, record = request.app.state.ledgers.get(settings, item)
