@@ -10,7 +10,8 @@ The glossary's rules (``docs/glossary.md``, "How intervals are shown"):
 - values that are not percentages (AUC, average precision, Brier score)
   carry four decimals;
 - counts carry thousands separators: ``1,204``;
-- an expected count per 10,000 messages carries one decimal: ``12.3``;
+- counts per 10,000 messages: rounded to what their interval supports (the
+  audit figures' rule, kept here too when it lands);
 - a threshold to be typed back (``--threshold-log-odds``) keeps every digit.
 
 Terminals write the space before ``%`` as a plain space; printed pages pass
@@ -94,11 +95,6 @@ def estimate(value: float, low: float, high: float, digits: int = 1) -> str:
     if _missing(value):
         return MISSING
     return f"{value:.{digits}f} ({low:.{digits}f} to {high:.{digits}f})"
-
-
-def per_10000(x: float | None) -> str:
-    """An expected count of messages among 10,000: one decimal."""
-    return MISSING if _missing(x) else f"{x:.1f}"
 
 
 def exact(x: float | None) -> str:
