@@ -21,6 +21,8 @@ def _before_start(signum, frame):
 def main() -> None:
     signal.signal(signal.SIGINT, _before_start)
     signal.signal(signal.SIGTERM, _before_start)
+    if sys.stdout is None or sys.stderr is None:  # started with a standard stream closed (``>&-``)
+        _closed_stream()
     from explain.cli import run
 
     code = run(sys.argv[1:])
@@ -30,6 +32,14 @@ def main() -> None:
     except OSError:  # a closed pipe: nothing more to say
         pass
     os._exit(code)
+
+
+def _closed_stream() -> None:
+    """One line (where standard error is open) and exit 2 when standard output or error was closed at start."""
+    which = "output" if sys.stdout is None else "error"
+    if sys.stderr is not None:
+        os.write(2, f"error: standard {which} is closed; give it somewhere to write (a file, a pipe or /dev/null)\n".encode())
+    os._exit(2)
 
 
 if __name__ == "__main__":

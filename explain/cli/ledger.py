@@ -11,11 +11,14 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, EXIT_USER_ERROR, NORMAL_CLASS, THRESHOLD, TRUST, VECTORIZER, Interrupted, app, console,
-    err_console, load_model_or_fail, model_inputs, warn,
+    ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD, TRUST,
+    VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs, parse_size, warn,
 )
 from explain.errors import NbledgerError
 from explain.output_files import OutputSet
+
+#: Default of the ledger's --max-bytes: its inputs are meant to be large, so a message may be 16 MiB.
+LEDGER_MAX_BYTES = 16 << 20
 
 #: Plain progress lines (when standard error is not a terminal) come at most this often.
 PLAIN_EVERY_SECONDS = 10.0
@@ -105,6 +108,16 @@ def ledger(
     vectorizer: Optional[Path] = VECTORIZER,
     allow_pickle: bool = ALLOW_PICKLE,
     trust: Optional[List[str]] = TRUST,
+    max_bytes: int = typer.Option(
+        LEDGER_MAX_BYTES, "--max-bytes", min=1,
+        help="Refuse a message longer than this (bytes); each row or line is bounded before it is read whole.",
+    ),
+    max_data_bytes: str = typer.Option(
+        "none", "--max-data-bytes", help="Refuse a data file larger than this once decompressed (e.g. 50G; default none).",
+    ),
+    max_model_memory: str = MAX_MODEL_MEMORY,
+    load_timeout: float = LOAD_TIMEOUT,
+    no_cache: bool = NO_CACHE,
 ):
     """Write the evidence for every message of a large input, chunk by chunk."""
     from explain.runs.ledger_local import LedgerProgress, write_ledger
@@ -123,6 +136,9 @@ def ledger(
         output_format(out, LEDGER_FORMATS, "ledger")
     if summary is not None:
         output_format(summary, DRIVER_FORMATS, "flag-driver")
+    from explain.model.data_stream import reading_limits
+
+    total_bound = None if max_data_bytes.strip().lower() == "none" else parse_size(max_data_bytes, "--max-data-bytes")
     progress = LedgerProgress()
     started = False
     try:
@@ -136,14 +152,15 @@ def ledger(
             if summary is not None:
                 outputs.file(summary)
             loaded = load_model_or_fail(
-                model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class
+                model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
+                max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
             )
             options = dict(
                 id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
                 threshold=threshold, progress=progress,
             )
             started = True
-            with _progress_display() as show:
+            with _progress_display() as show, reading_limits(max_bytes, total_bound):
                 target = outputs.staged(out) if single else outputs.staged_folder(out)
                 staged_summary = outputs.staged(summary) if summary is not None else None
                 if engine == "dask":

@@ -254,15 +254,53 @@ def _csv_columns(text: str, name: str) -> dict:
     return {str(c): frame[c].tolist() for c in frame.columns}
 
 
+#: Deepest nesting of arrays and objects accepted in a JSON Lines row.
+MAX_JSON_DEPTH = 64
+
+
+def parse_json_row(text: str):
+    """One JSON Lines row; deep nesting and over-long numbers are ValueErrors naming the limit."""
+    depth = deepest = 0
+    if text.count("[") + text.count("{") > MAX_JSON_DEPTH:  # only then is the nesting worth measuring
+        in_string = escaped = False
+        for ch in text:
+            if in_string:
+                if escaped:
+                    escaped = False
+                elif ch == "\\":
+                    escaped = True
+                elif ch == '"':
+                    in_string = False
+            elif ch == '"':
+                in_string = True
+            elif ch in "[{":
+                depth += 1
+                deepest = max(deepest, depth)
+                if deepest > MAX_JSON_DEPTH:
+                    raise ValueError(f"nested deeper than {MAX_JSON_DEPTH} levels")
+            elif ch in "]}":
+                depth -= 1
+    try:
+        return json.loads(text)
+    except json.JSONDecodeError:
+        raise
+    except RecursionError:
+        raise ValueError(f"nested deeper than {MAX_JSON_DEPTH} levels") from None
+    except ValueError as exc:  # Python's limit on converting long digit strings (int_max_str_digits)
+        raise ValueError(f"holds a number too long to read ({str(exc).split('(')[0].strip()})") from None
+
+
 def _jsonl_columns(text: str, name: str) -> dict:
     rows = []
     for number, line in enumerate(text.splitlines(), start=1):
         if not line.strip():
             continue
         try:
-            row = json.loads(line)
+            row = parse_json_row(line)
         except json.JSONDecodeError as exc:
             raise NbledgerError(f"{name} line {number} is not valid JSON: {exc.msg}") from None
+        except ValueError as exc:
+            raise NbledgerError(f"{name} line {number} {exc}") from None
         if not isinstance(row, dict):
             raise NbledgerError(f"{name} line {number} is not a JSON object")
         rows.append(row)

@@ -15,24 +15,86 @@ bounded by the chunk size, not the input.
 - A file that cannot be read to its end (a damaged or truncated ``.gz``, a
   malformed row) ends in one line naming the file and the last data row
   that was read. Error lines never quote message text.
+- Reading limits (:class:`ReadingLimits`, set for a run with
+  :func:`reading_limits`): every line or row is bounded *before* it is held
+  whole: a JSON Lines line is read with a bounded ``readline``, a CSV row must
+  fit pyarrow's block, Parquet is read in batches sized from the row group's
+  own byte count; a message over ``max_bytes`` (UTF-8) or a row over
+  ``max_bytes`` plus :data:`ROW_SLACK` ends the run naming the file, the row and
+  ``--max-bytes``. ``max_data_bytes`` bounds each file's decompressed bytes
+  (unbounded by default: the ledger's inputs are meant to be large).
+  JSON nested deeper than :data:`MAX_JSON_DEPTH` or numbers too long for
+  Python (4,300 digits) are one line each too.
 """
 
 from __future__ import annotations
 
+import contextlib
 import gzip
+import io
 import json
 import re
 import shutil
 import tempfile
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Iterator
 
 from explain.errors import NbledgerError
-from explain.model.data_io import data_format, decode_utf8
+from explain.model.data_io import MAX_JSON_DEPTH, data_format, decode_utf8, parse_json_row
 
 #: pyarrow's CSV reader needs a whole row inside one block: this is the largest row it can read.
 CSV_BLOCK_BYTES = 16 << 20
+#: Bytes a row or line may hold beyond its message (the id and other fields, JSON quoting).
+ROW_SLACK = 64 << 10
+#: Bytes of text a Parquet batch is sized to hold (from the row group's own byte count).
+PARQUET_BATCH_BYTES = 64 << 20
+
+
+@dataclass(frozen=True)
+class ReadingLimits:
+    """Bounds on reading a data set: ``max_bytes`` per message (UTF-8; its row or line may hold
+    :data:`ROW_SLACK` more), ``max_data_bytes`` per file once decompressed; None is unbounded."""
+
+    max_bytes: int | None = None
+    max_data_bytes: int | None = None
+
+    def row_bound(self) -> int | None:
+        return None if self.max_bytes is None else self.max_bytes + ROW_SLACK
+
+
+_LIMITS = [ReadingLimits()]
+
+
+@contextlib.contextmanager
+def reading_limits(max_bytes: int | None = None, max_data_bytes: int | None = None):
+    """Apply these limits to every stream read inside the block (Dask pieces carry them to the workers)."""
+    _LIMITS.append(ReadingLimits(max_bytes, max_data_bytes))
+    try:
+        yield _LIMITS[-1]
+    finally:
+        _LIMITS.pop()
+
+
+def current_limits() -> ReadingLimits:
+    return _LIMITS[-1]
+
+
+def _too_long(path: Path, row: int, limits: ReadingLimits) -> NbledgerError:
+    return NbledgerError(
+        f"{path.name}: data row {row:,} holds a message longer than {limits.max_bytes:,} bytes "
+        "(--max-bytes); raise --max-bytes to read it"
+    )
+
+
+def _check_lengths(path: Path, texts: list, first_row: int, limits: ReadingLimits) -> None:
+    """Refuse the first text over ``limits.max_bytes`` (UTF-8), naming its data row."""
+    bound = limits.max_bytes
+    if bound is None:
+        return
+    for i, text in enumerate(texts):
+        if len(text) > bound // 4 and (len(text) > bound or len(text.encode("utf-8", "surrogatepass")) > bound):
+            raise _too_long(path, first_row + i + 1, limits)
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,8 +145,12 @@ def _natural(path: Path):
     return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", str(path))]
 
 
-def stream_texts(paths, text_col: str, id_col: str | None = None, chunk_rows: int = 20_000) -> Iterator[TextChunk]:
-    """Yield :class:`TextChunk` of at most ``chunk_rows`` messages, in input order."""
+def stream_texts(
+    paths, text_col: str, id_col: str | None = None, chunk_rows: int = 20_000, limits: ReadingLimits | None = None,
+) -> Iterator[TextChunk]:
+    """Yield :class:`TextChunk` of at most ``chunk_rows`` messages, in input order (within ``limits``,
+    by default those of :func:`reading_limits`)."""
+    limits = limits or current_limits()
     if chunk_rows < 1:
         raise NbledgerError("the chunk size must be at least 1 row")
     files = input_files(paths)
@@ -96,7 +162,9 @@ def stream_texts(paths, text_col: str, id_col: str | None = None, chunk_rows: in
         reader = {"csv": _csv_batches, "jsonl": _jsonl_batches, "parquet": _parquet_batches}[fmt]
         file_row = 0
         try:
-            for texts, ids, nulls, replaced, share in _rechunk(reader(path, gzipped, text_col, id_col, chunk_rows), chunk_rows):
+            batches = reader(path, gzipped, text_col, id_col, chunk_rows, limits)
+            for texts, ids, nulls, replaced, share in _rechunk(batches, chunk_rows):
+                _check_lengths(path, texts, file_row, limits)
                 file_row += len(texts)
                 yield TextChunk(texts, ids, first_row, path.name, file_row, nulls, replaced, (before + share * size) / total)
                 first_row += len(texts)
@@ -153,6 +221,26 @@ class _Counting:
         return min(self.handle.tell() / self.size, 1.0)
 
 
+class _Bounded(io.RawIOBase):
+    """A readable stream that fails once more than ``limit`` bytes have come out of ``inner``."""
+
+    def __init__(self, inner, limit: int | None, name: str):
+        self._inner, self._limit, self._name, self.read_bytes = inner, limit, name, 0
+
+    def readable(self):
+        return True
+
+    def readinto(self, buffer):
+        data = self._inner.read(len(buffer))
+        self.read_bytes += len(data)
+        if self._limit is not None and self.read_bytes > self._limit:
+            raise NbledgerError(
+                f"{self._name} holds more than {self._limit:,} bytes once decompressed (--max-data-bytes)"
+            )
+        buffer[: len(data)] = data
+        return len(data)
+
+
 def _texts(values: list) -> tuple[list, int, int]:
     """Python values of a text column to (str list, nulls, replaced sequences)."""
     nulls = replaced = 0
@@ -188,7 +276,7 @@ def _arrow_texts(column) -> tuple[list, int, int]:
     return _texts(column.to_pylist())
 
 
-def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int):
+def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int, limits: ReadingLimits):
     import pyarrow as pa
     import pyarrow.csv as pcsv
 
@@ -201,13 +289,17 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
 
     def open_reader(include):
         raw = _Counting(path)
-        stream = pa.PythonFile(raw.handle, mode="r")
-        if gzipped:
-            stream = pa.CompressedInputStream(stream, "gzip")
+        if gzipped or limits.max_data_bytes is not None:
+            inner = gzip.GzipFile(fileobj=raw.handle) if gzipped else raw.handle
+            stream = pa.PythonFile(io.BufferedReader(_Bounded(inner, limits.max_data_bytes, path.name), 1 << 20), mode="r")
+        else:
+            stream = pa.PythonFile(raw.handle, mode="r")
+        # A row must fit in one block: the block is the row bound (--max-bytes plus the row's other fields).
+        block = CSV_BLOCK_BYTES if limits.row_bound() is None else max(1 << 20, limits.row_bound())
         reader = pcsv.open_csv(
             stream,
             # One thread: the reader then knows the row number of a malformed row.
-            read_options=pcsv.ReadOptions(block_size=CSV_BLOCK_BYTES, use_threads=False),
+            read_options=pcsv.ReadOptions(block_size=block, use_threads=False),
             parse_options=pcsv.ParseOptions(newlines_in_values=True, invalid_row_handler=malformed),
             convert_options=pcsv.ConvertOptions(
                 include_columns=include,
@@ -220,6 +312,11 @@ def _csv_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, c
 
     def failed(exc):
         row = next((r for r in bad_rows if r.number is not None), None)
+        if row is None and "straddling" in str(exc) and limits.max_bytes is not None:
+            return NbledgerError(
+                f"{path.name} holds a row longer than {limits.row_bound():,} bytes "
+                f"(--max-bytes {limits.max_bytes:,} plus {ROW_SLACK:,} for its other fields); raise --max-bytes to read it"
+            )
         if row is None:
             return ValueError(str(exc))
         return NbledgerError(
@@ -253,19 +350,42 @@ def _missing_column(path: Path, wanted, found) -> None:
             raise NbledgerError(f"{path.name} has no column {column!r}; columns found: {names}")
 
 
-def _jsonl_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int):
+def _bounded_lines(stream, path: Path, limits: ReadingLimits):
+    """The lines of a binary stream, each read with a bounded ``readline`` (never held whole past the bound)."""
+    bound, total, number = limits.row_bound(), 0, 0
+    while True:
+        line = stream.readline(-1 if bound is None else bound + 1)
+        if not line:
+            return
+        number += 1
+        total += len(line)
+        if bound is not None and len(line) > bound:
+            raise NbledgerError(
+                f"{path.name}: line {number:,} is longer than {bound:,} bytes "
+                f"(--max-bytes {limits.max_bytes:,} plus {ROW_SLACK:,} for its other fields); raise --max-bytes to read it"
+            )
+        if limits.max_data_bytes is not None and total > limits.max_data_bytes:
+            raise NbledgerError(
+                f"{path.name} holds more than {limits.max_data_bytes:,} bytes once decompressed (--max-data-bytes)"
+            )
+        yield number, line
+
+
+def _jsonl_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int, limits: ReadingLimits):
     raw = _Counting(path)
     lines = gzip.GzipFile(fileobj=raw.handle) if gzipped else raw.handle
     texts, ids, replaced, rows = [], [], 0, 0
-    for number, line in enumerate(lines, start=1):
+    for number, line in _bounded_lines(lines, path, limits):
         if not line.strip():
             continue
         text, bad = decode_utf8(line)
         replaced += bad
         try:
-            row = json.loads(text)
+            row = parse_json_row(text)
         except json.JSONDecodeError as exc:
             raise ValueError(f"line {number} is not valid JSON: {exc.msg}") from None
+        except ValueError as exc:
+            raise ValueError(f"line {number} {exc}") from None
         if not isinstance(row, dict):
             raise ValueError(f"line {number} is not a JSON object")
         rows += 1
@@ -284,7 +404,7 @@ def _jsonl_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None,
         yield out, (ids if id_col else None), nulls, replaced, raw.share
 
 
-def _parquet_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int):
+def _parquet_batches(path: Path, gzipped: bool, text_col: str, id_col: str | None, chunk_rows: int, limits: ReadingLimits):
     import pyarrow as pa
     import pyarrow.parquet as pq
 
@@ -292,7 +412,7 @@ def _parquet_batches(path: Path, gzipped: bool, text_col: str, id_col: str | Non
         source = path
         if gzipped:
             with gzip.open(path, "rb") as packed:
-                shutil.copyfileobj(packed, spool, 1 << 20)
+                shutil.copyfileobj(_Bounded(packed, limits.max_data_bytes, path.name), spool, 1 << 20)
             spool.seek(0)
             source = spool
         try:
@@ -301,24 +421,79 @@ def _parquet_batches(path: Path, gzipped: bool, text_col: str, id_col: str | Non
             raise NbledgerError(f"{path.name} is not a valid Parquet file: {_reason(exc)}") from None
         total = max(handle.metadata.num_rows, 1)
         done = 0
-        for texts, ids, nulls, replaced in _parquet_pieces(path, handle, text_col, id_col, chunk_rows):
+        for texts, ids, nulls, replaced in _parquet_pieces(path, handle, text_col, id_col, chunk_rows, limits=limits):
             done += len(texts)
             yield texts, ids, nulls, replaced, done / total
 
 
-def _parquet_pieces(path: Path, handle, text_col, id_col, chunk_rows, row_groups=None):
-    """(texts, ids, nulls, replaced) per batch of an open Parquet file (all or some row groups)."""
+def _parquet_pieces(path: Path, handle, text_col, id_col, chunk_rows, row_groups=None, limits=None):
+    """(texts, ids, nulls, replaced) per batch of an open Parquet file (all or some row groups).
+
+    Each row group is read in batches sized from its own byte count (about
+    :data:`PARQUET_BATCH_BYTES` of text each), so that long rows come a few at
+    a time and are refused, over ``max_bytes``, before many are held.
+    """
     import pyarrow as pa
 
+    limits = limits or current_limits()
     wanted = [c for c in (text_col, id_col) if c is not None]
     _missing_column(path, wanted, handle.schema_arrow.names)
+    meta = handle.metadata
+    groups = range(meta.num_row_groups) if row_groups is None else row_groups
+    if limits.max_data_bytes is not None:
+        inflated = sum(meta.row_group(g).total_byte_size for g in groups)
+        if inflated > limits.max_data_bytes:
+            raise NbledgerError(
+                f"{path.name} holds {inflated:,} bytes once decompressed, more than {limits.max_data_bytes:,} (--max-data-bytes)"
+            )
     try:
-        for batch in handle.iter_batches(batch_size=chunk_rows, row_groups=row_groups, columns=wanted):
-            texts, nulls, replaced = _arrow_texts(batch.column(text_col))
-            ids = [str(v) for v in _arrow_texts(batch.column(id_col))[0]] if id_col else None
-            yield texts, ids, nulls, replaced
+        column = handle.schema_arrow.names.index(text_col)
+        for group in groups:
+            size = _parquet_batch_rows(meta.row_group(group), column, chunk_rows, limits)
+            for batch in handle.iter_batches(batch_size=size, row_groups=[group], columns=wanted):
+                _check_arrow_lengths(path, batch.column(text_col), limits)
+                texts, nulls, replaced = _arrow_texts(batch.column(text_col))
+                ids = [str(v) for v in _arrow_texts(batch.column(id_col))[0]] if id_col else None
+                yield texts, ids, nulls, replaced
     except pa.ArrowException as exc:
         raise ValueError(str(exc)) from None
+
+
+def _parquet_batch_rows(info, column: int, chunk_rows: int, limits: ReadingLimits) -> int:
+    """Rows per batch so that a batch holds about :data:`PARQUET_BATCH_BYTES` of text.
+
+    A row's size is the row group's mean, except with a dictionary page, where
+    one row may repeat the largest entry: then as much as the column chunk
+    holds (at most the row bound, beyond which the first such row is refused).
+    """
+    per_row = info.total_byte_size / max(info.num_rows, 1)
+    try:
+        chunk = info.column(column)
+        if chunk.has_dictionary_page:
+            widest = chunk.total_uncompressed_size
+            bound = limits.row_bound()
+            per_row = max(per_row, widest if bound is None else min(widest, bound))
+    except (IndexError, AttributeError):
+        pass
+    return max(1, min(chunk_rows, int(PARQUET_BATCH_BYTES // max(per_row, 1))))
+
+
+def _check_arrow_lengths(path: Path, column, limits: ReadingLimits) -> None:
+    """Refuse a batch holding a value over ``max_bytes`` before it becomes Python strings."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if limits.max_bytes is None or not (
+        pa.types.is_string(column.type) or pa.types.is_large_string(column.type)
+        or pa.types.is_binary(column.type) or pa.types.is_large_binary(column.type)
+    ):
+        return
+    longest = pc.max(pc.binary_length(column)).as_py()
+    if longest is not None and longest > limits.max_bytes:
+        raise NbledgerError(
+            f"{path.name} holds a message of {longest:,} bytes, longer than {limits.max_bytes:,} (--max-bytes); "
+            "raise --max-bytes to read it"
+        )
 
 
 @dataclass(frozen=True)
@@ -331,13 +506,14 @@ class Piece:
     path: str
     row_group: int | None
     rows: int | None
+    limits: ReadingLimits | None = None
 
 
 def input_pieces(paths) -> list[Piece]:
     """The input split into :class:`Piece` (row groups of plain Parquet files, other files whole)."""
     import pyarrow.parquet as pq
 
-    pieces = []
+    pieces, limits = [], current_limits()
     for path in input_files(paths):
         fmt, gzipped = data_format(path)
         if fmt == "parquet" and not gzipped:
@@ -345,16 +521,16 @@ def input_pieces(paths) -> list[Piece]:
                 meta = pq.ParquetFile(path).metadata
             except Exception as exc:  # pyarrow raises several types for a damaged file
                 raise NbledgerError(f"{path.name} is not a valid Parquet file: {_reason(exc)}") from None
-            pieces.extend(Piece(str(path), g, meta.row_group(g).num_rows) for g in range(meta.num_row_groups))
+            pieces.extend(Piece(str(path), g, meta.row_group(g).num_rows, limits) for g in range(meta.num_row_groups))
         else:
-            pieces.append(Piece(str(path), None, None))
+            pieces.append(Piece(str(path), None, None, limits))
     return pieces
 
 
 def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int) -> Iterator[TextChunk]:
     """The chunks of one piece (``first_row`` counts from the piece's start)."""
     if piece.row_group is None:
-        yield from stream_texts([piece.path], text_col, id_col, chunk_rows)
+        yield from stream_texts([piece.path], text_col, id_col, chunk_rows, piece.limits)
         return
     import pyarrow.parquet as pq
 
@@ -362,8 +538,12 @@ def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int)
     done = 0
     try:
         handle = pq.ParquetFile(path)
-        for texts, ids, nulls, replaced in _parquet_pieces(path, handle, text_col, id_col, chunk_rows, [piece.row_group]):
+        pieces = _parquet_pieces(path, handle, text_col, id_col, chunk_rows, [piece.row_group], piece.limits)
+        for texts, ids, nulls, replaced in pieces:
+            _check_lengths(path, texts, done, piece.limits or current_limits())
             yield TextChunk(texts, ids, done, path.name, done + len(texts), nulls, replaced, (done + len(texts)) / max(piece.rows, 1))
             done += len(texts)
+    except NbledgerError:
+        raise
     except (OSError, ValueError) as exc:
         raise NbledgerError(f"{path.name}: could not read past data row {done:,}: {_reason(exc)}") from None
