@@ -144,7 +144,8 @@ def test_redaction_moves_spans_to_the_masked_text(before, after, value):
     )
     text = f"{before} {value} {after}".strip()
     ledger = redacted(ledger_of(loaded(pipeline, normal_class="ok"), text, message_id="warden@example.org"))
-    assert value not in ledger.text and ledger.message_id.startswith("[")
+    # the id identifies the message and is kept as given (issue 18); callers pseudonymise ids holding addresses
+    assert value not in ledger.text and ledger.message_id == "warden@example.org"
     for e in ledger.entries:
         for a, b in e.spans:
             piece = ledger.text[a:b]

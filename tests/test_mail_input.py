@@ -93,7 +93,7 @@ def test_why_on_a_raw_eml_equals_scikit_learn_on_the_decoded_body(body_model, fo
     assert list(doc["probabilities"].values()) == pytest.approx(pipeline.predict_proba([body])[0].tolist(), abs=1e-12)
     assert doc["baseline"] + sum(t["evidence"] for t in doc["tokens"]) == pytest.approx(doc["log_odds"], abs=1e-9)
     assert doc["email"]["text_view"] == "body"
-    assert doc["email"]["sender"].endswith("<[e-mail 1]>") and "@" not in doc["email"]["sender"]
+    assert doc["email"]["sender"].endswith("<[e-mail 2]>") and "@" not in doc["email"]["sender"]
 
 
 @settings(max_examples=40, deadline=None)
@@ -148,7 +148,8 @@ def test_the_terminal_shows_what_was_read(body_model, tmp_path, capsys):
     path.write_bytes(message.as_bytes())
     outcome = nbledger(capsys, "why", body_model, "--file", path)
     assert outcome.code == 0, outcome.err
-    assert "from:     Levy Desk <[e-mail 1]>" in outcome.out and "levy@example.net" not in outcome.out
+    assert "from:     [name 1] <[e-mail 2]>" in outcome.out and "levy@example.net" not in outcome.out
+    assert "Levy Desk" not in outcome.out  # a display name is personal data (issue 18)
     assert "subject:  Levy \u2013 final notice" in outcome.out
     assert "attached: invoice.pdf (application/pdf, 4 bytes; not read)" in outcome.out
 
@@ -280,9 +281,10 @@ def test_label_with_a_table_is_refused(tmp_path):
 
 
 def test_redact_line_hides_addresses_and_numbers():
-    assert redact_line("Ann Lee <ann@example.org>") == "Ann Lee <[e-mail 1]>"
-    assert redact_line("call 555-0147 or see http://levy.example.net/x") == "call [phone 1] or see [url 2]"
-    assert redact_line('"desk@example.net" (Levy Desk)') == '"[e-mail 1]" (Levy Desk)'
+    assert redact_line("Ann Lee <ann@example.org>") == "[name 1] <[e-mail 2]>"
+    assert redact_line("Lee, Ann <ann@example.org>, Ann Lee <ann@example.org>") == "[name 1] <[e-mail 2]>, [name 3] <[e-mail 2]>"
+    assert redact_line("call 555-0147 or see http://levy.example.net/x", "Subject") == "call [phone 1] or see [url 2]"
+    assert redact_line('desk@example.net (Levy Desk)') == '[e-mail 1] ([name 2])'
 
 
 def test_demo_examples_read_cleanly():

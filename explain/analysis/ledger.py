@@ -547,7 +547,11 @@ def redacted(ledger: Ledger) -> Ledger:
     if ledger.redacted:
         return ledger
     found = personal_spans(ledger.text)
-    marks = [(s, e, f"[{kind} {n}]") for n, (s, e, kind) in enumerate(found, start=1)]
+    # One value, one placeholder: the same person (or number) is "[name 2]" everywhere in the text.
+    numbers: dict[tuple[str, str], int] = {}
+    for s, e, kind in found:
+        numbers.setdefault((kind, " ".join(ledger.text[s:e].lower().split())), len(numbers) + 1)
+    marks = [(s, e, f"[{kind} {numbers[kind, ' '.join(ledger.text[s:e].lower().split())]}]") for s, e, kind in found]
     names: dict[str, str] = {}
     extra: list[str] = []
 
@@ -559,7 +563,7 @@ def redacted(ledger: Ledger) -> Ledger:
             hit = inside[0] if inside and all(inside) else None
             traits = token_traits([token])
             if hit is None and traits.personal[0]:
-                hit = f"[{PERSONAL_KINDS[traits.personal_kind[0]]} {len(marks) + len(extra) + 1}]"
+                hit = f"[{PERSONAL_KINDS[traits.personal_kind[0]]} {len(numbers) + len(extra) + 1}]"
                 extra.append(hit)
             names[token] = hit or token
         return names[token]
@@ -582,9 +586,9 @@ def redacted(ledger: Ledger) -> Ledger:
         unknown_tokens=tuple((mask(t), n) for t, n in expl.unknown_tokens),
         flip=flip,
     )
-    message_id = None if ledger.message_id is None else mask(ledger.message_id)
+    # Ids identify messages, not people: kept as given (an id holding an address is pseudonymised by the caller).
     return replace(
-        ledger, text=text, message_id=message_id, entries=entries, unknown=unknown, flip=flip, redacted=True,
+        ledger, text=text, entries=entries, unknown=unknown, flip=flip, redacted=True,
         explanation=expl,
     )
 

@@ -36,23 +36,26 @@ class MailFacts:
     fallback_ranges: tuple[tuple[int, int], ...] = ()
 
 
-def redact_line(line: str) -> str:
-    """``line`` with every piece that looks personal replaced by ``[<kind> <n>]``.
+def redact_line(line: str, header: str = "From") -> str:
+    """``line`` (a header's value) with every personal value replaced by ``[<kind> <n>]``.
 
-    >>> redact_line('Harbour Office <office@example.org>')
-    'Harbour Office <[e-mail 1]>'
+    The value is read as the header ``header`` (From, To, Subject ...) by the one
+    detector (:func:`explain.analysis.personal_data.find_personal`), so the
+    display names of address headers are masked too.
+
+    >>> redact_line('Marta Quill <marta@example.org>')
+    '[name 1] <[e-mail 2]>'
     """
-    pieces = [(m.start(), m.end(), m.group().strip(_FRAME)) for m in _PIECE.finditer(line)]
-    if not pieces:
-        return line
-    kinds = token_traits([core for _, _, core in pieces]).personal_kind
+    from explain.analysis.personal_data import find_personal
+
+    prefix = f"{header}: "
+    found = [(s - len(prefix), e - len(prefix), k) for s, e, k in find_personal(prefix + line) if s >= len(prefix)]
+    numbers: dict[tuple[str, str], int] = {}
     out, last = [], 0
-    for (start, end, core), kind in zip(pieces, kinds):
-        if kind < 0 or not core:
-            continue
-        at = line.index(core, start, end)
-        out.append(line[last:at] + f"[{PERSONAL_KINDS[kind]} {len(out) + 1}]")
-        last = at + len(core)
+    for start, end, kind in found:
+        n = numbers.setdefault((kind, line[start:end].lower()), len(numbers) + 1)
+        out.append(line[last:start] + f"[{kind} {n}]")
+        last = end
     return "".join(out) + line[last:]
 
 
@@ -60,8 +63,8 @@ def mail_facts(email: EmailText, view: str) -> MailFacts:
     """The facts of ``email`` read in ``view``, subject and sender redacted."""
     return MailFacts(
         view=view,
-        subject=redact_line(email.subject),
-        sender=redact_line(email.sender),
+        subject=redact_line(email.subject, "Subject"),
+        sender=redact_line(email.sender, "From"),
         attachments=email.attachments,
         undecodable=email.undecodable,
         problems=email.problems,

@@ -19,7 +19,7 @@ from explain.analysis.assessment import Assessment, assess
 from explain.analysis.batch import batch_evidence
 from explain.analysis.ledger import Ledger, ledger_of, redacted
 from explain.analysis.rates import Projection, project_to_base_rate
-from explain.analysis.redaction import MODES, mask_value, redact_assessment, withhold_text
+from explain.analysis.redaction import MODES, IdPseudonyms, redact_assessment, redact_probe, withhold_text
 from explain.analysis.risk import Watchlist
 from explain.analysis.vocab import VocabReview, review_vocabulary
 from explain.errors import NbledgerError
@@ -45,6 +45,8 @@ class ReportSettings:
     threshold_log_odds: float | None = None
     #: the share of flagged-class messages in real traffic: the summary adds projected figures for it
     base_rate: float | None = None
+    #: the organisation's secret for the pseudonyms of ids holding an e-mail address (``--id-key-file``), or None
+    id_key: bytes | None = None
 
     def __post_init__(self):
         if self.redact not in MODES:
@@ -227,12 +229,12 @@ def flagged_sample(model, texts, threshold: float | None, n: int, threshold_log_
     return ranked[np.unique(np.linspace(0, len(ranked) - 1, n).round().astype(int))]
 
 
-def _redacted_ledger(ledger: Ledger, mode: str) -> Ledger:
+def _redacted_ledger(ledger: Ledger, mode: str, ids: IdPseudonyms) -> Ledger:
     if mode == "none":
         return ledger
     masked = redacted(ledger)
     masked = withhold_text(masked) if mode == "bodies" else masked
-    return replace(masked, message_id=None if ledger.message_id is None else mask_value(ledger.message_id))
+    return replace(masked, message_id=ids(ledger.message_id))
 
 
 def build_report(
@@ -268,6 +270,7 @@ def build_report(
     """
     date = report_date()
     redact = settings.redact
+    pseudonyms = IdPseudonyms(settings.id_key)
     on_step("reviewing the vocabulary")
     # Hashed features store no vocabulary: name each column by the tokens of the report's texts hashed into it.
     model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
@@ -280,7 +283,7 @@ def build_report(
             assess(model.view, X, data.labels, threshold=settings.threshold,
                    threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
                    slices=list(slices), label_errors=label_errors),
-            redact,
+            redact, pseudonyms,
         )
     on_step("explaining messages")
     if explain is not None:
@@ -296,7 +299,7 @@ def build_report(
         _redacted_ledger(
             ledger_of(model, texts[i], settings.threshold, threshold_log_odds=settings.threshold_log_odds,
                       message_id=str(ids[i]), watchlist=watchlist),
-            redact,
+            redact, pseudonyms,
         )
         for i in rows[: settings.max_messages]
         if texts[i].strip()
@@ -314,7 +317,7 @@ def build_report(
             threshold=settings.threshold,
         )
     return Report(
-        probe=probe_result,
+        probe=probe_result if redact == "none" else redact_probe(probe_result),
         settings=settings,
         date=date,
         model=model,

@@ -71,7 +71,10 @@ from explain.model.token_patterns import BARE_WEB_ADDRESS
 FLAGS = ("thin", "personal", "numeric", "mixed_script", "stopword", "watchlist", "watchlist_strong")
 #: How screens and pictures name each flag (the glossary's words).
 FLAG_LABELS = {name: name.replace("_", "-") for name in FLAGS}
-PERSONAL_KINDS = ("e-mail", "url", "ip", "digits", "phone")
+PERSONAL_KINDS = (
+    "e-mail", "url", "ip", "digits", "phone", "card", "iban", "sort-code", "account", "birth-date", "address",
+    "postcode", "name",
+)
 DEFAULT_THIN_BELOW = 10.0
 DEFAULT_STRONG_LOG_ODDS = log(4.0)
 
@@ -212,12 +215,29 @@ def token_traits(tokens) -> TokenTraits:
         for j in np.flatnonzero(trigger & (kind < 0)):
             if pattern.search(tokens[j]):
                 kind[j] = index
+    _detector_kinds(tokens, chars, kind)
     return TokenTraits(
         personal_kind=kind,
         numeric=(chars.digits > 0) & (chars.letters == 0),
         mixed_script=chars.lowest_script != chars.highest_script,
         stopword=np.fromiter(map(ENGLISH_STOP_WORDS.__contains__, tokens), dtype=bool, count=len(tokens)),
     )
+
+
+def _detector_kinds(tokens: list[str], chars: _Letters, kind: np.ndarray) -> None:
+    """Mark, in place, the tokens that the text detector's single-token checks find.
+
+    A Luhn-valid card number or a checksum-valid IBAN wins over ``digits`` and
+    ``phone``; a known given name (not an everyday word) is a ``name``
+    (:mod:`explain.analysis.personal_data`). Only candidates are looked at.
+    """
+    from explain.analysis.personal_data import token_kind
+
+    candidates = (chars.digits >= 13) | ((chars.digits >= 2) & (chars.letters >= 2)) | ((chars.letters > 1) & (kind < 0))
+    for j in np.flatnonzero(candidates):
+        found = token_kind(tokens[j])
+        if found is not None and (kind[j] < 0 or found in ("card", "iban")):
+            kind[j] = PERSONAL_KINDS.index(found)
 
 
 def risk_flags(
@@ -260,6 +280,9 @@ PERSONAL_PROBES = {
     "ip": "192.0.2.14",
     "digits": "20260101",
     "phone": "555-555-0134",
+    "card": "4111111111111111",
+    "iban": "GB82WEST12345698765432",
+    "name": "Margaret",
 }
 
 
@@ -292,7 +315,7 @@ def redaction_check(traits: TokenTraits, analyzer: Callable[[str], Sequence[str]
         splits = tuple(
             kind
             for k, kind in enumerate(PERSONAL_KINDS)
-            if not (token_traits(list(analyzer(PERSONAL_PROBES[kind]))).personal_kind == k).any()
+            if kind in PERSONAL_PROBES and not (token_traits(list(analyzer(PERSONAL_PROBES[kind]))).personal_kind == k).any()
         )
     return RedactionCheck(
         checked=len(traits.personal_kind),
@@ -360,57 +383,21 @@ def watchlist_columns(terms, tokens) -> np.ndarray:
     )
 
 
-# A header line that names people (RFC 5322 section 3.6.2-3.6.3), and one "Display Name <address>" in it.
-_ADDRESS_HEADER = re.compile(r"^(?:from|to|cc|bcc|reply-to|sender|resent-from|resent-to)[ \t]*:[^\n]*", re.I | re.M)
-_DISPLAY_NAME = re.compile(r'(?:"([^"\n]*[^"\s])\s*"|([^"<>,:;\s][^"<>,:;\n]*?))[ \t]*<[^<>\n]*>')
-
-
 def display_names(text: str) -> list[tuple[int, int, str]]:
-    """``(start, end, "name")`` of the display names in a message's address header lines.
+    """The display names of address header lines (:func:`explain.analysis.personal_data.display_names`)."""
+    from explain.analysis.personal_data import display_names as names
 
-    In ``From: Jane Doe <jane@example.org>`` the address is found by the
-    e-mail pattern; the name before it is personal data too (a sender line
-    of a raw message read with a ``headers+body`` view).
-    """
-    spans = []
-    for line in _ADDRESS_HEADER.finditer(text):
-        value_at = line.start() + line.group().index(":")
-        for m in _DISPLAY_NAME.finditer(text, value_at + 1, line.end()):
-            group = 1 if m.group(1) is not None else 2
-            spans.append((m.start(group), m.end(group), "name"))
-    return spans
+    return names(text)
 
 
 def personal_spans(text: str) -> list[tuple[int, int, str]]:
-    """``(start, end, kind)`` of personal-looking values in free text, left to right, not overlapping.
+    """``(start, end, kind)`` of the personal values in free text, left to right, not overlapping.
 
-    The same patterns as the ``personal`` flag, searched in the whole text
-    rather than in single tokens, and the display names of address header
-    lines (:func:`display_names`): a vectorizer that splits
-    ``warden@example.org`` into pieces leaves the text itself to be masked.
-    The patterns find where a value starts (a URL's scheme, say), so each
-    match is widened to the whole run of non-space characters around it, less
-    trailing punctuation. Where matches overlap, the earlier (then the
-    longer) wins.
+    The one detector, :func:`explain.analysis.personal_data.find_personal`:
+    e-mail addresses, URLs, IP addresses, card numbers, IBANs, sort codes and
+    account numbers, dates of birth, phone numbers, street addresses,
+    postcodes, people's names and long digit runs.
     """
+    from explain.analysis.personal_data import find_personal
 
-    def widened(m) -> tuple[int, int]:
-        start = m.start() - len(re.search(r"\S*$", plain[: m.start()]).group())
-        tail = re.match(r"\S*", plain[m.end() :]).group().rstrip(".,;:!?)]}'\"")
-        return start, m.end() + len(tail)
-
-    # Punctuation that ends a sentence is not part of a value ("at 192.0.2.7.");
-    # blanking it keeps every offset.
-    plain = re.sub(r"[.,;:!?](?=\s|$)", " ", text)
-    found = sorted(
-        [*((*widened(m), PERSONAL_KINDS[k]) for k, pattern in enumerate(_PERSONAL_PATTERNS)
-           for m in pattern.finditer(plain) if m.end() > m.start()),
-         *display_names(text)],
-        key=lambda s: (s[0], -(s[1] - s[0])),
-    )
-    kept: list[tuple[int, int, str]] = []
-    for start, end, kind in found:
-        if kept and start < kept[-1][1]:
-            continue
-        kept.append((start, end, kind))
-    return kept
+    return find_personal(text)
