@@ -394,12 +394,18 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
     )
 
 
-def redacted_comparison(comparison: Comparison) -> Comparison:
-    """The same comparison with personal-looking values masked in tokens, ids and both ledgers of each message."""
+def redacted_comparison(comparison: Comparison, ids=None) -> Comparison:
+    """The same comparison with personal values masked in tokens and both ledgers of each message.
+
+    Ids are kept as given; one holding an e-mail address becomes its keyed pseudonym
+    (``ids``, an :class:`~explain.analysis.redaction.IdPseudonyms`; a random key when None).
+    """
     from dataclasses import replace
 
     from explain.analysis.ledger import redacted
-    from explain.analysis.redaction import mask_value
+    from explain.analysis.redaction import IdPseudonyms, mask_value
+
+    ids = ids if ids is not None else IdPseudonyms()
 
     def shifts(items):
         return tuple(replace(s, token=mask_value(s.token)) for s in items)
@@ -417,7 +423,7 @@ def redacted_comparison(comparison: Comparison) -> Comparison:
     decisions = comparison.decisions
     if decisions is not None:
         decisions = replace(decisions, shown=tuple(
-            replace(m, message_id=mask_value(m.message_id), old=redacted(m.old), new=redacted(m.new))
+            replace(m, message_id=ids(m.message_id), old=redacted(m.old), new=redacted(m.new))
             for m in decisions.shown
         ))
     return replace(comparison, vocabulary=vocab, decisions=decisions)

@@ -548,10 +548,8 @@ def redacted(ledger: Ledger) -> Ledger:
         return ledger
     found = personal_spans(ledger.text)
     # One value, one placeholder: the same person (or number) is "[name 2]" everywhere in the text.
-    numbers: dict[tuple[str, str], int] = {}
-    for s, e, kind in found:
-        numbers.setdefault((kind, " ".join(ledger.text[s:e].lower().split())), len(numbers) + 1)
-    marks = [(s, e, f"[{kind} {numbers[kind, ' '.join(ledger.text[s:e].lower().split())]}]") for s, e, kind in found]
+    numbers = placeholder_numbers(ledger.text, found)
+    marks = [(s, e, f"[{kind} {n}]") for (s, e, kind), n in zip(found, numbers)]
     names: dict[str, str] = {}
     extra: list[str] = []
 
@@ -563,7 +561,7 @@ def redacted(ledger: Ledger) -> Ledger:
             hit = inside[0] if inside and all(inside) else None
             traits = token_traits([token])
             if hit is None and traits.personal[0]:
-                hit = f"[{PERSONAL_KINDS[traits.personal_kind[0]]} {len(numbers) + len(extra) + 1}]"
+                hit = f"[{PERSONAL_KINDS[traits.personal_kind[0]]} {max(numbers, default=0) + len(extra) + 1}]"
                 extra.append(hit)
             names[token] = hit or token
         return names[token]
@@ -591,6 +589,24 @@ def redacted(ledger: Ledger) -> Ledger:
         ledger, text=text, entries=entries, unknown=unknown, flip=flip, redacted=True,
         explanation=expl,
     )
+
+
+def placeholder_numbers(text: str, found) -> list[int]:
+    """The number of each found ``(start, end, kind)``: one value, one number; a name sharing a word with an
+    earlier name ("Oksana" after "Oksana Petrenko") is the same person and keeps that name's number."""
+    numbers: dict[tuple[str, str], int] = {}
+    name_words: dict[str, int] = {}
+    out = []
+    for s, e, kind in found:
+        value = " ".join(text[s:e].lower().split())
+        if (kind, value) not in numbers:
+            known = [name_words[w] for w in value.split() if kind == "name" and w in name_words]
+            numbers[kind, value] = known[0] if known else max(numbers.values(), default=0) + 1
+        if kind == "name":
+            for w in value.split():
+                name_words.setdefault(w, numbers[kind, value])
+        out.append(numbers[kind, value])
+    return out
 
 
 def _masked_text(text: str, marks: list[tuple[int, int, str]]):

@@ -32,7 +32,11 @@ def compare(
     threshold: Optional[float] = THRESHOLD,
     top: int = typer.Option(10, "--top", help="Tokens listed per change."),
     show: int = typer.Option(20, "--show", help="Changed messages shown with both explanations."),
-    redact: str = typer.Option("personal", "--redact", help="personal (mask e-mail, phone, URL, IP, digit runs) | none"),
+    redact: str = typer.Option("personal", "--redact", help="personal (mask people: names, addresses, numbers, e-mail, IP, URL) | none"),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data holding message ids (default: id, if present)."),
+    id_key_file: Optional[Path] = typer.Option(
+        None, "--id-key-file", help="The organisation's secret: ids holding an e-mail address are shown as its HMAC-SHA-256 pseudonym."
+    ),
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the comparison to a .pdf, .html or .json file."),
     allow_pickle: bool = ALLOW_PICKLE,
@@ -59,7 +63,10 @@ def compare(
         fail(f"--out must end in {', '.join(SUFFIXES)}, got {out.name}")
     if top < 1 or show < 0:
         fail("--top must be at least 1 and --show at least 0")
-    with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data]) as files:
+    from explain.analysis.redaction import IdPseudonyms, read_id_key
+
+    pseudonyms = IdPseudonyms(read_id_key(id_key_file) if id_key_file is not None else None)
+    with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data, id_key_file]) as files:
         if out is not None:
             files.file(out)
         loaded = [
@@ -74,10 +81,11 @@ def compare(
             # Both models must read the same part of raw e-mail: one view for both, or an error.
             mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
             resolve_text_view(loaded[1].card, mail.view)
-            messages = read_messages_or_fail(data, text_col, label_col or None, mail, max_data_bytes=max_data_bytes)
+            messages = read_messages_or_fail(data, text_col, label_col or None, mail, id_col=id_col,
+                                             max_data_bytes=max_data_bytes)
         result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show)
         if redact != "none":
-            result = redacted_comparison(result)
+            result = redacted_comparison(result, pseudonyms)
         suffix = None if out is None else out.suffix.lower()
         if suffix in (".pdf", ".html", ".htm"):
             from explain.analysis.report import report_date

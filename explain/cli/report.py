@@ -35,7 +35,7 @@ def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     return path
 
 
-def read_explain(path: Path, text_col: str, mail):
+def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
     """Messages to explain: a data file (its ``text_col``), or a ``.txt``/``.eml`` file holding one message.
 
     A raw e-mail is read as ``why`` reads it, in the text view ``mail.view``
@@ -46,7 +46,7 @@ def read_explain(path: Path, text_col: str, mail):
     from explain.model.data_io import Messages, decode_utf8
 
     if path.suffix.lower() not in (".txt", ".eml"):
-        return read_messages_or_fail(path, text_col, mail=mail)
+        return read_messages_or_fail(path, text_col, mail=mail, id_col=id_col)
     if not path.is_file():
         fail(f"no message file at {path}")
     raw = path.read_bytes()
@@ -106,7 +106,12 @@ def report(
         None, "--watchlist", help="UTF-8 file of terms to report whatever their evidence (one a line, # comments)."
     ),
     redact: str = typer.Option(
-        "personal", "--redact", help="personal (mask e-mail, phone, URL, IP, digit runs) | bodies (no message text) | none"
+        "personal", "--redact",
+        help="personal (mask people: names, addresses, numbers, e-mail, IP, URL) | bodies (no message text) | none",
+    ),
+    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data / --explain holding message ids (default: id, if present)."),
+    id_key_file: Optional[Path] = typer.Option(
+        None, "--id-key-file", help="The organisation's secret: ids holding an e-mail address are shown as its HMAC-SHA-256 pseudonym."
     ),
     title: str = typer.Option("Review of a naive Bayes message filter", "--title", help="Title on the cover."),
     organisation: Optional[str] = typer.Option(None, "--organisation", help="Organisation on the cover."),
@@ -146,7 +151,11 @@ def report(
         outputs[json_out] = check_output(json_out, "--json", (".json",))
     if len({p.resolve() for p in outputs}) < len(outputs):
         fail("--out, --html and --json must be different files")
+    from explain.analysis.redaction import read_id_key
+
+    id_key = read_id_key(id_key_file) if id_key_file is not None else None
     settings = ReportSettings(
+        id_key=id_key,
         title=title, organisation=organisation, redact=redact, paper=paper, max_messages=max_messages,
         threshold=threshold, threshold_log_odds=threshold_log_odds,
         base_rate=None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
@@ -158,7 +167,7 @@ def report(
 
     probing = probe_evasion or swap_terms is not None
     total = 8 + bool(slice_by or label_errors) + probing
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist, swap_terms]) as files, \
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist, swap_terms, id_key_file]) as files, \
             steps(total) as step:
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
@@ -170,10 +179,10 @@ def report(
         step("reading the data")
         mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
         messages = (
-            read_messages_or_fail(data, text_col, label_col, mail, max_data_bytes=max_data_bytes)
+            read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes)
             if data is not None else None
         )
-        to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email)) if explain else None
+        to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email), id_col) if explain else None
         groups, suspected = [], None
         if slice_by or label_errors:
             step("slicing the data" if not label_errors else "refitting on folds to find suspected label errors")

@@ -116,6 +116,7 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
         "date": date,
         "card_date": ledger.card_date,
         "redacted": ledger.redacted,
+        "circulation": "internal",
         "ledger": {
             "credit_side": ledger.credit_side,
             "credit_classes": list(ledger.credit_classes),

@@ -60,6 +60,7 @@ def to_json(report: Report) -> dict:
     return _finite(
         {
             "schema": SCHEMA,
+            "circulation": "internal",
             "title": s.title,
             "organisation": s.organisation,
             "date": report.date.isoformat(),
