@@ -18,7 +18,7 @@ DOCUMENTED_KEYS = {
     "flip_reason", "feature_kind", "variant", "email",
 }
 # nbledger.why/2 only adds keys beside those of nbledger.why/1.
-ADDED_KEYS = {"message_id", "date", "card_date", "redacted", "ledger", "collisions"}
+ADDED_KEYS = {"message_id", "date", "card_date", "redacted", "circulation", "ledger", "collisions"}
 MESSAGE = "Your parcel is at the depot: pay the fee at http://parcel-fee.example.net/x today, thanks"
 
 

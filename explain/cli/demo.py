@@ -75,7 +75,15 @@ def demo(
         if (examples / f"{name}.txt").is_file():
             sheets.append(out / f"sheet_{name}.pdf")
             _step(["why", str(model), "--file", str(examples / f"{name}.txt"), "--redact", "--out", str(sheets[-1])])
+    letter = None
+    if (examples / "false_alarm.txt").is_file() and (examples / "letter.toml").is_file():
+        # The member whose message was held gets a plain letter (no figures), not the team's sheet.
+        letter = out / "letter_false_alarm.pdf"
+        _step(["why", str(model), "--file", str(examples / "false_alarm.txt"), "--audience", "member",
+               "--letter-settings", str(examples / "letter.toml"), "--out", str(letter)])
     console.print(f"\nThe review report is {out / 'report.pdf'} (HTML twin report.html, every figure in report.json).",
                   markup=False, highlight=False)
     for sheet in sheets:
         console.print(f"One-page sheet: {sheet}", markup=False, highlight=False)
+    if letter is not None:
+        console.print(f"Letter to the member: {letter}", markup=False, highlight=False)

@@ -158,6 +158,31 @@ def read_one(raw: bytes | str, as_email: bool, view: str) -> tuple:
     return mail.message_id or None, mail.text(view), mail_facts(mail, view)
 
 
+def member_out_ok(out: Optional[Path], ids: Optional[Path], output_format: str) -> None:
+    """The checks of ``--audience member`` that need no model: one message, a letter's suffix, no JSON."""
+    from explain.present.letter import LETTER_WRITERS
+
+    if ids is not None:
+        fail("a member letter is about one message: give --id, TEXT or --file, not --ids")
+    if output_format != "text":
+        fail("a member letter has no JSON form; leave out --format json")
+    if out is not None and out.suffix.lower() not in LETTER_WRITERS:
+        fail(f"--out {out.name!r}: a member letter is written as .txt, .html or .pdf")
+
+
+def write_letter(ledger, settings, date: str, pseudonyms, out: Optional[Path], outputs) -> None:
+    """The member's letter about ``ledger``, to ``out`` (by suffix) or standard output as text."""
+    from explain.analysis.ledger import redacted
+    from explain.analysis.member_letter import member_letter
+    from explain.present.letter import LETTER_WRITERS, text_letter
+
+    letter = member_letter(redacted(ledger), settings, date, pseudonyms(ledger.message_id))
+    if out is not None:
+        outputs.write(out, LETTER_WRITERS[out.suffix.lower()](letter))
+    else:
+        sys.stdout.write(text_letter(letter))
+
+
 @app.command()
 def why(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
@@ -191,17 +216,39 @@ def why(
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
+    audience: str = typer.Option(
+        "team", "--audience", help="team (the ledger, with every figure) | member (a plain letter to the person whose message was held)."
+    ),
+    letter_settings_file: Optional[Path] = typer.Option(
+        None, "--letter-settings", help="TOML file with organisation, contact and appeal for the member letter."
+    ),
+    organisation: Optional[str] = typer.Option(None, "--organisation", help="The member letter's sender."),
+    contact: Optional[str] = typer.Option(None, "--contact", help="Where a member asks questions (member letter)."),
+    appeal: Optional[str] = typer.Option(None, "--appeal", help="How a member asks for a person's review (member letter)."),
+    id_key_file: Optional[Path] = typer.Option(
+        None, "--id-key-file", help="The organisation's secret: an id holding an e-mail address is shown as its HMAC-SHA-256 pseudonym."
+    ),
 ):
-    """Why did the filter decide this message the way it did? Told as a ledger."""
+    """Why did the filter decide this message the way it did? Told as a ledger, or as a letter to the member."""
     from explain.model.email_reader import resolve_text_view
     from explain.output_files import OutputSet
     from explain.runs.ledger_records import WRITERS
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
+    if audience not in ("team", "member"):
+        fail(f"--audience must be team or member, got {audience!r}")
+    from explain.analysis.redaction import IdPseudonyms, read_id_key
+
+    pseudonyms = IdPseudonyms(read_id_key(id_key_file) if id_key_file is not None else None)
+    if audience == "member":
+        from explain.analysis.member_letter import letter_settings
+
+        settings = letter_settings(letter_settings_file, organisation=organisation, contact=contact, appeal=appeal)
+        member_out_ok(out, ids, output_format)
     if color not in COLOR_CHOICES:
         fail(f"--color must be auto, always or never, got {color!r}")
-    if out is not None and out.suffix.lower() not in WRITERS:
+    if audience == "team" and out is not None and out.suffix.lower() not in WRITERS:
         fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
     if (message_id is not None or ids is not None) and data is None:
         fail("--id and --ids pick messages of a data file: give it with --data")
@@ -212,7 +259,8 @@ def why(
     if message_id is not None and ids is not None:
         fail("give --id or --ids, not both")
     one_threshold(threshold, threshold_log_odds)
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file]) as outputs:
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file, letter_settings_file,
+                           id_key_file]) as outputs:
         if out is not None:
             outputs.file(out)  # checked before any work: never an input, a link or a folder
 
@@ -256,7 +304,9 @@ def why(
             ledgers.append(redacted(ledger) if redact else ledger)
 
         date = record_date()
-        if out is not None:
+        if audience == "member":
+            write_letter(ledgers[0], settings, date, pseudonyms, out, outputs)
+        elif out is not None:
             outputs.write(out, WRITERS[out.suffix.lower()](ledgers, date=date, top=top))
         elif output_format == "json":
             document = WRITERS[".json"](ledgers, date=date, top=top)
