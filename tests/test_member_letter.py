@@ -110,3 +110,23 @@ def test_settings_file_and_bad_input_are_one_error_line(model, capsys):
             key.write_bytes(b"")
         done = nbledger(capsys, *args, *LETTER, "--id-key-file", str(key))
         assert done.code == 2 and "id key file" in done.one_error_line()
+
+
+def test_sheet_wording_says_seen_in_words_and_a_balance_on_the_line(model):
+    import dataclasses
+
+    from corpora import loaded, make_pipeline
+    from explain.analysis.ledger import ledger_of
+    from explain.present.why import closing_figure, closing_odds, ledger_notes
+
+    pipeline = make_pipeline("counts", "multinomial").fit(
+        ["pay the parcel fee", "parcel fee pay now", "tea at the hall", "the hall is open"], ["scam", "scam", "ok", "ok"]
+    )
+    ledger = ledger_of(loaded(pipeline, normal_class="ok"), "pay the parcel fee")
+    notes = " ".join(ledger_notes(ledger, folding=False, top=10))
+    assert "times in ok and" in notes and "training messages" in notes
+    on_line = dataclasses.replace(ledger, closing=ledger.decision_line)
+    assert closing_odds(on_line).startswith("exactly on the decision line")
+    # a balance a hair off the line shows enough digits to tell which side it is on (common practice, no source)
+    near = dataclasses.replace(ledger, closing=ledger.decision_line + 0.0004)
+    assert closing_figure(near) == "+0.0004" and closing_figure(ledger) == f"{ledger.closing:+.2f}"

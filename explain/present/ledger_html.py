@@ -21,6 +21,7 @@ from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
 from explain.present.ledger_words import (
     CAUTION,
+    closing_figure,
     closing_odds,
     credit_colour_class,
     ledger_notes,
@@ -173,7 +174,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "has_flags": any(r.get("flags") for r in row_views),
         "opening": opening,
         "rows": row_views,
-        "closing": f"{ledger.closing:+.2f}",
+        "closing": closing_figure(ledger),
         "closing_odds": closing_odds(ledger),
         "rule": rule_line(ledger),
         "legend": legend,

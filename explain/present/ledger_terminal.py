@@ -28,6 +28,7 @@ from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines
 from explain.present.ledger_words import (
     CAUTION,
+    closing_figure,
     closing_odds,
     credit_colour_class,
     ledger_notes,
@@ -173,7 +174,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     console.print(table)
     console.print("═" * min(console.measure(table).maximum, console.width))
     closing = Text("closing balance ", style="bold")
-    closing.append(f"{ledger.closing:+.2f}", style="bold")
+    closing.append(closing_figure(ledger), style="bold")
     closing.append(f"   {closing_odds(ledger)}")
     console.print(closing)
     console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))

@@ -112,9 +112,57 @@ def decided_side(ledger: Ledger) -> str:
 
 
 def closing_odds(ledger: Ledger) -> str:
-    """The odds the closing balance gives, named for the side it favours (which a threshold may still overrule)."""
+    """The odds the closing balance gives, named for the side it favours (which a threshold may still overrule).
+
+    A balance exactly on the decision line says so, and which side the rule gives it to.
+    """
+    if ledger.closing == ledger.decision_line:
+        side = ledger.credit_side if ledger.line_inclusive else ledger.debit_class
+        return f"exactly on the decision line; the rule gives a balance on the line to {side}"
     side = ledger.credit_side if ledger.closing > 0 else ledger.debit_class
     return f"odds {odds_factor(ledger.closing)} for {side}"
+
+
+def closing_figure(ledger: Ledger) -> str:
+    """The closing balance with two decimals, or as many more as it takes to tell it from the decision line."""
+    x, line = ledger.closing, ledger.decision_line
+    if not (math.isfinite(x) and math.isfinite(line)) or x == line:
+        return f"{x:+.2f}"
+    digits = 2
+    while digits < 17 and round(x, digits) == round(line, digits):
+        digits += 1
+    return f"{x:+.{digits}f}"
+
+
+def support_words(ledger: Ledger) -> str:
+    """What a "seen" count counts, naming its true source (a file that is not the training data is named)."""
+    words = SUPPORT_WORDS[ledger.support_kind]
+    source = ledger.support_source
+    if source and "training data" not in source:
+        words = (words.replace("training messages", f"messages of {source}")
+                 .replace("training occurrences", f"occurrences in {source}").replace(" in training", f" in {source}"))
+    return words
+
+
+def _whole(x: float) -> str:
+    return f"{x:,.0f}"
+
+
+def seen_sentence(entry, ledger: Ledger) -> str:
+    """One entry's support in words: "'parcel' was seen in 133 ok and 166 scam training messages"."""
+    count = _whole
+    c, d = ledger.classes.index(credit_colour_class(ledger)), ledger.classes.index(ledger.debit_class)
+    credit, debit = credit_colour_class(ledger), ledger.debit_class
+    source = ledger.support_source if ledger.support_source and "training data" not in ledger.support_source else None
+    if ledger.support_kind == "documents":
+        unit = f"messages of {source}" if source else "training messages"
+        return f"'{shown(entry.token)}' was seen in {count(entry.support[d])} {debit} and {count(entry.support[c])} {credit} {unit}"
+    if ledger.support_kind == "occurrences":
+        unit = f"messages of {source}" if source else "training messages"
+        return (f"'{shown(entry.token)}' occurs {count(entry.support[d])} times in {debit} and "
+                f"{count(entry.support[c])} times in {credit} {unit}")
+    return (f"'{shown(entry.token)}' weighs {entry.support[d]:,.1f} in {debit} and {entry.support[c]:,.1f} in "
+            f"{credit} ({support_words(ledger)})")
 
 
 def collision_note(collisions) -> str:
@@ -143,8 +191,10 @@ def ledger_notes(ledger: Ledger, *, folding: bool, top: int) -> list[str]:
             "entry is the change it makes where it first appears (its size depends on the order, the sum does not)."
         )
     notes.append(
-        f"seen: {SUPPORT_WORDS[ledger.support_kind]}, {credit_colour_class(ledger)}/{ledger.debit_class}"
-        + (f" (counted in {ledger.support_source})" if ledger.support_source else "") + "."
+        f"seen: {support_words(ledger)}, {credit_colour_class(ledger)}/{ledger.debit_class}"
+        + (f" (counted in {ledger.support_source})" if ledger.support_source else "")
+        + (f"; for example {seen_sentence(max(ledger.entries, key=lambda e: abs(e.amount)), ledger)}."
+           if ledger.entries else ".")
     )
     if ledger.explanation.collisions:
         notes.append(collision_note(ledger.explanation.collisions))
