@@ -135,11 +135,13 @@ _NOT_NAMES = frozenset(
     "again again! much very in on at of by from with is are was be wishes regards thanks dob".split()
 )
 _INTRODUCTION = re.compile(
-    r"\b(?:my\s+name\s+is|my\s+name's|spoke\s+to|spoken\s+to|talked\s+to|asked|thanks\s+to|name\s*:|i\s+am|i'm|this\s+is|it's|it\s+is|signed|c/o|care\s+of|ask\s+for"
+    r"\b(?:my\s+name\s+is|my\s+name's|it’s|i’m|spoke\s+to|spoken\s+to|talked\s+to|asked|thanks\s+to|name\s*:|i\s+am|i'm|this\s+is|it's|it\s+is|signed|c/o|care\s+of|ask\s+for"
     r"|speak\s+to|speak\s+with|talk\s+to|contact|call|ring|text|tell|from|with|and|met|saw|thanks|thank|by|for"
     r"|named|called|neighbour|neighbor|tenant|member|resident|son|daughter|wife|husband|partner|mum|dad)[ \t]+",
     re.I,
 )
+_SELF = re.compile(r"(?:i\s+am|i'm|i’m|this\s+is|it's|it’s|it\s+is)\b", re.I)
+_SELF_AFTER = re.compile(r"[ \t]*(?:from|here|at|of|in|on|with|[,.!;:—-])", re.I)
 _STRONG_INTRODUCTION = re.compile(
     r"my\s+name|name\s*:|signed|c/o|care\s+of|called|named|spoke|speak|talk|ask|thank|met\b|tell|contact", re.I
 )
@@ -474,6 +476,11 @@ def _after(text: str, context: re.Pattern, strong: bool) -> list[tuple[int, int]
     for m in context.finditer(text):
         sure = strong or bool(_STRONG_INTRODUCTION.match(m.group()))
         run = _name_run(text, m.end(), sure)
+        if run is None and _SELF.match(m.group()):
+            # "it's Dev from the Sail Loft", "this is Mo here": a capitalised word that introduces the writer
+            run = _name_run(text, m.end(), True, limit=2)
+            if run is not None and not _SELF_AFTER.match(text, run[1]):
+                run = None
         while run is not None:
             spans.append(run)
             # "Hi Ana and Tomasz", "Dear Mr and Mrs Okafor"
