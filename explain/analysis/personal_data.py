@@ -433,6 +433,33 @@ def display_names(text: str) -> list[tuple[int, int, str]]:
     return spans
 
 
+def names_in(texts) -> frozenset[str]:
+    """Lower-case words that stand as people's names in ``texts`` (for the vocabulary's ``personal`` flag).
+
+    Only the positions that say a name follows count (header display names,
+    greetings, titles, introductions, sign-offs), and a word is kept only when
+    the texts write it with a capital at least as often as without: "Parcel"
+    in a business's name does not make the token ``parcel`` a person.
+    """
+    import collections
+
+    from sklearn.feature_extraction.text import ENGLISH_STOP_WORDS
+
+    candidates: set[str] = set()
+    cased: collections.Counter = collections.Counter()
+    for text in map(str, texts):
+        spans = [(s, e) for s, e, _ in display_names(text)]
+        spans += _after(text, _GREETING, strong=True) + _after(text, _TITLE, strong=True)
+        spans += _after(text, _INTRODUCTION, strong=False) + _signatures(text)
+        for s, e in spans:
+            candidates.update(w.group().lower() for w in _WORD.finditer(text, s, e))
+        for w in _WORD.finditer(text):
+            cased[w.group().lower(), w.group()[:1].islower()] += 1
+    skip = _COMMON_CAPITALS | _PLACE_WORDS | _WORD_NAMES | _NOT_NAMES | ENGLISH_STOP_WORDS
+    return frozenset(w for w in candidates
+                     if len(w) > 1 and w not in skip and cased[w, False] >= cased[w, True])
+
+
 def _name_run(text: str, at: int, strong: bool, limit: int = 3) -> tuple[int, int] | None:
     """The run of name words starting at ``at`` (same line), or None.
 

@@ -274,7 +274,14 @@ def build_report(
     on_step("reviewing the vocabulary")
     # Hashed features store no vocabulary: name each column by the tokens of the report's texts hashed into it.
     model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
-    vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none")
+    names = frozenset()
+    if redact != "none":
+        from explain.analysis.personal_data import names_in
+
+        # names found in the report's own messages: a member's name is personal wherever it shows up as a token
+        names = names_in([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
+    vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none",
+                              names=names)
     assessment = None
     if data is not None:
         on_step(f"assessing on {len(data):,} labelled messages")

@@ -191,7 +191,7 @@ def _letters(tokens: list[str]) -> _Letters:
     )
 
 
-def token_traits(tokens) -> TokenTraits:
+def token_traits(tokens, names=frozenset()) -> TokenTraits:
     """Personal-data kind, numeric, mixed-script and stop-word traits of each token.
 
     Examples
@@ -216,6 +216,11 @@ def token_traits(tokens) -> TokenTraits:
             if pattern.search(tokens[j]):
                 kind[j] = index
     _detector_kinds(tokens, chars, kind)
+    if names:
+        # words the detector found as names in the messages at hand (a member's name the list does not know)
+        for j in np.flatnonzero(kind < 0):
+            if tokens[j].lower() in names:
+                kind[j] = PERSONAL_KINDS.index("name")
     return TokenTraits(
         personal_kind=kind,
         numeric=(chars.digits > 0) & (chars.letters == 0),

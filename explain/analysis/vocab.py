@@ -486,6 +486,7 @@ def review_vocabulary(
     prior_scale: float | None = None,
     redact_personal: bool = False,
     analyzer: Callable[[str], Sequence[str]] | None = None,
+    names: frozenset[str] = frozenset(),
 ) -> VocabReview:
     """Review what ``view`` has learned; see the module docstring for every column.
 
@@ -497,6 +498,8 @@ def review_vocabulary(
     top : how many tokens for and against presenters list.
     documents : message counts from a labelled file (:func:`document_counts`).
     watchlist : terms to report whatever their evidence.
+    names : lower-case words found as people's names in the messages at hand
+        (:func:`explain.analysis.personal_data.names_in`): such tokens are ``personal`` (kind ``name``) too.
     thresholds : when evidence is strong and support thin.
     prior_scale : ``a0`` of the z-score's prior; None for the pooled total.
     redact_personal : replace personal-looking tokens (and watchlist terms) by placeholders.
@@ -517,7 +520,7 @@ def review_vocabulary(
     if top < 1:
         raise NbledgerError(f"--top must be at least 1, got {top}")
     plan = plan_comparisons(view, target, against)
-    traits = token_traits(view.tokens)
+    traits = token_traits(view.tokens, names)
     terms = watchlist.terms if watchlist is not None else ()
     columns = watchlist_columns(terms, view.tokens)
     watched = np.zeros(view.n_features, dtype=bool)

@@ -35,6 +35,15 @@ def read_names(path: Path) -> str:
         fail(f"the names file {path} is not UTF-8 text")
 
 
+def people_named(messages):
+    """Words standing as people's names in the --data messages (flagged ``personal`` too), or none without data."""
+    if messages is None:
+        return frozenset()
+    from explain.analysis.personal_data import names_in
+
+    return names_in(messages.texts)
+
+
 @app.command()
 def vocab(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
@@ -145,6 +154,7 @@ def vocab(
             thresholds=thresholds,
             redact_personal=redact,
             analyzer=lambda text: loaded.featurizer.occurrences(text, with_spans=False).tokens,
+            names=people_named(messages),
         )
         review = replace(review, names_note=names_note)
 
