@@ -117,7 +117,7 @@ def test_sheet_wording_says_seen_in_words_and_a_balance_on_the_line(model):
 
     from corpora import loaded, make_pipeline
     from explain.analysis.ledger import ledger_of
-    from explain.present.why import closing_figure, closing_odds, ledger_notes
+    from explain.present.ledger_words import closing_figure, closing_odds, ledger_notes
 
     pipeline = make_pipeline("counts", "multinomial").fit(
         ["pay the parcel fee", "parcel fee pay now", "tea at the hall", "the hall is open"], ["scam", "scam", "ok", "ok"]
