@@ -229,6 +229,15 @@ def flagged_sample(model, texts, threshold: float | None, n: int, threshold_log_
     return ranked[np.unique(np.linspace(0, len(ranked) - 1, n).round().astype(int))]
 
 
+def _names_at_hand(redact: str, data, explain) -> frozenset[str]:
+    """Words standing as people's names in the report's own messages: personal wherever they show up as tokens."""
+    if redact == "none":
+        return frozenset()
+    from explain.analysis.personal_data import names_in
+
+    return names_in([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
+
+
 def _redacted_ledger(ledger: Ledger, mode: str, ids: IdPseudonyms) -> Ledger:
     if mode == "none":
         return ledger
@@ -274,14 +283,8 @@ def build_report(
     on_step("reviewing the vocabulary")
     # Hashed features store no vocabulary: name each column by the tokens of the report's texts hashed into it.
     model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
-    names = frozenset()
-    if redact != "none":
-        from explain.analysis.personal_data import names_in
-
-        # names found in the report's own messages: a member's name is personal wherever it shows up as a token
-        names = names_in([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
     vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none",
-                              names=names)
+                              names=_names_at_hand(redact, data, explain))
     assessment = None
     if data is not None:
         on_step(f"assessing on {len(data):,} labelled messages")
