@@ -66,3 +66,57 @@ def run_measured(args, env, timeout=120):
 def split_words(text: str) -> list[str]:
     """A custom analyzer: code inside a model file, which skops does not trust by default."""
     return text.split()
+
+
+def many_part_zip(path: Path, parts: int) -> Path:
+    """A valid zip of ``parts`` empty stored files (ZIP64 end records), written directly (APPNOTE.TXT 4.3)."""
+    import struct
+
+    local, central, offset = [], [], 0
+    for i in range(parts):
+        name = f"p{i:07d}".encode()
+        head = struct.pack("<IHHHHHIIIHH", 0x04034B50, 20, 0, 0, 0, 0, 0, 0, 0, len(name), 0) + name
+        local.append(head)
+        central.append(struct.pack("<IHHHHHHIIIHHHHHII", 0x02014B50, 45, 20, 0, 0, 0, 0, 0, 0, 0,
+                                   len(name), 0, 0, 0, 0, 0, offset) + name)
+        offset += len(head)
+    directory = b"".join(central)
+    end64 = struct.pack("<IQHHIIQQQQ", 0x06064B50, 44, 45, 45, 0, 0, parts, parts, len(directory), offset)
+    locator = struct.pack("<IIQI", 0x07064B50, 0, offset + len(directory), 1)
+    end = struct.pack("<IHHHHIIH", 0x06054B50, 0, 0, 0xFFFF, 0xFFFF, 0xFFFFFFFF, 0xFFFFFFFF, 0)
+    with open(path, "wb") as handle:
+        handle.write(b"".join(local))
+        handle.write(directory + end64 + locator + end)
+    return path
+
+
+def lying_zip(good: Path, path: Path, declared: int, inflated_mib: int) -> Path:
+    """A copy of the skops file ``good`` whose ``schema.json`` declares ``declared`` bytes but inflates to more."""
+    import struct
+
+    with zipfile.ZipFile(good) as source:
+        members = {info.filename: source.read(info) for info in source.infolist()}
+    with zipfile.ZipFile(path, "w", compression=zipfile.ZIP_DEFLATED) as bomb:
+        for name, content in members.items():
+            if name != "schema.json":
+                bomb.writestr(name, content)
+        with bomb.open("schema.json", "w") as stream:
+            for _ in range(inflated_mib):
+                stream.write(b" " * _CHUNK)
+    raw = bytearray(path.read_bytes())
+    with zipfile.ZipFile(path) as archive:
+        info = archive.getinfo("schema.json")
+    real = struct.pack("<I", info.file_size)
+    lie = struct.pack("<I", declared)
+    at = raw.find(b"PK\x01\x02")  # the first central directory entry
+    while at >= 0:  # patch the size in the central entry of schema.json, and in its local header
+        name_len = struct.unpack("<H", raw[at + 28 : at + 30])[0]
+        if raw[at + 46 : at + 46 + name_len] == b"schema.json":
+            raw[at + 24 : at + 28] = lie
+            (local,) = struct.unpack("<I", raw[at + 42 : at + 46])
+            if raw[local + 22 : local + 26] == real:
+                raw[local + 22 : local + 26] = lie
+            break
+        at = raw.find(b"PK\x01\x02", at + 4)
+    path.write_bytes(bytes(raw))
+    return path

@@ -15,6 +15,7 @@ from sklearn.naive_bayes import MultinomialNB
 from sklearn.pipeline import make_pipeline
 
 from clirun import nbledger
+from hostile import split_words
 
 SECRET = "zanzibar quokka secretword"
 
@@ -55,3 +56,20 @@ def test_a_model_that_reads_files_is_refused_with_or_without_trust(reading_model
     assert "input=" in line and "never loads" in line, line
     for word in SECRET.split():
         assert word not in result.out and word not in result.err
+def test_a_custom_analyzer_still_needs_its_exact_type_names(tmp_path, capsys):
+    pipeline = make_pipeline(CountVectorizer(analyzer=split_words), MultinomialNB()).fit(
+        ["pay the fee", "tea at noon"], ["scam", "ok"]
+    )
+    path = tmp_path / "custom.skops"
+    sio.dump(pipeline, path)
+    untrusted = sio.get_untrusted_types(file=path)
+    assert untrusted  # skops declares the analyzer's function untrusted
+    line = nbledger(capsys, "why", path, "pay the fee", "--no-cache", "--trust", "x").one_error_line()
+    assert "not trusted" in line and "--trust" in line, line
+    args = [a for t in untrusted for a in ("--trust", t)]
+    # A name the file does not declare is refused even beside the right ones.
+    line = nbledger(capsys, "why", path, "pay the fee", "--no-cache", *args, "--trust", "x").one_error_line()
+    assert "--trust x" in line and "declares no such untrusted type" in line, line
+    result = nbledger(capsys, "why", path, "pay the fee", "--no-cache", *args)
+    assert result.code == 0, result.err
+    assert all(t in result.err for t in untrusted) and "accepted" in result.err

@@ -26,19 +26,36 @@ def _load(request: dict, out: Path) -> dict:
     from explain.model.model_view import view_of
     from explain.model import plain_form
 
-    options = dict(allow_pickle=request["allow_pickle"], trust=tuple(request["trust"]))
+    trust = tuple(request["trust"])
+    declared: set = set()
+    options = dict(allow_pickle=request["allow_pickle"], trust=trust, declared=declared)
     obj, _ = read_object(Path(request["model"]), **options)
     vec_obj = None
     if request["vectorizer"] is not None:
         vec_obj, _ = read_object(Path(request["vectorizer"]), **options)
-    featurizer, classifier = split_pipeline(obj, vec_obj)
+    featurizer, classifier = split_pipeline(obj, vec_obj)  # refuses a text step that reads files, trusted or not
+    accepted = trusted_by_name(trust, declared, Path(request["model"]).name)
     reason = plain_form.code_in(featurizer.vectorizer)
     if reason is not None:
-        return {"needs_code": reason}
+        return {"needs_code": reason, "accepted": accepted}
     view = view_of(classifier, featurizer.tokens, featurizer.feature_kind)
     arrays, settings = plain_form.to_plain(featurizer, view, classifier)
     plain_form.save(out, arrays, settings)
-    return {"ok": True}
+    return {"ok": True, "accepted": accepted}
+
+
+def trusted_by_name(trust: tuple, declared: set, name: str) -> list:
+    """The ``--trust`` names accepted: each must be exactly a type the file declares untrusted."""
+    from explain.errors import NbledgerError
+
+    unknown = sorted(set(trust) - declared)
+    if unknown:
+        listed = ", ".join(sorted(declared)) or "none"
+        raise NbledgerError(
+            f"--trust {', '.join(unknown)}: {name} declares no such untrusted type (it declares: {listed}); "
+            "--trust takes exact type names from that list"
+        )
+    return sorted(set(trust))
 
 
 def address_space_bytes() -> int:

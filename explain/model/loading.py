@@ -154,6 +154,8 @@ def load_model(
                 cached[1].get("classifier"), from_cache=True,
             )
     outcome = load_in_child(files, allow_pickle=allow_pickle, trust=tuple(trust), limits=limits)
+    if outcome.get("accepted") and on_warning is not None:
+        on_warning(f"accepted by name (--trust), as the file declares them: {', '.join(outcome['accepted'])}")
     if "needs_code" in outcome:
         if not (trust or allow_pickle):
             raise NbledgerError(

@@ -41,6 +41,15 @@ _PICKLE_SUFFIXES = (".pkl", ".pickle", ".joblib", ".jbl", ".sav")
 
 
 _MAX_MEMBERS = 100_000
+#: The most a skops archive's ``schema.json`` may declare once inflated (stated in the README).
+SCHEMA_LIMIT = 64 << 20
+#: Largest inflated-to-stored ratio of a part: deflate cannot exceed about 1032:1, which arrays of
+#: zeros approach; a part claiming more was made by another method to be a bomb.
+MAX_RATIO = 1100
+#: The most an archive's central directory (the list of its parts) may take on disk.
+_DIRECTORY_LIMIT = 32 << 20
+#: Bytes inflated per step when a part's real size is checked.
+_INFLATE_STEP = 1 << 20
 
 
 def sha256_of(path: Path) -> str:
@@ -74,12 +83,16 @@ def read_object(
     allow_pickle: bool = False,
     trust: tuple[str, ...] = (),
     on_warning: Callable[[str], None] | None = None,
+    declared: set | None = None,
 ):
-    """Load one Python object from a skops file, or a pickle when allowed."""
+    """Load one Python object from a skops file, or a pickle when allowed.
+
+    ``declared``, when given, receives the type names the skops file declares untrusted.
+    """
     path = input_file(path, "model file")
     kind = checked_format(path, allow_pickle, on_warning)
     if kind == "skops":
-        return _read_skops(path, tuple(trust)), kind
+        return _read_skops(path, tuple(trust), declared), kind
     if kind == "pickle":
         import joblib
 
@@ -108,9 +121,49 @@ def checked_format(path: Path, allow_pickle: bool, on_warning=None) -> str:
     return kind
 
 
+def _directory_size(path: Path) -> tuple[int, int]:
+    """(parts, central directory bytes) from a zip's end record (ZIP64 too), read before the directory itself.
+
+    APPNOTE.TXT (PKWARE's .ZIP File Format Specification) 4.3.14-4.3.16: the end of central
+    directory record (``PK\\5\\6``), and for ZIP64 its locator (``PK\\6\\7``) and record (``PK\\6\\6``).
+    """
+    import struct
+
+    size = os.path.getsize(path)
+    with open(path, "rb") as handle:
+        handle.seek(max(0, size - (1 << 16) - 22))
+        tail = handle.read()
+        at = tail.rfind(b"PK\x05\x06")
+        if at < 0 or len(tail) - at < 22:
+            raise zipfile.BadZipFile("no end of central directory record")
+        entries, directory = struct.unpack("<HI", tail[at + 10 : at + 16])
+        locator = at - 20
+        if (entries == 0xFFFF or directory == 0xFFFFFFFF) and locator >= 0 and tail[locator : locator + 4] == b"PK\x06\x07":
+            (record,) = struct.unpack("<Q", tail[locator + 8 : locator + 16])
+            handle.seek(record)
+            head = handle.read(56)
+            if len(head) < 56 or not head.startswith(b"PK\x06\x06"):
+                raise zipfile.BadZipFile("damaged ZIP64 end record")
+            entries, directory = struct.unpack("<QQ", head[32:48])
+    return entries, directory
+
+
 def check_archive(path: Path, limit: int) -> None:
-    """Refuse a skops archive whose members declare more than ``limit`` bytes once inflated."""
+    """Refuse a skops archive that is a bomb, before anything is inflated.
+
+    Refused: more than :data:`_MAX_MEMBERS` parts or a central directory over
+    :data:`_DIRECTORY_LIMIT` (counted from the end record, before the directory
+    is read); parts declaring more than ``limit`` bytes in all; a ``schema.json``
+    declaring more than :data:`SCHEMA_LIMIT`; a part whose declared size is more
+    than :data:`MAX_RATIO` times what it takes in the archive.
+    """
     try:
+        parts, directory = _directory_size(path)
+        if parts > _MAX_MEMBERS or directory > _DIRECTORY_LIMIT:
+            raise NbledgerError(
+                f"{path.name} holds {parts:,} parts ({directory:,} bytes of directory); at most {_MAX_MEMBERS:,} "
+                "are read; it was not opened"
+            )
         with zipfile.ZipFile(path) as archive:
             members = archive.infolist()
     except (zipfile.BadZipFile, OSError, ValueError, EOFError) as exc:
@@ -121,15 +174,62 @@ def check_archive(path: Path, limit: int) -> None:
             f"{path.name} would inflate to {declared:,} bytes in {len(members):,} parts, more than the "
             f"loading limit of {limit:,} bytes (--max-model-memory); it was not opened"
         )
+    for m in members:
+        if m.filename == "schema.json" and m.file_size > SCHEMA_LIMIT:
+            raise NbledgerError(
+                f"{path.name}: its schema.json declares {m.file_size:,} bytes, more than the {SCHEMA_LIMIT:,} "
+                "a model's schema may take; it was not opened"
+            )
+        if m.file_size > _INFLATE_STEP and m.file_size > MAX_RATIO * max(m.compress_size, 1):
+            raise NbledgerError(
+                f"{path.name}: a part declares {m.file_size:,} bytes from {m.compress_size:,} stored, more than "
+                f"{MAX_RATIO}:1, which no array or schema reaches; it was not opened"
+            )
 
 
-def _read_skops(path: Path, trust: tuple[str, ...]):
+def check_inflation(path: Path) -> None:
+    """Inflate every part in bounded steps, refusing one that would grow past its declared size.
+
+    Python's zip reader inflates up to 2 GiB at a time when a whole part is
+    read, however little it declares; this pass reads :data:`_INFLATE_STEP`
+    at a time, so a part that lies about its size is refused having cost at
+    most one step (its checksum then fails too).
+    """
+    try:
+        with zipfile.ZipFile(path) as archive:
+            for info in archive.infolist():
+                _inflate_part(path, archive, info)
+    except (zipfile.BadZipFile, OSError, ValueError, EOFError, NotImplementedError) as exc:
+        raise NbledgerError(f"{path.name} is not a readable skops file: {first_line(exc)}") from None
+
+
+def _inflate_part(path: Path, archive, info) -> None:
+    seen = 0
+    try:
+        with archive.open(info) as part:
+            while block := part.read(_INFLATE_STEP):
+                seen += len(block)
+                if seen > info.file_size:
+                    raise zipfile.BadZipFile("it inflates past its declared size")
+        if seen != info.file_size:
+            raise zipfile.BadZipFile("it inflates to another size than it declares")
+    except zipfile.BadZipFile as exc:
+        raise NbledgerError(
+            f"{path.name}: its part {info.filename[:80]!r} does not inflate to the {info.file_size:,} bytes it "
+            f"declares ({first_line(exc)}); it was not loaded"
+        ) from None
+
+
+def _read_skops(path: Path, trust: tuple[str, ...], declared: set | None = None):
     import skops.io as sio
 
+    check_inflation(path)
     try:
         untrusted = sio.get_untrusted_types(file=path)
     except (zipfile.BadZipFile, KeyError, ValueError, json.JSONDecodeError, EOFError, OSError) as exc:
         raise NbledgerError(f"{path.name} is not a readable skops file: {first_line(exc)}") from None
+    if declared is not None:
+        declared.update(untrusted)
     refused = sorted(set(untrusted) - set(trust))
     if refused:
         raise NbledgerError(
