@@ -64,6 +64,8 @@ def test_health_names_the_model_by_its_sha256(desk):
     body = client.get("/healthz").json()
     assert body["status"] == "ok"
     assert body["model"]["sha256"] == hashlib.sha256(model.read_bytes()).hexdigest()
+    fingerprint = load_model(model, normal_class="ok").fingerprint
+    assert fingerprint is not None and body["model"]["fingerprint"] == fingerprint
 
 
 def test_queued_ledgers_equal_scikit_learn(desk):
@@ -105,6 +107,7 @@ def test_a_review_is_stored_with_what_it_was_based_on(desk):
     review = answer.json()
     assert review["reviewer"] == "local" and review["outcome"] == "overturned" and review["message_id"] == mid
     assert review["model_sha256"] == hashlib.sha256(model.read_bytes()).hexdigest()
+    assert review["model_fingerprint"] == settings.loaded.fingerprint and len(review["model_fingerprint"]) == 64
     assert review["ledger"]["schema"] == "nbledger.why/2" and review["ledger"]["message_id"] == mid
     assert review["recorded_at"].endswith("Z")
     # A correction is a new review naming the one it supersedes.

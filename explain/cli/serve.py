@@ -74,12 +74,6 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
     return queue
 
 
-def model_fingerprint(loaded) -> str | None:
-    """The model's fingerprint (``LoadedModel.fingerprint``, of ``explain.model.fingerprint``), computed once."""
-    value = getattr(loaded, "fingerprint", None)
-    return value if isinstance(value, str) else None
-
-
 @app.command()
 def serve(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
@@ -132,7 +126,7 @@ def serve(
             scored = load_queue(loaded, queue, text_col, id_col, label_col, mail, max_data_bytes, threshold, threshold_log_odds)
         settings = DeskSettings(
             loaded=loaded, store=store, queue=scored, threshold=threshold, threshold_log_odds=threshold_log_odds,
-            users=people, fingerprint=model_fingerprint(loaded), redact=redact,
+            users=people, redact=redact,
         )
         run_desk(settings, sock, host)
     finally:

@@ -34,6 +34,11 @@ class DeskSettings:
     max_text_bytes: int = MAX_TEXT_BYTES
     session_secret: str = field(default_factory=lambda: secrets.token_urlsafe(32))
 
+    def __post_init__(self):
+        if self.fingerprint is None:  # the model's fingerprint (explain.model.fingerprint), computed once
+            value = getattr(self.loaded, "fingerprint", None)
+            self.fingerprint = value if isinstance(value, str) else None
+
     @property
     def model_sha256(self) -> str:
         return self.loaded.sha256
