@@ -187,6 +187,8 @@ class Report:
     versions: dict
     #: robustness and fairness probe (``report --probe`` / ``--swap-terms``), else None
     probe: object | None = None
+    #: appeals decided at the review desk (``report --reviews``): :class:`explain.analysis.appeals.Appeals`, else None
+    appeals: object | None = None
 
 
 def report_date() -> _dt.datetime:
@@ -258,6 +260,7 @@ def build_report(
     label_errors=None,
     probe_evasion: bool = False,
     swap_terms=None,
+    reviews=None,
 ) -> Report:
     """Compute everything the report shows.
 
@@ -276,6 +279,8 @@ def build_report(
     probe_evasion, swap_terms : add the robustness and fairness probe
         (:func:`explain.analysis.probe.probe`): evasion costs over ``data``,
         term swaps from a swap-terms file.
+    reviews : ``(review rows, source)`` of the review desk's database (``--reviews``), or None: adds the
+        appeal rate of this model (:func:`explain.analysis.appeals.appeals_of`).
     """
     date = report_date()
     redact = settings.redact
@@ -326,7 +331,13 @@ def build_report(
             model, None if data is None else data.texts, evasion=probe_evasion, swap_terms=swap_terms,
             threshold=settings.threshold,
         )
+    appeals = None
+    if reviews is not None:
+        from explain.analysis.appeals import appeals_of
+
+        appeals = appeals_of(reviews[0], model.sha256, reviews[1])
     return Report(
+        appeals=appeals,
         probe=probe_result if redact == "none" else redact_probe(probe_result),
         settings=settings,
         date=date,

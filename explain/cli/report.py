@@ -59,6 +59,17 @@ def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 
 
+def read_reviews(db: str) -> tuple[list[dict], str]:
+    """Every review of the desk's database (oldest first) and the database named without its password."""
+    from explain.runs.desk.store import open_store, shown_url
+
+    store = open_store(db, create=False)
+    try:
+        return store.select(), shown_url(store.url)
+    finally:
+        store.close()
+
+
 @contextlib.contextmanager
 def steps(total: int):
     """Say which step the build is on: a rich progress bar on a terminal, plain lines otherwise."""
@@ -125,6 +136,9 @@ def report(
     ),
     html: Optional[Path] = typer.Option(None, "--html", help="Also write the HTML twin (one self-contained file)."),
     json_out: Optional[Path] = typer.Option(None, "--json", help="Also write the JSON twin (every figure)."),
+    reviews: Optional[str] = typer.Option(
+        None, "--reviews", help="Review desk database (SQLite file or postgresql://): adds appeals overturned per 10,000."
+    ),
     vectorizer: Optional[Path] = VECTORIZER,
     allow_pickle: bool = ALLOW_PICKLE,
     trust: Optional[List[str]] = TRUST,
@@ -165,6 +179,7 @@ def report(
     if (slice_by or label_errors) and data is None:
         fail("--slice-by and --label-errors need labelled data (--data)")
 
+    desk_reviews = None if reviews is None else read_reviews(reviews)  # a missing or locked database: said now
     probing = probe_evasion or swap_terms is not None
     total = 8 + bool(slice_by or label_errors) + probing
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist, swap_terms, id_key_file]) as files, \
@@ -193,7 +208,7 @@ def report(
             )
         built = build_report_files(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
                                    on_step=step, slices=groups, label_errors=suspected,
-                                   probe_evasion=probe_evasion, swap_terms=swap_terms)
+                                   probe_evasion=probe_evasion, swap_terms=swap_terms, reviews=desk_reviews)
         step("writing the files")
         contents = {out: built.pdf, html: built.html, json_out: built.json}
         # Staged now; all are moved into place together when the block ends without error.

@@ -50,6 +50,12 @@ def _file(messages) -> dict | None:
     return {"file": messages.source.name, "sha256": messages.sha256, "rows": len(messages)}
 
 
+def appeals_json(appeals):
+    from explain.analysis.appeals import appeals_json as as_json
+
+    return as_json(appeals)
+
+
 def to_json(report: Report) -> dict:
     """The documented JSON object of one report."""
     s = report.settings
@@ -85,6 +91,7 @@ def to_json(report: Report) -> dict:
             },
             # robustness and fairness (report --probe / --swap-terms): summaries only, no per-message attacks
             "robustness_and_fairness": None if report.probe is None else probe_present.to_json(report.probe, include_attacks=False),
+            "appeals": appeals_json(report.appeals),
         }
     )
 

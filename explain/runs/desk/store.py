@@ -249,6 +249,8 @@ def open_store(db: str | Path, *, create: bool = True) -> Store:
     try:
         path = _sqlite_path(url)
         if path is not None:
+            if not create and not path.exists():
+                raise NbledgerError(f"no review database at {path}")
             if not path.parent.is_dir():
                 raise NbledgerError(f"the folder of the review database {path} does not exist")
             _probe_sqlite_lock(path)
