@@ -185,6 +185,24 @@ def test_the_pages_escape_message_text(desk, tmp_path):
     )
 
 
+def test_controls_and_bidi_characters_are_shown_not_obeyed_except_in_the_text_to_edit(desk):
+    client, _, _, settings = desk
+    page = client.post("/api/ledger", json={"text": "pay \u202eeef the\u200b fee"})
+    assert page.status_code == 200
+    mid = settings.queue.items[0].id
+    html = client.get(f"/messages/{mid}").text
+    assert "\u202e" not in html  # the queue's texts hold none; the check below plants one
+    from explain.runs.desk.pages import environment
+
+    fragment = environment().get_template("desk/ledger_fragment.html.j2")
+    from explain.runs.desk.app import ledger_for
+    from explain.runs.desk.pages import ledger_view
+
+    ledger = ledger_for(settings, "pay \u202eeef now")
+    shown = fragment.render(lv=ledger_view(settings, ledger), closing_exact=repr(ledger.closing))
+    assert "\u202e" not in shown and "eef" in shown
+
+
 def settings_styles(settings) -> list[str]:
     from explain.runs.desk.guard import tint_styles
 

@@ -23,9 +23,14 @@ STATIC = {
 
 
 def environment() -> jinja2.Environment:
+    """Autoescaping on; controls and bidi characters of input shown as visible forms, never obeyed
+    (the report's ``finalize`` hook), except the editable text, which must stay exactly the message."""
+    from explain.present.token_display import html_visible
+
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         autoescape=True,
+        finalize=html_visible,
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
         lstrip_blocks=True,
@@ -41,6 +46,14 @@ def render(request, name: str, status: int = 200, **context) -> HTMLResponse:
         marks=MARKS, **context,
     )
     return HTMLResponse(page, status_code=status)
+
+
+def exact(text: str):
+    """``text`` escaped now and marked safe, so that the ``finalize`` hook leaves its characters as they are
+    (for the text area, whose content the analyst edits and the desk explains)."""
+    from markupsafe import Markup, escape
+
+    return Markup(escape(text))
 
 
 def _flag_query(value: str | None):
@@ -107,7 +120,7 @@ async def message_page(request):
         history = await run_in_threadpool(lambda: settings.store.select(message_id=item.id))
         return render(
             request, "message.html.j2", item=item, lv=ledger_view(settings, ledger), closing_exact=repr(ledger.closing),
-            history=history, text=ledger.text, cls=class_index(settings),
+            history=history, text=exact(ledger.text), cls=class_index(settings),
             classes=[str(c) for c in settings.loaded.classes], saved=request.query_params.get("saved"),
         )
 
