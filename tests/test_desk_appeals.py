@@ -64,3 +64,27 @@ def test_report_reviews_puts_the_rate_in_the_json_twin_and_the_summary(tmp_path,
     assert "Appeals decided at the review desk" in (tmp_path / "r.html").read_text()
     missing = nbledger(capsys, "report", model, "--out", tmp_path / "s.pdf", "--reviews", tmp_path / "none.sqlite")
     assert "no review database at" in missing.one_error_line()
+
+
+def test_compare_reviews_gives_each_model_its_own_rate(tmp_path, capsys):
+    import hashlib
+
+    (tmp_path / "old").mkdir()
+    _, old = train_filter(tmp_path / "old", ("ok", "scam"), 800)
+    _, new = train_filter(tmp_path, ("ok", "scam"), 1500)
+    shas = [hashlib.sha256(p.read_bytes()).hexdigest() for p in (old, new)]
+    db = tmp_path / "reviews.sqlite"
+    store = open_store(db)
+    base = {"reviewer": "r", "role": "reviewer", "reason": "", "note": "", "decision": "scam",
+            "rule": "argmax", "text": "t", "ledger": "{}", "flagged": True}
+    for i, outcome in enumerate(["overturned", "upheld"]):
+        store.add({**base, "message_id": f"o{i}", "outcome": outcome, "model_sha256": shas[0]})
+    store.add({**base, "message_id": "n0", "outcome": "upheld", "model_sha256": shas[1]})
+    store.close()
+    result = nbledger(capsys, "compare", old, new, "--reviews", db, "--format", "json", "--normal-class", "ok")
+    assert result.code == 0, result.err
+    appeals = json.loads(result.out)["appeals"]
+    assert appeals["old"]["overturned_per_10000"]["value"] == pytest.approx(5000.0)
+    assert appeals["new"]["overturned_per_10000"]["value"] == pytest.approx(0.0)
+    text = nbledger(capsys, "compare", old, new, "--reviews", db, "--normal-class", "ok")
+    assert "appeals (old): 5000 overturned per 10,000" in text.out

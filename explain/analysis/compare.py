@@ -163,6 +163,8 @@ class Comparison:
     vocabulary: VocabularyChange
     decisions: DecisionChanges | None
     notes: tuple[str, ...]
+    #: ``(old, new)`` :class:`explain.analysis.appeals.Appeals` from the review desk (``--reviews``), else None
+    appeals: tuple | None = None
 
 
 def _text_steps(model) -> dict:

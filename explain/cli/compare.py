@@ -39,6 +39,9 @@ def compare(
     ),
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the comparison to a .pdf, .html or .json file."),
+    reviews: Optional[str] = typer.Option(
+        None, "--reviews", help="Review desk database (SQLite file or postgresql://): appeals overturned per 10,000, each model."
+    ),
     allow_pickle: bool = ALLOW_PICKLE,
     trust: Optional[List[str]] = TRUST,
     max_model_memory: str = MAX_MODEL_MEMORY,
@@ -64,8 +67,10 @@ def compare(
     if top < 1 or show < 0:
         fail("--top must be at least 1 and --show at least 0")
     from explain.analysis.redaction import IdPseudonyms, read_id_key
+    from explain.runs.desk.store import read_reviews
 
     pseudonyms = IdPseudonyms(read_id_key(id_key_file) if id_key_file is not None else None)
+    desk_reviews = None if reviews is None else read_reviews(reviews)  # a missing or locked database: said now
     with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data, id_key_file]) as files:
         if out is not None:
             files.file(out)
@@ -84,6 +89,13 @@ def compare(
             messages = read_messages_or_fail(data, text_col, label_col or None, mail, id_col=id_col,
                                              max_data_bytes=max_data_bytes)
         result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show)
+        if desk_reviews is not None:
+            from dataclasses import replace
+
+            from explain.analysis.appeals import appeals_of
+
+            rows, source = desk_reviews
+            result = replace(result, appeals=tuple(appeals_of(rows, m.sha256, source) for m in loaded))
         if redact != "none":
             result = redacted_comparison(result, pseudonyms)
         suffix = None if out is None else out.suffix.lower()

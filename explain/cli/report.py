@@ -59,17 +59,6 @@ def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 
 
-def read_reviews(db: str) -> tuple[list[dict], str]:
-    """Every review of the desk's database (oldest first) and the database named without its password."""
-    from explain.runs.desk.store import open_store, shown_url
-
-    store = open_store(db, create=False)
-    try:
-        return store.select(), shown_url(store.url)
-    finally:
-        store.close()
-
-
 @contextlib.contextmanager
 def steps(total: int):
     """Say which step the build is on: a rich progress bar on a terminal, plain lines otherwise."""
@@ -178,6 +167,8 @@ def report(
     check_folds(folds)
     if (slice_by or label_errors) and data is None:
         fail("--slice-by and --label-errors need labelled data (--data)")
+
+    from explain.runs.desk.store import read_reviews
 
     desk_reviews = None if reviews is None else read_reviews(reviews)  # a missing or locked database: said now
     probing = probe_evasion or swap_terms is not None

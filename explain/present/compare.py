@@ -57,6 +57,9 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
         "normal_class": c.normal_class,
         "threshold": c.threshold,
         "notes": list(c.notes),
+        "appeals": None if c.appeals is None else {
+            side: appeals_json(a) for side, a in zip(("old", "new"), c.appeals)
+        },
         "vocabulary": {
             "shared": v.shared,
             "added": list(v.added),
@@ -125,6 +128,21 @@ def _drivers(ledger, n: int = 3) -> str:
     return ", ".join(f"{e.token} {e.amount:+.2f}" for e in largest) or "no known token"
 
 
+def appeals_json(a) -> dict:
+    from explain.analysis.appeals import appeals_json as as_json
+
+    return as_json(a)
+
+
+def appeal_sentence(a) -> str:
+    """Appeals overturned per 10,000 flagged messages, as one sentence (the review desk's decisions)."""
+    if a.value is None:
+        return "no decided appeal of a flagged message under this model file"
+    return (f"{a.value:.0f} overturned per 10,000 flagged messages whose appeal was decided "
+            f"(95 % Wilson interval {a.low:.0f} to {a.high:.0f}; {a.overturned:,} of {a.decided:,})"
+            + (f"; {a.escalated:,} escalated" if a.escalated else ""))
+
+
 def text_lines(c: Comparison, *, top: int = 10, width: int = 80) -> list[str]:
     """The comparison as plain lines of at most ``width`` columns (tokens shown as they are, after redaction).
 
@@ -156,6 +174,8 @@ def _lines(c: Comparison, top: int) -> list[str]:
         f"new: {Path(c.new_path).name} (SHA-256 {c.new_sha256[:12]}); {v.new_size:,} tokens; classes {', '.join(c.new_classes)}",
     ]
     out += [f"note: {n}" for n in c.notes]
+    if c.appeals is not None:
+        out += [f"appeals ({side}): {appeal_sentence(a)}" for side, a in zip(("old", "new"), c.appeals)]
     out += ["", "Vocabulary",
             f"  shared {v.shared:,}; added {len(v.added):,}; removed {len(v.removed):,}"]
     if v.added:

@@ -269,3 +269,12 @@ def open_store(db: str | Path, *, create: bool = True) -> Store:
         engine.dispose()
         raise trouble(exc, url) from None
     return Store(engine, url)
+
+
+def read_reviews(db: str | Path) -> tuple[list[dict], str]:
+    """Every review of an existing review database (oldest first), and the database named without its password."""
+    store = open_store(db, create=False)
+    try:
+        return store.select(), shown_url(store.url)
+    finally:
+        store.close()
