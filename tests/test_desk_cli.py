@@ -201,3 +201,30 @@ def test_corrections_export_the_overturned_messages(made, capsys, tmp_path):
     assert dict(zip(table["id"], table["label"])) == {flagged[0].id: "ok", passed[0].id: "scam"}
     assert table.loc[table["id"] == flagged[0].id, "text"].item() == flagged[0].text
     assert "name no class" in result.err
+
+
+def test_queue_by_date_reads_mail_headers_and_table_dates():
+    from explain.runs.desk.queue import message_dates
+
+    # RFC 5322 section 3.3: "+0100" is one hour east of UTC; a zone-less ISO date is taken as UTC (our rule).
+    assert message_dates(["Thu, 03 Dec 2026 10:00:00 +0100", "2026-01-02T08:54:17Z", "2026-01-02 08:00", "", None,
+                          "not a date"]) == ["2026-12-03T09:00:00Z", "2026-01-02T08:54:17Z", "2026-01-02T08:00:00Z",
+                                             None, None, None]
+
+
+def test_serve_orders_the_queue_by_a_date_column(made, tmp_path):
+    import pandas as pd
+
+    from explain.cli.serve import load_queue
+    from explain.model.mail_data import MailInput
+    from explain.runs.desk.queue import select
+
+    folder, model, _ = made
+    frame = pd.DataFrame({"id": ["a", "b", "c"], "text": ["pay the fee", "thanks for the drill", "tea at four"],
+                          "sent_at": ["2026-03-01T10:00:00Z", "", "2026-01-05T09:00:00Z"]})
+    queue_file = tmp_path / "dated.csv"
+    frame.to_csv(queue_file, index=False)
+    loaded = load_model(model, normal_class="ok")
+    queue = load_queue(loaded, queue_file, "text", "id", None, MailInput(), "1G", None, None, "sent_at")
+    assert [i.id for i in select(queue, {}, order="date")] == ["c", "a", "b"]
+    assert [i.id for i in select(queue, {}, order="arrival")] == ["a", "b", "c"]

@@ -12,7 +12,7 @@ import typer
 
 from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, err_console, fail, load_model_or_fail, one_threshold,
+    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, err_console, fail, load_model_or_fail, one_threshold, parse_size,
     read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW
@@ -57,7 +57,7 @@ def default_db(queue: Optional[Path]) -> Path:
     return queue.parent / f"{queue.name.split('.')[0] or 'queue'}.reviews.sqlite"
 
 
-def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_bytes, threshold, log_odds):
+def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_bytes, threshold, log_odds, date_col=None):
     """The queue read and scored, with progress on standard error while it loads."""
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
@@ -67,10 +67,17 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
     err_console.print(f"reading the queue {data.name} ...", markup=False, highlight=False)
     messages = read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes)
     rule = DecisionRule.for_view(loaded.view, threshold, log_odds)
+    dates = None
+    if messages.mail is not None:
+        dates = list(messages.mail.date)
+    elif date_col is not None:
+        from explain.model.data_io import read_column
+
+        dates = read_column(data, date_col, parse_size(max_data_bytes, "--max-data-bytes"))
     columns = (TextColumn("scoring the queue"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn())
     with Progress(*columns, console=err_console, transient=True, disable=len(messages) < 5000) as progress:
         task = progress.add_task("score", total=len(messages))
-        queue = score_queue(loaded, messages, rule, lambda done, total: progress.update(task, completed=done))
+        queue = score_queue(loaded, messages, rule, lambda done, total: progress.update(task, completed=done), dates)
     return queue
 
 
@@ -81,6 +88,9 @@ def serve(
     text_col: str = typer.Option("text", "--text-col", help="Column of --queue holding the text."),
     id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --queue holding message ids (default: id when present)."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of --queue holding classes (not needed to review)."),
+    date_col: Optional[str] = typer.Option(
+        None, "--date-col", help="Column of a --queue table holding dates (e-mail: the Date header), to order by date."
+    ),
     db: Optional[str] = typer.Option(None, "--db", help="Review database: an SQLite file (default: beside the queue) or postgresql://..."),
     host: str = typer.Option("127.0.0.1", "--host", help="Address to listen on; other than loopback only with --users."),
     port: int = typer.Option(8000, "--port", min=0, max=65535, help="Port to listen on."),
@@ -123,7 +133,8 @@ def serve(
         scored = None
         if queue is not None:
             mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-            scored = load_queue(loaded, queue, text_col, id_col, label_col, mail, max_data_bytes, threshold, threshold_log_odds)
+            scored = load_queue(loaded, queue, text_col, id_col, label_col, mail, max_data_bytes, threshold,
+                                threshold_log_odds, date_col)
         settings = DeskSettings(
             loaded=loaded, store=store, queue=scored, threshold=threshold, threshold_log_odds=threshold_log_odds,
             users=people, redact=redact,

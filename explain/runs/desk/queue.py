@@ -37,6 +37,7 @@ class QueueItem:
     log_odds: float
     margin: float
     flags: tuple[str, ...]
+    date: str | None = None
 
     def as_json(self, outcome: str | None) -> dict:
         return {
@@ -47,6 +48,7 @@ class QueueItem:
             "log_odds": self.log_odds,
             "margin": self.margin,
             "flags": list(self.flags),
+            "date": self.date,
             "reviewed": outcome is not None,
             "outcome": outcome,
         }
@@ -83,14 +85,46 @@ def _token_flags(view, rule: DecisionRule, thresholds: RiskThresholds) -> dict[i
     return out
 
 
-def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, int], None] | None = None) -> Queue:
-    """Score ``messages`` (:class:`explain.model.data_io.Messages`) in chunks of :data:`CHUNK`."""
+def message_dates(values) -> list[str | None]:
+    """Dates as ISO 8601 in UTC (``...Z``), None where missing or unreadable.
+
+    RFC 5322 ``Date:`` headers are read by :func:`email.utils.parsedate_to_datetime`, anything else
+    (ISO 8601 in a table) by :func:`pandas.to_datetime`; a date without a zone is taken as UTC.
+    """
+    import datetime as _dt
+    from email.utils import parsedate_to_datetime
+
+    import pandas as pd
+
+    out: list[str | None] = []
+    for value in values:
+        moment = None
+        if value is not None and not isinstance(value, str):
+            value = str(value)
+        if isinstance(value, str) and value.strip():
+            try:
+                moment = parsedate_to_datetime(value)
+            except (TypeError, ValueError, IndexError):
+                stamp = pd.to_datetime(value, utc=True, errors="coerce")
+                moment = None if pd.isna(stamp) else stamp.to_pydatetime()
+        if moment is not None and moment.tzinfo is None:
+            moment = moment.replace(tzinfo=_dt.timezone.utc)
+        out.append(None if moment is None else
+                   moment.astimezone(_dt.timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z"))
+    return out
+
+
+def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, int], None] | None = None,
+                dates=None) -> Queue:
+    """Score ``messages`` (:class:`explain.model.data_io.Messages`) in chunks of :data:`CHUNK`; ``dates``
+    (one string per message, as :func:`message_dates` reads them) orders the queue by date."""
     view, featurizer = loaded.view, loaded.featurizer
     if rule.normal_index is None:
         raise NbledgerError("the desk needs a normal class to weigh flagged messages against: give --normal-class")
     flags_by_class = _token_flags(view, rule, RiskThresholds())
     items: list[QueueItem] = []
     texts, ids, n = messages.texts, [str(i) for i in messages.ids], len(messages)
+    dates = [None] * n if dates is None else message_dates(dates)
     for start in range(0, n, CHUNK):
         stop = min(start + CHUNK, n)
         X = view.prepare(featurizer.transform(texts[start:stop]))
@@ -113,20 +147,22 @@ def score_queue(loaded, messages, rule: DecisionRule, progress: Callable[[int, i
                 log_odds=float(flag[k]),
                 margin=float(margin[k]),
                 flags=tuple(FLAGS[j] for j in np.flatnonzero(having)),
+                date=dates[start + k],
             ))
         if progress is not None:
             progress(stop, n)
     return Queue(tuple(items), str(messages.source))
 
 
-ORDERS = ("margin", "arrival")
+ORDERS = ("margin", "date", "arrival")
 
 
 def select(queue: Queue, outcomes: dict[str, str], *, decision=None, flag=None, reviewed=None,
            order: str = "margin") -> list[QueueItem]:
     """The queue filtered (decision class, risk flag, reviewed or not) and ordered.
 
-    ``order``: ``margin`` (smallest absolute margin first: nearest the other decision) or ``arrival`` (file order).
+    ``order``: ``margin`` (smallest absolute margin first: nearest the other decision), ``date`` (oldest
+    first, undated last) or ``arrival`` (file order).
     """
     if order not in ORDERS:
         raise NbledgerError(f"order must be one of {', '.join(ORDERS)}")
@@ -138,4 +174,6 @@ def select(queue: Queue, outcomes: dict[str, str], *, decision=None, flag=None, 
     ]
     if order == "margin":
         chosen.sort(key=lambda item: (abs(item.margin), item.position))
+    elif order == "date":
+        chosen.sort(key=lambda item: (item.date is None, item.date or "", item.position))
     return chosen
