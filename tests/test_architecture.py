@@ -75,9 +75,7 @@ def _cycles(graph) -> list[list[str]]:
 
 #: Cycles known and not yet cut, each with who cuts it; the list only shrinks.
 #: (Keep in step with ``ignore_imports`` in pyproject.toml.)
-KNOWN_CYCLES = [
-    ["explain.runs.desk.app", "explain.runs.desk.pages"],  # the review desk's: pages imports helpers of app
-]
+KNOWN_CYCLES = []
 
 
 def test_no_import_cycle_among_the_files_of_explain():

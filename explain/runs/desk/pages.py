@@ -62,7 +62,7 @@ def _flag_query(value: str | None):
 
 def queue_selection(request):
     """``(queued items picked by the query's filters, message id -> outcome of its newest review)``."""
-    from explain.runs.desk.app import _Refused
+    from explain.runs.desk.service import Refused
     from explain.runs.desk.queue import ORDERS, select
 
     settings = request.app.state.settings
@@ -73,7 +73,7 @@ def queue_selection(request):
     reviewed = {"yes": True, "true": True, "no": False, "false": False}.get(q.get("reviewed", ""), None)
     order = q.get("order") or "margin"
     if order not in ORDERS:
-        raise _Refused(400, f"order must be one of {', '.join(ORDERS)}")
+        raise Refused(400, f"order must be one of {', '.join(ORDERS)}")
     picked = select(settings.queue, outcomes, decision=_flag_query(q.get("decision")), flag=_flag_query(q.get("flag")),
                     reviewed=reviewed, order=order)
     return picked, outcomes
@@ -86,7 +86,7 @@ def class_index(settings) -> dict[str, int]:
 
 async def queue_page(request):
     from explain.analysis.risk import FLAGS
-    from explain.runs.desk.app import guarded
+    from explain.runs.desk.service import guarded
 
     @guarded(page=True)
     async def show(request):
@@ -110,7 +110,7 @@ def ledger_view(settings, ledger) -> dict:
 
 
 async def message_page(request):
-    from explain.runs.desk.app import guarded, queued
+    from explain.runs.desk.service import guarded, queued
 
     @guarded(page=True)
     async def show(request):
@@ -129,13 +129,13 @@ async def message_page(request):
 
 async def try_text(request):
     """The ledger fragment of an edited text (the page's script sends it; CSRF header required)."""
-    from explain.runs.desk.app import _Refused, checked_text, guarded, json_body, ledger_for
+    from explain.runs.desk.service import Refused, checked_text, guarded, json_body, ledger_for
 
     @guarded(page=True)
     async def show(request):
         settings = request.app.state.settings
         if not csrf_ok(request, request.headers.get("x-csrf-token")):
-            raise _Refused(403, "missing or stale CSRF token: reload the page")
+            raise Refused(403, "missing or stale CSRF token: reload the page")
         data = await json_body(request)
         text = checked_text(settings, data.get("text"))
         mid = data.get("message_id") if isinstance(data.get("message_id"), str) else None
@@ -150,14 +150,14 @@ async def try_text(request):
 
 async def review_form(request):
     """A review from the message page's form (CSRF field required), then back to the message."""
-    from explain.runs.desk.app import _Refused, guarded, queued, review_fields, store_review
+    from explain.runs.desk.service import Refused, guarded, queued, review_fields, store_review
 
     @guarded(write=True, page=True)
     async def save(request):
         settings = request.app.state.settings
         form = await request.form()
         if not csrf_ok(request, form.get("csrf")):
-            raise _Refused(403, "missing or stale CSRF token: reload the page")
+            raise Refused(403, "missing or stale CSRF token: reload the page")
         item = queued(request, request.path_params["message_id"])
         fields = review_fields({k: form.get(k) for k in ("outcome", "reason", "note", "label", "supersedes", "review_key")}, settings)
         review, _ = await run_in_threadpool(store_review, request, item, request.state.user, fields)
@@ -167,7 +167,7 @@ async def review_form(request):
 
 
 async def reviews_page(request):
-    from explain.runs.desk.app import guarded, review_filters
+    from explain.runs.desk.service import guarded, review_filters
 
     @guarded(page=True)
     async def show(request):
