@@ -12,7 +12,10 @@ from typing import Sequence
 
 from explain.cli.common import fail, parse_size
 
-SLICE_BY_HELP = "Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month)."
+SLICE_BY_HELP = (
+    "Error rates per value of COLUMN, or per month/week of a date column (COLUMN:month); for raw e-mail: "
+    "folder, sender-domain, date:month, date:week, list."
+)
 LABEL_ERRORS_HELP = "List messages whose label may be wrong (refits the model's pipeline on folds of DATA)."
 FOLDS_HELP = "Folds for --label-errors."
 
@@ -37,8 +40,16 @@ def audit_inputs(loaded, messages, X, data: Path, *, slice_by: Sequence[str] | N
 
     groups = [slicing.by_length(messages.texts)] if (slice_by or terms) else []
     for spec in slice_by or ():
+        from explain.analysis.mail_slices import MAIL_KEYS, is_mail_key, mail_slices
         from explain.model.data_io import read_column
 
+        if is_mail_key(spec):
+            groups.append(mail_slices(spec, messages, Path(data).name))
+            continue
+        from explain.model.mail_data import is_mbox
+
+        if Path(data).is_dir() or is_mbox(data):
+            fail(f"{Path(data).name} holds raw e-mail, which has no column {spec!r}; slice it by {', '.join(MAIL_KEYS)}")
         column, period = slicing.parse_slice_spec(spec)
         values = read_column(data, column, parse_size(max_data_bytes, "--max-data-bytes"))
         groups.append(slicing.by_values(values, column) if period is None else slicing.by_period(values, column, period))

@@ -14,6 +14,7 @@ from explain.cli.common import (
     ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD, TRUST,
     VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs, parse_size, warn,
 )
+from explain.cli.mail_options import TEXT_VIEW, mail_input
 from explain.errors import NbledgerError
 from explain.output_files import OutputSet
 
@@ -91,8 +92,10 @@ def _report(p, out: Path, summary: Optional[Path]) -> None:
 @app.command()
 def ledger(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
-    data: List[Path] = typer.Argument(..., help="CSV, JSON Lines or Parquet files (optionally .gz), or a Parquet data set folder."),
-    text_col: str = typer.Option(..., "--text-col", help="Column holding the message text."),
+    data: List[Path] = typer.Argument(
+        ..., help="CSV, JSON Lines or Parquet files (optionally .gz), a Parquet data set folder, a folder of .eml files, or an mbox file."
+    ),
+    text_col: Optional[str] = typer.Option(None, "--text-col", help="Column holding the message text (tables)."),
     out: Path = typer.Option(..., "--out", help="Ledger file: .parquet, .jsonl or .csv (.jsonl/.csv may end in .gz); a folder for a Parquet data set with --engine dask."),
     id_col: Optional[str] = typer.Option(None, "--id-col", help="Column holding message ids (default: row numbers from 1)."),
     top: int = typer.Option(5, "--top", min=0, help="Tokens to list for and against per message."),
@@ -118,6 +121,7 @@ def ledger(
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
+    text_view: Optional[str] = TEXT_VIEW,
 ):
     """Write the evidence for every message of a large input, chunk by chunk."""
     from explain.runs.ledger_local import LedgerProgress, write_ledger
@@ -128,6 +132,10 @@ def ledger(
         raise NbledgerError("--scheduler and --workers need --engine dask")
     if scheduler is not None and workers is not None:
         raise NbledgerError("give --scheduler or --workers, not both")
+    from explain.model.data_stream import input_files, is_mail
+
+    if text_col is None and not all(is_mail(p) for p in input_files(data)):
+        raise NbledgerError("give --text-col, the column of the message text in the tables")
     from explain.present.ledger_files import DRIVER_FORMATS, LEDGER_FORMATS, output_format
 
     single = engine == "local" or out.suffix.lower() in LEDGER_FORMATS or out.name.lower().endswith((".csv.gz", ".jsonl.gz"))
@@ -157,7 +165,7 @@ def ledger(
             )
             options = dict(
                 id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
-                threshold=threshold, progress=progress,
+                threshold=threshold, progress=progress, mail=mail_input(loaded.card, text_view),
             )
             started = True
             with _progress_display() as show, reading_limits(max_bytes, total_bound):

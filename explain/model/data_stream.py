@@ -119,17 +119,31 @@ class TextChunk:
     done: float
 
 
+def is_mail(path: Path) -> bool:
+    """True for an input of raw e-mail: an mbox file, or a folder of ``.eml`` files (and no Parquet file)."""
+    from explain.model.mail_data import is_mbox
+
+    path = Path(path)
+    if path.is_dir():
+        return not any(_parquet_files(path)) and any(p.is_file() for p in path.rglob("*.eml"))
+    return is_mbox(path)
+
+
+def _parquet_files(folder: Path):
+    return (p for p in folder.rglob("*") if p.is_file() and p.name.lower().endswith((".parquet", ".parquet.gz")))
+
+
 def input_files(paths) -> list[Path]:
-    """The files behind ``paths``: files as given, folders expanded to their Parquet files."""
+    """The files behind ``paths``: files as given, folders expanded to their Parquet files; a folder
+    of ``.eml`` files and an mbox file stay one input each (:func:`is_mail`)."""
     files = []
     for path in map(Path, paths):
-        if path.is_dir():
-            found = sorted(
-                (p for p in path.rglob("*") if p.is_file() and p.name.lower().endswith((".parquet", ".parquet.gz"))),
-                key=_natural,
-            )
+        if is_mail(path):
+            files.append(path)
+        elif path.is_dir():
+            found = sorted(_parquet_files(path), key=_natural)
             if not found:
-                raise NbledgerError(f"the folder {path} holds no .parquet file")
+                raise NbledgerError(f"the folder {path} holds no .parquet file and no .eml file")
             files.extend(found)
         elif path.is_file():
             data_format(path)
@@ -145,26 +159,49 @@ def _natural(path: Path):
     return [int(p) if p.isdigit() else p for p in re.split(r"(\d+)", str(path))]
 
 
+def _size(path: Path) -> int:
+    if path.is_dir():
+        return max(sum(p.stat().st_size for p in path.rglob("*.eml") if p.is_file()), 1)
+    return max(path.stat().st_size, 1)
+
+
+def _batches(path: Path, text_col: str | None, id_col: str | None, chunk_rows: int, limits, mail):
+    """``(texts, ids, nulls, replaced, share)`` batches of one input (a table, an .eml folder or an mbox)."""
+    if is_mail(path):
+        from explain.model.mail_data import MailInput, mail_chunks
+
+        return ((texts, ids, 0, 0, share) for texts, ids, share in mail_chunks(path, mail or MailInput(), chunk_rows))
+    if text_col is None:
+        raise NbledgerError(f"{path.name} is a table: give --text-col")
+    fmt, gzipped = data_format(path)
+    reader = {"csv": _csv_batches, "jsonl": _jsonl_batches, "parquet": _parquet_batches}[fmt]
+    return _rechunk(reader(path, gzipped, text_col, id_col, chunk_rows, limits), chunk_rows)
+
+
 def stream_texts(
-    paths, text_col: str, id_col: str | None = None, chunk_rows: int = 20_000, limits: ReadingLimits | None = None,
+    paths, text_col: str | None, id_col: str | None = None, chunk_rows: int = 20_000,
+    limits: ReadingLimits | None = None, mail=None,
 ) -> Iterator[TextChunk]:
     """Yield :class:`TextChunk` of at most ``chunk_rows`` messages, in input order (within ``limits``,
-    by default those of :func:`reading_limits`)."""
+    by default those of :func:`reading_limits`).
+
+    Raw e-mail inputs (:func:`is_mail`) are read as ``mail``
+    (:class:`explain.model.mail_data.MailInput`: view, text rules, its own limits) says; tables need ``text_col``.
+    """
     limits = limits or current_limits()
     if chunk_rows < 1:
         raise NbledgerError("the chunk size must be at least 1 row")
     files = input_files(paths)
-    sizes = [max(f.stat().st_size, 1) for f in files]
+    sizes = [_size(f) for f in files]
     total = float(sum(sizes))
     before, first_row = 0.0, 0
     for path, size in zip(files, sizes):
-        fmt, gzipped = data_format(path)
-        reader = {"csv": _csv_batches, "jsonl": _jsonl_batches, "parquet": _parquet_batches}[fmt]
         file_row = 0
         try:
-            batches = reader(path, gzipped, text_col, id_col, chunk_rows, limits)
-            for texts, ids, nulls, replaced, share in _rechunk(batches, chunk_rows):
-                _check_lengths(path, texts, file_row, limits)
+            table = not is_mail(path)
+            for texts, ids, nulls, replaced, share in _batches(path, text_col, id_col, chunk_rows, limits, mail):
+                if table:  # an e-mail's size is bounded by its own reading limits (MailInput.limits)
+                    _check_lengths(path, texts, file_row, limits)
                 file_row += len(texts)
                 yield TextChunk(texts, ids, first_row, path.name, file_row, nulls, replaced, (before + share * size) / total)
                 first_row += len(texts)
@@ -507,14 +544,34 @@ class Piece:
     row_group: int | None
     rows: int | None
     limits: ReadingLimits | None = None
+    #: raw e-mail inputs: how they are read (:class:`explain.model.mail_data.MailInput`)
+    mail: object = None
 
 
-def input_pieces(paths) -> list[Piece]:
-    """The input split into :class:`Piece` (row groups of plain Parquet files, other files whole)."""
+def _messages_in(path: Path) -> int:
+    """Messages of an .eml folder (its files) or an mbox file (its ``From`` separators, as ``mailbox`` counts them)."""
+    import mailbox
+
+    from explain.model.mail_data import eml_files
+
+    if path.is_dir():
+        return len(eml_files(path))
+    box = mailbox.mbox(path, create=False)
+    try:
+        return len(box)
+    finally:
+        box.close()
+
+
+def input_pieces(paths, mail=None) -> list[Piece]:
+    """The input split into :class:`Piece` (row groups of plain Parquet files, other files and mail inputs whole)."""
     import pyarrow.parquet as pq
 
     pieces, limits = [], current_limits()
     for path in input_files(paths):
+        if is_mail(path):
+            pieces.append(Piece(str(path), None, _messages_in(path), limits, mail))
+            continue
         fmt, gzipped = data_format(path)
         if fmt == "parquet" and not gzipped:
             try:
@@ -530,7 +587,7 @@ def input_pieces(paths) -> list[Piece]:
 def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int) -> Iterator[TextChunk]:
     """The chunks of one piece (``first_row`` counts from the piece's start)."""
     if piece.row_group is None:
-        yield from stream_texts([piece.path], text_col, id_col, chunk_rows, piece.limits)
+        yield from stream_texts([piece.path], text_col, id_col, chunk_rows, piece.limits, piece.mail)
         return
     import pyarrow.parquet as pq
 

@@ -116,10 +116,60 @@ def _read_limited(path: Path, limit: int) -> tuple[bytes, bool]:
     return data[:limit], len(data) > limit
 
 
-def _read_folder(folder: Path, mail: MailInput) -> Messages:
-    files = sorted(p for p in folder.rglob("*.eml") if p.is_file() and not p.is_symlink())
+def eml_files(folder: Path) -> list[Path]:
+    """The ``*.eml`` files under ``folder`` in path order, links skipped; one error line when there are none."""
+    files = sorted(p for p in Path(folder).rglob("*.eml") if p.is_file() and not p.is_symlink())
     if not files:
         raise NbledgerError(f"no .eml files in {folder}")
+    return files
+
+
+def _text_of(data: bytes, mail: MailInput) -> tuple[str, str]:
+    """(text, Message-ID) of one raw message as ``mail`` reads it: the text as given in the ``raw`` view."""
+    if mail.view == "raw":
+        from explain.model.data_io import decode_utf8
+
+        return decode_utf8(data)[0], ""
+    email = read_email(data, mail.limits, mail.rules)
+    return email.text(mail.view), email.message_id
+
+
+def mail_chunks(path: Path, mail: MailInput, chunk_rows: int):
+    """Yield ``(texts, ids, share read)`` of at most ``chunk_rows`` messages of an .eml folder or an mbox file.
+
+    The same reading as :func:`read_data` (texts in ``mail``'s view and rules, ids the
+    Message-ID else the file name or ``name#n``), in bounded memory: for the batch ledger.
+    """
+    path = Path(path)
+    limit = mail.limits.max_message_bytes
+    if path.is_dir():
+        files = eml_files(path)
+        for start in range(0, len(files), chunk_rows):
+            texts, ids = [], []
+            for file in files[start:start + chunk_rows]:
+                text, message_id = _text_of(_read_limited(file, limit)[0], mail)
+                texts.append(text)
+                ids.append(message_id or file.relative_to(path).as_posix())
+            yield texts, ids, min(start + chunk_rows, len(files)) / len(files)
+        return
+    box = mailbox.mbox(path, create=False)
+    try:
+        keys = list(box.iterkeys())
+        if not keys:
+            raise NbledgerError(f"{path.name} holds no messages")
+        for start in range(0, len(keys), chunk_rows):
+            texts, ids = [], []
+            for n, key in enumerate(keys[start:start + chunk_rows], start=start + 1):
+                text, message_id = _text_of(box.get_bytes(key)[:limit], mail)
+                texts.append(text)
+                ids.append(message_id or f"{path.name}#{n}")
+            yield texts, ids, min(start + chunk_rows, len(keys)) / len(keys)
+    finally:
+        box.close()
+
+
+def _read_folder(folder: Path, mail: MailInput) -> Messages:
+    files = eml_files(folder)
     if mail.labels_from_folders:
         loose = [p for p in files if p.parent == folder]
         if loose:
@@ -140,7 +190,9 @@ def _read_folder(folder: Path, mail: MailInput) -> Messages:
         digest.update(hashlib.sha256(data).digest())
         emails.append(read_email(data, mail.limits, mail.rules))
         names.append(name)
-    folders = [p.parent.relative_to(folder).as_posix().removeprefix(".") for p in files]
+    # The folder below the data folder, or below the label folder with labels_from_folders.
+    skip = 1 if mail.labels_from_folders else 0
+    folders = ["/".join(p.relative_to(folder).parts[skip:-1]) for p in files]
     return _messages(emails, names, labels, folder, digest.hexdigest(), mail, cut, folders)
 
 

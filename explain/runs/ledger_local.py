@@ -135,10 +135,10 @@ def run_rule(model, threshold, only_flagged, summary):
 
 
 def write_ledger(
-    model, paths, text_col: str, out, *, id_col=None, top_k=5, chunk_rows=20_000,
+    model, paths, text_col: str | None, out, *, id_col=None, top_k=5, chunk_rows=20_000,
     only_flagged=False, threshold=None, summary=None,
     on_chunk: Callable[[LedgerProgress], None] | None = None, progress: LedgerProgress | None = None,
-    helper: bool = True,
+    helper: bool = True, mail=None,
 ) -> LedgerProgress:
     """Write the ledger of every message in ``paths`` to ``out`` (and flag drivers to ``summary``).
 
@@ -146,7 +146,8 @@ def write_ledger(
     ``on_chunk`` let a caller show how far it has got, also after an error.
     ``helper`` lets a second process read and tokenise the next chunk while
     this one computes (:mod:`explain.model.feature_worker`); the rows are the
-    same either way.
+    same either way. ``mail`` (:class:`explain.model.mail_data.MailInput`) says how
+    .eml folders and mbox files among ``paths`` are read.
     """
     from explain.model.data_stream import stream_texts
     from explain.model.feature_worker import featured
@@ -159,7 +160,7 @@ def write_ledger(
     start = time.perf_counter()
     with atomic_path(out) as tmp:
         writer = LedgerWriter(tmp, fmt, gzipped, group_rows=chunk_rows)
-        chunks = featured(lambda rows: stream_texts(paths, text_col, id_col, rows), model.featurizer, chunk_rows, helper)
+        chunks = featured(lambda rows: stream_texts(paths, text_col, id_col, rows, mail=mail), model.featurizer, chunk_rows, helper)
         with contextlib.closing(writer), contextlib.closing(chunks):
             for chunk, features in chunks:
                 ids = chunk.ids if chunk.ids is not None else row_numbers(chunk.first_row, len(chunk.texts))
