@@ -54,7 +54,7 @@ def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
     if not text.strip():
         fail(f"{path.name} is empty")
     as_email = path.suffix.lower() == ".eml"
-    _, text, _ = read_one(raw if as_email else text, as_email, mail.view)
+    _, text, _ = read_one(raw if as_email else text, as_email, mail.view, mail.rules)
     ids = np.asarray([path.name], dtype=object)
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 

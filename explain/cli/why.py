@@ -140,15 +140,16 @@ def console_for(color: str):
     return make_console(highlight=False, color_system=None if plain else "auto")
 
 
-def read_one(raw: bytes | str, as_email: bool, view: str) -> tuple:
-    """``(message id, text the model reads, mail facts or None)`` of one message given directly."""
+def read_one(raw: bytes | str, as_email: bool, view: str, rules: str | None = None) -> tuple:
+    """``(message id, text the model reads, mail facts or None)`` of one message given directly
+    (an e-mail read under the text ``rules`` of the model card, :func:`~explain.model.email_reader.text_rules_of`)."""
     from explain.analysis.mail_facts import mail_facts
-    from explain.model.email_reader import looks_like_email, read_email
+    from explain.model.email_reader import CURRENT_RULES, looks_like_email, read_email
 
     data = raw.encode("utf-8", errors="surrogatepass") if isinstance(raw, str) else raw
     if not (as_email or looks_like_email(data)):
         return None, plain_message(raw), None
-    mail = read_email(data)
+    mail = read_email(data, rules=rules or CURRENT_RULES)
     if mail.raw_fallback:
         fail(f"the e-mail could not be read: {mail.problems[0]}")
     for problem in mail.problems:
@@ -283,7 +284,10 @@ def why(
         if data is not None:
             wanted = read_id_list(ids) if ids is not None else [message_id]
             label_col, source = support_labels(loaded, data, label_col)
-            messages = read_messages_or_fail(data, text_col, label_col, id_col=id_col)
+            from explain.cli.mail_options import mail_input
+
+            # An .eml folder or mbox file is read in the card's view and text rules, as every data command reads it.
+            messages = read_messages_or_fail(data, text_col, label_col, mail_input(loaded.card, text_view), id_col=id_col)
             chosen = pick_messages(messages, wanted, data.name)
             if label_col is not None:
                 from explain.analysis.vocab import document_counts
@@ -292,7 +296,12 @@ def why(
                 documents = document_counts(loaded.view, features, messages.labels, source)
             chosen = [(mid, message, None) for mid, message in chosen]
         else:
-            mid, message, mail = read_one(read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view))
+            from explain.model.email_reader import text_rules_of
+
+            mid, message, mail = read_one(
+                read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view),
+                text_rules_of(loaded.card),
+            )
             # A message from a file is named by its file when it carries no id of its own.
             chosen = [(mid or (file.name if file is not None else None), message, mail)]
         ledgers = []
