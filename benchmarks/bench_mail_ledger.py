@@ -8,7 +8,7 @@ clock, best of ``--repeat``:
   ``email.policy.default`` (the floor of any reader built on the standard library);
 - **parser and body text**: the same, plus the standard library's own text of the body
   (``get_body(("plain", "html")).get_content()``), for scale;
-- **ledger**: :func:`explain.present.ledger_files.write_ledger` (what ``nbledger ledger
+- **ledger**: :func:`explain.runs.ledger_local.write_ledger` (what ``nbledger ledger
   MODEL FOLDER --out l.parquet`` runs, without the model loading): every file read by the
   library's e-mail reader in the model's view and text rules, scored, its top tokens and
   flip set found, written to Parquet.
@@ -94,7 +94,7 @@ def main() -> None:
     args = parser.parse_args()
 
     from explain.model.mail_data import MailInput
-    from explain.present.ledger_files import write_ledger
+    from explain.runs.ledger_local import write_ledger
 
     root = Path(tempfile.mkdtemp(prefix="nbledger-bench-mail-"))
     try:
