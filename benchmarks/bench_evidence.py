@@ -2,7 +2,7 @@
 
 1. Batch evidence for every message (log-odds, decision, top tokens for and
    against) divided by the pipeline's own ``predict_proba`` on the same texts;
-   both include tokenisation. Target: <= 1.25.
+   both include tokenisation. Target: <= 1.10.
 2. Full per-token evidence (every token of every message, one sparse product)
    against leave-one-token-out re-scoring (the message re-scored by
    scikit-learn once per distinct token, without that token). Target speed-up
@@ -43,6 +43,23 @@ def best_of(repeats, fn):
     return best
 
 
+def side_by_side(repeats, first, second):
+    """Best wall-clock and CPU times of two calls, run alternately so that both meet the same load.
+
+    Returns ``(wall_first, wall_second, cpu_first, cpu_second)``; CPU time
+    (``time.process_time``) is what the process itself spent, less moved by
+    other work on a shared machine than the wall clock.
+    """
+    best = [float("inf")] * 4
+    for _ in range(repeats):
+        for i, fn in enumerate((first, second)):
+            wall, cpu = time.perf_counter(), time.process_time()
+            fn()
+            best[i] = min(best[i], time.perf_counter() - wall)
+            best[2 + i] = min(best[2 + i], time.process_time() - cpu)
+    return tuple(best)
+
+
 def as_loaded(pipeline, normal_class):
     featurizer = Featurizer(pipeline[0])
     view = view_of(pipeline[-1], featurizer.tokens, featurizer.feature_kind, normal_class)
@@ -69,8 +86,9 @@ def measure(name, texts, labels, normal_class, loo_messages, repeats):
     trained = train_filter(texts, labels, TrainSettings(normal_class=normal_class))
     pipeline = trained.pipeline
     model = as_loaded(pipeline, normal_class)
-    t_sklearn = best_of(repeats, lambda: pipeline.predict_proba(texts))
-    t_ours = best_of(repeats, lambda: score_texts(model, texts, top_k=5))
+    t_sklearn, t_ours, cpu_sklearn, cpu_ours = side_by_side(
+        repeats, lambda: pipeline.predict_proba(texts), lambda: score_texts(model, texts, top_k=5)
+    )
 
     sample = texts[:loo_messages]
     X = sp.csr_matrix(pipeline[0].transform(sample), dtype=np.float64)
@@ -90,7 +108,9 @@ def measure(name, texts, labels, normal_class, loo_messages, repeats):
     diff = float(np.max(np.abs(full - loo))) if len(full) else 0.0
     print(f"\n{name}: {len(texts)} messages, vocabulary {len(view.tokens)}")
     print(f"  predict_proba (scikit-learn)         {t_sklearn:8.3f} s")
-    print(f"  batch evidence (nbledger)            {t_ours:8.3f} s   ratio {t_ours / t_sklearn:5.2f}  (target <= 1.25)")
+    print(f"  batch evidence (nbledger)            {t_ours:8.3f} s   ratio {t_ours / t_sklearn:5.2f}  (target <= 1.10)")
+    print(f"  the same in CPU time                 {cpu_ours:8.3f} s   ratio {cpu_ours / cpu_sklearn:5.2f}"
+          f"  (predict_proba {cpu_sklearn:.3f} s)")
     print(f"  leave-one-token-out, {len(sample)} messages   {t_loo:8.3f} s   ({len(loo)} re-scorings)")
     print(f"  full per-token evidence, same        {t_full:8.5f} s   speed-up {t_loo / t_full:9.0f}x  (target >= 100)")
     print(f"  largest |evidence - leave-one-out|   {diff:.3e}")
@@ -100,7 +120,7 @@ def measure(name, texts, labels, normal_class, loo_messages, repeats):
 def main():
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--loo-messages", type=int, default=200)
-    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--repeats", type=int, default=5)
     args = parser.parse_args()
 
     demo = pd.read_csv(ROOT / "demo_corpus" / "messages.csv")

@@ -89,29 +89,71 @@ def by_row_then_value(rows: np.ndarray, values: np.ndarray, non_negative: bool =
     return order[np.lexsort((rank, r))]  # keys too wide for int64: the slower stable sort
 
 
-def top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int):
+def _row_extremes(indptr: np.ndarray, rows: np.ndarray, scores: np.ndarray, k: int, last: bool):
+    """Positions of the ``k`` largest finite ``scores`` of each CSR row, one selection round per place.
+
+    Round ``j`` takes each row's maximum (``np.maximum.reduceat``, one pass)
+    and the first position holding it (``last``: the last one), then sets it
+    to -inf: the order a stable sort by descending score gives (``last``: by
+    ascending score, read from its end). Rows with fewer finite scores stop
+    early. Returns ``(rows, positions)`` per round.
+    """
+    nonempty = np.flatnonzero(np.diff(indptr) > 0)
+    starts = indptr[nonempty]
+    best = np.full(len(indptr) - 1, -np.inf)
+    rounds = []
+    for _ in range(k):
+        best[nonempty] = np.maximum.reduceat(scores, starts)
+        hit = np.flatnonzero((scores == best[rows]) & (scores > -np.inf))
+        if len(hit) == 0:
+            break
+        r = rows[hit]
+        change = r[1:] != r[:-1]
+        keep = np.concatenate((change, [True])) if last else np.concatenate(([True], change))
+        pos = hit[keep]
+        rounds.append((r[keep], pos))
+        scores[pos] = -np.inf
+    return rounds
+
+
+def top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int, rows: np.ndarray | None = None):
     """Columns and values of the k largest positive and k most negative ``values`` per CSR row.
 
-    One sort over all non-zeros (:func:`by_row_then_value`); returns (for_cols, for_vals,
+    Within a row, equal values keep the order a stable sort by value would give
+    them (:func:`by_row_then_value`): the first of equal positive values comes
+    first, the last of equal negative values. ``k`` selection rounds over the
+    non-zeros (:func:`_row_extremes`) instead of sorting them all: only the k
+    strongest of each row are ever wanted. Returns (for_cols, for_vals,
     against_cols, against_vals), each (n, k), columns -1 where there are fewer.
     """
     n = X.shape[0]
     out = [np.full((n, k), -1, dtype=np.int64), np.zeros((n, k)), np.full((n, k), -1, dtype=np.int64), np.zeros((n, k))]
     if k == 0 or values.size == 0:
         return tuple(out)
-    rows = np.repeat(np.arange(n), np.diff(X.indptr))
-    order = by_row_then_value(rows, values)
-    v, cols = values[order], X.indices[order]
-    position = np.arange(len(v))
-    from_start = position - X.indptr[rows]
-    from_end = X.indptr[rows + 1] - 1 - position
-    take = (from_start < k) & (v > 0)
-    out[0][rows[take], from_start[take]] = cols[take]
-    out[1][rows[take], from_start[take]] = v[take]
-    take = (from_end < k) & (v < 0)
-    out[2][rows[take], from_end[take]] = cols[take]
-    out[3][rows[take], from_end[take]] = v[take]
+    if rows is None:
+        rows = np.repeat(np.arange(n), np.diff(X.indptr))
+    for side, scores, last in ((0, np.where(values > 0, values, -np.inf), False),
+                               (2, np.where(values < 0, -values, -np.inf), True)):
+        for j, (r, pos) in enumerate(_row_extremes(X.indptr, rows, scores, k, last)):
+            out[side][r, j] = X.indices[pos]
+            out[side + 1][r, j] = values[pos]
     return tuple(out)
+
+
+def evidence_values(view: ModelView, X: sp.csr_matrix, winner: np.ndarray, rival: np.ndarray,
+                    rows: np.ndarray | None = None) -> np.ndarray:
+    """The data of :func:`evidence_matrix`: ``x_ij (W[winner_i, j] - W[rival_i, j])`` in ``X``'s order.
+
+    Each distinct (winner, rival) pair's weight difference is taken once (two
+    classes have at most two pairs), then one gather per non-zero.
+    """
+    if rows is None:
+        rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
+    n_classes, n_features = view.weights.shape
+    pairs, pair_of_row = np.unique(winner.astype(np.int64) * n_classes + rival, return_inverse=True)
+    differences = view.weights[pairs // n_classes] - view.weights[pairs % n_classes]
+    delta = differences.ravel()[pair_of_row.ravel()[rows] * n_features + X.indices]
+    return X.data * delta
 
 
 def evidence_matrix(view: ModelView, X: sp.csr_matrix, winner: np.ndarray, rival: np.ndarray) -> sp.csr_matrix:
@@ -121,9 +163,8 @@ def evidence_matrix(view: ModelView, X: sp.csr_matrix, winner: np.ndarray, rival
     same sparsity pattern, so row ``i`` sums to ``jll[i, winner] - jll[i, rival]``
     minus the baseline difference.
     """
-    rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
-    delta = view.weights[winner[rows], X.indices] - view.weights[rival[rows], X.indices]
-    return sp.csr_matrix((X.data * delta, X.indices.copy(), X.indptr.copy()), shape=X.shape)
+    data = evidence_values(view, X, winner, rival)
+    return sp.csr_matrix((data, X.indices.copy(), X.indptr.copy()), shape=X.shape)
 
 
 def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> BatchEvidence:
@@ -133,8 +174,12 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
     jll = view.joint_log_likelihood(X)
     probabilities = view.posterior(jll)
     predicted, runner_up = top_two(jll)
-    evidence = evidence_matrix(view, X, predicted, runner_up).data
-    top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, evidence, top_k)
+    if top_k > 0:
+        rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
+        evidence = evidence_values(view, X, predicted, runner_up, rows)
+        top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, evidence, top_k, rows)
+    else:
+        top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, np.zeros(0), 0)
     flag = rule.flag_log_odds(jll) if rule.normal_index is not None else None
     return BatchEvidence(
         classes=view.classes,
