@@ -13,7 +13,7 @@ classes), writes a 2,000-character message made of demo messages, and times in o
   explains the message again and is committed before its 201. With ``--postgres URL`` the same on
   PostgreSQL.
 
-Run: ``python -m benchmarks.bench_desk [--repeat R] [--postgres URL]``.
+Run: ``python -m benchmarks.bench_desk [--repeat R] [--postgres URL|start]``.
 """
 
 from __future__ import annotations
@@ -125,7 +125,8 @@ def reviews_on(model: Path, queue: Path, db: str, label: str) -> None:
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--repeat", type=int, default=5)
-    parser.add_argument("--postgres", default=None, help="postgresql:// URL of an empty database")
+    parser.add_argument("--postgres", default=None,
+                        help="postgresql:// URL of an empty database, or 'start' for a server of its own (tests/pg_server.py)")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -141,7 +142,12 @@ def main() -> None:
         print(f"served ledger, median of 50: {served * 1000:.1f} ms = {served / command:.4f} x the command "
               f"(target <= 0.05)")
         reviews_on(model, queue, str(folder / "reviews.sqlite"), "SQLite")
-        if args.postgres:
+        if args.postgres == "start":
+            from pg_server import postgres_server
+
+            with postgres_server() as url:
+                reviews_on(model, queue, url, "PostgreSQL")
+        elif args.postgres:
             reviews_on(model, queue, args.postgres, "PostgreSQL")
 
 

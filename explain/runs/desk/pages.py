@@ -26,8 +26,9 @@ def environment() -> jinja2.Environment:
     """Autoescaping on; controls and bidi characters of input shown as visible forms, never obeyed
     (the report's ``finalize`` hook), except the editable text, which must stay exactly the message."""
     from explain.present.token_display import html_visible
+    from explain.present.wording import probability_of_log_odds
 
-    return jinja2.Environment(
+    env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         autoescape=True,
         finalize=html_visible,
@@ -35,6 +36,9 @@ def environment() -> jinja2.Environment:
         trim_blocks=True,
         lstrip_blocks=True,
     )
+    # P(flag) from the flag log-odds, never rounded to certainty (the report's filter)
+    env.filters["probability"] = probability_of_log_odds
+    return env
 
 
 def render(request, name: str, status: int = 200, **context) -> HTMLResponse:
@@ -54,6 +58,13 @@ def exact(text: str):
     from markupsafe import Markup, escape
 
     return Markup(escape(text))
+
+
+def has_controls(text: str) -> bool:
+    """Whether ``text`` holds characters the pages show as visible forms (controls, bidi, invisible ones)."""
+    from explain.present.token_display import safe_text
+
+    return safe_text(text) != text
 
 
 def _flag_query(value: str | None):
@@ -120,7 +131,7 @@ async def message_page(request):
         history = await run_in_threadpool(lambda: settings.store.select(message_id=item.id))
         return render(
             request, "message.html.j2", item=item, lv=ledger_view(settings, ledger), closing_exact=repr(ledger.closing),
-            history=history, text=exact(ledger.text), cls=class_index(settings),
+            history=history, text=exact(ledger.text), cls=class_index(settings), controls=has_controls(ledger.text),
             classes=[str(c) for c in settings.loaded.classes], saved=request.query_params.get("saved"),
         )
 
@@ -235,4 +246,5 @@ def routes() -> list[Route]:
         Route("/login", login_page, methods=["GET", "POST"]),
         Route("/logout", logout, methods=["POST"]),
         Route("/static/{name}", static_file),
+        Route("/favicon.ico", lambda request: Response(status_code=204)),  # the browser asks; the desk has none
     ]
