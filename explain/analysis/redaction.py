@@ -175,3 +175,22 @@ def redact_probe(result):
     evasion = dataclasses.replace(result.evasion, repeats=budget(result.evasion.repeats),
                                   distinct=budget(result.evasion.distinct))
     return dataclasses.replace(result, evasion=evasion)
+
+
+def masked_text(text: str) -> str:
+    """``text`` with every personal value (:func:`explain.analysis.personal_data.find_personal`) replaced by a
+    numbered placeholder, one number per value: the one call for any screen that shows message text
+    (the review desk's included).
+
+    >>> masked_text("Dear Oksana, call (202) 555-0142. Thanks, Oksana")
+    'Dear [name 1], call [phone 2]. Thanks, [name 1]'
+    """
+    from explain.analysis.ledger import placeholder_numbers
+    from explain.analysis.personal_data import find_personal
+
+    found = find_personal(text)
+    out, at = [], 0
+    for (start, end, kind), n in zip(found, placeholder_numbers(text, found)):
+        out += [text[at:start], f"[{kind} {n}]"]
+        at = end
+    return "".join(out) + text[at:]
