@@ -182,3 +182,28 @@ def test_bad_mail_input_is_one_error_line(bad, capsys, args, needle):
     assert result.code == 2
     assert needle in result.one_error_line()
     assert not (bad / "o.csv").exists()
+
+
+@pytest.mark.mailcorpus
+def test_ledger_over_an_mbox_decides_as_scikit_learn_predicts(mail, capsys):
+    root = mail["root"]
+    pipeline = make_pipeline(CountVectorizer(), MultinomialNB()).fit(
+        [_as_given(p) for p in mail["train"]], [p.parent.parent.name for p in mail["train"]]
+    )
+    model = root / "cardless-mbox.skops"
+    sio.dump(pipeline, model)
+    box = mailbox.mbox(root / "test.mbox")
+    for path in mail["test"][:40]:
+        box.add(path.read_bytes())
+    box.close()
+    out = root / "ledger-mbox.jsonl"
+    result = nbledger(capsys, "ledger", model, root / "test.mbox", "--out", out)
+    assert result.code == 0, result.err
+    rows = pd.read_json(out, lines=True, dtype=False)
+    # Reference: the messages as the standard library's mailbox gives them back, scored by scikit-learn.
+    box = mailbox.mbox(root / "test.mbox")
+    view = resolve_text_view(None, None)
+    texts = [decode_utf8(box.get_bytes(k))[0] if view == "raw" else read_email(box.get_bytes(k)).text(view) for k in box.keys()]
+    box.close()
+    assert len(rows) == 40
+    assert rows["decided"].tolist() == pipeline.predict(texts).tolist()
