@@ -493,3 +493,52 @@ def test_the_refitted_copy_has_the_models_own_settings(tmp_path):
     for mine, theirs in zip(steps, (s for _, s in original.steps)):
         assert mine.get_params() == theirs.get_params()
         assert not hasattr(mine, "vocabulary_") and not hasattr(mine, "idf_") and not hasattr(mine, "classes_")
+
+
+# --- 6. the summary's recommendation --------------------------------------------------------
+
+
+def _point(kind, tp, fp, target=None, n_pos=100, n_neg=900, costs=None):
+    from explain.analysis.ranking import FigureSettings, OperatingPoint, threshold_figures
+
+    how = FigureSettings(costs=costs, confidence=0.95)
+    return OperatingPoint(kind, target, True, None, threshold_figures(0.5, tp, fp, n_pos, n_neg, how))
+
+
+def test_the_recommendation_names_a_point_that_beats_the_rule_on_both_rates():
+    from types import SimpleNamespace
+
+    from explain.analysis.report import recommend
+
+    in_use = _point("in use", tp=90, fp=20)
+    trade = _point("fpr", tp=80, fp=5, target=0.01)  # fewer false alarms, more misses: a trade, not better
+    better = _point("recall", tp=92, fp=15, target=0.9)  # fewer of both
+    also = _point("fpr", tp=90, fp=19, target=0.05)  # better too, but more errors than `better`
+    rec = recommend(SimpleNamespace(operating_points=[in_use, trade, also, better]))
+    assert rec.better is better and rec.least_cost is None
+    assert recommend(SimpleNamespace(operating_points=[in_use, trade])).better is None
+    # equal on both rates does not beat it (common practice, no source: Pareto dominance)
+    assert recommend(SimpleNamespace(operating_points=[in_use, _point("fpr", tp=90, fp=20)])).better is None
+    cheap = _point("least cost", tp=95, fp=30, costs=(1, 5))
+    assert recommend(SimpleNamespace(operating_points=[in_use, trade, cheap])).least_cost is cheap
+
+
+def test_the_report_summary_recommends_and_names_the_least_cost_point(files, capsys, tmp_path):
+    out = tmp_path / "r.pdf"
+    code = run(["report", str(files / "model.skops"), "--data", str(files / "held.csv"), "--normal-class", "ok",
+                "--costs", "1:5", "--out", str(out), "--json", str(tmp_path / "r.json"), "--html",
+                str(tmp_path / "r.html")])
+    assert code == 0, capsys.readouterr().err
+    twin = json.loads((tmp_path / "r.json").read_text(encoding="utf-8"))
+    rec = twin["summary"]["recommendation"]
+    points = twin["assessment"]["operating_points"]
+    least = next(p for p in points if p["kind"] == "least cost")
+    assert rec["least_cost"] == least and twin["costs"] == [1.0, 5.0]
+    in_use = next(p for p in points if p["kind"] == "in use")["figures"]
+    beating = [p for p in points if p["kind"] != "in use" and p["figures"] and p["figures"]["fp"] <= in_use["fp"]
+               and p["figures"]["fn"] <= in_use["fn"] and (p["figures"]["fp"], p["figures"]["fn"]) != (in_use["fp"], in_use["fn"])]
+    assert (rec["better"] is None) == (not beating)
+    page = (tmp_path / "r.html").read_text(encoding="utf-8")
+    assert "the least-cost point is threshold log-odds" in page
+    assert ("beats the rule in use on both rates" in page) == bool(beating)
+    assert ("no listed operating point beats the rule in use" in page) == (not beating)

@@ -120,3 +120,63 @@ def test_same_file_twice_changes_nothing(case):
     for comparison in result.vocabulary.comparisons:
         assert comparison.shifts_up == () == comparison.shifts_down
         assert all(r.old_rank == r.new_rank for r in comparison.ranks)
+
+
+# --- what changed: the settings table (issue 21, item 6) ---------------------------------------------
+
+SETTING_TEXTS = ["pay the parcel fee now pay now fee", "parcel at the depot pay fee", "tea at the harbour club",
+                 "club tea tea on sunday club", "free prize claim now", "lend me the drill on sunday",
+                 "sofa for sale now", "sale of garden tools at the club", "fresh eggs for sale"]
+SETTING_LABELS = ["scam", "scam", "ok", "ok", "scam", "ok", "advert", "advert", "advert"]
+
+
+def _fitted(kind, variant, alpha, sha):
+    from explain.model.plain_form import classifier_settings
+    from tests.corpora import loaded, make_pipeline
+
+    pipe = make_pipeline(kind, variant, alpha=alpha).fit(SETTING_TEXTS, SETTING_LABELS)
+    model = replace(loaded(pipe, "ok"), sha256=sha, classifier_settings=classifier_settings(pipe.named_steps["nb"]))
+    return pipe, model
+
+
+@pytest.mark.parametrize("old, new, differing, weights", [
+    (("counts", "multinomial", 1.0), ("counts", "complement", 1.0), {"variant"}, "per occurrence"),
+    (("counts", "multinomial", 1.0), ("binary", "multinomial", 1.0), {"feature_kind"}, "per occurrence"),
+    (("counts", "multinomial", 1.0), ("counts", "multinomial", 0.1), {"alpha"}, "per unit"),
+    (("tfidf", "multinomial", 1.0), ("binary", "bernoulli", 0.5), {"variant", "feature_kind", "alpha"},
+     "per occurrence"),
+])
+def test_compare_names_the_settings_that_differ(old, new, differing, weights):
+    from explain.present.compare import text_lines, to_json
+
+    old_pipe, old_model = _fitted(*old, sha="a" * 64)
+    new_pipe, new_model = _fitted(*new, sha="b" * 64)
+    result = compare_models(old_model, new_model, normal_class="ok")
+    by_name = {s.name: s for s in result.settings}
+    assert {s.name for s in result.settings if s.differs} == differing | {"sha256"}
+    # the values are scikit-learn's own parameters of each pipeline
+    for pipe, side in ((old_pipe, "old"), (new_pipe, "new")):
+        nb, vec = pipe.named_steps["nb"], pipe.named_steps["v"]
+        assert getattr(by_name["alpha"], side) == nb.get_params()["alpha"]
+        assert getattr(by_name["ngrams"], side) == list(vec.get_params()["ngram_range"])
+        assert getattr(by_name["vocabulary_size"], side) == len(vec.vocabulary_)
+        assert getattr(by_name["variant"], side) == type(nb).__name__.removesuffix("NB").lower()
+    assert result.weights_compared == weights
+    lines = "\n".join(text_lines(result, width=200))
+    named = {"variant": "variant", "feature_kind": "features", "alpha": "alpha"}
+    differing_line = next(line for line in lines.splitlines() if line.startswith("  differing: "))
+    assert all(named[d] in differing_line for d in differing) and "model fingerprint" in differing_line
+    assert to_json(result)["weights_compared"] == weights
+    if weights == "per occurrence":
+        assert "weight scales differ" in lines
+        # per occurrence: what one occurrence adds in a message of that token alone, from scikit-learn's own
+        # joint log-likelihoods (the one-token message against the empty one)
+        shifts = [*result.vocabulary.comparisons[0].shifts_up, *result.vocabulary.comparisons[0].shifts_down]
+        assert len(shifts) >= 3
+        for pipe, side in ((old_pipe, "old"), (new_pipe, "new")):
+            for shift in shifts:
+                jll = pipe[-1].predict_joint_log_proba(pipe[:-1].transform([shift.token, ""]))
+                target = result.vocabulary.comparisons[0].target
+                scam, ok = list(pipe.classes_).index(target), list(pipe.classes_).index("ok")
+                expected = (jll[0, scam] - jll[0, ok]) - (jll[1, scam] - jll[1, ok])
+                assert getattr(shift, side) == pytest.approx(expected, abs=1e-9), (side, shift.token)

@@ -56,3 +56,18 @@ def test_demo_without_a_corpus_says_where_to_run_it(tmp_path, capsys):
 
     result = nbledger(capsys, "demo", "--out", tmp_path / "out", "--corpus", tmp_path / "nowhere")
     assert "no demo corpus" in result.one_error_line()
+
+
+@pytest.mark.parametrize("width", [60, 78, 120])
+def test_the_demo_prints_commands_that_paste(width):
+    # POSIX shell word splitting as Python's shlex implements it (the standard library, outside this project)
+    import shlex
+
+    from explain.cli.demo import pasteable
+
+    argv = ["report", "m.skops", "--title", "Review of the Tideway Commons message filter", "--organisation",
+            "Tideway Commons (demo)", "--base-rate", "2%", "--label-errors", "--costs", "1:5", "--note", "it's $HOME"]
+    printed = pasteable(argv, width)
+    assert all(len(line) <= width for line in printed.splitlines() if " " in line.strip())
+    assert shlex.split(printed.replace("\\\n", " ")) == ["nbledger", *argv]
+    assert "'Tideway Commons (demo)'" in printed

@@ -188,8 +188,11 @@ def test_json_twin_is_byte_identical_across_runs(files, monkeypatch):
 
 
 def test_printed_thresholds_reproduce_their_rows_and_the_base_rate_is_projected(files):
-    """Each operating point's threshold, as printed (repr of its log-odds), flags exactly its messages."""
-    from explain.present.report import _exact
+    """Each operating point's threshold, as the JSON twin holds it (every digit), flags exactly its messages.
+
+    Pages show it to 6 significant figures (the issue's rule; checked here against Python's own ``%g``).
+    """
+    from explain.present.numbers import threshold
 
     model = load_model(files / "filter.skops", normal_class="ok")
     data = read_messages(files / "test.csv", "text", "label")
@@ -205,7 +208,9 @@ def test_printed_thresholds_reproduce_their_rows_and_the_base_rate_is_projected(
     ok = list(pipeline.classes_).index("ok")
     flag_log_odds = np.logaddexp.reduce(np.delete(jll, ok, axis=1), axis=1) - jll[:, ok]
     for point in points:
-        printed = float(_exact(point["figures"]["threshold_log_odds"]))
+        printed = float(repr(point["figures"]["threshold_log_odds"]))
+        on_page = threshold(printed)
+        assert float(on_page) == float(f"{printed:.6g}") and len(on_page.lstrip("-").replace(".", "").lstrip("0")) <= 6
         again = json.loads(dumps(build_report(model, data=data, settings=ReportSettings(threshold_log_odds=printed))))
         flagged = flag_log_odds >= printed
         for key, count in (("tp", flagged & truth), ("fp", flagged & ~truth)):

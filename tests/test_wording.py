@@ -81,3 +81,13 @@ def test_stronger_entries_are_darker_never_lighter(family):
     lightness = [sum(to_rgb(s.background)) for s in shades]
     assert lightness[0] > lightness[1] > lightness[2]
     assert {s.mark for s in shades} == {"▲"} and tint("debit", family, 1, 3).mark == "▼"
+
+
+def test_a_bound_is_said_with_its_own_sign():
+    # "P(flag) = > 0.9999" read as two relations at once (issue 21)
+    from explain.present.wording import probability, stated
+
+    assert stated("P(flag)", probability(1.0)) == "P(flag) > 0.9999"
+    assert stated("P(flag)", probability(0.0)) == "P(flag) < 0.0001"
+    assert stated("P(flag)", probability(0.7479)) == "P(flag) = 0.7479"
+    assert stated("P(flag)", probability(1 - 1e-9, 1e-9)) == "P(flag) = 1 - 1e-09"

@@ -17,6 +17,17 @@ messages) and returns a frozen :class:`Comparison`:
 
 Tokens are matched by their text: two models that cut text differently
 share only the tokens both make, and the rest is listed, not compared.
+
+The settings that make the two filters what they are (variant, features,
+analyzer, n-grams, alpha, vocabulary size, text view, fingerprint) are set
+side by side with the differences marked (:class:`Setting`). When the weight
+scales differ (another variant or another feature kind), a weight per unit of
+one model is not a weight per unit of the other: shared tokens are then
+compared by their *per-occurrence* log-odds against the normal class, the
+evidence one occurrence adds in a message holding that token alone
+(``(W[c, j] - W[normal, j]) * v_j`` with ``v_j`` the feature value the
+model's own text steps give that message), and ``Comparison.weights_compared``
+says so.
 """
 
 from __future__ import annotations
@@ -46,6 +57,21 @@ class Shift:
     @property
     def change(self) -> float:
         return self.new - self.old
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One setting of both filters: ``name`` (a glossary key), its ``old`` and ``new`` values, and whether they differ."""
+
+    name: str
+    old: object
+    new: object
+    differs: bool
+
+
+#: How shared tokens' weights are compared: per unit of each model's feature value, or per occurrence.
+PER_UNIT = "per unit"
+PER_OCCURRENCE = "per occurrence"
 
 
 @dataclass(frozen=True)
@@ -165,6 +191,44 @@ class Comparison:
     notes: tuple[str, ...]
     #: ``(old, new)`` :class:`explain.analysis.appeals.Appeals` from the review desk (``--reviews``), else None
     appeals: tuple | None = None
+    settings: tuple[Setting, ...] = ()
+    weights_compared: str = PER_UNIT
+
+
+def _setting_values(model) -> dict:
+    """The settings of one filter, by glossary key, as plain values (None where the model does not say)."""
+    from explain.model.email_reader import resolve_text_view
+
+    view, vec = model.view, model.featurizer.vectorizer
+    params = vec.get_params()
+    analyzer = params.get("analyzer")
+    alpha = ((model.classifier_settings or {}).get("params") or {}).get("alpha")
+    return {
+        "variant": view.variant,
+        "feature_kind": view.feature_kind,
+        "analyzer": analyzer if isinstance(analyzer, str) else "custom",
+        "ngrams": list(params.get("ngram_range") or (1, 1)),
+        "alpha": alpha if alpha is None or isinstance(alpha, (int, float)) else list(np.ravel(alpha)),
+        "vocabulary_size": int(view.n_features),
+        "text_view": resolve_text_view(model.card),
+        "sha256": model.sha256,
+    }
+
+
+def settings_table(old, new) -> tuple[Setting, ...]:
+    """Both filters' settings side by side, each marked when it differs."""
+    a, b = _setting_values(old), _setting_values(new)
+    return tuple(Setting(k, a[k], b[k], a[k] != b[k]) for k in a)
+
+
+def _one_occurrence(model, cols: np.ndarray) -> np.ndarray:
+    """The feature value of token ``cols[i]`` in a message holding it once and nothing else (model's own steps)."""
+    import scipy.sparse as sp
+
+    k = len(cols)
+    counts = sp.csr_matrix((np.ones(k), (np.arange(k), cols)), shape=(k, model.view.n_features))
+    values = model.featurizer.weigh(counts)
+    return np.asarray(values[np.arange(k), cols]).ravel()
 
 
 def _text_steps(model) -> dict:
@@ -195,12 +259,15 @@ def _normal_class(old, new, normal_class: str | None) -> str | None:
     return None
 
 
-def _comparison_change(old_view, new_view, target: str, other: str, old_cols, new_cols, tokens, old_review, new_review, top):
+def _comparison_change(old_view, new_view, target: str, other: str, old_cols, new_cols, tokens, old_review, new_review, top,
+                       scales=None):
     def per_unit(view, cols):
         t, o = view.class_index(target), view.class_index(other)
         return view.weights[t, cols] - view.weights[o, cols]
 
     before, after = per_unit(old_view, old_cols), per_unit(new_view, new_cols)
+    if scales is not None:  # weight scales differ: per occurrence, each with its own feature value
+        before, after = before * scales[0], after * scales[1]
     change = after - before
     order = np.argsort(-change, kind="stable")
     up = tuple(Shift(str(tokens[i]), float(before[i]), float(after[i])) for i in order[:top] if change[i] > 0)
@@ -241,8 +308,12 @@ def _by_use(view, tokens: np.ndarray, keep: np.ndarray) -> tuple[str, ...]:
     return tuple(str(tokens[cols[i]]) for i in order)
 
 
-def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP) -> VocabularyChange:
-    """Tokens added and removed, evidence shifts and z-score rank changes on the shared tokens, priors."""
+def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP,
+                      per_occurrence: bool = False) -> VocabularyChange:
+    """Tokens added and removed, evidence shifts and z-score rank changes on the shared tokens, priors.
+
+    ``per_occurrence``: compare shared tokens by per-occurrence log-odds (for weight scales that differ).
+    """
     from explain.analysis.vocab import review_vocabulary
 
     old_view, new_view = old.view, new.view
@@ -262,12 +333,13 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     comparisons: list[ComparisonChange] = []
     if normal_class is not None and len(shared):
         reviews = [review_vocabulary(m.view.with_normal_class(normal_class), lens="zscore") for m in (old, new)]
+        scales = (_one_occurrence(old, old_cols), _one_occurrence(new, new_cols)) if per_occurrence else None
         for target in old_view.classes:
             if target == normal_class or target not in set(new_view.classes):
                 continue
             comparisons.append(
                 _comparison_change(old_view, new_view, str(target), normal_class, old_cols, new_cols, shared,
-                                 *reviews, top)
+                                   *reviews, top, scales)
             )
 
     def share(view, cls):
@@ -380,7 +452,15 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
         old, new = old.named_for(messages.texts), new.named_for(messages.texts)
         notes.append("hashed columns are named by the tokens of the data that hash into them; "
                      "columns no such token reaches keep their numbers")
-    vocabulary = vocabulary_change(old, new, normal, top)
+    settings = settings_table(old, new)
+    differs = {s.name for s in settings if s.differs}
+    weights = PER_OCCURRENCE if differs & {"variant", "feature_kind"} else PER_UNIT
+    if weights == PER_OCCURRENCE:
+        notes.append("the weight scales differ (" + " and ".join(sorted(differs & {"variant", "feature_kind"}))
+                     .replace("feature_kind", "features") + "): shared tokens are compared by their per-occurrence "
+                     "log-odds against the normal class, the evidence one occurrence adds in a message of that "
+                     "token alone")
+    vocabulary = vocabulary_change(old, new, normal, top, per_occurrence=weights == PER_OCCURRENCE)
     decisions = None
     if messages is not None:
         decisions = decision_changes(old, new, messages, normal, threshold, show, confidence)
@@ -392,7 +472,7 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
         old_path=str(old.path), new_path=str(new.path), old_sha256=old.sha256, new_sha256=new.sha256,
         same_file=same_file, old_classes=old_classes, new_classes=new_classes, normal_class=normal,
         threshold=threshold, same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
-        notes=tuple(notes),
+        notes=tuple(notes), settings=settings, weights_compared=weights,
     )
 
 

@@ -18,6 +18,7 @@ import numpy as np
 from explain.analysis.assessment import Assessment, assess
 from explain.analysis.batch import batch_evidence
 from explain.analysis.ledger import Ledger, ledger_of, redacted
+from explain.analysis.ranking import OperatingPoint, ThresholdFigures
 from explain.analysis.rates import Projection, project_to_base_rate
 from explain.analysis.redaction import MODES, IdPseudonyms, redact_assessment, redact_probe, withhold_text
 from explain.analysis.risk import Watchlist
@@ -47,6 +48,8 @@ class ReportSettings:
     base_rate: float | None = None
     #: the organisation's secret for the pseudonyms of ids holding an e-mail address (``--id-key-file``), or None
     id_key: bytes | None = None
+    #: ``(cost of a false alarm, cost of a missed message)``: adds the least-cost operating point
+    costs: tuple[float, float] | None = None
 
     def __post_init__(self):
         if self.redact not in MODES:
@@ -141,6 +144,39 @@ class Headline:
     missed: PerTenThousand
     base_rate: float
     projection: Projection | None
+    recommendation: Recommendation | None = None
+
+
+@dataclass(frozen=True)
+class Recommendation:
+    """Which listed operating point to consider instead of the rule in use.
+
+    ``better``: the listed operating point that beats the rule in use on both
+    rates (no more false alarms and no more missed messages on the data, and
+    fewer of one), the one with the fewest errors if several do; None when
+    none does. ``least_cost``: the least-cost operating point when costs were
+    given, else None. ``in_use``: the rule in use's figures, for the comparison.
+    """
+
+    in_use: ThresholdFigures
+    better: OperatingPoint | None
+    least_cost: OperatingPoint | None
+
+
+def recommend(assessment: Assessment) -> Recommendation | None:
+    """The operating point that beats the rule in use on both rates, and the least-cost one (see :class:`Recommendation`)."""
+    points = [p for p in assessment.operating_points if p.figures is not None]
+    in_use = next((p.figures for p in points if p.kind == "in use"), None)
+    if in_use is None:
+        return None
+    beats = [
+        p for p in points
+        if p.kind != "in use" and p.figures.fp <= in_use.fp and p.figures.fn <= in_use.fn
+        and (p.figures.fp, p.figures.fn) != (in_use.fp, in_use.fn)
+    ]
+    better = min(beats, key=lambda p: (p.figures.fp + p.figures.fn, p.figures.fp), default=None)
+    least = next((p for p in points if p.kind == "least cost"), None)
+    return Recommendation(in_use, better, least)
 
 
 def headline(assessment: Assessment | None, base_rate: float | None = None) -> Headline | None:
@@ -157,6 +193,7 @@ def headline(assessment: Assessment | None, base_rate: float | None = None) -> H
         ),
         base_rate=float(recall.denominator / (fpr.denominator + recall.denominator)),
         projection=None if base_rate is None else project_to_base_rate(recall, fpr, base_rate),
+        recommendation=recommend(assessment),
     )
 
 
@@ -297,7 +334,7 @@ def build_report(
         assessment = redact_assessment(
             assess(model.view, X, data.labels, threshold=settings.threshold,
                    threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
-                   slices=list(slices), label_errors=label_errors),
+                   slices=list(slices), label_errors=label_errors, costs=settings.costs),
             redact, pseudonyms,
         )
     on_step("explaining messages")

@@ -8,6 +8,7 @@ saying so.
 
 from __future__ import annotations
 
+import shlex
 import subprocess
 import sys
 from pathlib import Path
@@ -21,9 +22,30 @@ from explain.cli.common import app, console, fail
 SHEETS = ("clear_scam", "false_alarm")
 
 
+def pasteable(argv: list[str], width: int = 78) -> str:
+    """The command as a shell would take it back, to paste as printed: each word quoted as needed
+    (``shlex.quote``), an option kept with its value, lines continued with a backslash before ``width``
+    columns, no prompt sign."""
+    words = [shlex.quote(w) for w in ["nbledger", *argv]]
+    parts: list[str] = []
+    for word in words:
+        if parts and parts[-1].startswith("--") and not word.startswith("--") and " " not in parts[-1]:
+            parts[-1] += " " + word
+        else:
+            parts.append(word)
+    lines = [parts[0]]
+    for part in parts[1:]:
+        if len(lines[-1]) + 1 + len(part) > width - 2:
+            lines[-1] += " \\"
+            lines.append("    " + part)
+        else:
+            lines[-1] += " " + part
+    return "\n".join(lines)
+
+
 def _step(argv: list[str]) -> None:
     """Run one nbledger command in this process; its error, if any, ends the demo with that command's one line."""
-    console.print(f"$ nbledger {' '.join(argv)}", markup=False, highlight=False, style="dim")
+    console.print(pasteable(argv), markup=False, highlight=False, style="dim", soft_wrap=True)
     status = app(args=list(argv), prog_name="nbledger", standalone_mode=False)
     if isinstance(status, int) and status:
         raise typer.Exit(status)
@@ -68,6 +90,8 @@ def demo(
            "--watchlist", str(examples / "watchlist.txt"),
            # The demo's own assumption: about 2 in 100 messages of real traffic are abusive (the test set has 23).
            "--base-rate", "2%", "--slice-by", "sent_at:month", "--label-errors",
+           # and that letting a scam through costs as much as five false alarms
+           "--costs", "1:5",
            "--title", "Review of the Tideway Commons message filter", "--organisation", "Tideway Commons (demo)",
            "--out", str(out / "report.pdf"), "--html", str(out / "report.html"), "--json", str(out / "report.json")])
     sheets = []

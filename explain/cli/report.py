@@ -99,6 +99,9 @@ def report(
     base_rate: Optional[str] = typer.Option(
         None, "--base-rate", help="Share of flagged-class messages in real traffic, e.g. 1%: the summary adds a projection."
     ),
+    costs: Optional[str] = typer.Option(
+        None, "--costs", help="FP:FN, costs of a false alarm and of a missed message: the summary names the least-cost point."
+    ),
     slice_by: Optional[List[str]] = typer.Option(None, "--slice-by", help=SLICE_BY_HELP + " Needs --data."),
     label_errors: bool = typer.Option(False, "--label-errors", help=LABEL_ERRORS_HELP.replace("DATA", "--data")),
     folds: int = typer.Option(5, "--folds", help=FOLDS_HELP),
@@ -143,7 +146,7 @@ def report(
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings
     from explain.analysis.risk import read_watchlist
-    from explain.cli.assess import parse_fraction
+    from explain.cli.assess import parse_costs, parse_fraction
     from explain.output_files import OutputSet
     from explain.runs.report_build import build_report_files
 
@@ -162,6 +165,7 @@ def report(
         title=title, organisation=organisation, redact=redact, paper=paper, max_messages=max_messages,
         threshold=threshold, threshold_log_odds=threshold_log_odds,
         base_rate=None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
+        costs=parse_costs(costs),
     )
     terms = read_watchlist(watchlist) if watchlist is not None else None
     check_folds(folds)

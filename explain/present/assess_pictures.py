@@ -16,7 +16,7 @@ from matplotlib.patches import Rectangle
 
 from explain.analysis.assessment import FLAGGED, Assessment
 from explain.present.assessment import point_label
-from explain.present.drawing import INK, NEUTRAL, PALETTE, class_colours, line_colours, png_bytes
+from explain.present.drawing import INK, NEUTRAL, PALETTE, class_colours, ink_on, line_colours, png_bytes
 
 # Marks drawn over the curves (operating points, threshold).
 MARK = INK
@@ -222,7 +222,7 @@ def confusion_picture(result: Assessment) -> bytes:
             family = NEUTRAL if i == j else colours.get(labels[j], NEUTRAL)
             face = family.shade(share) if share > 0 else "#ffffff"
             ax.add_patch(Rectangle((j, i), 1, 1, facecolor=face, edgecolor="white", lw=2))
-            ink = "white" if share >= 0.5 else "black"
+            ink = ink_on(face)  # WCAG 2.1 contrast, at least 4.5:1
             ax.text(j + 0.5, i + 0.42, f"{int(cm.counts[i, j]):,}", ha="center", va="center", fontsize=11, color=ink,
                     fontweight="bold")
             ax.text(j + 0.5, i + 0.7, f"{100 * share:.1f} %", ha="center", va="center", fontsize=8, color=ink)

@@ -48,6 +48,7 @@ from explain.analysis.assessment import Assessment
 from explain.analysis.error_review import ReviewedMessage
 from explain.analysis.ranking import OperatingPoint
 from explain.analysis.rates import Estimate, Rate
+from explain.present.numbers import per_10000_text
 from explain.present.token_display import shown
 from explain.present.wording import probability
 
@@ -107,10 +108,10 @@ def _rate(r: Rate) -> str:
 
 
 def _count_interval(e: Estimate) -> str:
-    """A projected count as ``12.3 (9.8 to 15.6)``."""
+    """A projected count per 10,000 as ``12 (9.8 to 16)``: rounded to what its interval supports."""
     if not math.isfinite(e.value):
         return "-"
-    return f"{e.value:.1f} ({e.low:.1f} to {e.high:.1f})"
+    return per_10000_text(e.value, e.low, e.high)
 
 
 def _share_interval(e: Estimate) -> str:
@@ -286,7 +287,10 @@ def _operating_points(result: Assessment, console: Console) -> None:
             continue
         rows.append([Text(point_label(p)), _num(f.threshold_log_odds), prob(f.threshold_probability),
                      _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_alarm_rate.value)])
-        row = [Text(point_label(p)), f"{f.flagged_per_10k:.1f}", f"{f.false_alarms_per_10k:.1f}", f"{f.missed_per_10k:.1f}"]
+        fa, rc = f.false_alarm_rate, f.recall
+        row = [Text(point_label(p)),
+               per_10000_text(*(10_000 * x for x in (fa.value, fa.low, fa.high))) if fa.denominator else "-",
+               per_10000_text(*(10_000 * (1 - x) for x in (rc.value, rc.high, rc.low))) if rc.denominator else "-"]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))
         expected.append(row)
@@ -308,12 +312,15 @@ def _operating_points(result: Assessment, console: Console) -> None:
         console.print("each threshold exactly, to reproduce its row:")
         for line in exact:
             console.print(line, soft_wrap=True)
-    columns = ["chosen by", "flagged", "false\nalarms", "missed"] + ([] if result.costs is None else ["expected\ncost"])
-    _emit(console, "per 10,000 messages at the test-set base rate (measured)", columns, expected)
+    normal = result.normal_class
+    columns = ["chosen by", f"false alarms per 10,000\n{normal} messages", "missed per 10,000\nflagged-class messages"]
+    columns += [] if result.costs is None else ["expected\ncost"]
+    _emit(console, f"per 10,000 of each population (measured; {_level(result)} Wilson intervals, rounded to what "
+                   "they support)", columns, expected)
     if projected:
         _emit(
             console,
-            f"per 10,000 messages at a base rate of {100 * result.base_rate:g} % (a projection: Bayes' rule "
+            f"per 10,000 messages of traffic at a base rate of {100 * result.base_rate:g} % (a projection: Bayes' rule "
             f"on the measured recall and false-alarm rate; {_level(result)} Wilson ends carried through)",
             ["chosen by", "precision", "false alarms", "missed"],
             projected,

@@ -60,6 +60,8 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
         "appeals": None if c.appeals is None else {
             side: appeals_json(a) for side, a in zip(("old", "new"), c.appeals)
         },
+        "settings": [{"name": s.name, "old": s.old, "new": s.new, "differs": s.differs} for s in c.settings],
+        "weights_compared": c.weights_compared,
         "vocabulary": {
             "shared": v.shared,
             "added": list(v.added),
@@ -123,6 +125,42 @@ def _p(x: float) -> str:
     return f"{x:.3g}" if x >= 1e-4 else f"{x:.1e}"
 
 
+#: A setting's name on screens and pages (glossary words), by its key.
+SETTING_NAMES = {
+    "variant": "variant", "feature_kind": "features", "analyzer": "analyzer", "ngrams": "n-grams", "alpha": "alpha",
+    "vocabulary_size": "vocabulary size", "text_view": "text view", "sha256": "model fingerprint",
+}
+
+
+def setting_value(name: str, value, analyzer: str = "word") -> str:
+    """One setting's value in the glossary's words (``token counts``, ``unigrams and bigrams`` ...)."""
+    from explain.model.training import feature_kind_words, ngram_words
+
+    if value is None:
+        return "not recorded"
+    if name == "feature_kind":
+        return feature_kind_words(value, "")
+    if name == "ngrams":
+        return ngram_words(tuple(value), analyzer)
+    if name == "vocabulary_size":
+        return f"{value:,} tokens"
+    if name == "sha256":
+        return str(value)[:12] + "…"
+    if name == "alpha":
+        return f"{value:g}" if isinstance(value, (int, float)) else ", ".join(f"{a:g}" for a in value)
+    return str(value)
+
+
+def settings_rows(c: Comparison) -> list[tuple[str, str, str, bool]]:
+    """``(setting, old, new, differs)`` in words, for the terminal and the page."""
+    analyzers = {s.name: (s.old, s.new) for s in c.settings}.get("analyzer", ("word", "word"))
+    return [
+        (SETTING_NAMES.get(s.name, s.name), setting_value(s.name, s.old, analyzers[0]),
+         setting_value(s.name, s.new, analyzers[1]), s.differs)
+        for s in c.settings
+    ]
+
+
 def _drivers(ledger, n: int = 3) -> str:
     largest = sorted(ledger.entries, key=lambda e: -abs(e.amount))[:n]
     return ", ".join(f"{e.token} {e.amount:+.2f}" for e in largest) or "no known token"
@@ -173,6 +211,13 @@ def _lines(c: Comparison, top: int) -> list[str]:
         f"old: {Path(c.old_path).name} (SHA-256 {c.old_sha256[:12]}); {v.old_size:,} tokens; classes {', '.join(c.old_classes)}",
         f"new: {Path(c.new_path).name} (SHA-256 {c.new_sha256[:12]}); {v.new_size:,} tokens; classes {', '.join(c.new_classes)}",
     ]
+    rows = settings_rows(c)
+    if rows:
+        differing = [name for name, _, _, differs in rows if differs]
+        out += ["", "Settings (old -> new; * differs)"]
+        out += [f"  {'*' if differs else ' '} {name}: {old}" + (f" -> {new}" if differs else "")
+                for name, old, new, differs in rows]
+        out.append("  differing: " + (", ".join(differing) if differing else "none"))
     out += [f"note: {n}" for n in c.notes]
     if c.appeals is not None:
         out += [f"appeals ({side}): {appeal_sentence(a)}" for side, a in zip(("old", "new"), c.appeals)]
@@ -188,7 +233,9 @@ def _lines(c: Comparison, top: int) -> list[str]:
         new = "absent" if p.new_share is None else f"{p.new_share:.3f}"
         out.append(f"    {p.cls}: {old} -> {new}")
     for k in v.comparisons:
-        out += ["", f"Evidence per occurrence, {k.label} (log-odds, old -> new)"]
+        basis = ("per occurrence, in a message of the token alone (the weight scales differ)"
+                 if c.weights_compared == "per occurrence" else "per unit of feature value")
+        out += ["", f"Evidence {basis}, {k.label} (log-odds against the normal class, old -> new)"]
         for title, items in (("gained", k.shifts_up), ("lost", k.shifts_down)):
             if items:
                 out.append(f"  {title}: " + "; ".join(
@@ -237,4 +284,5 @@ def render_html(c: Comparison, twin: dict, redaction: str, *, top: int = 10) -> 
             return {**ledger_context(ledger, "personal" if ledger.redacted else "none", top=top), "model_file": None}
 
         pairs = [(m, view(m.old), view(m.new)) for m in c.decisions.shown]
-    return environment().get_template("compare.html.j2").render(r=twin, pairs=pairs, redaction=redaction)
+    return environment().get_template("compare.html.j2").render(r=twin, pairs=pairs, redaction=redaction,
+                                                                settings=settings_rows(c))

@@ -16,6 +16,17 @@ severity 1 (the tests check this with the ``colorspacious`` package's
 implementation of that model). With more than five flagged classes the
 families repeat. Lighter and darker shades of a family come from mixing its
 base with white or black (:meth:`ColourFamily.shade`).
+
+Text contrast
+-------------
+Every text, in pictures as on pages, has a contrast of at least
+:data:`MIN_TEXT_CONTRAST` (4.5:1) with its background: WCAG 2.1, success
+criterion 1.4.3, with the contrast ratio ``(L1 + 0.05) / (L2 + 0.05)`` of the
+relative luminances (:func:`relative_luminance`, the formula of WCAG 2.1's
+definition of relative luminance). Text on a coloured cell takes the ink
+(:func:`ink_on`) that contrasts most, which always passes (the worst case,
+a background of luminance 0.179, still gives 4.58:1); text drawn *in* a
+family's colour takes the lightest shade that passes (:func:`text_shade`).
 """
 
 from __future__ import annotations
@@ -65,6 +76,38 @@ NEUTRAL = ColourFamily("slate grey", "#6b7378")
 INK = "#000000"
 PAPER = "#ffffff"
 MIN_DISTANCE = 28.0
+#: WCAG 2.1 SC 1.4.3 (level AA): the least contrast ratio of text on its background.
+MIN_TEXT_CONTRAST = 4.5
+
+
+def relative_luminance(colour: str) -> float:
+    """WCAG 2.1 relative luminance of an sRGB colour: 0 for black, 1 for white.
+
+    Each channel ``c`` in 0..1 is linearised as ``c / 12.92`` when ``c <= 0.04045``, else
+    ``((c + 0.055) / 1.055) ** 2.4``; then ``L = 0.2126 R + 0.7152 G + 0.0722 B``.
+    """
+    r, g, b = (c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in to_rgb(colour))
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b
+
+
+def contrast_ratio(a: str, b: str) -> float:
+    """WCAG 2.1 contrast ratio of two colours, from 1 (equal) to 21 (black on white)."""
+    la, lb = sorted((relative_luminance(a), relative_luminance(b)), reverse=True)
+    return (la + 0.05) / (lb + 0.05)
+
+
+def ink_on(background: str, inks: tuple[str, ...] = (INK, PAPER)) -> str:
+    """The ink of ``inks`` that contrasts most with ``background`` (black or white by default)."""
+    return max(inks, key=lambda ink: contrast_ratio(ink, background))
+
+
+def text_shade(family: "ColourFamily", strength: float, background: str = PAPER) -> str:
+    """``family.shade(strength)``, darkened just enough for text on ``background`` to pass 4.5:1."""
+    for step in np.linspace(float(np.clip(strength, 0.0, 1.0)), 1.0, 41):
+        colour = family.shade(step)
+        if contrast_ratio(colour, background) >= MIN_TEXT_CONTRAST:
+            return colour
+    return ink_on(background)
 
 
 def class_colours(classes, normal_class: str | None = None) -> dict[str, ColourFamily]:

@@ -16,6 +16,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from explain.analysis.ledger import Ledger, redacted
+from explain.analysis.risk import FLAG_LABELS
 from explain.present.drawing import class_colours
 from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
@@ -145,7 +146,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
             "balance": f"{row.balance_after:+.2f}",
             "tipped": i == ledger.tipped_at,
             "seen": support_cell(row, ledger),
-            "flags": list(row.flags),
+            "flags": [FLAG_LABELS.get(f, f) for f in row.flags],  # one spelling on every screen: watchlist-strong
         })
     opening = [
         {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)

@@ -24,6 +24,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.analysis.ledger import Ledger
+from explain.analysis.risk import FLAG_LABELS
 from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines
 from explain.present.ledger_words import (
@@ -167,7 +168,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
             *money(row.amount),
             f"{row.balance_after:+.2f}{tipped}",
             support_cell(row, ledger),
-            *([", ".join(row.flags)] if flagged else []),
+            *([", ".join(FLAG_LABELS.get(f, f) for f in row.flags)] if flagged else []),  # watchlist-strong
         )
     if not rows:
         table.add_row("", Text("(no word the model knows)", style="italic"))

@@ -12,7 +12,7 @@ import math
 
 from explain.analysis.ledger import Ledger
 from explain.present.token_display import shown
-from explain.present.wording import amount, flip_sentence, folded, odds_factor, plural, probability
+from explain.present.wording import amount, flip_sentence, folded, odds_factor, plural, probability, stated
 
 #: Messages with more entries than this show their largest and fold the rest.
 SHOW_ALL = 40
@@ -77,11 +77,10 @@ def probability_line(ledger: Ledger) -> str:
     probs = dict(zip(ledger.classes, ledger.probabilities))
     if ledger.normal_class is not None and ledger.flag_probability is not None:
         # the glossary's one name, said once in the normal class's own words
-        return f"P(flag) = P(not {ledger.normal_class}) = " + probability(
-            ledger.flag_probability, probs[ledger.normal_class]
-        )
+        return stated(f"P(flag) = P(not {ledger.normal_class})",
+                      probability(ledger.flag_probability, probs[ledger.normal_class]))
     top = ledger.explanation.predicted
-    return f"P({top}) = {probability(probs[top])}"
+    return stated(f"P({top})", probability(probs[top]))
 
 
 def rule_line(ledger: Ledger) -> str:

@@ -10,9 +10,14 @@ The glossary's rules (``docs/glossary.md``, "How intervals are shown"):
 - values that are not percentages (AUC, average precision, Brier score)
   carry four decimals;
 - counts carry thousands separators: ``1,204``;
-- counts per 10,000 messages: rounded to what their interval supports (the
-  audit figures' rule, kept here too when it lands);
-- a threshold to be typed back (``--threshold-log-odds``) keeps every digit.
+- counts per 10,000 (of a named population): rounded to what their interval
+  supports, to the place of the second significant digit of the interval's
+  width, never finer than two decimals (:func:`per_10000`): ``239.2 (166.0 to
+  343.1)`` is shown ``240 (170 to 340)``, ``8.12 (4.87 to 13.4)`` stays ``8.1
+  (4.9 to 13.4)``; a figure with no width is shown whole;
+- a threshold to be typed back (``--threshold-log-odds``) keeps every digit
+  (:func:`exact`, terminals and JSON); pages show it to six significant
+  figures (:func:`threshold`).
 
 Terminals write the space before ``%`` as a plain space; printed pages pass
 ``space=NBSP`` so that a figure, its unit and its interval never part across
@@ -29,6 +34,10 @@ NBSP = "\u00a0"
 MISSING = "–"
 #: The text of a proportion whose denominator is 0.
 UNDEFINED = "undefined (0 of 0)"
+#: The finest step a count per 10,000 is ever shown to.
+FINEST_STEP = 0.01
+#: Significant figures of a threshold on a page (the JSON twin holds every digit).
+THRESHOLD_DIGITS = 6
 
 
 def _missing(x) -> bool:
@@ -105,3 +114,38 @@ def exact(x: float | None) -> str:
 def level(confidence: float, *, space: str = " ") -> str:
     """A confidence level or a user's target as a percentage without trailing zeros: ``95 %``, ``0.5 %``."""
     return f"{100 * confidence:g}{space}%"
+
+
+def per_10000_step(low: float, high: float) -> float:
+    """The rounding step an interval ``[low, high]`` supports: the second significant digit of its width."""
+    width = abs(high - low)
+    if not math.isfinite(width) or width == 0:
+        return 1.0
+    return max(10.0 ** (math.floor(math.log10(width)) - 1), FINEST_STEP)
+
+
+def rounded(x: float, step: float) -> str:
+    """``x`` rounded to a multiple of ``step`` (a power of ten), with the decimals that step needs."""
+    if _missing(x):
+        return MISSING
+    decimals = max(0, -math.floor(math.log10(step) + 1e-9))
+    return f"{round(x / step) * step:,.{decimals}f}"
+
+
+def per_10000(value: float, low: float, high: float) -> tuple[str, str, str]:
+    """``(value, low, high)`` of a count per 10,000, each rounded to the step its interval supports."""
+    step = per_10000_step(low, high)
+    return rounded(value, step), rounded(low, step), rounded(high, step)
+
+
+def per_10000_text(value: float, low: float, high: float, space: str = " ") -> str:
+    """A count per 10,000 in the glossary's interval style: ``240 (170 to 340)``."""
+    v, lo, hi = per_10000(value, low, high)
+    return f"{v}{space}({lo}{space}to{space}{hi})"
+
+
+def threshold(x: float | None) -> str:
+    """A threshold log-odds on a page: :data:`THRESHOLD_DIGITS` significant figures (``-5.14526``)."""
+    if _missing(x):
+        return MISSING
+    return f"{x:.{THRESHOLD_DIGITS}g}"

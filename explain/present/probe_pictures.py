@@ -16,11 +16,11 @@ from __future__ import annotations
 import re
 
 import numpy as np
-from matplotlib.colors import LinearSegmentedColormap
+from matplotlib.colors import LinearSegmentedColormap, to_hex
 from matplotlib.figure import Figure
 
 from explain.analysis.probe import ProbeResult
-from explain.present.drawing import INK, NEUTRAL, PAPER, line_colours, png_bytes
+from explain.present.drawing import INK, NEUTRAL, PAPER, ink_on, line_colours, png_bytes
 from explain.present.token_display import shown
 
 
@@ -83,12 +83,14 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
     for i in range(n):
         for j in range(n):
             if np.isfinite(grid[i, j]):
-                ax.text(j, i, f"{grid[i, j]:+.2f}\n{count[i, j]}", ha="center", va="center", fontsize=6, color=INK)
-            else:  # the same term, or no message holds the row's term
-                ax.text(j, i, "=" if i == j else "-", ha="center", va="center", fontsize=6, color=NEUTRAL.base)
+                face = to_hex(image.cmap(image.norm(grid[i, j])))
+                ax.text(j, i, f"{grid[i, j]:+.2f}\n{count[i, j]}", ha="center", va="center", fontsize=6,
+                        color=ink_on(face))  # WCAG 2.1 contrast on the cell's own colour
+            else:  # the same term, or no message holds the row's term (untested)
+                ax.text(j, i, "=" if i == j else "–", ha="center", va="center", fontsize=6, color=NEUTRAL.shade(1.0))
     bar = fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04)
     bar.set_label("mean flag log-odds shift (+ toward flagging)", fontsize=8)
-    ax.set_title(f"Term swaps: {shown(group)} (cells: mean shift, messages)", fontsize=10, loc="left")
+    ax.set_title(f"Term swaps: {shown(group)} (cells: mean shift, messages; – untested)", fontsize=10, loc="left")
     return png_bytes(fig)
 
 

@@ -29,7 +29,7 @@ from urllib.parse import unquote, urlsplit
 from explain.analysis.report import Report
 from explain.analysis.risk import FLAG_LABELS
 from explain.present import assessment as assessment_screen
-from explain.present import wording
+from explain.present import numbers, wording
 from explain.present.drawing import class_colours
 from explain.present.report_json import LEDGER_ROWS, to_json
 from explain.present.token_display import html_visible
@@ -57,7 +57,9 @@ def environment():
         keep_trailing_newline=True,
     )
     env.filters.update(pct=_pct, num=_num, count=_count, rate=_rate, share=_share, probability=wording.probability_of_log_odds,
-                       exact=_exact, prob=_prob, pvalue=_pvalue, flag_label=lambda name: FLAG_LABELS.get(name, name))
+                       exact=_exact, prob=_prob, pvalue=_pvalue, threshold=numbers.threshold,
+                       per10k=lambda v, lo, hi: numbers.per_10000_text(v, lo, hi, NBSP), per10k_value=_per10k_value,
+                       per10k_range=_per10k_range, rate_per10k=_rate_per10k, miss_per10k=_miss_per10k, flag_label=lambda name: FLAG_LABELS.get(name, name))
     return env
 
 
@@ -84,6 +86,31 @@ def _pct(x, digits: int = 1) -> str:
 
 def _num(x, digits: int = 3) -> str:
     return "–" if x is None else f"{x:.{digits}f}"
+
+
+def _per10k_value(v, low, high) -> str:
+    """A count per 10,000 alone, rounded to the step its interval supports (:mod:`explain.present.numbers`)."""
+    return "–" if v is None else numbers.per_10000(v, low, high)[0]
+
+
+def _per10k_range(v, low, high) -> str:
+    """The interval of a count per 10,000, ``170 to 340``, rounded as its value is."""
+    _, lo, hi = numbers.per_10000(v, low, high)
+    return f"{lo}{NBSP}to{NBSP}{hi}"
+
+
+def _rate_per10k(r: dict) -> str:
+    """A rate (normal-class messages flagged ...) as a count per 10,000 of its own population."""
+    if r is None or not r["denominator"]:
+        return "–"
+    return _per10k_value(10_000 * r["value"], 10_000 * r["low"], 10_000 * r["high"])
+
+
+def _miss_per10k(recall: dict) -> str:
+    """Missed per 10,000 flagged-class messages, from the recall (its interval mirrored)."""
+    if recall is None or not recall["denominator"]:
+        return "–"
+    return _per10k_value(10_000 * (1 - recall["value"]), 10_000 * (1 - recall["high"]), 10_000 * (1 - recall["low"]))
 
 
 def _pvalue(x) -> str:

@@ -75,6 +75,7 @@ def to_json(report: Report) -> dict:
             "threshold": s.threshold,
             "threshold_log_odds": s.threshold_log_odds,
             "base_rate": s.base_rate,
+            "costs": None if s.costs is None else list(s.costs),
             "versions": report.versions,
             "model": dataclasses.asdict(report.facts),
             "data": data,

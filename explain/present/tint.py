@@ -15,14 +15,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from matplotlib.colors import to_rgb
-
-from explain.present.drawing import ColourFamily
+from explain.present.drawing import ColourFamily, ink_on
 
 MARKS = {"credit": "▲", "debit": "▼", "even": "·"}
 LEVEL_NAMES = ("weak", "medium", "strong")
 # Where in a family's range (0 light .. 1 dark) each level sits.
 _SHADES = (0.15, 0.55, 0.95)
+#: The text colours an entry may take on its tint: black or white (a near-black fails on some mid shades).
+TEXT_INKS = ("#000000", "#ffffff")
 
 
 @dataclass(frozen=True)
@@ -49,10 +49,8 @@ def tint(direction: str, family: ColourFamily, size: float, largest: float) -> T
     """The tint of an entry pushing toward a class drawn in ``family``."""
     n = level(size, largest)
     background = family.shade(_SHADES[n])
-    r, g, b = to_rgb(background)
-    # WCAG 2.x relative luminance, rounded: dark text on light shades, white on dark.
-    luminance = 0.2126 * r**2.2 + 0.7152 * g**2.2 + 0.0722 * b**2.2
-    return Tint(MARKS[direction], n, background, "#1a1a1a" if luminance > 0.25 else "#ffffff")
+    # WCAG 2.1 contrast: the text colour that reads best on the shade (at least 4.5:1, checked in the tests).
+    return Tint(MARKS[direction], n, background, ink_on(background, TEXT_INKS))
 
 
 def heat_runs(heat, largest: float) -> list[tuple[int, int, str, int, float]]:

@@ -27,7 +27,7 @@ from matplotlib.figure import Figure
 
 from explain.analysis.risk import FLAG_LABELS, FLAGS
 from explain.analysis.vocab import LENS_TITLES, VocabComparison, VocabReview
-from explain.present.drawing import INK, NEUTRAL, class_colours, png_bytes
+from explain.present.drawing import INK, NEUTRAL, class_colours, png_bytes, text_shade
 from explain.present.token_display import shown
 from explain.present.vocab import redaction_lines
 
@@ -67,7 +67,7 @@ def word_cloud(review: VocabReview, index: int, side: str = "for") -> bytes:
         top_size = float(sizes.max())
 
         def colour(word, **_):
-            return family.shade(0.25 + 0.75 * words[word] / top_size)
+            return text_shade(family, 0.25 + 0.75 * words[word] / top_size)  # darker is stronger, always readable
 
         cloud = WordCloud(
             # Layout on a small grid, drawn at twice the size: fast and still sharp at DPI.

@@ -46,6 +46,11 @@ def probability(p: float, complement: float | None = None) -> str:
     return f"{p:.4f}"
 
 
+def stated(name: str, value: str) -> str:
+    """``"P(flag) = 0.7479"``, but ``"P(flag) > 0.9999"``: a bound is said with its own sign, never ``= >``."""
+    return f"{name} {value}" if value[:1] in "<>" else f"{name} = {value}"
+
+
 def probability_of_log_odds(log_odds: float) -> str:
     """The probability of a side whose log-odds (natural log) is ``log_odds``."""
     return probability(float(expit(log_odds)), float(expit(-log_odds)))
