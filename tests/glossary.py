@@ -43,7 +43,8 @@ def screen_terms() -> frozenset[str]:
         main, _, alternative = term.partition(" (")
         terms.add(main.strip().lower())
         if alternative:
-            terms.update(a.strip().lower() for a in alternative.rstrip(")").split(","))
+            # a comma between alternatives, not the thousands comma of "per 10,000 ok messages"
+            terms.update(a.strip().lower() for a in re.split(r",(?!\d{3})", alternative.rstrip(")")))
     return frozenset(terms)
 
 

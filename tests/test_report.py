@@ -126,7 +126,7 @@ def test_pdf_pages_headings_fingerprint_numbers_images_bookmarks(built, files):
 
 
 def test_contents_lists_the_page_of_each_section(built):
-    contents_page = built["reader"].pages[1].extract_text()
+    contents_page = built["reader"].pages[0].extract_text()  # on the cover page, below the facts
     for heading in SECTIONS:
         line = next(l for l in contents_page.splitlines() if l.startswith(heading))
         page = int(re.search(r"(\d+)\s*$", line).group(1))
@@ -446,3 +446,24 @@ def test_without_data_each_left_out_section_is_one_line(files, tmp_path, capsys)
     assert "bodies: no message text is printed" in text
     for heading in SECTIONS:
         assert heading in text
+
+
+def test_a_sheet_that_cannot_fit_one_page_says_how_many_pages_it_has(files):
+    from explain.analysis.ledger import ledger_of
+    from explain.present.report import sheet_pdf
+
+    model = load_model(files / "filter.skops", normal_class="ok")
+    short = ledger_of(model, "Can I borrow the ladder on Saturday?", message_id="short")
+    long_text = " ".join(["Your parcel is held at the depot, pay the fee today."] * 70)
+    long = ledger_of(model, long_text, message_id="long")
+    import io
+
+    one = PdfReader(io.BytesIO(sheet_pdf([short], date="2026-01-01T00:00:00+00:00")))
+    assert len(one.pages) == 1 and "runs to" not in one.pages[0].extract_text()
+    both = PdfReader(io.BytesIO(sheet_pdf([short, long], date="2026-01-01T00:00:00+00:00")))
+    alone = PdfReader(io.BytesIO(sheet_pdf([long], date="2026-01-01T00:00:00+00:00")))
+    n = len(alone.pages)
+    assert n > 1 and len(both.pages) == 1 + n  # pypdf counts the pages (outside the renderer)
+    text = _squeezed(" ".join(p.extract_text() for p in both.pages))
+    assert f"This sheet runs to {n} pages" in text and text.count("runs to") == 1
+    assert "one-page sheet" not in text

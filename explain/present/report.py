@@ -191,25 +191,32 @@ def render_html(report: Report, twin: dict | None = None, pictures: dict[str, by
     return environment().get_template("report.html.j2").render(**context(report, twin, pictures))
 
 
-def sheet_html(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> str:
+def sheet_html(ledgers, *, date: str, top: int = 10, paper: str = "a4", pages: list[int] | None = None) -> str:
     """The one-page sheet of each decision (:class:`~explain.analysis.ledger.Ledger`), a page each, as HTML.
 
     Everything on it comes from the ledger, through the ledger fragment
     (``templates/partials/ledger.html.j2``): the model's fingerprint, the
     message id, the rule, the tinted text, the entries (the ``top`` largest
-    when there are more), the flip set, and the caution.
+    when there are more), the flip set, and the caution. ``pages[i]``, when
+    given, is how many pages decision ``i`` takes: a sheet that cannot fit
+    one page says so under its title.
     """
     from explain import __version__
     from explain.present.ledger_html import ledger_context
 
     views = [ledger_context(ledger, "personal" if ledger.redacted else "none", top=top, date=date) for ledger in ledgers]
     return environment().get_template("sheet.html.j2").render(ledgers=views, date=date, paper=paper,
-                                                              version=__version__)
+                                                              version=__version__, pages=pages or [1] * len(views))
 
 
 def sheet_pdf(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> bytes:
-    """:func:`sheet_html` printed to PDF."""
-    return render_pdf(sheet_html(ledgers, date=date, top=top, paper=paper), date)
+    """:func:`sheet_html` printed to PDF; a decision that runs past one page says how many pages it takes."""
+    document = render_document(sheet_html(ledgers, date=date, top=top, paper=paper), date)
+    if len(document.pages) > len(ledgers):  # some sheet ran over: count each one's pages, and say so on it
+        pages = [len(render_document(sheet_html([ledger], date=date, top=top, paper=paper), date).pages)
+                 for ledger in ledgers]
+        document = render_document(sheet_html(ledgers, date=date, top=top, paper=paper, pages=pages), date)
+    return document.write_pdf()
 
 
 # --- PDF -----------------------------------------------------------------------------
@@ -247,6 +254,11 @@ def _safe_fetcher_class():
 
 def render_pdf(html_text: str, date: str) -> bytes:
     """The PDF of an HTML page; its creation and modification dates are ``date`` (ISO 8601, see ``report_date``)."""
+    return render_document(html_text, date).write_pdf()
+
+
+def render_document(html_text: str, date: str):
+    """The laid-out WeasyPrint document of an HTML page (its ``pages``), dated ``date``."""
     import weasyprint
 
     fetcher = _safe_fetcher_class()()
@@ -257,6 +269,6 @@ def render_pdf(html_text: str, date: str) -> bytes:
     ).render()
     document.metadata.created = date
     document.metadata.modified = date
-    return document.write_pdf()
+    return document
 
 
