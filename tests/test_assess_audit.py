@@ -127,9 +127,12 @@ def test_projection_is_bayes_rule_with_intervals_carried(n_pos, n_neg, tp, fp, b
 
 def test_base_rate_is_printed_as_a_projection_beside_the_measured_figures(files, capsys):
     text = cli(capsys, files / "model.skops", files / "held.csv", *COLUMNS, "--base-rate", "1%")
-    measured = text.index("at the test-set base rate (measured)")
-    projected = text.index("at a base rate of 1 % (a projection")
+    measured = text.index("per 10,000 of each population (measured")
+    projected = text.index("per 10,000 messages of traffic at a base rate of 1 % (a projection")
     assert measured < projected
+    # every "per 10,000" names its population (issue 21): ok messages, flagged-class messages, traffic
+    assert "ok messages" in text and "flagged-class messages" in text  # the column headings (two lines each)
+    assert "per 10,000 messages of traffic" in " ".join(text.split())
     doc = assess_json(capsys, files, "--base-rate", "0.01")
     for p in doc["operating_points"]:
         if p["figures"] is not None:

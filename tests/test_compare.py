@@ -153,7 +153,9 @@ def test_compare_names_the_settings_that_differ(old, new, differing, weights):
     new_pipe, new_model = _fitted(*new, sha="b" * 64)
     result = compare_models(old_model, new_model, normal_class="ok")
     by_name = {s.name: s for s in result.settings}
-    assert {s.name for s in result.settings if s.differs} == differing | {"sha256"}
+    assert {s.name for s in result.settings if s.differs} == differing | {"fingerprint"}
+    # the model fingerprint (SHA-256 of what decides) is the model's own, so a new alpha changes it too
+    assert by_name["fingerprint"].old == old_model.fingerprint != by_name["fingerprint"].new
     # the values are scikit-learn's own parameters of each pipeline
     for pipe, side in ((old_pipe, "old"), (new_pipe, "new")):
         nb, vec = pipe.named_steps["nb"], pipe.named_steps["v"]

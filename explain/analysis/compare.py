@@ -211,7 +211,7 @@ def _setting_values(model) -> dict:
         "alpha": alpha if alpha is None or isinstance(alpha, (int, float)) else list(np.ravel(alpha)),
         "vocabulary_size": int(view.n_features),
         "text_view": resolve_text_view(model.card),
-        "sha256": model.sha256,
+        "fingerprint": model.fingerprint,
     }
 
 

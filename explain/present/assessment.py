@@ -355,10 +355,10 @@ def _calibration(result: Assessment, console: Console) -> None:
         [str(b + 1), _count(cal.counts[b]), _num(cal.log_odds_low[b], 2), _num(cal.log_odds_high[b], 2),
          prob(cal.mean_predicted[b]),
          _interval(cal.observed[b], cal.observed_low[b], cal.observed_high[b], cal.counts[b]),
-         "overconfident" if cal.overconfident[b] else ""]
+         "yes" if cal.overconfident[b] else ""]
         for b in range(cal.n_bins)
     ]
-    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class", ""], rows)
+    _emit(console, f"reliability ({_level(result)} Wilson intervals)", ["bin", "messages", "log-odds\nfrom", "to", "mean\nP(flag)", "observed share\nflagged-class", "overconfident"], rows)
     s = result.scores
     rows = [[Text(name), *(_num(v, 2) for v in s.quantiles[c])] for c, name in enumerate(s.classes)]
     _emit(console, "flag log-odds by true class (quantiles)", ["class", *(f"{100 * q:g} %" for q in s.quantile_levels)], rows)

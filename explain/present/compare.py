@@ -128,7 +128,7 @@ def _p(x: float) -> str:
 #: A setting's name on screens and pages (glossary words), by its key.
 SETTING_NAMES = {
     "variant": "variant", "feature_kind": "features", "analyzer": "analyzer", "ngrams": "n-grams", "alpha": "alpha",
-    "vocabulary_size": "vocabulary size", "text_view": "text view", "sha256": "model fingerprint",
+    "vocabulary_size": "vocabulary size", "text_view": "text view", "fingerprint": "model fingerprint",
 }
 
 
@@ -144,7 +144,7 @@ def setting_value(name: str, value, analyzer: str = "word") -> str:
         return ngram_words(tuple(value), analyzer)
     if name == "vocabulary_size":
         return f"{value:,} tokens"
-    if name == "sha256":
+    if name == "fingerprint":
         return str(value)[:12] + "…"
     if name == "alpha":
         return f"{value:g}" if isinstance(value, (int, float)) else ", ".join(f"{a:g}" for a in value)
