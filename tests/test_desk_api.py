@@ -207,3 +207,15 @@ def settings_styles(settings) -> list[str]:
     from explain.runs.desk.guard import tint_styles
 
     return tint_styles(settings.loaded.classes, settings.loaded.view.normal_class)
+
+
+def test_a_redacting_desk_masks_personal_values_in_what_it_shows_and_keeps(tmp_path):
+    folder = tmp_path
+    pipeline, model = train_filter(folder)
+    loaded = load_model(model, normal_class="ok")
+    settings = DeskSettings(loaded=loaded, store=open_store(folder / "r.sqlite"), redact=True)
+    with TestClient(build_app(settings)) as client:
+        record = client.post("/api/ledger", json={"text": "pay the fee to warden@example.org or call 555-0134"}).json()
+    assert record["redacted"] is True
+    tokens = " ".join(e["token"] for e in record["ledger"]["entries"])
+    assert "warden@example.org" not in json.dumps(record) and "example.org" not in tokens
