@@ -213,9 +213,16 @@ def test_a_redacting_desk_masks_personal_values_in_what_it_shows_and_keeps(tmp_p
     folder = tmp_path
     pipeline, model = train_filter(folder)
     loaded = load_model(model, normal_class="ok")
-    settings = DeskSettings(loaded=loaded, store=open_store(folder / "r.sqlite"), redact=True)
+    queue_file = folder / "q.csv"
+    queue_file.write_text("id,text\nm1,pay the fee to warden@example.org now\n")
+    queue = score_queue(loaded, read_data(queue_file, "text", None, id_col="id"), DecisionRule.for_view(loaded.view))
+    settings = DeskSettings(loaded=loaded, store=open_store(folder / "r.sqlite"), queue=queue, redact=True)
     with TestClient(build_app(settings)) as client:
         record = client.post("/api/ledger", json={"text": "pay the fee to warden@example.org or call 555-0134"}).json()
+        pages = client.get("/").text + client.get("/messages/m1").text
+        stored = client.post("/api/messages/m1/reviews", json={"outcome": "upheld"}).json()
+    assert "warden@example.org" not in pages and "[e-mail 1]" in pages
+    assert "warden@example.org" not in json.dumps(stored)
     assert record["redacted"] is True
     tokens = " ".join(e["token"] for e in record["ledger"]["entries"])
     assert "warden@example.org" not in json.dumps(record) and "example.org" not in tokens

@@ -90,6 +90,24 @@ def queue_selection(request):
     return picked, outcomes
 
 
+#: Characters of a message shown in the queue.
+EXCERPT = 140
+
+
+def excerpts(settings, items) -> dict[str, str]:
+    """Message id -> the start of its text, personal values masked first when the desk redacts
+    (:func:`explain.analysis.redaction.masked_text`, the papers' one call for any screen)."""
+    out = {}
+    for item in items:
+        text = item.text
+        if settings.redact:
+            from explain.analysis.redaction import masked_text
+
+            text = masked_text(text)
+        out[item.id] = text[:EXCERPT] + ("…" if len(text) > EXCERPT else "")
+    return out
+
+
 def class_index(settings) -> dict[str, int]:
     """Class -> its place in the palette stylesheet (``cls-N``)."""
     return {str(c): i for i, c in enumerate(settings.loaded.classes)}
@@ -104,8 +122,10 @@ async def queue_page(request):
         settings = request.app.state.settings
         picked, outcomes = await run_in_threadpool(queue_selection, request)
         q = request.query_params
+        shown = picked[:500]
         return render(
-            request, "queue.html.j2", items=picked[:500], shown_of=len(picked), outcomes=outcomes,
+            request, "queue.html.j2", items=shown, shown_of=len(picked), outcomes=outcomes,
+            excerpts=await run_in_threadpool(excerpts, settings, shown),
             total=0 if settings.queue is None else len(settings.queue),
             classes=[str(c) for c in settings.loaded.classes], flags=FLAGS, cls=class_index(settings),
             chosen={k: q.get(k, "") for k in ("decision", "flag", "reviewed", "order")},
