@@ -87,4 +87,8 @@ def test_compare_reviews_gives_each_model_its_own_rate(tmp_path, capsys):
     assert appeals["old"]["overturned_per_10000"]["value"] == pytest.approx(5000.0)
     assert appeals["new"]["overturned_per_10000"]["value"] == pytest.approx(0.0)
     text = nbledger(capsys, "compare", old, new, "--reviews", db, "--normal-class", "ok")
-    assert "appeals (old): 5000 overturned per 10,000" in text.out
+    from explain.present.numbers import per_10000_text
+    from statsmodels.stats.proportion import proportion_confint
+
+    low, high = proportion_confint(1, 2, alpha=0.05, method="wilson")  # independent Wilson interval
+    assert f"appeals (old): {per_10000_text(5000, 10_000 * low, 10_000 * high)} overturned per 10,000" in " ".join(text.out.split())

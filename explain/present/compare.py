@@ -176,8 +176,10 @@ def appeal_sentence(a) -> str:
     """Appeals overturned per 10,000 flagged messages, as one sentence (the review desk's decisions)."""
     if a.value is None:
         return "no decided appeal of a flagged message under this model file"
-    return (f"{a.value:.0f} overturned per 10,000 flagged messages whose appeal was decided "
-            f"(95 % Wilson interval {a.low:.0f} to {a.high:.0f}; {a.overturned:,} of {a.decided:,})"
+    from explain.present.numbers import per_10000_text
+
+    return (f"{per_10000_text(a.value, a.low, a.high)} overturned per 10,000 flagged messages whose appeal was "
+            f"decided (95 % Wilson interval in brackets; {a.overturned:,} of {a.decided:,})"
             + (f"; {a.escalated:,} escalated" if a.escalated else ""))
 
 
