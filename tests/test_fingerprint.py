@@ -49,6 +49,8 @@ def test_two_trainings_alike_share_a_fingerprint_and_another_alpha_does_not(corp
     # The card's fingerprint is the one a loaded model shows.
     assert load_model(folder / "a.skops").fingerprint == first["fingerprint"]
     assert load_model(folder / "b.skops", normal_class="spam").fingerprint == first["fingerprint"]
+    compared = nbledger(capsys, "compare", folder / "a.skops", folder / "b.skops")
+    assert compared.code == 0 and "decide alike (equal fingerprints)" in " ".join(compared.out.split())
 
 
 TEXTS = ["pay the fee now", "tea at the harbour", "fee fee pay", "harbour tools to lend", "the workshop at 7"]

@@ -193,6 +193,10 @@ class Comparison:
     appeals: tuple | None = None
     settings: tuple[Setting, ...] = ()
     weights_compared: str = PER_UNIT
+    #: the models' fingerprints (:mod:`explain.model.fingerprint`): equal when the two decide alike
+    old_fingerprint: str | None = None
+    new_fingerprint: str | None = None
+
 
 
 def _setting_values(model) -> dict:
@@ -431,6 +435,8 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
     same_file = old.sha256 == new.sha256
     if same_file:
         notes.append("the two model files are the same (equal SHA-256): nothing changes")
+    elif getattr(old, "fingerprint", None) is not None and old.fingerprint == getattr(new, "fingerprint", None):
+        notes.append("the two model files differ but decide alike (equal fingerprints): nothing changes")
     if set(old_classes) != set(new_classes):
         only_old = sorted(set(old_classes) - set(new_classes))
         only_new = sorted(set(new_classes) - set(old_classes))
@@ -470,6 +476,7 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
                 notes.append(f"labels no model knows ({', '.join(unknown)}) count as wrong for both")
     return Comparison(
         old_path=str(old.path), new_path=str(new.path), old_sha256=old.sha256, new_sha256=new.sha256,
+        old_fingerprint=getattr(old, "fingerprint", None), new_fingerprint=getattr(new, "fingerprint", None),
         same_file=same_file, old_classes=old_classes, new_classes=new_classes, normal_class=normal,
         threshold=threshold, same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
         notes=tuple(notes), settings=settings, weights_compared=weights,

@@ -50,8 +50,10 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
     d = c.decisions
     return {
         "schema": "nbledger.compare/1",
-        "old": {"file": c.old_path, "sha256": c.old_sha256, "classes": list(c.old_classes), "vocabulary_size": v.old_size},
-        "new": {"file": c.new_path, "sha256": c.new_sha256, "classes": list(c.new_classes), "vocabulary_size": v.new_size},
+        "old": {"file": c.old_path, "sha256": c.old_sha256, "fingerprint": c.old_fingerprint,
+                "classes": list(c.old_classes), "vocabulary_size": v.old_size},
+        "new": {"file": c.new_path, "sha256": c.new_sha256, "fingerprint": c.new_fingerprint,
+                "classes": list(c.new_classes), "vocabulary_size": v.new_size},
         "same_file": c.same_file,
         "same_text_steps": c.same_text_steps,
         "normal_class": c.normal_class,
@@ -206,12 +208,15 @@ def _whole(item: str) -> str:
 def _lines(c: Comparison, top: int) -> list[str]:
     from pathlib import Path
 
+    from explain.model.fingerprint import short
     from explain.present.token_display import shown
 
     v, d = c.vocabulary, c.decisions
     out = [
-        f"old: {Path(c.old_path).name} (SHA-256 {c.old_sha256[:12]}); {v.old_size:,} tokens; classes {', '.join(c.old_classes)}",
-        f"new: {Path(c.new_path).name} (SHA-256 {c.new_sha256[:12]}); {v.new_size:,} tokens; classes {', '.join(c.new_classes)}",
+        f"old: {Path(c.old_path).name} (SHA-256 {c.old_sha256[:12]}, fingerprint {short(c.old_fingerprint)}); "
+        f"{v.old_size:,} tokens; classes {', '.join(c.old_classes)}",
+        f"new: {Path(c.new_path).name} (SHA-256 {c.new_sha256[:12]}, fingerprint {short(c.new_fingerprint)}); "
+        f"{v.new_size:,} tokens; classes {', '.join(c.new_classes)}",
     ]
     rows = settings_rows(c)
     if rows:
