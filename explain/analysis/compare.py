@@ -198,7 +198,6 @@ class Comparison:
     new_fingerprint: str | None = None
 
 
-
 def _setting_values(model) -> dict:
     """The settings of one filter, by glossary key, as plain values (None where the model does not say)."""
     from explain.model.email_reader import resolve_text_view
