@@ -228,3 +228,18 @@ def test_serve_orders_the_queue_by_a_date_column(made, tmp_path):
     queue = load_queue(loaded, queue_file, "text", "id", None, MailInput(), "1G", None, None, "sent_at")
     assert [i.id for i in select(queue, {}, order="date")] == ["c", "a", "b"]
     assert [i.id for i in select(queue, {}, order="arrival")] == ["a", "b", "c"]
+
+
+def test_a_large_queue_says_how_far_it_has_been_scored(made, capsys):
+    from desk_support import CORPUS
+    from explain.cli.serve import load_queue
+    from explain.model.mail_data import MailInput
+
+    folder, model, _ = made
+    loaded = load_model(model, normal_class="ok")
+    capsys.readouterr()
+    queue = load_queue(loaded, CORPUS, "text", "id", None, MailInput(), "1G", None, None)
+    said = capsys.readouterr().err.splitlines()
+    assert len(queue) == 6000
+    assert said[0] == "reading the queue messages.csv ..."
+    assert said[1:] == [f"scoring the queue: {n:,} of 6,000 messages" for n in (2000, 4000, 6000)]

@@ -18,6 +18,8 @@ from explain.cli.common import (
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW
 
 LOOPBACK_NAMES = ("localhost",)
+#: Queues of at least this many messages show their progress while they are scored.
+LARGE_QUEUE = 5000
 
 
 def is_loopback(host: str) -> bool:
@@ -74,8 +76,14 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
         from explain.model.data_io import read_column
 
         dates = read_column(data, date_col, parse_size(max_data_bytes, "--max-data-bytes"))
+    if len(messages) < LARGE_QUEUE:
+        return score_queue(loaded, messages, rule, None, dates)
+    if not err_console.is_terminal:  # plain lines in a log
+        say = lambda done, total: err_console.print(  # noqa: E731
+            f"scoring the queue: {done:,} of {total:,} messages", markup=False, highlight=False)
+        return score_queue(loaded, messages, rule, say, dates)
     columns = (TextColumn("scoring the queue"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn())
-    with Progress(*columns, console=err_console, transient=True, disable=len(messages) < 5000) as progress:
+    with Progress(*columns, console=err_console, transient=True) as progress:
         task = progress.add_task("score", total=len(messages))
         queue = score_queue(loaded, messages, rule, lambda done, total: progress.update(task, completed=done), dates)
     return queue
