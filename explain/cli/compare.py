@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import sys
-
 from pathlib import Path
 from typing import List, Optional
 
@@ -11,7 +10,7 @@ import typer
 
 from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, TRUST,
-    app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
+    ModelOptions, app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.present.token_display import for_terminal
@@ -74,11 +73,9 @@ def compare(
     with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data, id_key_file]) as files:
         if out is not None:
             files.file(out)
-        loaded = [
-            load_model_or_fail(path, allow_pickle=allow_pickle, trust=trust, max_model_memory=max_model_memory,
-                               load_timeout=load_timeout, no_cache=no_cache)
-            for path in (old, new)
-        ]
+        # each filter keeps its own normal class (the comparison applies --normal-class itself)
+        options = ModelOptions.of({**locals(), "normal_class": None})
+        loaded = [load_model_or_fail(path, options) for path in (old, new)]
         messages = None
         if data is not None:
             from explain.model.email_reader import resolve_text_view

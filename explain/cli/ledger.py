@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD, TRUST,
+    ModelOptions, ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD, TRUST,
     VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs, parse_size, warn,
 )
 from explain.cli.mail_options import TEXT_VIEW, mail_input
@@ -159,10 +159,7 @@ def ledger(
                 outputs.dataset(out)  # a Parquet data set folder, put in place whole
             if summary is not None:
                 outputs.file(summary)
-            loaded = load_model_or_fail(
-                model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-                max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-            )
+            loaded = load_model_or_fail(model, ModelOptions.of(locals()))
             options = dict(
                 id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
                 threshold=threshold, progress=progress, mail=mail_input(loaded.card, text_view),

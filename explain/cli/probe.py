@@ -9,7 +9,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
     THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
     model_inputs, plain_text, read_messages_or_fail, one_threshold,
 )
@@ -68,10 +68,7 @@ def probe(
             outputs.file(out)
         if images is not None:
             outputs.folder(images)
-        loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-        )
+        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
         texts = None
         if data is not None:
             mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)

@@ -13,7 +13,7 @@ import numpy as np
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
     read_messages_or_fail,
 )
@@ -182,10 +182,7 @@ def report(
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
-        loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-        )
+        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
         step("reading the data")
         mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
         messages = (

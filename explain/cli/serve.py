@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, err_console, fail, load_model_or_fail, one_threshold, parse_size,
     read_messages_or_fail,
 )
@@ -132,10 +132,7 @@ def serve(
     store = open_store(db if db is not None else default_db(queue))
     sock = bound_socket(host, port)
     try:
-        loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-        )
+        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
         if loaded.view.n_classes < 2:
             fail("the model has one class: there is no decision to review")
         scored = None

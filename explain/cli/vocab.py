@@ -12,7 +12,7 @@ import numpy as np
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, TRUST, VECTORIZER, app,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, TRUST, VECTORIZER, app,
     console, deliver, fail, labelled_or_fail, load_model_or_fail, model_inputs, plain_text,
     read_messages_or_fail,
 )
@@ -114,10 +114,7 @@ def vocab(
         thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
         terms = read_watchlist(watchlist) if watchlist is not None else None
 
-        loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-        )
+        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
         messages = documents = None
         if data is not None:
             mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)

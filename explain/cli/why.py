@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
     TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn, one_threshold,
 )
 from explain.cli.mail_options import TEXT_VIEW
@@ -184,6 +184,34 @@ def write_letter(ledger, settings, date: str, pseudonyms, out: Optional[Path], o
         sys.stdout.write(text_letter(letter))
 
 
+def two_classes_or_fail(loaded) -> None:
+    """Refuse a model of one class: a score needs two classes to weigh against each other."""
+    if loaded.view.n_classes < 2:
+        fail(
+            f"the model has one class ({loaded.view.classes[0]}); a score needs two classes to weigh "
+            "against each other, so there is nothing to explain"
+        )
+
+
+def _check_choices(color, audience, out, data, text, file, message_id, ids, threshold, threshold_log_odds) -> None:
+    """Refuse options that do not go together, before any work."""
+    from explain.runs.ledger_records import WRITERS
+
+    if color not in COLOR_CHOICES:
+        fail(f"--color must be auto, always or never, got {color!r}")
+    if audience == "team" and out is not None and out.suffix.lower() not in WRITERS:
+        fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
+    if (message_id is not None or ids is not None) and data is None:
+        fail("--id and --ids pick messages of a data file: give it with --data")
+    if data is not None and message_id is None and ids is None:
+        fail("--data needs --id ID or --ids FILE to pick the messages to explain")
+    if data is not None and (text is not None or file is not None):
+        fail("give the message as TEXT, with --file, or from --data, not several")
+    if message_id is not None and ids is not None:
+        fail("give --id or --ids, not both")
+    one_threshold(threshold, threshold_log_odds)
+
+
 @app.command()
 def why(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
@@ -247,33 +275,14 @@ def why(
 
         settings = letter_settings(letter_settings_file, organisation=organisation, contact=contact, appeal=appeal)
         member_out_ok(out, ids, output_format)
-    if color not in COLOR_CHOICES:
-        fail(f"--color must be auto, always or never, got {color!r}")
-    if audience == "team" and out is not None and out.suffix.lower() not in WRITERS:
-        fail(f"--out {out.name!r} has an unknown suffix; records are written as {', '.join(WRITERS)}")
-    if (message_id is not None or ids is not None) and data is None:
-        fail("--id and --ids pick messages of a data file: give it with --data")
-    if data is not None and message_id is None and ids is None:
-        fail("--data needs --id ID or --ids FILE to pick the messages to explain")
-    if data is not None and (text is not None or file is not None):
-        fail("give the message as TEXT, with --file, or from --data, not several")
-    if message_id is not None and ids is not None:
-        fail("give --id or --ids, not both")
-    one_threshold(threshold, threshold_log_odds)
+    _check_choices(color, audience, out, data, text, file, message_id, ids, threshold, threshold_log_odds)
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file, letter_settings_file,
                            id_key_file]) as outputs:
         if out is not None:
             outputs.file(out)  # checked before any work: never an input, a link or a folder
 
-        loaded = load_model_or_fail(
-            model, vectorizer=vectorizer, allow_pickle=allow_pickle, trust=trust, normal_class=normal_class,
-            max_model_memory=max_model_memory, load_timeout=load_timeout, no_cache=no_cache,
-        )
-        if loaded.view.n_classes < 2:
-            fail(
-                f"the model has one class ({loaded.view.classes[0]}); a score needs two classes to weigh "
-                "against each other, so there is nothing to explain"
-            )
+        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        two_classes_or_fail(loaded)
         # Imported after loading, so that their imports overlap the loading process.
         from explain.analysis.ledger import ledger_of, redacted
         from explain.analysis.risk import read_watchlist

@@ -99,6 +99,34 @@ def _heat_segments(ledger: Ledger) -> list[dict]:
     return segments
 
 
+def _row_views(ledger: Ledger, rows, looks: dict) -> list[dict]:
+    """The book's rows as the fragment shows them: entries ``{kind: "entry", ...}`` and folds ``{kind: "fold", ...}``."""
+    number = {id(e): i for i, e in enumerate(ledger.entries)}
+    row_views = []
+    for row in rows:
+        if isinstance(row, tuple):
+            count, total, after = row
+            row_views.append(
+                {"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"}
+            )
+            continue
+        i = number[id(row)]
+        row_views.append({
+            "kind": "entry",
+            "number": str(i + 1),
+            "token": shown(row.token),
+            **looks[row.column],
+            "times": str(row.occurrences),
+            "each": amount(row.per_occurrence),
+            **_money(row.amount),
+            "balance": f"{row.balance_after:+.2f}",
+            "tipped": i == ledger.tipped_at,
+            "seen": support_cell(row, ledger),
+            "flags": [FLAG_LABELS.get(f, f) for f in row.flags],  # one spelling on every screen: watchlist-strong
+        })
+    return row_views
+
+
 def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, date: str | None = None) -> dict:
     """Everything the ledger fragment shows, formatted.
 
@@ -125,29 +153,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
 
     looks = {e.column: look(e) for e in ledger.entries}
     rows = shown_rows(ledger, top)
-    number = {id(e): i for i, e in enumerate(ledger.entries)}
-    row_views = []
-    for row in rows:
-        if isinstance(row, tuple):
-            count, total, after = row
-            row_views.append(
-                {"kind": "fold", "label": folded(count, total), **_money(total), "balance": f"{after:+.2f}"}
-            )
-            continue
-        i = number[id(row)]
-        row_views.append({
-            "kind": "entry",
-            "number": str(i + 1),
-            "token": shown(row.token),
-            **looks[row.column],
-            "times": str(row.occurrences),
-            "each": amount(row.per_occurrence),
-            **_money(row.amount),
-            "balance": f"{row.balance_after:+.2f}",
-            "tipped": i == ledger.tipped_at,
-            "seen": support_cell(row, ledger),
-            "flags": [FLAG_LABELS.get(f, f) for f in row.flags],  # one spelling on every screen: watchlist-strong
-        })
+    row_views = _row_views(ledger, rows, looks)
     opening = [
         {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)
     ]

@@ -68,8 +68,6 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
     """The documented JSON object: the ``nbledger.why/1`` keys and the ledger's keys beside them."""
     expl = ledger.explanation
     spans_known = expl.spans_note is None
-    summary = ledger.summary(top)
-    index = {id(e): i for i, e in enumerate(ledger.entries)}
     return {
         "schema": SCHEMA,
         "model": None if ledger.model_path is None else {
@@ -117,48 +115,55 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
         "card_date": ledger.card_date,
         "redacted": ledger.redacted,
         "circulation": "internal",
-        "ledger": {
-            "credit_side": ledger.credit_side,
-            "credit_classes": list(ledger.credit_classes),
-            "debit_class": ledger.debit_class,
-            "balance_method": ledger.balance_method,
-            "exact": ledger.exact,
-            "rule": ledger.rule,
-            "decision_line": _finite(ledger.decision_line),
-            "line_inclusive": ledger.line_inclusive,
-            "opening_prior": ledger.opening_prior,
-            "opening_absence": ledger.opening_absence,
-            "opening": ledger.opening,
-            "entries": [
-                {
-                    "token": e.token,
-                    "occurrences": e.occurrences,
-                    "value": e.value,
-                    "amount": e.amount,
-                    "per_occurrence": e.per_occurrence,
-                    "direction": e.direction,
-                    "toward": e.toward,
-                    "balance_after": e.balance_after,
-                    "spans": [list(s) for s in e.spans] if spans_known else None,
-                    "support": dict(zip(ledger.classes, e.support)),
-                    "flags": list(e.flags),
-                    "exact": e.exact,
-                }
-                for e in ledger.entries
-            ],
-            "closing": ledger.closing,
-            "credit_wins": ledger.credit_wins,
-            "tipped_at": ledger.tipped_at,
-            "largest": [index[id(e)] for e in summary.largest],
-            "folded_count": summary.folded_count,
-            "folded_total": summary.folded_total,
-            "support_kind": ledger.support_kind,
-            "support_source": ledger.support_source,
-            "disguised": [
-                {"token": u.token, "count": u.count, "looks_like": u.looks_like, "avoided": u.avoided}
-                for u in ledger.disguised
-            ],
-            "flip_sentence": flip_sentence(ledger.flip),
-        },
+        "ledger": _ledger_keys(ledger, top),
     }
 
+
+def _ledger_keys(ledger: Ledger, top: int) -> dict:
+    """The ``ledger`` object of ``nbledger.why/2``: sides, rule, opening, entries, closing, folding."""
+    spans_known = ledger.explanation.spans_note is None
+    summary = ledger.summary(top)
+    index = {id(e): i for i, e in enumerate(ledger.entries)}
+    return {
+        "credit_side": ledger.credit_side,
+        "credit_classes": list(ledger.credit_classes),
+        "debit_class": ledger.debit_class,
+        "balance_method": ledger.balance_method,
+        "exact": ledger.exact,
+        "rule": ledger.rule,
+        "decision_line": _finite(ledger.decision_line),
+        "line_inclusive": ledger.line_inclusive,
+        "opening_prior": ledger.opening_prior,
+        "opening_absence": ledger.opening_absence,
+        "opening": ledger.opening,
+        "entries": [
+            {
+                "token": e.token,
+                "occurrences": e.occurrences,
+                "value": e.value,
+                "amount": e.amount,
+                "per_occurrence": e.per_occurrence,
+                "direction": e.direction,
+                "toward": e.toward,
+                "balance_after": e.balance_after,
+                "spans": [list(s) for s in e.spans] if spans_known else None,
+                "support": dict(zip(ledger.classes, e.support)),
+                "flags": list(e.flags),
+                "exact": e.exact,
+            }
+            for e in ledger.entries
+        ],
+        "closing": ledger.closing,
+        "credit_wins": ledger.credit_wins,
+        "tipped_at": ledger.tipped_at,
+        "largest": [index[id(e)] for e in summary.largest],
+        "folded_count": summary.folded_count,
+        "folded_total": summary.folded_total,
+        "support_kind": ledger.support_kind,
+        "support_source": ledger.support_source,
+        "disguised": [
+            {"token": u.token, "count": u.count, "looks_like": u.looks_like, "avoided": u.avoided}
+            for u in ledger.disguised
+        ],
+        "flip_sentence": flip_sentence(ledger.flip),
+    }

@@ -132,6 +132,34 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     console.print()
 
     rows = shown_rows(ledger, top)
+    table = _book(ledger, rows, mode, families)
+    console.print(table)
+    console.print("═" * min(console.measure(table).maximum, console.width))
+    closing = Text("closing balance ", style="bold")
+    closing.append(closing_figure(ledger), style="bold")
+    closing.append(f"   {closing_odds(ledger)}")
+    console.print(closing)
+    console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
+    console.print(_legend(ledger, rows, mode, families))
+    for note in ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
+        console.print(Text(note, style="dim" if mode != "none" else ""))
+    console.print()
+    for line in word_notes(ledger):
+        console.print(Text(line))
+    console.print()
+    console.print(Text("message", style="bold"))
+    console.print(tinted_text(ledger, mode, families))
+    if len(ledger.text) > DISPLAY_LIMIT:
+        more = len(ledger.text) - DISPLAY_LIMIT
+        console.print(f"[... {more:,} more characters not shown; the ledger covers them all]", markup=False)
+    if ledger.spans_note is not None:
+        console.print(Text(f"(not tinted: {ledger.spans_note})"))
+    console.print()
+    console.print(Text(CAUTION, style="dim" if mode != "none" else ""))
+
+
+def _book(ledger: Ledger, rows, mode: str, families) -> Table:
+    """The entries in debit and credit columns: opening lines, then each shown entry or fold."""
     largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
     table = Table(
         box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, collapse_padding=True, header_style="bold", padding=(0, 1)
@@ -172,29 +200,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
         )
     if not rows:
         table.add_row("", Text("(no word the model knows)", style="italic"))
-    console.print(table)
-    console.print("═" * min(console.measure(table).maximum, console.width))
-    closing = Text("closing balance ", style="bold")
-    closing.append(closing_figure(ledger), style="bold")
-    closing.append(f"   {closing_odds(ledger)}")
-    console.print(closing)
-    console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
-    console.print(_legend(ledger, rows, mode, families))
-    for note in ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
-        console.print(Text(note, style="dim" if mode != "none" else ""))
-    console.print()
-    for line in word_notes(ledger):
-        console.print(Text(line))
-    console.print()
-    console.print(Text("message", style="bold"))
-    console.print(tinted_text(ledger, mode, families))
-    if len(ledger.text) > DISPLAY_LIMIT:
-        more = len(ledger.text) - DISPLAY_LIMIT
-        console.print(f"[... {more:,} more characters not shown; the ledger covers them all]", markup=False)
-    if ledger.spans_note is not None:
-        console.print(Text(f"(not tinted: {ledger.spans_note})"))
-    console.print()
-    console.print(Text(CAUTION, style="dim" if mode != "none" else ""))
+    return table
 
 
 def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT) -> Text:
