@@ -114,3 +114,11 @@ def test_max_data_bytes_bounds_each_file_once_decompressed(model, tmp_path, caps
     line = nbledger(capsys, "ledger", model, csv, "--text-col", "text", "--out", tmp_path / "l.csv",
                     "--max-data-bytes", "64K").one_error_line()
     assert "--max-data-bytes" in line, line
+
+
+def test_why_data_id_honours_max_bytes(model, tmp_path, capsys):
+    data = tmp_path / "d.csv"
+    data.write_text("id,text\nsmall,pay the fee\nbig," + "fee " * (300 << 10) + "\n")
+    line = nbledger(capsys, "why", model, "--data", data, "--id", "big", "--text-col", "text").one_error_line()
+    assert "--max-bytes" in line and "1,048,576" in line, line
+    assert nbledger(capsys, "why", model, "--data", data, "--id", "small", "--text-col", "text").code == 0

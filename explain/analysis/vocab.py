@@ -364,10 +364,47 @@ def plan_comparisons(view: ModelView, target: str | None = None, against: str | 
     return [(t, others(t, REST)) for t in everyone]
 
 
-def _ratio(view: ModelView, t: int, others: tuple[int, ...]) -> np.ndarray:
+class _Rest:
+    """Sums over "every class but t" for all t at once, in O(classes x features) rather than its square.
+
+    Counts: the column totals less class t's row. The pooled log-probability
+    of the rest, ``logsumexp_{c != t}(W[c] + b[c])``, is ``logaddexp`` of the
+    running ``logaddexp`` from the first class up to t and from the last class
+    down to t (prefix and suffix scans): no subtraction, so no cancellation.
+    """
+
+    def __init__(self, view: ModelView):
+        W, b = view.weights, view.baseline
+        self.feature_total = view.feature_count.sum(axis=0)
+        self.class_total = float(view.class_count.sum())
+        joint = W + b[:, None]
+        self._before = _shifted_scan(joint)
+        self._after = _shifted_scan(joint[::-1])[::-1]
+        self._b_before = _shifted_scan(b[:, None])[:, 0]
+        self._b_after = _shifted_scan(b[::-1, None])[::-1, 0]
+
+    def pooled(self, t: int) -> np.ndarray:
+        with np.errstate(invalid="ignore"):
+            num = np.logaddexp(self._before[t], self._after[t])
+            den = np.logaddexp(self._b_before[t], self._b_after[t])
+        return num - den
+
+
+def _shifted_scan(values: np.ndarray) -> np.ndarray:
+    """Row t: ``logaddexp`` of rows 0..t-1 (minus infinity for t = 0)."""
+    out = np.empty_like(values)
+    out[0] = -np.inf
+    if len(values) > 1:
+        np.logaddexp.accumulate(values[:-1], axis=0, out=out[1:])
+    return out
+
+
+def _ratio(view: ModelView, t: int, others: tuple[int, ...], rest: "_Rest | None" = None) -> np.ndarray:
     W, b = view.weights, view.baseline
     if len(others) == 1:
         return W[t] - W[others[0]]
+    if rest is not None and len(others) == view.n_classes - 1:
+        return W[t] - rest.pooled(t)
     idx = list(others)
     pooled = logsumexp(W[idx] + b[idx, None], axis=0) - logsumexp(b[idx])
     return W[t] - pooled
@@ -418,13 +455,18 @@ def _comparison(
     watched: np.ndarray,
     thresholds: RiskThresholds,
     prior_scale: float | None,
+    rest: _Rest | None = None,
 ) -> VocabComparison:
     idx = list(others)
     fc, cc = view.feature_count, view.class_count
-    y_t, y_o = fc[t], fc[idx].sum(axis=0)
-    m_t, m_o = float(cc[t]), float(cc[idx].sum())
+    y_t = fc[t]
+    if rest is not None and len(idx) == view.n_classes - 1:  # t against the rest: totals less t's own
+        y_o, m_o = rest.feature_total - y_t, rest.class_total - float(cc[t])
+    else:
+        y_o, m_o = fc[idx].sum(axis=0), float(cc[idx].sum())
+    m_t = float(cc[t])
 
-    ratio = _ratio(view, t, others)
+    ratio = _ratio(view, t, others, rest)
     delta, z = monroe_zscore(y_t, y_o, prior_scale)
     with np.errstate(invalid="ignore", divide="ignore"):
         rate = np.where(ratio > 0, y_t / m_t, y_o / m_o)
@@ -525,8 +567,9 @@ def review_vocabulary(
     columns = watchlist_columns(terms, view.tokens)
     watched = np.zeros(view.n_features, dtype=bool)
     watched[columns[columns >= 0]] = True
+    rest = _Rest(view) if any(len(o) == view.n_classes - 1 and len(o) > 1 for _, o in plan) else None
     comparisons = tuple(
-        _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale) for t, others in plan
+        _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale, rest) for t, others in plan
     )
     tokens = redact(view.tokens, traits) if redact_personal else np.asarray(view.tokens, dtype=object)
     shown = list(terms)

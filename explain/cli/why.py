@@ -298,6 +298,10 @@ def why(
             # An .eml folder or mbox file is read in the card's view and text rules, as every data command reads it.
             messages = read_messages_or_fail(data, text_col, label_col, mail_input(loaded.card, text_view), id_col=id_col)
             chosen = pick_messages(messages, wanted, data.name)
+            for mid, message in chosen:  # the same --max-bytes as a message given directly
+                size = len(message.encode("utf-8", "surrogatepass"))
+                if size > max_bytes:
+                    fail(f"the message {mid!r} in {data.name} is {size:,} bytes, more than --max-bytes ({max_bytes:,})")
             if label_col is not None:
                 from explain.analysis.vocab import document_counts
 
