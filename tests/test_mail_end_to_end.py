@@ -56,8 +56,12 @@ def _as_given(path: Path) -> str:
 
 @pytest.mark.mailcorpus
 @pytest.mark.parametrize("engine", ["local", "dask"])
-def test_ledger_over_an_eml_folder_decides_as_scikit_learn_predicts(mail, capsys, engine):
+def test_ledger_over_an_eml_folder_decides_as_scikit_learn_predicts(mail, capsys, engine, monkeypatch):
+    from explain.model import data_stream
+
+    monkeypatch.setattr(data_stream, "MAIL_PIECE_FILES", 50)  # Dask: the folder's 180 files in 4 pieces
     root = mail["root"]
+    assert [(p.row_group, p.rows) for p in data_stream.input_pieces([root / "test"])] == [(0, 50), (50, 50), (100, 50), (150, 30)]
     pipeline = make_pipeline(CountVectorizer(), MultinomialNB()).fit(
         [_as_given(p) for p in mail["train"]], [p.parent.parent.name for p in mail["train"]]
     )

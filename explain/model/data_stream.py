@@ -544,8 +544,13 @@ class Piece:
     row_group: int | None
     rows: int | None
     limits: ReadingLimits | None = None
-    #: raw e-mail inputs: how they are read (:class:`explain.model.mail_data.MailInput`)
+    #: raw e-mail inputs: how they are read (:class:`explain.model.mail_data.MailInput`); for a piece
+    #: of an .eml folder, ``row_group`` is its first file (in path order) and ``rows`` its number of files
     mail: object = None
+
+
+#: Files of an .eml folder per Dask piece (a larger folder is read by several workers).
+MAIL_PIECE_FILES = 2_000
 
 
 def _messages_in(path: Path) -> int:
@@ -570,7 +575,14 @@ def input_pieces(paths, mail=None) -> list[Piece]:
     pieces, limits = [], current_limits()
     for path in input_files(paths):
         if is_mail(path):
-            pieces.append(Piece(str(path), None, _messages_in(path), limits, mail))
+            from explain.model.mail_data import MailInput
+
+            mail, n = mail or MailInput(), _messages_in(path)
+            if path.is_dir() and n > MAIL_PIECE_FILES:  # a large folder is cut into pieces of files
+                starts = range(0, n, MAIL_PIECE_FILES)
+                pieces.extend(Piece(str(path), s, min(MAIL_PIECE_FILES, n - s), limits, mail) for s in starts)
+            else:
+                pieces.append(Piece(str(path), None, n, limits, mail))
             continue
         fmt, gzipped = data_format(path)
         if fmt == "parquet" and not gzipped:
@@ -588,6 +600,14 @@ def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int)
     """The chunks of one piece (``first_row`` counts from the piece's start)."""
     if piece.row_group is None:
         yield from stream_texts([piece.path], text_col, id_col, chunk_rows, piece.limits, piece.mail)
+        return
+    if piece.mail is not None:  # files row_group .. row_group + rows of an .eml folder
+        from explain.model.mail_data import mail_chunks
+
+        done, part = 0, (piece.row_group, piece.row_group + piece.rows)
+        for texts, ids, share in mail_chunks(Path(piece.path), piece.mail, chunk_rows, part):
+            done += len(texts)
+            yield TextChunk(texts, ids, done - len(texts), Path(piece.path).name, piece.row_group + done, 0, 0, share)
         return
     import pyarrow.parquet as pq
 

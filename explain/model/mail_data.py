@@ -134,16 +134,19 @@ def _text_of(data: bytes, mail: MailInput) -> tuple[str, str]:
     return email.text(mail.view), email.message_id
 
 
-def mail_chunks(path: Path, mail: MailInput, chunk_rows: int):
+def mail_chunks(path: Path, mail: MailInput, chunk_rows: int, part: tuple[int, int] | None = None):
     """Yield ``(texts, ids, share read)`` of at most ``chunk_rows`` messages of an .eml folder or an mbox file.
 
     The same reading as :func:`read_data` (texts in ``mail``'s view and rules, ids the
     Message-ID else the file name or ``name#n``), in bounded memory: for the batch ledger.
+    ``part`` = ``(start, stop)`` reads only those files of a folder (in path order), for one Dask piece.
     """
     path = Path(path)
     limit = mail.limits.max_message_bytes
     if path.is_dir():
         files = eml_files(path)
+        if part is not None:
+            files = files[part[0]:part[1]]
         for start in range(0, len(files), chunk_rows):
             texts, ids = [], []
             for file in files[start:start + chunk_rows]:

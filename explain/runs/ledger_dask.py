@@ -148,7 +148,8 @@ def write_ledger_dask(
     id_col=None, top_k=5, chunk_rows=20_000, only_flagged=False, threshold=None, summary=None,
     on_chunk=None, progress=None, mail=None,
 ) -> LedgerProgress:
-    """Like :func:`~explain.runs.ledger_local.write_ledger`, on a Dask cluster (an .eml folder or mbox file is one piece)."""
+    """Like :func:`~explain.runs.ledger_local.write_ledger`, on a Dask cluster (an .eml folder in pieces of
+    :data:`~explain.model.data_stream.MAIL_PIECE_FILES` files, an mbox file as one)."""
     from explain.model.data_stream import input_pieces
 
     out = Path(out)
