@@ -41,6 +41,10 @@ PLANTED = (
     "555-0147",
     "192.0.2.44",
     "8812004417",
+    # people (issue 18): invented names, a Luhn-valid test card, the ISO 13616 example IBAN, an invented
+    # postcode, address and date of birth, an RFC 3849 IPv6 address
+    "Oksana", "Petrenko", "Tomasz", "Nowak",
+    "4111 1111 1111 1111", "GB82 WEST 1234 5698 7654 32", "TD4 7QX", "14 Gull Yard", "12/03/1984", "2001:db8::17",
 )
 SECTIONS = (
     "Summary for non-specialists", "Performance", "What the filter learned", "Explained messages", "Errors",
@@ -51,8 +55,10 @@ SECTIONS = (
 def _planted_rows(label: str, n: int) -> list[dict]:
     return [
         {"id": f"planted-{label}-{i}", "sent_at": "2026-11-01T09:00:00Z", "label": label,
-         "text": f"Urgent: your levy refund is held. Reply to {PLANTED[0]} or pay at {PLANTED[1]}, "
-                 f"ring {PLANTED[2]}, server {PLANTED[3]}, reference {PLANTED[4]}."}
+         "text": f"Dear Oksana Petrenko,\nUrgent: your levy refund is held. Reply to {PLANTED[0]} or pay at {PLANTED[1]}, "
+                 f"ring {PLANTED[2]}, server {PLANTED[3]}, reference {PLANTED[4]}. Card {PLANTED[9]} or IBAN "
+                 f"{PLANTED[10]}; deliver to {PLANTED[12]}, {PLANTED[11]}; DOB {PLANTED[13]}; from {PLANTED[14]}.\n"
+                 "Kind regards,\nTomasz Nowak"}
         for i in range(n)
     ]
 
@@ -272,6 +278,13 @@ def test_personal_values_appear_nowhere_with_personal_redaction(built, files):
         assert _squeezed(value) not in _squeezed(built["text"]), value
         assert value not in built["html"], value
         assert value not in built["json"], value
+        assert value.lower() not in built["json"].lower() or " " in value, value  # tokens are lower case
+
+
+def test_every_page_says_internal(built):
+    pages = [page.extract_text() for page in built["reader"].pages]
+    assert pages and all("Internal" in page for page in pages)
+    assert '"circulation": "internal"' in built["json"] and 'content="Internal"' in built["html"]
 
 
 def test_pictures_draw_no_personal_token(files):
@@ -282,7 +295,7 @@ def test_pictures_draw_no_personal_token(files):
     tokens = " ".join(map(str, report.vocab.tokens))
     assert any(v in " ".join(map(str, model.view.tokens)) for v in PLANTED)  # they are tokens of the model
     for value in PLANTED:
-        assert value not in tokens
+        assert value not in tokens and value.lower() not in tokens.split()
 
 
 def test_without_redaction_the_values_are_there(files):

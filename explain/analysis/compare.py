@@ -482,7 +482,7 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
     )
 
 
-def redacted_comparison(comparison: Comparison, ids=None) -> Comparison:
+def redacted_comparison(comparison: Comparison, ids=None, names: frozenset[str] = frozenset()) -> Comparison:
     """The same comparison with personal values masked in tokens and both ledgers of each message.
 
     Ids are kept as given; one holding an e-mail address becomes its keyed pseudonym
@@ -495,14 +495,17 @@ def redacted_comparison(comparison: Comparison, ids=None) -> Comparison:
 
     ids = ids if ids is not None else IdPseudonyms()
 
+    def masked(token):
+        return mask_value(token, names)
+
     def shifts(items):
-        return tuple(replace(s, token=mask_value(s.token)) for s in items)
+        return tuple(replace(s, token=masked(s.token)) for s in items)
 
     vocab = comparison.vocabulary
     vocab = replace(
         vocab,
-        added=tuple(map(mask_value, vocab.added)),
-        removed=tuple(map(mask_value, vocab.removed)),
+        added=tuple(map(masked, vocab.added)),
+        removed=tuple(map(masked, vocab.removed)),
         comparisons=tuple(
             replace(c, shifts_up=shifts(c.shifts_up), shifts_down=shifts(c.shifts_down), ranks=shifts(c.ranks))
             for c in vocab.comparisons

@@ -226,11 +226,19 @@ def is_given_name(word: str) -> bool:
 def token_kind(token: str) -> str | None:
     """The kind of a single token (as a vectorizer made it) by the checks that apply to one word.
 
-    ``card`` (Luhn, ISO/IEC 7812-1), ``iban`` (ISO 13616 check digits) and
-    ``name`` (a known given name that is not an everyday word); None otherwise.
+    ``ip`` (with the punctuation around it, ``2001:db8::17.``), ``card`` (Luhn,
+    ISO/IEC 7812-1), ``iban`` (ISO 13616 check digits) and ``name`` (a known given
+    name that is not an everyday word); None otherwise.
     """
     from stdnum import iban, luhn
 
+    bare = token.strip(".,;:!?()[]{}<>\"'")
+    if ":" in bare or bare.count(".") == 3:
+        try:
+            ipaddress.ip_address(bare.split("%")[0])
+            return "ip"
+        except ValueError:
+            pass
     compact = re.sub(r"[ -]", "", token)
     if compact.isdigit():
         return "card" if 13 <= len(compact) <= 19 and luhn.is_valid(compact) else None
@@ -458,6 +466,22 @@ def names_in(texts) -> frozenset[str]:
     skip = _COMMON_CAPITALS | _PLACE_WORDS | _WORD_NAMES | _NOT_NAMES | ENGLISH_STOP_WORDS
     return frozenset(w for w in candidates
                      if len(w) > 1 and w not in skip and cased[w, False] >= cased[w, True])
+
+
+#: Kinds whose whole values, when written without a space, may reach a vocabulary as one token.
+_VALUE_KINDS = frozenset({"birth-date", "card", "iban", "account", "sort-code", "postcode", "phone"})
+
+
+def personal_words_in(texts) -> dict[str, str]:
+    """Lower-case word -> kind, of the people's names (:func:`names_in`) and of the values written as one word
+    (a date of birth ``12/03/1984``, an account number) found in ``texts``: the vocabulary marks such tokens."""
+    found = {w: "name" for w in names_in(texts)}
+    for text in map(str, texts):
+        for s, e, kind in find_personal(text):
+            value = text[s:e]
+            if kind in _VALUE_KINDS and not any(ch.isspace() for ch in value):
+                found.setdefault(value.lower(), kind)
+    return found
 
 
 def _name_run(text: str, at: int, strong: bool, limit: int = 3) -> tuple[int, int] | None:

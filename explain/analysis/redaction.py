@@ -34,9 +34,13 @@ from explain.analysis.risk import PERSONAL_KINDS, personal_spans, token_traits
 MODES = ("personal", "bodies", "none")
 
 
-def mask_value(value: str) -> str:
-    """A short string (a token, an id) with each personal-looking value replaced by ``[kind]``."""
-    kind = int(token_traits([value]).personal_kind[0])
+def mask_value(value: str, names: frozenset[str] = frozenset()) -> str:
+    """A short string (a token, a slice name) with each personal value replaced by ``[kind]``.
+
+    ``names``: words found as people's names in the messages at hand
+    (:func:`explain.analysis.personal_data.names_in`), masked as ``[name]`` too.
+    """
+    kind = int(token_traits([value], names).personal_kind[0])
     if kind >= 0:
         return f"[{PERSONAL_KINDS[kind]}]"
     out, at = [], 0

@@ -268,13 +268,13 @@ def flagged_sample(model, texts, threshold: float | None, n: int, threshold_log_
     return ranked[np.unique(np.linspace(0, len(ranked) - 1, n).round().astype(int))]
 
 
-def _names_at_hand(redact: str, data, explain) -> frozenset[str]:
-    """Words standing as people's names in the report's own messages: personal wherever they show up as tokens."""
+def _names_at_hand(redact: str, data, explain) -> dict[str, str]:
+    """Names and one-word values found in the report's own messages: personal wherever they show up as tokens."""
     if redact == "none":
-        return frozenset()
-    from explain.analysis.personal_data import names_in
+        return {}
+    from explain.analysis.personal_data import personal_words_in
 
-    return names_in([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
+    return personal_words_in([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
 
 
 def _redacted_ledger(ledger: Ledger, mode: str, ids: IdPseudonyms) -> Ledger:

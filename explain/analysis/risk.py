@@ -217,10 +217,12 @@ def token_traits(tokens, names=frozenset()) -> TokenTraits:
                 kind[j] = index
     _detector_kinds(tokens, chars, kind)
     if names:
-        # words the detector found as names in the messages at hand (a member's name the list does not know)
+        # values the detector found in the messages at hand (a member's name the list does not know, a date of
+        # birth); ``names`` maps a lower-case word to its kind (a plain set means names)
         for j in np.flatnonzero(kind < 0):
-            if tokens[j].lower() in names:
-                kind[j] = PERSONAL_KINDS.index("name")
+            word = tokens[j].lower().strip(".,;:!?()[]\"'")
+            if word in names:
+                kind[j] = PERSONAL_KINDS.index(names.get(word, "name") if isinstance(names, Mapping) else "name")
     return TokenTraits(
         personal_kind=kind,
         numeric=(chars.digits > 0) & (chars.letters == 0),

@@ -528,7 +528,7 @@ def review_vocabulary(
     prior_scale: float | None = None,
     redact_personal: bool = False,
     analyzer: Callable[[str], Sequence[str]] | None = None,
-    names: frozenset[str] = frozenset(),
+    names=frozenset(),
 ) -> VocabReview:
     """Review what ``view`` has learned; see the module docstring for every column.
 
@@ -540,7 +540,7 @@ def review_vocabulary(
     top : how many tokens for and against presenters list.
     documents : message counts from a labelled file (:func:`document_counts`).
     watchlist : terms to report whatever their evidence.
-    names : lower-case words found as people's names in the messages at hand
+    names : lower-case words found as people's names (or a word -> kind mapping) in the messages at hand
         (:func:`explain.analysis.personal_data.names_in`): such tokens are ``personal`` (kind ``name``) too.
     thresholds : when evidence is strong and support thin.
     prior_scale : ``a0`` of the z-score's prior; None for the pooled total.

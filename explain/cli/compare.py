@@ -94,7 +94,11 @@ def compare(
             rows, source = desk_reviews
             result = replace(result, appeals=tuple(appeals_of(rows, m.sha256, source) for m in loaded))
         if redact != "none":
-            result = redacted_comparison(result, pseudonyms)
+            from explain.analysis.personal_data import personal_words_in
+
+            # names and one-word values found in --data: masked in the added, removed and shifted tokens too
+            names = personal_words_in(messages.texts) if messages is not None else {}
+            result = redacted_comparison(result, pseudonyms, names)
         suffix = None if out is None else out.suffix.lower()
         if suffix in (".pdf", ".html", ".htm"):
             from explain.analysis.report import report_date

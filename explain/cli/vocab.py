@@ -39,9 +39,9 @@ def people_named(messages):
     """Words standing as people's names in the --data messages (flagged ``personal`` too), or none without data."""
     if messages is None:
         return frozenset()
-    from explain.analysis.personal_data import names_in
+    from explain.analysis.personal_data import personal_words_in
 
-    return names_in(messages.texts)
+    return personal_words_in(messages.texts)
 
 
 @app.command()
