@@ -83,3 +83,19 @@ def test_bad_input_is_one_line(models, capsys, args, says):
     f = models
     outcome = nbledger(capsys, "compare", f / "two.skops", f / "old.skops", *args)
     assert says in outcome.one_error_line()
+
+
+def test_the_balance_of_each_changed_message_is_why_s_own(models, capsys):
+    # compare shows each changed message with the ledger `why` gives it under each model: the same closing
+    # balance, the same sign (issue 21), for ok decisions as for flagged ones
+    f = models
+    doc = json.loads(nbledger(capsys, "compare", f / "old.skops", f / "new.skops", "--data", f / "test.csv",
+                              "--redact", "none", "--show", "6", "--format", "json").out)
+    texts = pd.read_csv(f / "test.csv", dtype=str, keep_default_na=False).text.tolist()
+    decisions = set()
+    for m in doc["decisions"]["shown"]:
+        for side, model in (("old", "old.skops"), ("new", "new.skops")):
+            why = json.loads(nbledger(capsys, "why", f / model, texts[m["row"] - 1], "--format", "json").out)
+            assert m[side]["closing"] == pytest.approx(why["ledger"]["closing"], abs=1e-12), (m["row"], side)
+            decisions.add(m[f"{side}_decision"])
+    assert "ok" in decisions and len(decisions) > 1
