@@ -39,3 +39,9 @@ def test_thresholds_on_pages_have_six_significant_figures(x):
     shown = numbers.threshold(x)
     assert float(shown) == float(f"{x:.6g}")
     assert math.isclose(float(shown), x, rel_tol=5e-6)
+
+
+def test_a_p_value_is_never_rounded_to_zero():
+    # the issue: "adjusted p-value 0.0000" read as certainty; three significant figures (common practice, no source)
+    assert numbers.p_value(2.83e-05) == "2.83e-05" and numbers.p_value(0.01423) == "0.0142"
+    assert numbers.p_value(None) == numbers.MISSING and numbers.p_value(float("nan")) == numbers.MISSING

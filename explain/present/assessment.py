@@ -48,7 +48,7 @@ from explain.analysis.assessment import Assessment
 from explain.analysis.error_review import ReviewedMessage
 from explain.analysis.ranking import OperatingPoint
 from explain.analysis.rates import Estimate, Rate
-from explain.present.numbers import per_10000_text
+from explain.present.numbers import p_value, per_10000_text
 from explain.present.token_display import shown
 from explain.present.wording import probability
 
@@ -411,7 +411,7 @@ def _slices(result: Assessment, console: Console) -> None:
         return
     rows = [
         [Text(f"{s.group}: {s.name}"), _count(s.n_messages), _rate(s.false_alarm_rate),
-         _num(s.false_alarm_test.adjusted_p_value, 4), _rate(s.miss_rate), _num(s.miss_test.adjusted_p_value, 4)]
+         p_value(s.false_alarm_test.adjusted_p_value), _rate(s.miss_rate), p_value(s.miss_test.adjusted_p_value)]
         for s in rep.slices
     ]
     _emit(console, f"slices ({_level(result)} Wilson intervals; miss rate: missed among flagged-class messages)",

@@ -149,3 +149,8 @@ def threshold(x: float | None) -> str:
     if _missing(x):
         return MISSING
     return f"{x:.{THRESHOLD_DIGITS}g}"
+
+
+def p_value(x: float | None) -> str:
+    """A p-value to three significant figures, never rounded to 0: ``0.0142``, ``2.8e-05``; untested is a dash."""
+    return MISSING if _missing(x) else f"{x:.3g}"

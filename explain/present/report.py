@@ -114,8 +114,8 @@ def _miss_per10k(recall: dict) -> str:
 
 
 def _pvalue(x) -> str:
-    """A p-value to three significant figures; an untested one (null) as a dash."""
-    return "–" if x is None else f"{x:.3g}"
+    """A p-value as every screen shows it (:func:`explain.present.numbers.p_value`)."""
+    return numbers.p_value(x)
 
 
 def _count(x) -> str:
