@@ -91,3 +91,28 @@ def test_a_bound_is_said_with_its_own_sign():
     assert stated("P(flag)", probability(0.0)) == "P(flag) < 0.0001"
     assert stated("P(flag)", probability(0.7479)) == "P(flag) = 0.7479"
     assert stated("P(flag)", probability(1 - 1e-9, 1e-9)) == "P(flag) = 1 - 1e-09"
+
+
+def test_one_spelling_per_flag_in_ledgers():
+    # the glossary's screen word is watchlist-strong; its JSON key watchlist_strong never reaches a screen
+    import io
+
+    from rich.console import Console
+
+    from explain.analysis.ledger import ledger_of
+    from explain.analysis.risk import parse_watchlist
+    from explain.present.ledger_html import ledger_context
+    from explain.present.ledger_terminal import render
+    from tests.corpora import loaded, make_pipeline
+
+    texts = ["win a prize now", "prize prize claim", "free prize today", "tea at the club", "club tea sunday",
+             "lend the drill"]
+    pipe = make_pipeline("counts", "multinomial").fit(texts, ["scam"] * 3 + ["ok"] * 3)
+    ledger = ledger_of(loaded(pipe, "ok"), "claim your prize", watchlist=parse_watchlist("prize\n", "w.txt"))
+    assert any("watchlist_strong" in e.flags for e in ledger.entries)  # the key, in the result
+    flags = [f for row in ledger_context(ledger)["rows"] if "flags" in row for f in row["flags"]]
+    assert "watchlist-strong" in flags and not any("_" in f for f in flags)
+    console = Console(width=120, no_color=True, record=True, file=io.StringIO())
+    render(ledger, console)
+    screen = console.export_text()
+    assert "watchlist-strong" in screen and "watchlist_strong" not in screen
