@@ -40,9 +40,9 @@ demo: install
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml
 	@echo "demo outputs are in $(OUT)/"
 
-# The README's picture of the report: its summary page, from the demo's PDF.
+# The README's picture of the report: its summary page (page 2: the contents share the cover), from the demo's PDF.
 docs-picture: demo
-	pdftoppm -png -r 70 -f 3 -l 3 -singlefile $(OUT)/report.pdf docs/report_summary
+	pdftoppm -png -r 70 -f 2 -l 2 -singlefile $(OUT)/report.pdf docs/report_summary
 
 benchmark: install
 	$(BIN)/python -m benchmarks.bench_evidence
