@@ -48,12 +48,6 @@ class BatchEvidence:
     def __len__(self) -> int:
         return len(self.predicted)
 
-    def top_tokens(self, i: int, side: str = "for") -> list[tuple[str, float]]:
-        """(token, evidence) pairs of message ``i``, strongest first."""
-        cols = self.top_for[i] if side == "for" else self.top_against[i]
-        vals = self.top_for_evidence[i] if side == "for" else self.top_against_evidence[i]
-        return [(str(self.tokens[c]), float(v)) for c, v in zip(cols, vals) if c >= 0]
-
 
 def top_two(jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Indices of the best and second-best class per row (argmax tie rule)."""

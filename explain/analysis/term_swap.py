@@ -22,7 +22,6 @@ model's own analyzer reads them (its case folding and word boundaries).
 
 from __future__ import annotations
 
-import re
 from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
@@ -139,14 +138,6 @@ class TermSwaps:
     pairs: tuple[PairShift, ...]
     groups: tuple[GroupFairness, ...]
     messages_scanned: int
-
-    @property
-    def probability_before(self) -> np.ndarray:
-        return expit(self.log_odds_before)
-
-    @property
-    def probability_after(self) -> np.ndarray:
-        return expit(self.log_odds_after)
 
 
 # --- the file -------------------------------------------------------------------
@@ -331,7 +322,7 @@ def _substituted(model, texts, message, base, src_tok, tgt_tok, found, already) 
 
     ``found[r]``/``already[r]``: occurrences of swap r's source and target in its message.
     """
-    view, featurizer = model.view, model.featurizer
+    featurizer = model.featurizer
     vec = featurizer.vectorizer
     if vec.ngram_range == (1, 1):
         column = vec.vocabulary_

@@ -64,8 +64,3 @@ def token_pattern(name: str) -> str:
         return TOKEN_PATTERNS[name]
     except KeyError:
         raise NbledgerError(f"--tokens must be one of {', '.join(TOKEN_PATTERNS)}, got {name!r}") from None
-
-
-def pattern_name(pattern: str) -> str | None:
-    """The name of a known pattern, or None for any other regular expression."""
-    return next((name for name, p in TOKEN_PATTERNS.items() if p == pattern), None)

@@ -48,6 +48,7 @@ from explain.analysis.assessment import Assessment
 from explain.analysis.error_review import ReviewedMessage
 from explain.analysis.ranking import OperatingPoint
 from explain.analysis.rates import Estimate, Rate
+from explain.present import numbers
 from explain.present.numbers import p_value, per_10000_text
 from explain.present.token_display import shown
 from explain.present.wording import probability
@@ -86,25 +87,20 @@ def to_json(result: Assessment, model=None, data=None) -> dict:
 # --- number formats ---------------------------------------------------------------
 
 
-def _digits(x: float) -> int:
-    """One decimal of a percentage, two below 1 % where the small rates an auditor reads live."""
-    return 2 if abs(100 * x) < 1 else 1
+# Every format is :mod:`explain.present.numbers`'s (one module for every screen and page).
 
 
 def _pct(x: float) -> str:
-    return "-" if not math.isfinite(x) else f"{100 * x:.{_digits(x)}f} %"
+    return numbers.percent(x)
 
 
 def _interval(value: float, low: float, high: float, n: int) -> str:
     """A share as ``93.7 % (90.6 to 95.8)``: the one interval style of every screen."""
-    if n == 0:
-        return "undefined (0/0)"
-    d = _digits(min(value, low))
-    return f"{100 * value:.{d}f} % ({100 * low:.{d}f} to {100 * high:.{d}f})"
+    return numbers.interval(value, low, high, n)
 
 
 def _rate(r: Rate) -> str:
-    return _interval(r.value, r.low, r.high, r.denominator)
+    return numbers.rate(r)
 
 
 def _count_interval(e: Estimate) -> str:
@@ -126,16 +122,16 @@ def prob(p: float) -> str:
 
 
 def _num(x: float, digits: int = 3) -> str:
-    return "-" if x is None or not math.isfinite(x) else f"{x:.{digits}f}"
+    return numbers.decimal(x, digits)
 
 
 def _exact(x: float) -> str:
     """A log-odds threshold with every digit, as typed back to ``--threshold-log-odds``."""
-    return repr(float(x))
+    return numbers.exact(x)
 
 
 def _level(result: Assessment) -> str:
-    return f"{100 * result.confidence:g} %"
+    return numbers.level(result.confidence)
 
 
 # --- tables that fit ------------------------------------------------------------------

@@ -73,19 +73,19 @@ def _prob(p) -> str:
 
 def _exact(x) -> str:
     """A threshold log-odds with every digit, as typed back to ``--threshold-log-odds`` (as ``assess`` prints it)."""
-    return "–" if x is None else repr(float(x))
+    return numbers.exact(x)
 
 
 #: a no-break space: a figure, its unit and its interval never part across lines (the glossary's rule)
-NBSP = "\u00a0"
+NBSP = numbers.NBSP
 
 
-def _pct(x, digits: int = 1) -> str:
-    return "–" if x is None else f"{100 * x:.{digits}f}{NBSP}%"
+def _pct(x, digits: int | None = None) -> str:
+    return numbers.percent(x, digits, space=NBSP)
 
 
 def _num(x, digits: int = 3) -> str:
-    return "–" if x is None else f"{x:.{digits}f}"
+    return numbers.decimal(x, digits)
 
 
 def _per10k_value(v, low, high) -> str:
@@ -119,22 +119,19 @@ def _pvalue(x) -> str:
 
 
 def _count(x) -> str:
-    return "–" if x is None else f"{x:,.0f}"
+    return numbers.MISSING if x is None else f"{x:,.0f}"
 
 
-def _share(value, low, high, digits: int = 1) -> str:
+def _share(value, low, high, digits: int | None = None) -> str:
     """A share with its interval, in the glossary's one style (as :func:`_rate` prints a rate)."""
     if value is None:
-        return "–"
-    return _rate({"value": value, "low": low, "high": high, "denominator": 1}, digits)
+        return numbers.MISSING
+    return numbers.interval(value, low, high, 1, digits, space=NBSP)
 
 
-def _rate(r: dict, digits: int = 1) -> str:
-    if r is None or r["denominator"] == 0 or r["value"] is None:
-        return "undefined (0 of 0)"
-    # the glossary's one style: the estimate, then the interval in round brackets with "to"
-    low, high = f"{100 * r['low']:.{digits}f}", f"{100 * r['high']:.{digits}f}"
-    return f"{100 * r['value']:.{digits}f}{NBSP}%{NBSP}({low}{NBSP}to{NBSP}{high})"
+def _rate(r: dict, digits: int | None = None) -> str:
+    """A rate (the JSON twin's ``{value, low, high, denominator}``): the estimate, then its interval."""
+    return numbers.rate(r, digits, space=NBSP)
 
 
 # --- pictures ------------------------------------------------------------------------
