@@ -39,11 +39,17 @@ def test_every_card_and_iban_is_found(figures):
 
 
 def test_reference_values_of_the_number_checks():
-    # 4111 1111 1111 1111: the card networks' published test number (from memory); it passes Luhn.
+    # 4111 1111 1111 1111: the card networks' published test number (recalled); that it passes the
+    # Luhn check is confirmed by python-stdnum's luhn module, and one changed digit fails it.
+    from stdnum import iban, luhn
+
+    assert luhn.is_valid("4111111111111111") and not luhn.is_valid("4111111111111112")
     assert find_personal("card 4111 1111 1111 1111 ok") == [(5, 24, "card")]
     # One digit changed breaks Luhn: no longer a card (a long digit run, or a phone at most).
     assert all(k != "card" for _, _, k in find_personal("card 4111 1111 1111 1112 ok"))
-    # GB82 WEST 1234 5698 7654 32: the IBAN example of the ISO 13616 registry (from memory).
+    # GB82 WEST 1234 5698 7654 32: the IBAN example of the ISO 13616 registry (recalled); python-stdnum's
+    # iban module (ISO 13616 check digits and the country's format) confirms it.
+    assert iban.is_valid("GB82WEST12345698765432") and not iban.is_valid("GB82WEST12345698765433")
     assert find_personal("to GB82 WEST 1234 5698 7654 32 today") == [(3, 30, "iban")]
     assert token_kind("gb82west12345698765432") == "iban" and token_kind("gb82west12345698765433") is None
     # A US number of the reserved 555-01xx block, valid for phonenumbers with its area code.

@@ -126,11 +126,16 @@ def top_k_per_row(X: sp.csr_matrix, values: np.ndarray, k: int, rows: np.ndarray
         return tuple(out)
     if rows is None:
         rows = np.repeat(np.arange(n), np.diff(X.indptr))
-    for side, scores, last in ((0, np.where(values > 0, values, -np.inf), False),
-                               (2, np.where(values < 0, -values, -np.inf), True)):
-        for j, (r, pos) in enumerate(_row_extremes(X.indptr, rows, scores, k, last)):
-            out[side][r, j] = X.indices[pos]
-            out[side + 1][r, j] = values[pos]
+    for side, sign, last in ((0, 1.0, False), (2, -1.0, True)):
+        # only the entries of this side take part: the rounds pass over them alone
+        at = np.flatnonzero(sign * values > 0)
+        if len(at) == 0:
+            continue
+        side_rows = rows[at]
+        side_indptr = np.concatenate(([0], np.cumsum(np.bincount(side_rows, minlength=n))))
+        for j, (r, pos) in enumerate(_row_extremes(side_indptr, side_rows, sign * values[at], k, last)):
+            out[side][r, j] = X.indices[at[pos]]
+            out[side + 1][r, j] = values[at[pos]]
     return tuple(out)
 
 

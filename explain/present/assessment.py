@@ -33,7 +33,6 @@ is printed stacked, one block per row.
 
 from __future__ import annotations
 
-import dataclasses
 import math
 import re
 import textwrap
@@ -49,27 +48,12 @@ from explain.analysis.error_review import ReviewedMessage
 from explain.analysis.ranking import OperatingPoint
 from explain.analysis.rates import Estimate, Rate
 from explain.present import numbers
+from explain.present.json_values import strict
 from explain.present.numbers import p_value, per_10000_text
 from explain.present.token_display import shown
 from explain.present.wording import probability
 
 SCHEMA = "nbledger.assess/1"
-
-
-def _plain(obj):
-    if dataclasses.is_dataclass(obj):
-        return {f.name: _plain(getattr(obj, f.name)) for f in dataclasses.fields(obj)}
-    if isinstance(obj, np.ndarray):
-        return _plain(obj.tolist())
-    if isinstance(obj, (list, tuple)):
-        return [_plain(v) for v in obj]
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, (int, np.integer)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        return float(obj) if math.isfinite(obj) else None
-    return obj
 
 
 def to_json(result: Assessment, model=None, data=None) -> dict:
@@ -80,7 +64,7 @@ def to_json(result: Assessment, model=None, data=None) -> dict:
             "path": str(model.path), "sha256": model.sha256, "fingerprint": getattr(model, "fingerprint", None),
         },
         "data": None if data is None else {"path": str(data.source), "sha256": data.sha256},
-        "assessment": _plain(result),
+        "assessment": strict(result),
     }
 
 

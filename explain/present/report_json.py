@@ -11,33 +11,15 @@ become ``null``.
 from __future__ import annotations
 
 import dataclasses
-import json
-import math
-
-import numpy as np
 
 from explain.analysis.report import Report
 from explain.present import assessment as assessment_json
 from explain.present import probe as probe_present
 from explain.present import vocab as vocab_json
+from explain.present.json_values import strict, text
 from explain.present.ledger_json import to_json as why_json
 
 SCHEMA = "nbledger.report/1"
-
-
-def _finite(obj):
-    """``obj`` with NaN and infinities replaced by None, tuples and arrays as lists."""
-    if isinstance(obj, dict):
-        return {k: _finite(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple, np.ndarray)):
-        return [_finite(v) for v in obj]
-    if isinstance(obj, (bool, np.bool_)):
-        return bool(obj)
-    if isinstance(obj, (int, np.integer)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        return float(obj) if math.isfinite(obj) else None
-    return obj
 
 
 def _without(d: dict, *keys: str) -> dict:
@@ -63,7 +45,7 @@ def to_json(report: Report) -> dict:
     data = _file(report.data)
     if data is not None and a is not None:
         data["rows_per_class"] = dict(zip(a.base_rates.classes, a.base_rates.counts.tolist()))
-    return _finite(
+    return strict(
         {
             "schema": SCHEMA,
             "circulation": "internal",
@@ -128,4 +110,4 @@ def dumps(report: Report) -> str:
 
 def twin_text(twin: dict) -> str:
     """A JSON twin already built (:func:`to_json`) as text, as :func:`dumps` writes it."""
-    return json.dumps(twin, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    return text(twin)
