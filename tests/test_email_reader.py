@@ -23,8 +23,9 @@ from explain.model.email_reader import (
 
 # RFC 2047 section 8 ("Examples"). The encoded inputs match the copy of that section in git's
 # test suite (git/git t/t5100/rfc2047-samples.mbox); the displayed forms are those the RFC's
-# table gives, from memory. Runs of white space collapse to one space, as the reader does
-# for every header value.
+# table gives, recalled, and confirmed in the test by the standard library's RFC 2047 decoder
+# (email.header.decode_header and make_header). Runs of white space collapse to one space, as
+# the reader does for every header value.
 RFC2047_SECTION_8 = [
     ("=?US-ASCII?Q?Keith_Moore?= <moore@cs.utk.edu>", "Keith Moore <moore@cs.utk.edu>"),
     ("=?ISO-8859-1?Q?Keld_J=F8rn_Simonsen?= <keld@dkuug.dk>", "Keld J\u00f8rn Simonsen <keld@dkuug.dk>"),
@@ -45,6 +46,9 @@ RFC2047_SECTION_8 = [
 
 @pytest.mark.parametrize("encoded, shown", RFC2047_SECTION_8)
 def test_rfc2047_section_8_examples(encoded, shown):
+    from email.header import decode_header, make_header
+
+    assert " ".join(str(make_header(decode_header(encoded))).split()) == shown
     raw = f"From: {encoded}\nSubject: {encoded}\n\nbody\n".encode("ascii")
     mail = read_email(raw)
     assert (mail.subject, mail.sender) == (shown, shown)
