@@ -291,9 +291,12 @@ def test_resolve_text_view_follows_the_card_and_refuses_a_mismatch():
     card = {"settings": {"text_view": "subject+body"}}
     assert resolve_text_view(card) == "subject+body"
     assert resolve_text_view(card, "subject+body") == "subject+body"
-    assert resolve_text_view(None) == "body" and resolve_text_view({"settings": {}}, "headers+body") == "headers+body"
+    # Without a card recording a view, the text as given (the raw text view).
+    assert resolve_text_view(None) == "raw" and resolve_text_view({"settings": {}}, "headers+body") == "headers+body"
     with pytest.raises(NbledgerError, match="differs from the model card"):
         resolve_text_view(card, "body")
+    with pytest.raises(NbledgerError, match="records training on the subject.body view"):
+        resolve_text_view(card, "raw")
     with pytest.raises(NbledgerError, match="unknown text view"):
         resolve_text_view(None, "subject")
 

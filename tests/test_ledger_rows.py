@@ -16,6 +16,7 @@ from hypothesis import strategies as st
 from corpora import cases, loaded, make_pipeline, messages
 from explain.analysis.drivers import flag_margin
 from explain.analysis.evidence import explain_message
+from explain.analysis.ledger import ledger_of
 from explain.analysis.ledger_rows import ledger_rows
 from explain.model.decision import DecisionRule
 from explain.present.ledger_files import ledger_table
@@ -48,12 +49,23 @@ def check_rows_equal_why(model, texts, threshold):
             assert math.isclose(row["flag_probability"], e.flag_probability, **close)
             assert row["flagged"] == (e.decision != model.view.classes[rule.normal_index])
             assert math.isclose(row["margin"], float(flag_margin(rule, e.jll[None, :])[0]), **close)
-        for side, key in (("for", "top_for"), ("against", "top_against")):
-            want = e.strongest(TOP, side)
+        # The top tokens are the entries of why's ledger (its comparison: credit_class against debit_class).
+        book = ledger_of(model, text, threshold)
+        assert (row["credit_class"], row["debit_class"]) == (book.credit_class, book.debit_class)
+        assert row["text_view"] == "raw"
+        own = {x.token: x.amount for x in book.entries}
+        if not book.exact:
+            # A threshold over several flagged classes: the ledger's entries are changes in order; the rows
+            # give each token's exact share of credit_class against debit_class instead.
+            c, d = (list(book.classes).index(k) for k in (book.credit_class, book.debit_class))
+            W = model.view.weights
+            own = {t.token: t.value * (W[c, t.column] - W[d, t.column]) for t in e.tokens}
+        amounts = sorted(own.values())
+        for key, want in (("top_for", [a for a in amounts[::-1] if a > 0][:TOP]),
+                          ("top_against", [a for a in amounts if a < 0][:TOP])):
             assert len(row[key]) == len(want)
-            # Tokens of equal evidence may come in either order; each listed token carries its own evidence.
-            np.testing.assert_allclose(row[key + "_evidence"], [t.evidence for t in want], rtol=1e-12, atol=1e-12)
-            own = {t.token: t.evidence for t in e.tokens}
+            # Tokens of equal evidence may come in either order; each listed token carries its own entry.
+            np.testing.assert_allclose(row[key + "_evidence"], want, rtol=1e-12, atol=1e-12)
             for token, value in zip(row[key], row[key + "_evidence"]):
                 assert math.isclose(own[token], value, **close)
         if e.flip.exact and e.flip.removals:

@@ -118,10 +118,13 @@ def test_a_view_other_than_the_cards_is_one_error_line(body_model, folder, capsy
     path = sorted((folder / "ok").glob("*.eml"))[0]
     line = nbledger(capsys, "why", body_model, "--file", path, "--text-view", "headers+body").one_error_line()
     assert "differs from the model card" in line and "body view" in line
+    raw = nbledger(capsys, "why", body_model, "--file", path, "--text-view", "raw").one_error_line()
+    assert "--text-view raw differs from the model card" in raw and "the body view" in raw
 
 
 def test_why_reads_an_eml_from_standard_input(body_model, folder, capsys, monkeypatch):
     path = sorted((folder / "ok").glob("*.eml"))[0]
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")  # one date for both records, whenever the second ticks
     by_file = nbledger(capsys, "why", body_model, "--file", path, "--format", "json")
     monkeypatch.setattr(sys, "stdin", io.TextIOWrapper(io.BytesIO(path.read_bytes())))
     by_stdin = nbledger(capsys, "why", body_model, "-", "--format", "json")

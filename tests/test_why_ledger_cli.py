@@ -95,7 +95,7 @@ def test_several_ids_into_one_output(demo, capsys, tmp_path):
     result = nbledger(capsys, "why", model, "--data", data, "--ids", ids, "--format", "json")
     assert result.code == 0, result.err
     doc = json.loads(result.out)
-    assert doc["schema"] == "nbledger.why-set/2"
+    assert doc["schema"] == "nbledger.why-set/3"
     assert [m["message_id"] for m in doc["messages"]] == ["m1", "m7"]
     text = nbledger(capsys, "why", model, "--data", data, "--ids", ids, "--out", tmp_path / "both.txt")
     assert text.code == 0

@@ -17,8 +17,8 @@ DOCUMENTED_KEYS = {
     "tokens", "spans_note", "unknown_tokens", "flip_set", "flip_exact", "flip_method", "flip_decision",
     "flip_reason", "feature_kind", "variant", "email",
 }
-# nbledger.why/2 only adds keys beside those of nbledger.why/1.
-ADDED_KEYS = {"message_id", "date", "card_date", "redacted", "circulation", "ledger", "collisions"}
+# nbledger.why/2 and /3 only add keys beside those of nbledger.why/1 (/3: text_view, and ledger.versus ...).
+ADDED_KEYS = {"message_id", "date", "card_date", "redacted", "circulation", "ledger", "collisions", "text_view"}
 MESSAGE = "Your parcel is at the depot: pay the fee at http://parcel-fee.example.net/x today, thanks"
 
 
@@ -43,10 +43,11 @@ def test_json_carries_the_documented_keys_and_adds_up(model, capsys):
     result = nbledger(capsys, "why", model, MESSAGE, "--format", "json", "--threshold", "0.5")
     assert result.code == 0, result.err
     doc = json.loads(result.out)
-    assert set(doc) == DOCUMENTED_KEYS | ADDED_KEYS and doc["schema"] == SCHEMA == "nbledger.why/2"
+    assert set(doc) == DOCUMENTED_KEYS | ADDED_KEYS and doc["schema"] == SCHEMA == "nbledger.why/3"
     ledger = doc["ledger"]
     assert math.isclose(ledger["opening"] + sum(e["amount"] for e in ledger["entries"]), ledger["closing"], rel_tol=1e-9)
     assert ledger["credit_side"] == "flagged" and ledger["debit_class"] == "ok" and not ledger["exact"]
+    assert ledger["versus"] == "flag-log-odds" and ledger["beat"] is None and doc["text_view"] == "raw"
     assert math.isclose(doc["baseline"] + sum(t["evidence"] for t in doc["tokens"]), doc["log_odds"], rel_tol=1e-9)
     assert math.isclose(sum(doc["probabilities"].values()), 1.0, rel_tol=1e-12)
     assert doc["normal_class"] == "ok" and doc["decision"] == doc["predicted"] == "scam"

@@ -2,9 +2,11 @@
 
 For each message: joint log-likelihoods, probabilities, the predicted class
 and the runner-up, their log-odds, the decision under a :class:`DecisionRule`,
-and the ``k`` tokens with the strongest evidence for and against the
-predicted class (``x_j * (W[predicted, j] - W[runner_up, j])``). There is no
-Python loop per message: ranking within rows is one sort over all non-zeros.
+the ledger's comparison (:meth:`DecisionRule.sides`: the credit and debit
+class, as ``why``'s ledger tells the message) and the ``k`` tokens with the
+largest entries toward each side (``x_j * (W[credit, j] - W[debit, j])``).
+There is no Python loop per message: ranking within rows is one sort over all
+non-zeros.
 """
 
 from __future__ import annotations
@@ -14,7 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from explain.model.decision import DecisionRule
+from explain.model.decision import DecisionRule, top_two
 from explain.model.model_view import ModelView
 
 
@@ -22,11 +24,13 @@ from explain.model.model_view import ModelView
 class BatchEvidence:
     """Scores and strongest evidence of ``n`` messages (arrays of length n).
 
-    ``top_for``/``top_against`` hold feature columns (-1 where a message has
-    fewer than k tokens of that sign) and ``top_for_evidence``/
-    ``top_against_evidence`` their evidence (0 where the column is -1).
-    ``flag_log_odds`` is ``log P(not normal) - log P(normal)``, or None when
-    the model has no normal class.
+    ``credit``/``debit`` (n,) are the ledger's two classes per message
+    (:meth:`DecisionRule.sides`). ``top_for``/``top_against`` hold feature
+    columns of the tokens with the largest entries toward the credit and the
+    debit class (-1 where a message has fewer than k tokens of that sign) and
+    ``top_for_evidence``/``top_against_evidence`` their entries, the ledger's
+    amounts (0 where the column is -1). ``flag_log_odds`` is ``log P(not
+    normal) - log P(normal)``, or None when the model has no normal class.
     """
 
     classes: np.ndarray
@@ -40,6 +44,8 @@ class BatchEvidence:
     flag_log_odds: np.ndarray | None
     threshold: float | None
     normal_index: int | None
+    credit: np.ndarray
+    debit: np.ndarray
     top_for: np.ndarray
     top_for_evidence: np.ndarray
     top_against: np.ndarray
@@ -47,16 +53,6 @@ class BatchEvidence:
 
     def __len__(self) -> int:
         return len(self.predicted)
-
-
-def top_two(jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Indices of the best and second-best class per row (argmax tie rule)."""
-    predicted = np.argmax(jll, axis=1)
-    if jll.shape[1] == 1:
-        return predicted, predicted
-    masked = jll.copy()
-    masked[np.arange(len(jll)), predicted] = -np.inf
-    return predicted, np.argmax(masked, axis=1)
 
 
 def by_row_then_value(rows: np.ndarray, values: np.ndarray, non_negative: bool = False) -> np.ndarray:
@@ -173,9 +169,10 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
     jll = view.joint_log_likelihood(X)
     probabilities = view.posterior(jll)
     predicted, runner_up = top_two(jll)
+    credit, debit = rule.sides(jll)
     if top_k > 0:
         rows = np.repeat(np.arange(X.shape[0]), np.diff(X.indptr))
-        evidence = evidence_values(view, X, predicted, runner_up, rows)
+        evidence = evidence_values(view, X, credit, debit, rows)
         top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, evidence, top_k, rows)
     else:
         top_for, top_for_ev, top_against, top_against_ev = top_k_per_row(X, np.zeros(0), 0)
@@ -192,6 +189,8 @@ def batch_evidence(view: ModelView, X, rule: DecisionRule, top_k: int = 5) -> Ba
         flag_log_odds=flag,
         threshold=rule.threshold,
         normal_index=rule.normal_index,
+        credit=credit,
+        debit=debit,
         top_for=top_for,
         top_for_evidence=top_for_ev,
         top_against=top_against,

@@ -40,7 +40,7 @@ import numpy as np
 from explain.analysis.rates import BinaryMetrics, Rate, binary_metrics, frozen, rate_of
 from explain.analysis.stats import McNemarTest, mcnemar
 from explain.errors import NbledgerError
-from explain.model.decision import DecisionRule
+from explain.model.decision import DecisionRule, check_threshold, flag_probability
 
 DEFAULT_TOP = 15
 DEFAULT_SHOW = 20
@@ -185,6 +185,8 @@ class Comparison:
     new_classes: tuple[str, ...]
     normal_class: str | None
     threshold: float | None
+    #: the same threshold as flag log-odds, exact when it was given so
+    threshold_log_odds: float | None
     same_text_steps: bool
     vocabulary: VocabularyChange
     decisions: DecisionChanges | None
@@ -359,9 +361,9 @@ def vocabulary_change(old, new, normal_class: str | None, top: int = DEFAULT_TOP
     )
 
 
-def _decide(model, texts, normal_class, threshold) -> np.ndarray:
+def _decide(model, texts, normal_class, threshold, threshold_log_odds=None) -> np.ndarray:
     view = model.view.with_normal_class(normal_class)
-    rule = DecisionRule.for_view(view, threshold)
+    rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     jll = view.joint_log_likelihood(view.prepare(model.featurizer.transform(texts)))
     return np.asarray(view.classes, dtype=object)[rule.decide(jll)].astype(str)
 
@@ -379,13 +381,17 @@ def _score(decided: np.ndarray, labels: np.ndarray, normal_class: str | None, co
     return ModelScore(rate_of(int(right.sum()), len(right), confidence), flagging)
 
 
-def decision_changes(old, new, messages, normal_class, threshold, show: int = DEFAULT_SHOW, confidence: float = 0.95):
-    """Both models' decisions on ``messages`` (:class:`explain.model.data_io.Messages`)."""
+def decision_changes(old, new, messages, normal_class, threshold, show: int = DEFAULT_SHOW, confidence: float = 0.95,
+                     threshold_log_odds: float | None = None, text_view: str | None = None):
+    """Both models' decisions on ``messages`` (:class:`explain.model.data_io.Messages`).
+
+    The threshold is a probability (``threshold``) or exact flag log-odds (``threshold_log_odds``).
+    """
     from explain.analysis.ledger import ledger_of
 
     texts = list(messages.texts)
-    old_decided = _decide(old, texts, normal_class, threshold)
-    new_decided = _decide(new, texts, normal_class, threshold)
+    old_decided = _decide(old, texts, normal_class, threshold, threshold_log_odds)
+    new_decided = _decide(new, texts, normal_class, threshold, threshold_log_odds)
     moved = np.flatnonzero(old_decided != new_decided)
     counts = Counter(zip(old_decided[moved].tolist(), new_decided[moved].tolist()))
     changes = tuple((a, b, n) for (a, b), n in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0])))
@@ -394,7 +400,8 @@ def decision_changes(old, new, messages, normal_class, threshold, show: int = DE
 
     def ledger(model, i):
         view_model = _with_normal(model, normal_class)
-        return ledger_of(view_model, texts[i], threshold, message_id=str(ids[i]))
+        return ledger_of(view_model, texts[i], threshold, threshold_log_odds=threshold_log_odds,
+                         message_id=str(ids[i]), text_view=text_view)
 
     shown = tuple(
         ChangedMessage(
@@ -424,11 +431,19 @@ def _with_normal(model, normal_class):
 
 
 def compare_models(old, new, messages=None, *, normal_class: str | None = None, threshold: float | None = None,
-                   top: int = DEFAULT_TOP, show: int = DEFAULT_SHOW, confidence: float = 0.95) -> Comparison:
-    """Compare two loaded models (:class:`explain.model.loading.LoadedModel`), optionally on messages."""
+                   top: int = DEFAULT_TOP, show: int = DEFAULT_SHOW, confidence: float = 0.95,
+                   threshold_log_odds: float | None = None, text_view: str | None = None) -> Comparison:
+    """Compare two loaded models (:class:`explain.model.loading.LoadedModel`), optionally on messages.
+
+    The threshold is a probability (``threshold``) or exact flag log-odds
+    (``threshold_log_odds``); ``text_view`` names the view the messages were read in.
+    """
     notes: list[str] = []
     normal = _normal_class(old, new, normal_class)
-    if threshold is not None and normal is None:
+    check_threshold(threshold, threshold_log_odds)
+    if threshold_log_odds is not None:
+        threshold = None
+    if (threshold is not None or threshold_log_odds is not None) and normal is None:
         raise NbledgerError("a threshold needs a normal class that both models have: name it with --normal-class")
     old_classes, new_classes = tuple(map(str, old.view.classes)), tuple(map(str, new.view.classes))
     same_file = old.sha256 == new.sha256
@@ -468,7 +483,8 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
     vocabulary = vocabulary_change(old, new, normal, top, per_occurrence=weights == PER_OCCURRENCE)
     decisions = None
     if messages is not None:
-        decisions = decision_changes(old, new, messages, normal, threshold, show, confidence)
+        decisions = decision_changes(old, new, messages, normal, threshold, show, confidence,
+                                     threshold_log_odds, text_view)
         if messages.labels is not None:
             unknown = sorted(set(map(str, messages.labels)) - set(old_classes) - set(new_classes))
             if unknown:
@@ -477,9 +493,15 @@ def compare_models(old, new, messages=None, *, normal_class: str | None = None, 
         old_path=str(old.path), new_path=str(new.path), old_sha256=old.sha256, new_sha256=new.sha256,
         old_fingerprint=getattr(old, "fingerprint", None), new_fingerprint=getattr(new, "fingerprint", None),
         same_file=same_file, old_classes=old_classes, new_classes=new_classes, normal_class=normal,
-        threshold=threshold, same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
+        threshold=threshold if threshold_log_odds is None else float(flag_probability(threshold_log_odds)),
+        threshold_log_odds=threshold_log_odds if threshold is None else _logit(threshold),
+        same_text_steps=same_steps, vocabulary=vocabulary, decisions=decisions,
         notes=tuple(notes), settings=settings, weights_compared=weights,
     )
+
+
+def _logit(threshold: float | None) -> float | None:
+    return None if threshold is None else DecisionRule(2, 0, threshold).threshold_log_odds
 
 
 def redacted_comparison(comparison: Comparison, ids=None, names: frozenset[str] = frozenset()) -> Comparison:

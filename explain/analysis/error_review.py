@@ -6,9 +6,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.special import expit
 
 from explain.analysis.batch import evidence_matrix, top_k_per_row
+from explain.model.decision import flag_probability
 from explain.model.model_view import ModelView
 
 
@@ -147,7 +147,7 @@ def _reviewed(rows, view, X, ctx: Decisions, top_tokens: int) -> tuple[ReviewedM
             true_class=str(classes[ctx.truth[r]]),
             decided_class=str(classes[ctx.decided[r]]),
             flag_class=str(classes[ctx.flag_class[r]]),
-            flag_probability=float(expit(ctx.scores[r])),
+            flag_probability=float(flag_probability(ctx.scores[r])),
             flag_log_odds=float(ctx.scores[r]),
             margin=float(ctx.margin[r]),
             toward_flag=pushes[i][0],

@@ -26,11 +26,15 @@ Both are exact for count and presence features with two classes (argmax or
 a threshold): the decision compares one sum with a constant. (With
 BernoulliNB's ``binarize`` of 1 or more a unit can take several occurrences;
 the minimum is then over units, as for the flip set.) Every answer is
-confirmed by re-scoring the new count rows exactly. For TF-IDF (an addition
+confirmed by re-scoring the new count rows exactly. Exact costs are never
+capped: the cheapest attack is a prefix of the whole sorted vocabulary (a
+cumulative sum), however long. For TF-IDF (an addition
 re-normalises the row), argmax over more than two classes, or a threshold
 over several flagged classes, the attack is built greedily, one unit at a
 time, each step re-scored exactly over the :data:`GREEDY_CANDIDATES` tokens
-pulling hardest toward the normal class, and labelled greedy.
+pulling hardest toward the normal class, and labelled greedy; only this
+search stops at ``max_added`` units, and a message past it counts as "more
+than max_added" (:class:`MoreThan`).
 
 Only tokens that the model's own analyzer turns back into themselves can be
 added as text; with word n-grams, words added to a text also form new n-grams
@@ -58,21 +62,35 @@ BUDGETS = ("repeats", "distinct")
 
 
 @dataclass(frozen=True)
+class MoreThan:
+    """A cost past what was searched: more than ``limit`` added units (the greedy search's cap).
+
+    ``limit`` None: exact costs, and no addition of tokens lets the message through.
+    """
+
+    limit: int | None
+
+    def __str__(self) -> str:
+        return "no attack" if self.limit is None else f"more than {self.limit}"
+
+
+@dataclass(frozen=True)
 class CostSummary:
     """Evasion costs of the messages decided as one flagged class (one budget).
 
     ``median``/``q1``/``q3`` are over every message of the class, counting a
-    message not evaded within the limit as costing more than any evaded one
-    (None when more than that share is unevaded); ``within[k]`` is the share
+    message not evaded as costing more than any evaded one: a number of added
+    units, or :class:`MoreThan` when the quartile falls among messages past
+    the greedy search's cap (never missing); ``within[k]`` is the share
     evaded with at most ``k`` added units.
     """
 
     flagged_class: str
     messages: int
     evaded: int
-    median: float | None
-    q1: float | None
-    q3: float | None
+    median: float | MoreThan
+    q1: float | MoreThan
+    q3: float | MoreThan
     within: tuple[tuple[int, float], ...]
 
 
@@ -97,8 +115,8 @@ class WeakPoint:
 class BudgetResult:
     """One budget's attack on every flagged message.
 
-    ``costs``: int array (n_flagged,), units added, -1 where no attack within
-    ``max_added`` was found; ``additions[i]``: ``(token, occurrences)`` pairs of
+    ``costs``: int array (n_flagged,), units added, -1 where no attack was
+    found (exact: none exists; greedy: none within ``max_added``); ``additions[i]``: ``(token, occurrences)`` pairs of
     message i's attack (empty when none).
     """
 
@@ -160,15 +178,24 @@ def unit_sizes(view, featurizer, counts: np.ndarray) -> np.ndarray:
     return np.where(counts > limit, 0, np.maximum(need, 1)).astype(np.int64)
 
 
-def evasion_costs(model, texts, rule: DecisionRule, max_added: int = 50) -> Evasion:
-    """The cheapest additions that let every flagged message of ``texts`` through."""
+def evasion_costs(model, texts, rule: DecisionRule, max_added: int = 50, counts=None) -> Evasion:
+    """The cheapest additions that let every flagged message of ``texts`` through.
+
+    ``counts`` may hold the texts' occurrence counts (n, F) when the caller has them.
+    """
     view, featurizer = model.view, model.featurizer
     if max_added < 1:
         raise NbledgerError(f"--max-added must be at least 1, got {max_added}")
     if rule.normal_index is None or view.n_classes < 2:
         raise NbledgerError("evasion needs a normal class to reach: name it with --normal-class")
     normal = rule.normal_index
-    counts = raw_counts(featurizer, texts)
+    if counts is None:
+        counts = raw_counts(featurizer, texts)
+    else:
+        counts = sp.csr_matrix(counts, dtype=np.float64, copy=True)
+        counts.sort_indices()
+        if featurizer.vectorizer.binary:
+            counts.data[:] = 1.0  # as raw_counts gives them: a binary vectorizer counts presence
     jll = _score(view, featurizer, counts)
     decided = rule.decide(jll)
     rows = np.flatnonzero(decided != normal)
@@ -196,7 +223,7 @@ def evasion_costs(model, texts, rule: DecisionRule, max_added: int = 50) -> Evas
             method="exact" if exact else "greedy",
             costs=costs,
             additions=adds,
-            summaries=_summaries(view, costs, decided, max_added),
+            summaries=_summaries(view, costs, decided, None if exact else max_added),
             weak_points=_weak_points(view, rule, adds),
         )
         for budget, (costs, adds) in results.items()
@@ -227,55 +254,97 @@ def evasion_costs(model, texts, rule: DecisionRule, max_added: int = 50) -> Evas
 
 
 def _exact(view, featurizer, rule, counts, jll, decided, ok, budget, presence, max_added):
+    """Exact costs, never capped: a sorted cumulative sum over the whole vocabulary (``max_added`` unused)."""
     normal = rule.normal_index
     flagged = 1 - normal
     gain = view.weights[flagged] - view.weights[normal]  # margin change per unit, (F,)
     pull = np.flatnonzero(ok & (gain < 0))
     pull = pull[np.argsort(gain[pull], kind="stable")]  # most negative first
     n = counts.shape[0]
-    costs = np.full(n, -1, dtype=np.int64)
-    cols: list[np.ndarray] = [np.zeros(0, np.int64)] * n
-    sizes: list[np.ndarray] = [np.zeros(0, np.int64)] * n
     if len(pull) == 0:
-        return costs, tuple(() for _ in range(n))
+        return np.full(n, -1, dtype=np.int64), tuple(() for _ in range(n))
     margin = jll[:, flagged] - jll[:, normal]
+    # The margin must fall below the line (threshold: strictly; argmax: to 0 or below, the
+    # normal class winning ties only when it comes first; _confirm_all settles ties exactly).
+    line = rule.threshold_log_odds if rule.threshold is not None else 0.0
     if budget == "repeats" and not presence:
         # One token repeated k times: the margin is linear in k.
-        best = pull[0]
-        step = -gain[best]
-        if rule.threshold is not None:
-            k = np.floor((margin - rule.threshold_log_odds) / step) + 1
-        else:
-            k = np.ceil((margin) / step)
-        k = np.clip(k, 1, max_added)
-        cols = [np.full(max_added, best)] * n
-        sizes = [np.ones(max_added, dtype=np.int64)] * n
-    else:
-        k = np.zeros(n, dtype=np.int64)
-        indptr, indices, data = counts.indptr, counts.indices, counts.data
-        for i in range(n):
-            present = indices[indptr[i] : indptr[i + 1]]
-            head = pull[: max_added + len(present)]
-            if presence:
-                lookup = dict(zip(present.tolist(), data[indptr[i] : indptr[i + 1]].tolist()))
-                values = np.array([lookup.get(int(j), 0.0) for j in head])
-                size = unit_sizes(view, featurizer, values)
-                keep = size > 0
-            else:
-                keep = ~np.isin(head, present)
-                size = np.ones(len(head), dtype=np.int64)
-            chosen, size = head[keep][:max_added], size[keep][:max_added]
-            row = margin[i] + np.cumsum(gain[chosen])
-            if rule.threshold is not None:
-                through = np.flatnonzero(row < rule.threshold_log_odds)
-            else:
-                through = np.flatnonzero(row <= 0)
-            cols[i], sizes[i] = chosen, size
-            k[i] = through[0] + 1 if len(through) else len(chosen)
-    return _confirm_all(view, featurizer, rule, counts, cols, sizes, k, max_added)
+        best, step = pull[0], -gain[pull[0]]
+        k = np.maximum(np.ceil((margin - line) / step), 1).astype(np.int64)
+        return _confirm_repeats(view, featurizer, rule, counts, best, k)
+    running = np.cumsum(gain[pull])
+    rank = np.full(len(gain), -1, dtype=np.int64)
+    rank[pull] = np.arange(len(pull))
+    cols, sizes, k = [], [], np.zeros(n, dtype=np.int64)
+    for i in range(n):
+        lo, hi = counts.indptr[i], counts.indptr[i + 1]
+        present, values = counts.indices[lo:hi], counts.data[lo:hi]
+        blocked = present[unit_sizes(view, featurizer, values) == 0] if presence else present
+        at = np.sort(rank[blocked][rank[blocked] >= 0])
+        p = _first_through(margin[i] - line, running, at, gain[pull[at]])
+        if p < 0:  # every allowed token together does not let it through: no attack exists
+            cols.append(pull[:0])
+            sizes.append(np.zeros(0, dtype=np.int64))
+            continue
+        head = pull[: min(len(pull), p + 1 + 16)]  # spare units, should exact scoring need more
+        head = head[~np.isin(head, blocked)]
+        size = np.ones(len(head), dtype=np.int64)
+        if presence:
+            lookup = dict(zip(present.tolist(), values.tolist()))
+            size = unit_sizes(view, featurizer, np.array([lookup.get(int(j), 0.0) for j in head]))
+        cols.append(head)
+        sizes.append(size)
+        k[i] = p + 1 - np.searchsorted(at, p, side="right")
+    return _confirm_all(view, featurizer, rule, counts, cols, sizes, k)
 
 
-def _confirm_all(view, featurizer, rule, counts, cols, sizes, k, max_added):
+def _first_through(room: float, running: np.ndarray, blocked: np.ndarray, blocked_gain: np.ndarray) -> int:
+    """The first position ``p`` of the sorted tokens whose prefix, without ``blocked`` positions, closes ``room``.
+
+    ``running`` is the cumulative sum of all gains (decreasing); the blocked
+    positions (sorted) split it into stretches over which the correction is
+    constant, so each stretch is one binary search. Returns -1 when adding
+    every allowed token still leaves the margin above the line.
+    """
+    correction = 0.0
+    starts = np.concatenate(([0], blocked + 1))
+    ends = np.concatenate((blocked, [len(running)]))
+    for j, (a, b) in enumerate(zip(starts, ends)):
+        if j:
+            correction += blocked_gain[j - 1]
+        if a >= b:
+            continue
+        # room + running[p] - correction <= 0  <=>  -running[p] >= room - correction
+        p = a + int(np.searchsorted(-running[a:b], room - correction, side="left"))
+        if p < b:
+            return p
+    return -1
+
+
+def _confirm_repeats(view, featurizer, rule, counts, best: int, k: np.ndarray):
+    """Settle the repeat count of every message exactly by re-scoring (the closed form may be off by one)."""
+    normal = rule.normal_index
+    n = counts.shape[0]
+
+    def passes(rows, m):
+        extra = sp.csr_matrix((m.astype(np.float64), (np.arange(len(rows)), np.full(len(rows), best))),
+                              shape=(len(rows), counts.shape[1]))
+        return rule.decide(_score(view, featurizer, sp.csr_matrix(counts[rows] + extra))) == normal
+
+    rows = np.arange(n)
+    for _ in range(64):
+        up = ~passes(rows, k)
+        k[up] += 1
+        lower = rows[~up & (k > 1)]
+        down = lower[passes(lower, k[lower] - 1)]
+        k[down] -= 1
+        if not up.any() and len(down) == 0:
+            break
+    adds = tuple(((str(view.tokens[best]), int(m)),) for m in k)
+    return k, adds
+
+
+def _confirm_all(view, featurizer, rule, counts, cols, sizes, k):
     """Re-score attacks exactly and move ``k`` until it is the shortest passing prefix.
 
     ``cols[i]``/``sizes[i]``: message i's candidate units in the order they
@@ -298,7 +367,7 @@ def _confirm_all(view, featurizer, rule, counts, cols, sizes, k, max_added):
         return rule.decide(_score(view, featurizer, sp.csr_matrix(counts[which] + extra))) == normal
 
     todo = np.flatnonzero(available > 0)
-    for _ in range(max_added + 2):
+    for _ in range(int(available.max(initial=0)) + 2):
         up = passes(todo, k[todo])
         fix = todo[~up & (k[todo] < available[todo])]
         lower = todo[up & (k[todo] > 1)]
@@ -395,14 +464,19 @@ def _with_one_more(row: np.ndarray, cand: np.ndarray, size: np.ndarray) -> sp.cs
 # --- summaries ----------------------------------------------------------------
 
 
-def _summaries(view, costs, decided, max_added) -> tuple[CostSummary, ...]:
+def _summaries(view, costs, decided, limit: int | None) -> tuple[CostSummary, ...]:
+    """Quartiles per decided class; a message not let through ranks above every evaded one.
+
+    ``limit`` is the greedy search's cap (None for exact costs): a quartile
+    among the messages past it is :class:`MoreThan` the cap; for exact costs
+    it is :class:`MoreThan` with no limit, meaning no addition lets them through.
+    """
     out = []
     for c in np.unique(decided):
         mine = costs[decided == c]
-        # Unevaded messages rank above every evaded one.
         ranked = np.where(mine < 0, np.inf, mine).astype(float)
         quart = [float(np.quantile(ranked, q, method="inverted_cdf")) for q in (0.25, 0.5, 0.75)]
-        quart = [q if np.isfinite(q) else None for q in quart]
+        quart = [q if np.isfinite(q) else MoreThan(limit) for q in quart]
         out.append(
             CostSummary(
                 flagged_class=str(view.classes[c]),

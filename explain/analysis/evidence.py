@@ -27,11 +27,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.special import expit
 
-from explain.analysis.batch import by_row_then_value, top_two
+from explain.analysis.batch import by_row_then_value
 from explain.analysis.mail_facts import MailFacts, mail_facts
-from explain.model.decision import DecisionRule
+from explain.model.decision import DecisionRule, top_two
 from explain.errors import NbledgerError
 from explain.model.featurizer import Occurrences, unknown_tokens
 from explain.model.model_view import ROW_WEIGHTED
@@ -130,7 +129,7 @@ class Explanation:
 
 def explain_message(
     model, text: str, threshold: float | None = None, threshold_log_odds: float | None = None,
-    *, mail: MailFacts | None = None,
+    *, mail: MailFacts | None = None, occurrences: Occurrences | None = None,
 ) -> Explanation:
     """The exact per-token account of ``text`` under a loaded model.
 
@@ -139,16 +138,21 @@ def explain_message(
     says what was read when ``text`` came from a raw e-mail: the one way mail
     facts reach an explanation (:func:`explain_email` and
     :func:`explain.analysis.ledger.ledger_of` both pass them here).
+    ``occurrences`` may hold ``model.featurizer.occurrences(text)`` when the
+    caller has them (the ledger does); the model is then taken as already
+    named for ``text`` (:meth:`~explain.model.loading.LoadedModel.named_for`).
     """
     if not isinstance(text, str):
         raise NbledgerError("the message must be text")
     if not text.strip():
         raise NbledgerError("the message is empty")
-    # Hashed features: no stored vocabulary, so columns are named by the message's own tokens.
-    model = model.named_for([text])
+    if occurrences is None:
+        # Hashed features: no stored vocabulary, so columns are named by the message's own tokens.
+        model = model.named_for([text])
+        occurrences = model.featurizer.occurrences(text)
+    occ = occurrences
     view, featurizer = model.view, model.featurizer
     rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
-    occ = featurizer.occurrences(text)
     x = view.prepare(featurizer.transform([text]))
     jll = view.joint_log_likelihood(x)[0]
     predicted, runner_up = (int(i[0]) for i in top_two(jll[None, :]))
@@ -176,7 +180,7 @@ def explain_message(
     )
     flag = None
     if rule.normal_index is not None and view.n_classes > 1:
-        flag = float(expit(rule.flag_log_odds(jll)[0]))  # no overflow for very long messages
+        flag = float(rule.flag_probability(jll)[0])
     decision = int(rule.decide(jll)[0])
     return Explanation(
         text=text,
@@ -331,19 +335,7 @@ def exact_flips(
     u_row, u_col, u_size = _units(view, featurizer, counts)
     jll0 = _score(view, featurizer, counts) if jll is None else jll
     tolerance = 1e-8 * (1.0 + np.abs(jll0).max(axis=1))
-    rows_n = np.arange(n)
-    if rule.threshold is not None:
-        # One margin: the flag log-odds (two classes) against the threshold.
-        flagged = decisions != rule.normal_index
-        gap = jll0[:, rule.flagged_indices[0]] - jll0[:, rule.normal_index] - rule.threshold_log_odds
-        targets = [(np.full(n, rule.flagged_indices[0]), np.full(n, rule.normal_index),
-                    np.where(flagged, 1.0, -1.0), np.where(flagged, gap, -gap), ~flagged)]
-    else:
-        targets = []
-        for t in range(C - 1):
-            rival = t + (t >= decisions)
-            # argmax gives ties to the first class: a rival before the decision wins a tie.
-            targets.append((decisions, rival, np.ones(n), jll0[rows_n, decisions] - jll0[rows_n, rival], rival < decisions))
+    targets = _targets(rule, jll0, decisions, C)
     weights_t = np.ascontiguousarray(view.weights.T)  # (F, C)
     best_units = np.zeros(n, dtype=np.int64)
     best_size = np.zeros(n, dtype=np.int64)
@@ -379,13 +371,7 @@ def exact_flips(
         inner = has & (k > 1)
         near[inner] |= np.abs(left[last[inner] - 1]) <= tolerance[inner]
         removed = np.concatenate(([0], np.cumsum(u_size[order])))
-        def closed(jll, i):
-            """Whether the margin against the rival is closed, from exact scores ``jll`` of rows ``i``."""
-            if rule.threshold is not None:
-                return rule.decide(jll) != decisions[i]
-            a, b = jll[np.arange(len(i)), rival[i]], jll[np.arange(len(i)), decisions[i]]
-            return (a > b) | ((a == b) & tie_changes[i])
-
+        closed = _closer(rule, decisions, rival, tie_changes)
         new = np.full(n, -1, dtype=np.int64)
         done = np.flatnonzero(k > 0)
         exact = _score_after(view, featurizer, counts, done, order, starts, k, u_col, u_size)
@@ -406,6 +392,36 @@ def exact_flips(
         best_rival[better] = t
         orders.append((order, starts))
     return ExactFlips(best_units, best_size, best_new, u_col, u_size, tuple(orders), best_rival)
+
+
+def _targets(rule, jll0: np.ndarray, decisions: np.ndarray, C: int) -> list:
+    """Per rival: ``(winner, rival, sign, margin, tie_changes)`` arrays (n,) of the margins a flip must close."""
+    n = len(decisions)
+    rows_n = np.arange(n)
+    if rule.threshold is not None:
+        # One margin: the flag log-odds (two classes) against the threshold.
+        flagged = decisions != rule.normal_index
+        gap = jll0[:, rule.flagged_indices[0]] - jll0[:, rule.normal_index] - rule.threshold_log_odds
+        return [(np.full(n, rule.flagged_indices[0]), np.full(n, rule.normal_index),
+                 np.where(flagged, 1.0, -1.0), np.where(flagged, gap, -gap), ~flagged)]
+    targets = []
+    for t in range(C - 1):
+        rival = t + (t >= decisions)
+        # argmax gives ties to the first class: a rival before the decision wins a tie.
+        targets.append((decisions, rival, np.ones(n), jll0[rows_n, decisions] - jll0[rows_n, rival], rival < decisions))
+    return targets
+
+
+def _closer(rule, decisions, rival, tie_changes):
+    """``closed(jll, i)``: whether the margin against the rival is closed, from exact scores ``jll`` of rows ``i``."""
+
+    def closed(jll, i):
+        if rule.threshold is not None:
+            return rule.decide(jll) != decisions[i]
+        a, b = jll[np.arange(len(i)), rival[i]], jll[np.arange(len(i)), decisions[i]]
+        return (a > b) | ((a == b) & tie_changes[i])
+
+    return closed
 
 
 def _score_after(view, featurizer, counts, rows, order, starts, k, u_col, u_size) -> np.ndarray:

@@ -3,16 +3,23 @@
 The *balance* is a log-odds of one side (the *credit* side) against the
 other (the *debit* side), on the scale the decision rule reads:
 
-- **argmax** (no threshold): the predicted class ``A`` against the runner-up
-  ``B``, oriented so that credit is the flagged side. When ``A`` is the
-  normal class the credit side is ``B``; otherwise (``B`` normal, or neither
-  normal, or no normal class) it is ``A``. ``balance = jll[credit] -
-  jll[debit]`` with ``jll`` scikit-learn's ``predict_joint_log_proba``; the
-  credit side wins when the balance is above 0 (at exactly 0, the class
+- **argmax** (no threshold), a normal class known: the balance answers the
+  decision's question. A flagged message is its decided class ``d`` against
+  the normal class ``n``: ``balance = jll[d] - jll[n]`` (``beat`` adds how far
+  ``d`` also led the strongest other flagged class). A message let through is
+  the normal class against the strongest flagged class ``f``: ``balance =
+  jll[n] - jll[f]``. ``jll`` is scikit-learn's ``predict_joint_log_proba``;
+  the credit side wins when the balance is above 0 (at exactly 0, the class
   listed first wins, as in ``predict``).
+- **argmax without a normal class**: the predicted class against the
+  runner-up, and the ledger says so (``versus``).
 - **threshold** ``t`` on P(not normal): ``balance = log P(not normal) - log
   P(normal) = logsumexp(jll[flagged classes]) - jll[normal]`` and the message
   is flagged when ``balance >= logit(t)``.
+
+The comparison per message is :meth:`explain.model.decision.DecisionRule.sides`,
+the same one the ledger of many messages and the error review use, so a
+message has one set of entries everywhere.
 
 *Opening balance*: the balance of a message with no known token, split
 into the log-prior line and, for BernoulliNB, the evidence of every
@@ -22,9 +29,8 @@ vocabulary token being absent (see :mod:`explain.model.model_view`).
 appear in the message. With two classes on the balance (argmax, or a
 threshold over two classes) the balance is ``b[credit] - b[debit] + sum_j
 x_j (W[credit, j] - W[debit, j])`` and each entry is its token's exact share
-``x_j (W[credit, j] - W[debit, j])`` taken from
-:func:`explain.analysis.evidence.explain_message` (with the sign turned when
-the credit side is the runner-up). With a threshold over several flagged
+``x_j (W[credit, j] - W[debit, j])`` of the values in the explanation
+(:func:`explain.analysis.evidence.explain_message`). With a threshold over several flagged
 classes the logsumexp does not split into shares; the running balance is
 then the exact balance of the message's first entries (the joint
 log-likelihoods summed up to that entry), each entry is the change it
@@ -51,9 +57,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.special import logit, logsumexp
+from scipy.special import logsumexp
 
 from explain.analysis.evidence import Explanation, FlipSet, explain_message
+from explain.model.decision import VERSUS, DecisionRule
+from explain.model.featurizer import Occurrences
 from explain.analysis.lookalike import lookalikes
 from explain.analysis.mail_facts import decoding_flags
 from explain.analysis.risk import (
@@ -187,7 +195,20 @@ class Ledger:
     credit_classes : tuple of str
         The classes on the credit side (one, or every flagged class).
     debit_class : str
-        What a debit pushes toward: the normal class, or the runner-up.
+        What a debit pushes toward: the normal class, the strongest flagged
+        class (a message let through by the most probable class), or the
+        runner-up (no normal class).
+    credit_class : str
+        The class credits push toward: the credit side, or with a threshold
+        over several flagged classes the most probable flagged class.
+        Presenters read it; they never work it out from probabilities.
+    versus : str
+        What the balance compares, a key of
+        :data:`explain.model.decision.VERSUS` (glossary: versus).
+    beat : (str, float) or None
+        A flagged decision by the most probable class with other flagged
+        classes: the strongest other flagged class and the decided class's
+        lead over it, ``jll[decided] - jll[other]``; else None.
     balance_method : str
         How the balance is computed, in words.
     exact : bool
@@ -256,6 +277,9 @@ class Ledger:
     credit_side: str
     credit_classes: tuple[str, ...]
     debit_class: str
+    credit_class: str
+    versus: str
+    beat: tuple[str, float] | None
     balance_method: str
     exact: bool
     opening_prior: float
@@ -285,6 +309,13 @@ class Ledger:
     #: True when the model's view came from the cache of loaded models rather than the model file
     model_from_cache: bool = False
     model_fingerprint: str | None = None
+    #: the text view the message was read in: ``raw`` (as given) or a mail view; None when not said
+    text_view: str | None = None
+
+    @property
+    def versus_words(self) -> str:
+        """What the balance compares, in words (:data:`explain.model.decision.VERSUS`)."""
+        return VERSUS[self.versus]
 
     def character_heat(self) -> np.ndarray:
         """Evidence per character of ``text``, shape (len(text),), in log-odds.
@@ -332,92 +363,120 @@ def ledger_of(
     watchlist: Watchlist | None = None,
     thresholds: RiskThresholds = RiskThresholds(),
     mail=None,
+    text_view: str | None = None,
 ) -> Ledger:
     """The ledger of ``text`` under a loaded model (:class:`explain.model.loading.LoadedModel`).
 
-    ``documents`` (from :func:`explain.analysis.vocab.document_counts`) makes
-    the support of each entry a count of training messages. ``mail``
-    (:class:`explain.analysis.mail_facts.MailFacts`) says what was read when
+    Tokenises ``text`` once, explains it (:func:`explain.analysis.evidence.explain_message`)
+    and tells the explanation as a ledger (:func:`ledger_from`); the arguments are theirs.
+    ``mail`` (:class:`explain.analysis.mail_facts.MailFacts`) says what was read when
     ``text`` came from a raw e-mail; it travels on the explanation.
     """
-    expl = explain_message(model, text, threshold, threshold_log_odds, mail=mail)
-    if threshold_log_odds is not None:
-        threshold = expl.threshold  # expit of it, for display; the line below stays exact
-    view, featurizer = model.view, model.featurizer
-    classes = list(expl.classes)
-    normal = None if expl.normal_class is None else classes.index(expl.normal_class)
-    a, b = classes.index(expl.predicted), classes.index(expl.runner_up)
-    if threshold is not None:
-        credit = [c for c in range(len(classes)) if c != normal]
-        debit = normal
-    else:
-        credit, debit = ([b], a) if a == normal else ([a], b)
-    additive = len(credit) == 1
-    top_credit = credit[int(np.argmax(expl.jll[credit]))]
+    # Hashed features: no stored vocabulary, so columns are named by the message's own tokens.
+    model = model.named_for([text])
+    occ = model.featurizer.occurrences(text)
+    expl = explain_message(model, text, threshold, threshold_log_odds, mail=mail, occurrences=occ)
+    return ledger_from(
+        model, expl, occ, threshold_log_odds=threshold_log_odds, message_id=message_id, documents=documents,
+        watchlist=watchlist, thresholds=thresholds, text_view=text_view,
+    )
 
-    def balance(jll: np.ndarray) -> np.ndarray:
+
+@dataclass(frozen=True)
+class _Sides:
+    """The comparison a ledger tells, as class indices.
+
+    ``credit``: one class, or every flagged class (a threshold over several);
+    ``top``: the credit class the entries point toward; ``beat``: for a
+    flagged decision by the most probable class, the strongest other flagged
+    class and the decided class's lead over it.
+    """
+
+    credit: tuple[int, ...]
+    debit: int
+    top: int
+    versus: str
+    beat: tuple[int, float] | None
+
+    def balance(self, jll: np.ndarray) -> np.ndarray:
         """The balance of each row of joint log-likelihoods, shape (n, C) -> (n,)."""
-        return logsumexp(jll[:, credit], axis=1) - jll[:, debit]
+        return logsumexp(jll[:, list(self.credit)], axis=1) - jll[:, self.debit]
 
-    occ = featurizer.occurrences(text)
-    first_index: dict[int, int] = {}
-    for i, col in enumerate(occ.columns):
-        first_index.setdefault(int(col), i)
 
-    def first_at(t) -> int:
-        return t.spans[0][0] if t.spans else first_index[t.column]
+def _sides(rule: DecisionRule, jll: np.ndarray) -> _Sides:
+    credit, debit = (int(a[0]) for a in rule.sides(jll[None, :]))
+    versus = rule.versus(credit)
+    if rule.threshold is not None:
+        return _Sides(tuple(int(c) for c in rule.flagged_indices), debit, credit, str(versus), None)
+    beat = None
+    others = [int(c) for c in rule.flagged_indices if c != credit]
+    if versus == "flagged-against-normal" and others:
+        rival = others[int(np.argmax(jll[others]))]
+        beat = (rival, float(jll[credit] - jll[rival]))
+    return _Sides((credit,), debit, credit, str(versus), beat)
 
-    tokens = sorted(expl.tokens, key=lambda t: (first_at(t), first_index[t.column]))
+
+def _book(view, expl: Explanation, tokens, sides: _Sides):
+    """Opening lines, entry amounts, running balances and per-occurrence ratios of the credit class.
+
+    Two classes on the balance: each amount is its token's exact share
+    ``x_j (W[credit, j] - W[debit, j])``. Several flagged classes: the running
+    balance is the exact balance of the first entries, each amount the change it makes.
+    """
     cols = np.array([t.column for t in tokens], dtype=np.int64)
     values = np.array([t.value for t in tokens])
-    if additive:
-        sign = 1.0 if credit[0] == a else -1.0
-        opening_prior, opening_absence = sign * expl.baseline_prior, sign * expl.baseline_absence
-        amounts = np.array([sign * t.evidence for t in tokens])
+    c, d = sides.top, sides.debit
+    ratio = view.weights[c, cols] - view.weights[d, cols]
+    if len(sides.credit) == 1:
+        opening_prior, opening_absence = view.prior[c] - view.prior[d], view.absence[c] - view.absence[d]
+        amounts = values * ratio
         running = opening_prior + opening_absence + np.cumsum(amounts)
-        ratio = view.weights[credit[0], cols] - view.weights[debit, cols]
     else:
-        prior = balance(view.prior[None, :])[0]
-        opening_prior = float(prior)
-        opening_absence = float(balance(view.baseline[None, :])[0] - prior)
+        opening_prior = sides.balance(view.prior[None, :])[0]
+        opening_absence = sides.balance(view.baseline[None, :])[0] - opening_prior
         partial = view.baseline + np.cumsum(values[:, None] * view.weights[:, cols].T, axis=0)
-        running = balance(partial)
+        running = sides.balance(partial)
         amounts = np.diff(np.concatenate([[opening_prior + opening_absence], running]))
-        ratio = view.weights[top_credit, cols] - view.weights[debit, cols]
-    closing = float(balance(expl.jll[None, :])[0])
+    return float(opening_prior), float(opening_absence), amounts, running, ratio
 
-    if threshold is None:
-        line = 0.0
-    else:
-        line = float(threshold_log_odds) if threshold_log_odds is not None else float(logit(threshold))
-    inclusive = threshold is not None or credit[0] < debit
 
-    def credit_side_of(x) -> np.ndarray:
-        x = np.asarray(x)
-        return (x > line) | (inclusive & (x == line))
-
-    credit_wins = bool(credit_side_of(closing))
-    tipped_at = None
-    if len(tokens):
-        off_side = np.flatnonzero(credit_side_of(running) != credit_wins)
+def _tipped(on_credit_side, running: np.ndarray, opening: float, credit_wins: bool) -> int | None:
+    """The entry after which the running balance reached the decided side and stayed there."""
+    if len(running):
+        off_side = np.flatnonzero(on_credit_side(running) != credit_wins)
         if len(off_side):
             # The last entry can sit off side only by rounding on a tie; it then tips there.
-            tipped_at = min(int(off_side[-1]) + 1, len(tokens) - 1)
-        elif bool(credit_side_of(opening_prior + opening_absence)) != credit_wins:
-            tipped_at = 0
+            return min(int(off_side[-1]) + 1, len(running) - 1)
+    if len(running) and bool(on_credit_side(opening)) != credit_wins:
+        return 0
+    return None
 
-    # Training support: message counts when known, else the model's own totals.
-    kind = count_source(view, documents).kind
+
+def _method(classes, sides: _Sides, rule: DecisionRule) -> tuple[str, str]:
+    """(credit side's name, how the balance is computed in words)."""
+    c, d = classes[sides.credit[0]], classes[sides.debit]
+    if rule.threshold is None:
+        return c, f"log-odds of {c} against {d} = jll[{c}] - jll[{d}]"
+    if len(sides.credit) == 1:
+        return c, f"log P(flag) - log P({d}) = jll[{c}] - jll[{d}]"
+    # A logsumexp does not split into per-token shares: the entries say they are approximate.
+    names = ", ".join(classes[k] for k in sides.credit)
+    return "flagged", f"log P(flag) - log P({d}) = logsumexp(jll[{names}]) - jll[{d}]"
+
+
+def _entries(model, expl, tokens, first_at, book, sides: _Sides, documents, watchlist, thresholds) -> tuple[Entry, ...]:
+    """The ledger's lines, one per token, with training support and risk flags (``decoding`` from ``expl.mail``)."""
+    view = model.view
+    _, _, amounts, running, ratio = book
+    cols = np.array([t.column for t in tokens], dtype=np.int64)
     counts = documents.counts if documents is not None else view.feature_count
-    sides = [top_credit, debit]
+    names = [t.token for t in tokens]
     flag_mask = risk_flags(
-        token_traits([t.token for t in tokens]),
-        ratio,
-        view.feature_count[sides][:, cols].sum(axis=0),
-        _watched(watchlist, [t.token for t in tokens]),
-        thresholds,
+        token_traits(names), ratio, view.feature_count[[sides.top, sides.debit]][:, cols].sum(axis=0),
+        _watched(watchlist, names), thresholds,
     )
-    entries = tuple(
+    classes = [str(c) for c in view.classes]
+    return tuple(
         Entry(
             token=t.token,
             column=t.column,
@@ -426,61 +485,90 @@ def ledger_of(
             amount=float(amounts[i]),
             per_occurrence=float(amounts[i]) / max(t.occurrences, 1),
             direction="credit" if amounts[i] > 0 else "debit" if amounts[i] < 0 else "even",
-            toward=classes[top_credit] if amounts[i] >= 0 else classes[debit],
+            toward=classes[sides.top] if amounts[i] >= 0 else classes[sides.debit],
             balance_after=float(running[i]),
             spans=t.spans,
             first_at=int(first_at(t)),
             support=tuple(float(v) for v in counts[:, t.column]),
             flags=decoding_flags(
-                tuple(FLAGS[k] for k in np.flatnonzero(flag_mask[:, i])), t.spans, getattr(expl.mail, "fallback_ranges", ()),
+                tuple(FLAGS[k] for k in np.flatnonzero(flag_mask[:, i])), t.spans,
+                getattr(expl.mail, "fallback_ranges", ()),
             ),
-            exact=additive,
+            exact=len(sides.credit) == 1,
         )
         for i, t in enumerate(tokens)
     )
 
-    normal_name = None if normal is None else classes[normal]
-    if threshold is None:
-        c, d = classes[credit[0]], classes[debit]
-        method = f"log-odds of {c} against {d} = jll[{c}] - jll[{d}]"
-        credit_name = classes[credit[0]]
-    elif additive:
-        method = f"log P(flag) - log P({normal_name}) = jll[{classes[credit[0]]}] - jll[{normal_name}]"
-        credit_name = classes[credit[0]]
-    else:
-        names = ", ".join(classes[c] for c in credit)
-        # A logsumexp does not split into per-token shares: the entries say they are approximate.
-        method = f"log P(flag) - log P({normal_name}) = logsumexp(jll[{names}]) - jll[{normal_name}]"
-        credit_name = "flagged"
 
+def ledger_from(
+    model, expl: Explanation, occ: Occurrences, *, threshold_log_odds: float | None = None,
+    message_id: str | None = None, documents: DocumentCounts | None = None, watchlist: Watchlist | None = None,
+    thresholds: RiskThresholds = RiskThresholds(), text_view: str | None = None,
+) -> Ledger:
+    """The ledger of an explanation ``expl`` of a message whose tokens are ``occ``, no featurizing again.
+
+    ``model`` is the loaded model the explanation came from (named for the
+    message when features are hashed); ``threshold_log_odds`` the exact
+    threshold when one was given so. ``documents`` (from
+    :func:`explain.analysis.vocab.document_counts`) makes the support of each
+    entry a count of training messages; ``text_view`` names the text view
+    the message was read in (``raw`` for text as given).
+    """
+    view = model.view
+    classes = tuple(expl.classes)
+    rule = DecisionRule.for_view(view, expl.threshold if threshold_log_odds is None else None, threshold_log_odds)
+    sides = _sides(rule, expl.jll)
+    first_index: dict[int, int] = {}
+    for i, col in enumerate(occ.columns):
+        first_index.setdefault(int(col), i)
+
+    def first_at(t) -> int:
+        return t.spans[0][0] if t.spans else first_index[t.column]
+
+    tokens = sorted(expl.tokens, key=lambda t: (first_at(t), first_index[t.column]))
+    book = _book(view, expl, tokens, sides)
+    opening_prior, opening_absence, _, running, _ = book
+    closing = float(sides.balance(expl.jll[None, :])[0])
+    line = 0.0 if rule.threshold is None else float(rule.threshold_log_odds)
+    inclusive = rule.threshold is not None or sides.credit[0] < sides.debit
+
+    def on_credit_side(x) -> np.ndarray:
+        x = np.asarray(x)
+        return (x > line) | (inclusive & (x == line))
+
+    credit_wins = bool(on_credit_side(closing))
+    credit_name, method = _method(classes, sides, rule)
     card = getattr(model, "card", None) or {}
     return Ledger(
-        text=text,
+        text=expl.text,
         message_id=None if message_id is None else str(message_id),
-        classes=tuple(classes),
-        normal_class=normal_name,
-        rule="argmax" if threshold is None else "threshold",
-        threshold=threshold,
+        classes=classes,
+        normal_class=expl.normal_class,
+        rule="argmax" if rule.threshold is None else "threshold",
+        threshold=rule.threshold,
         decision_line=line,
         line_inclusive=bool(inclusive),
         credit_side=credit_name,
-        credit_classes=tuple(classes[c] for c in credit),
-        debit_class=classes[debit],
+        credit_classes=tuple(classes[c] for c in sides.credit),
+        debit_class=classes[sides.debit],
+        credit_class=classes[sides.top],
+        versus=sides.versus,
+        beat=None if sides.beat is None else (classes[sides.beat[0]], sides.beat[1]),
         balance_method=method,
-        exact=additive,
-        opening_prior=float(opening_prior),
-        opening_absence=float(opening_absence),
-        opening=float(opening_prior + opening_absence),
-        entries=entries,
+        exact=len(sides.credit) == 1,
+        opening_prior=opening_prior,
+        opening_absence=opening_absence,
+        opening=opening_prior + opening_absence,
+        entries=_entries(model, expl, tokens, first_at, book, sides, documents, watchlist, thresholds),
         closing=closing,
         decision=expl.decision,
         credit_wins=credit_wins,
         probabilities=tuple(float(p) for p in expl.probabilities),
         flag_probability=expl.flag_probability,
-        tipped_at=tipped_at,
-        unknown=_unknown(model, occ, expl, balance, closing),
+        tipped_at=_tipped(on_credit_side, running, opening_prior + opening_absence, credit_wins),
+        unknown=_unknown(model, occ, expl, sides.balance, closing),
         flip=expl.flip,
-        support_kind=kind,
+        support_kind=count_source(view, documents).kind,
         support_source=None if documents is None else documents.source,
         model_path=None if model.path is None else str(model.path),
         model_sha256=model.sha256,
@@ -493,6 +581,7 @@ def ledger_of(
         explanation=expl,
         character_ngrams=str(model.featurizer.vectorizer.analyzer) in ("char", "char_wb"),
         model_from_cache=bool(getattr(model, "from_cache", False)),
+        text_view=text_view,
     )
 
 

@@ -22,7 +22,8 @@ import numpy as np
 from explain.analysis.batch import BatchEvidence, batch_evidence
 from explain.analysis.drivers import FlagDrivers, chunk_drivers, flag_margin
 from explain.analysis.evidence import exact_flip_possible, exact_flips
-from explain.model.decision import DecisionRule
+from explain.model.decision import DecisionRule, flag_probability
+from explain.model.email_reader import resolve_text_view
 
 #: Texts larger than this are explained like any other, and counted (``why`` refuses them).
 LARGE_TEXT_BYTES = 1024 * 1024
@@ -39,7 +40,9 @@ class LedgerRows:
     minimum flip set, -1 where no removal changes the decision or the size
     is not exact (see the module note); ``empty`` (n,) bool, texts with no
     character other than white space; ``large`` how many texts exceed
-    :data:`LARGE_TEXT_BYTES`.
+    :data:`LARGE_TEXT_BYTES`. The evidence's top tokens follow the ledger's
+    comparison (``evidence.credit`` against ``evidence.debit``), as ``why`` tells
+    each message; ``text_view`` is the view the texts were read in.
     """
 
     ids: np.ndarray
@@ -50,6 +53,8 @@ class LedgerRows:
     flip_size: np.ndarray
     empty: np.ndarray
     large: int
+    #: the text view the texts were read in (``raw``: as given)
+    text_view: str = "raw"
 
     def __len__(self) -> int:
         return len(self.ids)
@@ -62,11 +67,15 @@ class LedgerRows:
         return np.bincount(self.evidence.decision[self.flagged], minlength=C)
 
 
-def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, drivers: bool = False, features=None):
+def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, drivers: bool = False, features=None,
+                text_view: str | None = None):
     """Ledger rows of ``texts`` (list of str) with ``ids`` (n,), and their flag drivers.
 
     ``features`` may hold ``featurizer.counts_and_features(texts)`` when the
-    caller has computed it already. Returns ``(LedgerRows, FlagDrivers or None)``.
+    caller has computed it already; ``text_view`` the view the texts were read
+    in (default: the model card's, else ``raw``, as
+    :func:`~explain.model.email_reader.resolve_text_view` decides).
+    Returns ``(LedgerRows, FlagDrivers or None)``.
     """
     model = model.named_for(texts)
     view, featurizer = model.view, model.featurizer
@@ -80,9 +89,7 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
     if rule.normal_index is not None and view.n_classes > 1:
         margin = flag_margin(rule, batch.jll)
         flagged = batch.decision != rule.normal_index
-        # The same formula as explain_message, so the two agree to the last bit.
-        with np.errstate(over="ignore"):
-            probability = 1.0 / (1.0 + np.exp(-batch.flag_log_odds))
+        probability = flag_probability(batch.flag_log_odds)  # the one P(flag), as in explain_message
     rows = LedgerRows(
         ids=np.asarray(ids, dtype=object),
         evidence=batch,
@@ -92,6 +99,7 @@ def ledger_rows(model, texts: list, ids, rule: DecisionRule, top_k: int = 5, dri
         flip_size=flip,
         empty=_empty(texts),
         large=_large(texts),
+        text_view=resolve_text_view(getattr(model, "card", None)) if text_view is None else text_view,
     )
     found = None
     if drivers:

@@ -46,10 +46,13 @@ def probe(
     max_added: int = DEFAULT_MAX_ADDED,
     threshold: float | None = None,
     threshold_log_odds: float | None = None,
+    counts=None,
 ) -> ProbeResult:
     """Probe a loaded model with messages ``texts`` (a sequence of str, or None).
 
-    ``swap_terms`` is a path to a swap-terms file or a parsed :class:`SwapTerms`.
+    ``swap_terms`` is a path to a swap-terms file or a parsed :class:`SwapTerms`;
+    ``counts`` the texts' occurrence counts (``featurizer.counts_and_features``)
+    when the caller has them, so that the texts are not featurized again.
     """
     view = model.view
     if model.featurizer.hashed:
@@ -74,7 +77,7 @@ def probe(
         threshold=rule.threshold,
         threshold_log_odds=rule.threshold_log_odds,
         messages=0 if texts is None else len(texts),
-        evasion=evasion_costs(model, texts, rule, max_added) if evasion else None,
+        evasion=evasion_costs(model, texts, rule, max_added, counts=counts) if evasion else None,
         swaps=term_swaps(model, texts, rule, terms) if terms is not None and texts is not None else None,
         term_evidence=term_evidence(view, rule, terms) if terms is not None else (),
         swap_notes=() if terms is None else terms.notes,

@@ -10,21 +10,21 @@ The PDF, its HTML twin and its JSON twin (:mod:`explain.present.report`,
 from __future__ import annotations
 
 import datetime as _dt
-import os
 from dataclasses import dataclass, replace
 
 import numpy as np
 
 from explain.analysis.assessment import Assessment, assess
-from explain.analysis.batch import batch_evidence
+from explain.analysis.batch import BatchEvidence, batch_evidence
 from explain.analysis.ledger import Ledger, ledger_of, redacted
 from explain.analysis.ranking import OperatingPoint, ThresholdFigures
 from explain.analysis.rates import Projection, project_to_base_rate
 from explain.analysis.redaction import MODES, IdPseudonyms, redact_assessment, redact_probe, withhold_text
 from explain.analysis.risk import Watchlist
 from explain.analysis.vocab import VocabReview, review_vocabulary
+from explain.dates import record_moment
 from explain.errors import NbledgerError
-from explain.model.decision import DecisionRule
+from explain.model.decision import DecisionRule, check_threshold
 
 #: Messages explained when none are given: a spread of the flagged messages of the data.
 DEFAULT_MAX_MESSAGES = 6
@@ -58,12 +58,7 @@ class ReportSettings:
             raise NbledgerError(f"--paper must be a4 or letter, got {self.paper!r}")
         if self.max_messages < 1:
             raise NbledgerError(f"--max-messages must be at least 1, got {self.max_messages}")
-        if self.threshold is not None and not 0.0 < self.threshold < 1.0:
-            raise NbledgerError(f"--threshold must be a probability between 0 and 1, got {self.threshold}")
-        if self.threshold is not None and self.threshold_log_odds is not None:
-            raise NbledgerError("give --threshold or --threshold-log-odds, not both")
-        if self.threshold_log_odds is not None and not np.isfinite(self.threshold_log_odds):
-            raise NbledgerError(f"--threshold-log-odds must be a finite number, got {self.threshold_log_odds}")
+        check_threshold(self.threshold, self.threshold_log_odds)
         if self.base_rate is not None and not 0.0 < self.base_rate < 1.0:
             raise NbledgerError(f"--base-rate must be a share between 0 and 1, got {self.base_rate}")
 
@@ -226,17 +221,13 @@ class Report:
     probe: object | None = None
     #: appeals decided at the review desk (``report --reviews``): :class:`explain.analysis.appeals.Appeals`, else None
     appeals: object | None = None
+    #: the text view the messages were read in (``raw``: as given), None when not said
+    text_view: str | None = None
 
 
 def report_date() -> _dt.datetime:
-    """``SOURCE_DATE_EPOCH`` (https://reproducible-builds.org/specs/source-date-epoch/) when set, else now, in UTC."""
-    epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    if epoch is not None:
-        try:
-            return _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc)
-        except (ValueError, OverflowError, OSError):
-            raise NbledgerError(f"SOURCE_DATE_EPOCH must be whole seconds since 1970, got {epoch!r}") from None
-    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0)
+    """The report's date (:func:`explain.dates.record_moment`: ``SOURCE_DATE_EPOCH`` when set, else now, UTC)."""
+    return record_moment()
 
 
 def versions() -> dict:
@@ -251,16 +242,15 @@ def versions() -> dict:
             "weasyprint": weasyprint.__version__}
 
 
-def flagged_sample(model, texts, threshold: float | None, n: int, threshold_log_odds: float | None = None) -> np.ndarray:
+def flagged_sample(scored: BatchEvidence, n: int) -> np.ndarray:
     """Rows of ``n`` flagged messages spread evenly over the flagged ones ranked by score (strongest first).
 
-    The spread shows clear cases and cases near the decision line alike.
+    ``scored`` is the :func:`~explain.analysis.batch.batch_evidence` of the
+    messages under the report's rule. The spread shows clear cases and cases
+    near the decision line alike.
     """
-    view = model.view
-    rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
-    scored = batch_evidence(view, model.featurizer.transform(texts), rule, top_k=1)
     normal = scored.normal_index
-    flagged = np.flatnonzero(scored.decision != normal) if normal is not None else np.arange(len(texts))
+    flagged = np.flatnonzero(scored.decision != normal) if normal is not None else np.arange(len(scored))
     score = scored.flag_log_odds if scored.flag_log_odds is not None else scored.log_odds
     ranked = flagged[np.argsort(-score[flagged], kind="stable")]
     if len(ranked) <= n:
@@ -298,6 +288,8 @@ def build_report(
     probe_evasion: bool = False,
     swap_terms=None,
     reviews=None,
+    features=None,
+    text_view: str | None = None,
 ) -> Report:
     """Compute everything the report shows.
 
@@ -318,6 +310,9 @@ def build_report(
         term swaps from a swap-terms file.
     reviews : ``(review rows, source)`` of the review desk's database (``--reviews``), or None: adds the
         appeal rate of this model (:func:`explain.analysis.appeals.appeals_of`).
+    features : ``model.featurizer.counts_and_features(data.texts)`` when the
+        caller has them: ``data`` is then featurized once for every section.
+    text_view : the text view the messages were read in (the cover and each ledger say it).
     """
     date = report_date()
     redact = settings.redact
@@ -327,36 +322,22 @@ def build_report(
     model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
     vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none",
                               names=_names_at_hand(redact, data, explain))
-    assessment = None
+    rule = DecisionRule.for_view(model.view, settings.threshold, settings.threshold_log_odds)
+    assessment = scored = None
     if data is not None:
         on_step(f"assessing on {len(data):,} labelled messages")
-        X = model.featurizer.transform(data.texts)
+        counts, X = model.featurizer.counts_and_features(data.texts) if features is None else features
+        scored = batch_evidence(model.view, X, rule, top_k=0)
         assessment = redact_assessment(
             assess(model.view, X, data.labels, threshold=settings.threshold,
                    threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
-                   slices=list(slices), label_errors=label_errors, costs=settings.costs),
+                   slices=list(slices), label_errors=label_errors, costs=settings.costs,
+                   evidence=scored),
             redact, pseudonyms,
         )
     on_step("explaining messages")
-    if explain is not None:
-        source, texts, ids = "file", explain.texts, explain.ids
-        rows = np.arange(len(texts))
-    elif data is not None:
-        source, texts, ids = "sample", data.texts, data.ids
-        rows = flagged_sample(model, texts, settings.threshold, settings.max_messages, settings.threshold_log_odds)
-    else:
-        source, texts, ids, rows = None, [], [], np.arange(0)
-    total = len(texts) if source == "file" else len(rows)
-    explained = tuple(
-        _redacted_ledger(
-            ledger_of(model, texts[i], settings.threshold, threshold_log_odds=settings.threshold_log_odds,
-                      message_id=str(ids[i]), watchlist=watchlist),
-            redact, pseudonyms,
-        )
-        for i in rows[: settings.max_messages]
-        if texts[i].strip()
-    )
-    # --- probe (robustness and fairness), only when asked ---
+    source, explained, total = _explained(model, settings, data, explain, scored, watchlist, text_view, pseudonyms)
+    # --- probe (robustness and fairness), only when asked, under the report's rule ---
     probe_result = None
     if probe_evasion or swap_terms is not None:
         from explain.analysis.probe import probe
@@ -366,7 +347,8 @@ def build_report(
         on_step("probing robustness and fairness")
         probe_result = probe(
             model, None if data is None else data.texts, evasion=probe_evasion, swap_terms=swap_terms,
-            threshold=settings.threshold,
+            threshold=settings.threshold, threshold_log_odds=settings.threshold_log_odds,
+            counts=None if data is None else counts,
         )
     appeals = None
     if reviews is not None:
@@ -390,4 +372,28 @@ def build_report(
         explained_source=source,
         explained_total=total,
         versions=versions(),
+        text_view=text_view,
     )
+
+
+def _explained(model, settings: ReportSettings, data, explain, scored, watchlist, text_view, pseudonyms):
+    """``(source, ledgers, total)`` of the explained messages: ``--explain``'s, else a sample of flagged ones."""
+    if explain is not None:
+        source, texts, ids = "file", explain.texts, explain.ids
+        rows = np.arange(len(texts))
+    elif data is not None:
+        source, texts, ids = "sample", data.texts, data.ids
+        rows = flagged_sample(scored, settings.max_messages)
+    else:
+        source, texts, ids, rows = None, [], [], np.arange(0)
+    total = len(texts) if source == "file" else len(rows)
+    explained = tuple(
+        _redacted_ledger(
+            ledger_of(model, texts[i], settings.threshold, threshold_log_odds=settings.threshold_log_odds,
+                      message_id=str(ids[i]), watchlist=watchlist, text_view=text_view),
+            settings.redact, pseudonyms,
+        )
+        for i in rows[: settings.max_messages]
+        if texts[i].strip()
+    )
+    return source, explained, total

@@ -15,6 +15,7 @@ from typing import NoReturn
 
 import typer
 
+from explain.errors import NbledgerError
 from explain.output_files import OutputSet
 from explain.present.token_display import for_terminal, make_console, safe_line
 
@@ -59,13 +60,22 @@ def fail(message: str) -> NoReturn:
 
 
 def one_threshold(threshold, threshold_log_odds) -> None:
-    """Refuse ``--threshold`` together with ``--threshold-log-odds``: they are two scales of one setting."""
-    if threshold is not None and threshold_log_odds is not None:
-        fail("give --threshold or --threshold-log-odds, not both")
+    """Check the threshold options before any work: :func:`explain.model.decision.check_threshold`, the one check."""
+    from explain.model.decision import check_threshold
+
+    try:
+        check_threshold(threshold, threshold_log_odds)
+    except NbledgerError as exc:
+        fail(str(exc))
 
 
 def warn(message: str) -> None:
     say("warning", message)
+
+
+def note(message: str) -> None:
+    """One line of information on standard error that needs no action (``note: ...``)."""
+    say("note", message)
 
 
 def model_inputs(model: Path, vectorizer: Path | None = None) -> list[Path]:
@@ -98,8 +108,12 @@ def read_messages_or_fail(
     )
     if messages.replaced_chars:
         warn(f"{messages.replaced_chars} invalid UTF-8 byte sequences in {data.name} were replaced by U+FFFD")
-    for note in messages.notes:
-        warn(f"{data.name}: {note}")
+    for line in messages.notes:
+        warn(f"{data.name}: {line}")
+    if mail is not None:
+        from explain.cli.mail_options import raw_mail_note
+
+        raw_mail_note(messages.texts, mail.view)
     return messages
 
 

@@ -9,8 +9,9 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, TRUST,
-    ModelOptions, app, console, fail, load_model_or_fail, model_inputs, read_messages_or_fail,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    THRESHOLD_LOG_ODDS, TRUST, ModelOptions, app, console, fail, load_model_or_fail, model_inputs, one_threshold,
+    read_messages_or_fail,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.present.token_display import for_terminal
@@ -29,6 +30,7 @@ def compare(
     label_col: Optional[str] = typer.Option("label", "--label-col", help="Column holding the true class ('' for none)."),
     normal_class: Optional[str] = NORMAL_CLASS,
     threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     top: int = typer.Option(10, "--top", help="Tokens listed per change."),
     show: int = typer.Option(20, "--show", help="Changed messages shown with both explanations."),
     redact: str = typer.Option("personal", "--redact", help="personal (mask people: names, addresses, numbers, e-mail, IP, URL) | none"),
@@ -65,6 +67,7 @@ def compare(
         fail(f"--out must end in {', '.join(SUFFIXES)}, got {out.name}")
     if top < 1 or show < 0:
         fail("--top must be at least 1 and --show at least 0")
+    one_threshold(threshold, threshold_log_odds)
     from explain.analysis.redaction import IdPseudonyms, read_id_key
     from explain.runs.desk.store import read_reviews
 
@@ -76,16 +79,20 @@ def compare(
         # each filter keeps its own normal class (the comparison applies --normal-class itself)
         options = ModelOptions.of({**locals(), "normal_class": None})
         loaded = [load_model_or_fail(path, options) for path in (old, new)]
-        messages = None
+        messages = mail = None
         if data is not None:
             from explain.model.email_reader import resolve_text_view
 
-            # Both models must read the same part of raw e-mail: one view for both, or an error.
+            # Both models must read the same text view: one view for both, or an error.
+            views = sorted({resolve_text_view(m.card, text_view) for m in loaded})
+            if len(views) > 1:
+                fail(f"the two models read different text views ({' and '.join(views)}): their decisions on one "
+                     "message would not be about the same text")
             mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
-            resolve_text_view(loaded[1].card, mail.view)
             messages = read_messages_or_fail(data, text_col, label_col or None, mail, id_col=id_col,
                                              max_data_bytes=max_data_bytes)
-        result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show)
+        result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show,
+                                threshold_log_odds=threshold_log_odds, text_view=None if mail is None else mail.view)
         if desk_reviews is not None:
             from dataclasses import replace
 

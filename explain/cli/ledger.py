@@ -11,8 +11,9 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD, TRUST,
-    VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs, parse_size, warn,
+    ModelOptions, ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD,
+    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs,
+    one_threshold, parse_size, warn,
 )
 from explain.cli.mail_options import TEXT_VIEW, mail_input
 from explain.errors import NbledgerError
@@ -102,6 +103,7 @@ def ledger(
     chunk_rows: int = typer.Option(20_000, "--chunk-rows", min=1, help="Messages per chunk (memory grows with this, not with the input)."),
     only_flagged: bool = typer.Option(False, "--only-flagged", help="Write rows for flagged messages only."),
     threshold: Optional[float] = THRESHOLD,
+    threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     summary: Optional[Path] = typer.Option(None, "--summary", help="Also write the flag drivers (.csv or .json)."),
     engine: str = typer.Option("local", "--engine", help="local | dask"),
     scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler (tcp://host:port)."),
@@ -126,6 +128,7 @@ def ledger(
     """Write the evidence for every message of a large input, chunk by chunk."""
     from explain.runs.ledger_local import LedgerProgress, write_ledger
 
+    one_threshold(threshold, threshold_log_odds)
     if engine not in ("local", "dask"):
         raise NbledgerError(f"--engine must be local or dask, got {engine!r}")
     if engine == "local" and (scheduler is not None or workers is not None):
@@ -162,7 +165,7 @@ def ledger(
             loaded = load_model_or_fail(model, ModelOptions.of(locals()))
             options = dict(
                 id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
-                threshold=threshold, progress=progress, mail=mail_input(loaded.card, text_view),
+                threshold=threshold, threshold_log_odds=threshold_log_odds, progress=progress, mail=mail_input(loaded.card, text_view),
             )
             started = True
             with _progress_display() as show, reading_limits(max_bytes, total_bound):

@@ -10,7 +10,8 @@ import typer
 
 TEXT_VIEW = typer.Option(
     None, "--text-view",
-    help="Part of raw e-mail the filter reads: body | subject+body | headers+body (default: the model card's).",
+    help="What the filter reads: raw (the text as given) | body | subject+body | headers+body "
+    "(default: the model card's view, else raw).",
 )
 RAW_EMAIL = typer.Option(False, "--raw-email", help="The text column holds whole raw e-mail messages.")
 LABELS_FROM_FOLDERS = typer.Option(
@@ -27,3 +28,15 @@ def mail_input(card: dict | None, text_view: str | None, raw_email=False, labels
     return MailInput(
         raw_email, labels_from_folders, label, resolve_text_view(card, text_view), rules=text_rules_of(card)
     )
+
+
+def raw_mail_note(texts, view: str) -> None:
+    """In the raw text view, one note line when messages look like e-mail (explained as given all the same)."""
+    from explain.cli.common import note
+    from explain.model.email_reader import RAW_VIEW, looks_like_email, mail_view_note
+
+    if view != RAW_VIEW:
+        return
+    found = sum(looks_like_email(t[: 64 * 1024].encode("utf-8", "surrogatepass")) for t in texts)
+    if found:
+        note(mail_view_note(found, len(texts)))

@@ -53,8 +53,9 @@ def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
     text, replaced = decode_utf8(raw)
     if not text.strip():
         fail(f"{path.name} is empty")
-    as_email = path.suffix.lower() == ".eml"
-    _, text, _ = read_one(raw if as_email else text, as_email, mail.view, mail.rules)
+    # In the raw text view (no card recording a mail view) an .eml file is explained as given, too.
+    as_email = path.suffix.lower() == ".eml" and mail.view != "raw"
+    _, text, _, _ = read_one(raw if as_email else text, as_email, mail.view, mail.rules)
     ids = np.asarray([path.name], dtype=object)
     return Messages([text], None, ids, replaced, path, hashlib.sha256(raw).hexdigest())
 
@@ -191,16 +192,19 @@ def report(
         )
         to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email), id_col) if explain else None
         groups, suspected = [], None
+        # The data are featurized once, for every section of the report.
+        features = loaded.featurizer.counts_and_features(messages.texts) if messages is not None else None
         if slice_by or label_errors:
             step("slicing the data" if not label_errors else "refitting on folds to find suspected label errors")
             groups, suspected = audit_inputs(
-                loaded, messages, loaded.featurizer.transform(messages.texts), data, slice_by=slice_by,
+                loaded, messages, features[1], data, slice_by=slice_by,
                 terms=terms.terms if (slice_by and terms is not None) else None, label_errors=label_errors,
                 folds=folds, max_data_bytes=max_data_bytes,
             )
         built = build_report_files(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
                                    on_step=step, slices=groups, label_errors=suspected,
-                                   probe_evasion=probe_evasion, swap_terms=swap_terms, reviews=desk_reviews)
+                                   probe_evasion=probe_evasion, swap_terms=swap_terms, reviews=desk_reviews,
+                                   features=features, text_view=mail.view)
         step("writing the files")
         contents = {out: built.pdf, html: built.html, json_out: built.json}
         # Staged now; all are moved into place together when the block ends without error.

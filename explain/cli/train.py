@@ -53,7 +53,10 @@ def train(
     from explain.model.mail_data import input_kind, is_mail_source
     from explain.model.training import TrainSettings, model_card, parse_ngrams, train_filter
 
-    mail = mail_input(None, text_view, raw_email, labels_from_folders, label)
+    # Training reads raw e-mail in the body view unless a view is named; the card records it.
+    from explain.model.email_reader import DEFAULT_VIEW
+
+    mail = mail_input(None, text_view or DEFAULT_VIEW, raw_email, labels_from_folders, label)
     from_mail = is_mail_source(data, mail)
     if text_view is not None and not from_mail:
         fail("--text-view applies to raw e-mail: a folder of .eml files, an mbox file, or a table with --raw-email")

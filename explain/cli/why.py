@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import datetime as _dt
 import os
 import sys
 from pathlib import Path
@@ -12,9 +11,10 @@ import typer
 
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
-    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, read_messages_or_fail, warn, one_threshold,
+    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, read_messages_or_fail, warn, one_threshold,
 )
-from explain.cli.mail_options import TEXT_VIEW
+from explain.cli.mail_options import TEXT_VIEW, raw_mail_note
+from explain.dates import record_date
 from explain.present.token_display import for_terminal, make_console
 
 #: Messages larger than this are refused unless --max-bytes raises it: a
@@ -64,19 +64,6 @@ def plain_message(raw: bytes | str) -> str:
     if replaced:
         warn(f"{replaced} invalid UTF-8 byte sequences in the message were replaced by U+FFFD")
     return decoded
-
-
-def record_date() -> str:
-    """The date of a record: ``SOURCE_DATE_EPOCH`` when set (reproducible builds), else now, in UTC."""
-    epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    if epoch is not None:
-        try:
-            moment = _dt.datetime.fromtimestamp(int(epoch), _dt.timezone.utc)
-        except (ValueError, OverflowError, OSError):
-            fail(f"SOURCE_DATE_EPOCH must be whole seconds since 1970, got {epoch!r}")
-    else:
-        moment = _dt.datetime.now(_dt.timezone.utc)
-    return moment.replace(microsecond=0).isoformat().replace("+00:00", "Z")
 
 
 def read_id_list(path: Path) -> list[str]:
@@ -141,14 +128,26 @@ def console_for(color: str):
 
 
 def read_one(raw: bytes | str, as_email: bool, view: str, rules: str | None = None) -> tuple:
-    """``(message id, text the model reads, mail facts or None)`` of one message given directly
-    (an e-mail read under the text ``rules`` of the model card, :func:`~explain.model.email_reader.text_rules_of`)."""
+    """``(message id, text the model reads, mail facts or None, text view)`` of one message given directly.
+
+    In the raw text view the message is explained exactly as given, with one note line
+    when it looks like an e-mail; ``--email`` (``as_email``) reads it as one in the
+    model card's view or, without one, the body view (an e-mail is read under the text
+    ``rules`` of the model card, :func:`~explain.model.email_reader.text_rules_of`).
+    """
     from explain.analysis.mail_facts import mail_facts
-    from explain.model.email_reader import CURRENT_RULES, looks_like_email, read_email
+    from explain.model.email_reader import (
+        CURRENT_RULES, DEFAULT_VIEW, RAW_VIEW, looks_like_email, mail_view_note, read_email,
+    )
 
     data = raw.encode("utf-8", errors="surrogatepass") if isinstance(raw, str) else raw
+    if view == RAW_VIEW and not as_email:
+        if looks_like_email(data):
+            note(mail_view_note())
+        return None, plain_message(raw), None, RAW_VIEW
     if not (as_email or looks_like_email(data)):
-        return None, plain_message(raw), None
+        return None, plain_message(raw), None, view
+    view = DEFAULT_VIEW if view == RAW_VIEW else view
     mail = read_email(data, rules=rules or CURRENT_RULES)
     if mail.raw_fallback:
         fail(f"the e-mail could not be read: {mail.problems[0]}")
@@ -156,7 +155,7 @@ def read_one(raw: bytes | str, as_email: bool, view: str, rules: str | None = No
         warn(f"e-mail: {problem}")
     if not mail.text(view).strip():
         fail(f"the e-mail has no text in the {view} view" + (" (attachments only)" if mail.attachments else ""))
-    return mail.message_id or None, mail.text(view), mail_facts(mail, view)
+    return mail.message_id or None, mail.text(view), mail_facts(mail, view), view
 
 
 def member_out_ok(out: Optional[Path], ids: Optional[Path], output_format: str) -> None:
@@ -289,6 +288,7 @@ def why(
         from explain.present.ledger_terminal import render
 
         terms = read_watchlist(watchlist) if watchlist is not None else None
+        view = resolve_text_view(loaded.card, text_view)
         messages = documents = None
         if data is not None:
             wanted = read_id_list(ids) if ids is not None else [message_id]
@@ -308,12 +308,14 @@ def why(
                 features = loaded.featurizer.transform(messages.texts)
                 documents = document_counts(loaded.view, features, messages.labels, source)
             chosen = [(mid, message, None) for mid, message in chosen]
+            raw_mail_note([message for _, message, _ in chosen], view)
         else:
             from explain.model.email_reader import text_rules_of
 
-            mid, message, mail = read_one(
-                read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view),
-                text_rules_of(loaded.card),
+            if as_email and text_view == "raw":
+                fail("--email reads a mail view; --text-view raw explains the message as given: give one of them")
+            mid, message, mail, view = read_one(
+                read_message(text, file, max_bytes), as_email, view, text_rules_of(loaded.card),
             )
             # A message from a file is named by its file when it carries no id of its own.
             chosen = [(mid or (file.name if file is not None else None), message, mail)]
@@ -321,7 +323,7 @@ def why(
         for mid, message, mail in chosen:
             ledger = ledger_of(
                 loaded, message, threshold, threshold_log_odds=threshold_log_odds,
-                message_id=mid, documents=documents, watchlist=terms, mail=mail,
+                message_id=mid, documents=documents, watchlist=terms, mail=mail, text_view=view,
             )
             ledgers.append(redacted(ledger) if redact else ledger)
 

@@ -8,6 +8,10 @@ as scikit-learn's ``predict`` (ties go to the first class).
 
 Working on the log-odds scale keeps extreme probabilities exact:
 ``P(not normal) >= t``  <=>  ``log P(not normal) - log P(normal) >= logit(t)``.
+
+This module holds the one computation of P(flag) and of the flag log-odds
+(:func:`flag_probability`, :meth:`DecisionRule.flag_log_odds`) and the one
+check of a threshold (:func:`check_threshold`); every other module calls them.
 """
 
 from __future__ import annotations
@@ -18,6 +22,52 @@ import numpy as np
 from scipy.special import expit, logit, logsumexp
 
 from explain.errors import NbledgerError
+
+
+def flag_probability(flag_log_odds):
+    """P(flag) from the flag log-odds: the logistic function, ``scipy.special.expit``.
+
+    The one formula for P(flag): the evidence, the ledger, the batch rows and
+    the report all call it, so the same message gets the same bits everywhere.
+    ``expit`` neither overflows nor loses the tail (``expit(-800)`` is a
+    subnormal, not 0 by an overflow of ``exp(800)``).
+    """
+    return expit(flag_log_odds)
+
+
+def check_threshold(threshold: float | None = None, log_odds: float | None = None) -> None:
+    """Refuse a threshold that is not a probability in [0, 1] or log-odds that are NaN, or both at once.
+
+    The one check of a threshold: :class:`DecisionRule` runs it, and a command
+    may run it before loading a model to fail early with the same words.
+    ``threshold`` 0 flags everything, 1 only a message with infinite flag
+    log-odds; ``log_odds`` may be infinite for the same two rules.
+    """
+    if threshold is not None and log_odds is not None:
+        raise NbledgerError("give --threshold or --threshold-log-odds, not both")
+    if log_odds is not None and np.isnan(log_odds):
+        raise NbledgerError("the threshold log-odds must be a number, got nan")
+    if threshold is not None and not 0.0 <= threshold <= 1.0:  # also refuses NaN
+        raise NbledgerError(f"the threshold must be a probability in [0, 1], got {threshold}")
+
+
+def top_two(jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Indices of the best and second-best class per row (argmax tie rule: the first class wins)."""
+    predicted = np.argmax(jll, axis=1)
+    if jll.shape[1] == 1:
+        return predicted, predicted
+    masked = jll.copy()
+    masked[np.arange(len(jll)), predicted] = -np.inf
+    return predicted, np.argmax(masked, axis=1)
+
+
+#: What the balance of a ledger compares (glossary: versus), by the rule and the decision.
+VERSUS = {
+    "flagged-against-normal": "the decided class against the normal class",
+    "normal-against-flagged": "the normal class against the strongest flagged class",
+    "flag-log-odds": "the flagged classes together against the normal class",
+    "predicted-against-runner-up": "the decided class against the runner-up: no normal class is known",
+}
 
 
 @dataclass(frozen=True)
@@ -47,15 +97,10 @@ class DecisionRule:
     log_odds: float | None = None
 
     def __post_init__(self):
-        if self.threshold is not None and self.log_odds is not None:
-            raise NbledgerError("give the threshold as a probability or as log-odds, not both")
+        check_threshold(self.threshold, self.log_odds)
         if self.log_odds is not None:
-            if np.isnan(self.log_odds):
-                raise NbledgerError("the threshold log-odds must be a number, got nan")
-            object.__setattr__(self, "threshold", float(expit(self.log_odds)))
+            object.__setattr__(self, "threshold", float(flag_probability(self.log_odds)))
         elif self.threshold is not None:
-            if not 0.0 <= self.threshold <= 1.0 or np.isnan(self.threshold):
-                raise NbledgerError(f"threshold must be a probability in [0, 1], got {self.threshold}")
             object.__setattr__(self, "log_odds", float(logit(self.threshold)))
         if self.threshold is not None:
             if self.normal_index is None:
@@ -85,6 +130,42 @@ class DecisionRule:
         jll = np.atleast_2d(jll)
         others = logsumexp(jll[:, self.flagged_indices], axis=1)
         return others - jll[:, self.normal_index]
+
+    def flag_probability(self, jll: np.ndarray) -> np.ndarray:
+        """P(flag) per row of joint log-likelihoods: :func:`flag_probability` of :meth:`flag_log_odds`."""
+        return flag_probability(self.flag_log_odds(jll))
+
+    def sides(self, jll: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The ledger's comparison per row: ``(credit, debit)`` class indices, shape (n,) each.
+
+        With the most probable class deciding and a normal class known, a
+        flagged message is its decided class against the normal class and a
+        message let through the normal class against the strongest flagged
+        class; with a threshold the strongest flagged class (one of the
+        flagged classes together) against the normal class; without a normal
+        class the predicted class against the runner-up. :meth:`versus` names
+        the comparison.
+        """
+        jll = np.atleast_2d(jll)
+        if self.normal_index is None:
+            return top_two(jll)
+        normal = np.full(len(jll), self.normal_index)
+        strongest = self.flagged_indices[np.argmax(jll[:, self.flagged_indices], axis=1)]
+        if self.threshold is not None:
+            return strongest, normal
+        # The most probable class: flagged exactly when the strongest flagged class beats the normal class
+        # (ties go to the class listed first, as in predict).
+        s, n = jll[np.arange(len(jll)), strongest], jll[:, self.normal_index]
+        through = (n > s) | ((n == s) & (self.normal_index < strongest))
+        return np.where(through, normal, strongest), np.where(through, strongest, normal)
+
+    def versus(self, credit: int) -> str:
+        """The key of :data:`VERSUS` for a message whose credit class (from :meth:`sides`) is ``credit``."""
+        if self.normal_index is None:
+            return "predicted-against-runner-up"
+        if self.threshold is not None:
+            return "flag-log-odds"
+        return "normal-against-flagged" if credit == self.normal_index else "flagged-against-normal"
 
     def decide(self, jll: np.ndarray) -> np.ndarray:
         """Decided class index per row of joint log-likelihoods, shape (n,)."""

@@ -29,8 +29,11 @@ public mail corpus of the tests):
   text, split at the first blank line, and says so too.
 
 Views (``VIEWS``) say which of the message a filter reads: ``body``, ``subject+body`` or
-``headers+body``. The view is a training setting recorded in the model card;
-:func:`resolve_text_view` is the one place that decides which view applies.
+``headers+body``; the ``raw`` text view (:data:`RAW_VIEW`) reads no mail at all: the text
+exactly as given, headers included, what a pipeline trained on whole raw messages
+receives. The view is a training setting recorded in the model card;
+:func:`resolve_text_view` is the one place that decides which view applies: the card's,
+or ``raw`` when the card records none.
 
 Example::
 
@@ -56,7 +59,11 @@ from explain.errors import NbledgerError
 from explain.model.text_blobs import looks_like_html, split_blobs
 
 VIEWS: tuple[str, ...] = ("body", "subject+body", "headers+body")
+#: The mail view read when a message is read as e-mail and nothing names a view (``--email``, ``train``).
 DEFAULT_VIEW = "body"
+#: The text exactly as given, headers included: the view without a model card that records one.
+RAW_VIEW = "raw"
+TEXT_VIEWS: tuple[str, ...] = (RAW_VIEW, *VIEWS)
 
 #: Versions of the reader's text rules, recorded in the model card as ``settings.text_rules``.
 #: ``"1"``: the parts' text as decoded. ``"2"``: also HTML in ``text/plain`` parts read as
@@ -204,29 +211,41 @@ def text_rules_of(card: dict | None) -> str:
     return "1" if settings.get("text_view") is not None else CURRENT_RULES
 
 
-def check_view(view: str) -> str:
-    if view not in VIEWS:
-        raise NbledgerError(f"unknown text view {view!r}; choose one of {', '.join(VIEWS)}")
+def check_view(view: str, raw: bool = False) -> str:
+    """``view`` when it is a mail view (or, with ``raw``, the ``raw`` text view); else one error line."""
+    allowed = TEXT_VIEWS if raw else VIEWS
+    if view not in allowed:
+        raise NbledgerError(f"unknown text view {view!r}; choose one of {', '.join(allowed)}")
     return view
 
 
 def resolve_text_view(card: dict | None, explicit: str | None = None) -> str:
-    """The text view that applies to raw e-mail input under a model with this card.
+    """The text view that applies to every message read for a model with this card.
 
     The model card records the view the model was trained on (``settings.text_view``);
     an explicit ``--text-view`` must agree with it, since a filter trained on bodies
-    scores headers as noise. Without either, :data:`DEFAULT_VIEW`. Every command that
-    reads raw e-mail for a model calls this one function.
+    scores headers as noise. Without either, :data:`RAW_VIEW`: the text exactly as
+    given, headers included, since nothing says the filter was trained on a mail view.
+    Every command that reads messages for a model calls this one function.
     """
     recorded = ((card or {}).get("settings") or {}).get("text_view")
     if explicit is not None:
-        check_view(explicit)
+        check_view(explicit, raw=True)
         if recorded is not None and explicit != recorded:
             raise NbledgerError(
                 f"--text-view {explicit} differs from the model card, which records training on "
                 f"the {recorded} view; leave --text-view out or give {recorded}"
             )
-    return explicit or recorded or DEFAULT_VIEW
+    return explicit or recorded or RAW_VIEW
+
+
+def mail_view_note(count: int = 1, total: int = 1) -> str:
+    """The one note line for text explained as given that looks like raw e-mail."""
+    what = "the message looks" if total == 1 else f"{count:,} of {total:,} messages look"
+    return (
+        f"{what} like e-mail, explained as given (raw text view, headers included); "
+        "--text-view body|subject+body|headers+body reads a mail view"
+    )
 
 
 def looks_like_email(data: bytes) -> bool:

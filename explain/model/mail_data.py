@@ -29,8 +29,10 @@ import numpy as np
 from explain.errors import NbledgerError
 from explain.model.data_io import Messages, read_messages
 from explain.model.email_reader import (
-    CLEANING, CURRENT_RULES, DEFAULT_VIEW, EmailText, Limits, check_rules, check_view, read_email, summarise,
+    CLEANING, CURRENT_RULES, DEFAULT_VIEW, RAW_VIEW, EmailText, Limits, check_rules, check_view, read_email,
+    summarise,
 )
+from explain.model.data_io import decode_utf8
 
 MBOX_SUFFIXES = (".mbox", ".mbx")
 _TABLE_SUFFIXES = (".csv", ".jsonl", ".ndjson", ".parquet", ".gz")
@@ -50,7 +52,7 @@ class MailInput:
     rules: str = CURRENT_RULES
 
     def __post_init__(self):
-        check_view(self.view)
+        check_view(self.view, raw=True)
         check_rules(self.rules)
         if self.label is not None and not self.label.strip():
             raise NbledgerError("--label must not be empty")
@@ -104,8 +106,10 @@ def read_data(
     if not mail.raw_email:
         return messages
     emails = [read_email(text.encode("utf-8", errors="surrogatepass"), mail.limits, mail.rules) for text in messages.texts]
+    # The raw text view keeps the texts exactly as given; the messages are read for their mail columns only.
+    texts = messages.texts if mail.view == RAW_VIEW else [e.text(mail.view) for e in emails]
     return replace(
-        messages, texts=[e.text(mail.view) for e in emails], notes=messages.notes + summarise(emails),
+        messages, texts=texts, notes=messages.notes + summarise(emails),
         mail=mail_columns(emails, [""] * len(emails), mail),
     )
 
@@ -184,7 +188,7 @@ def _read_folder(folder: Path, mail: MailInput) -> Messages:
     else:
         labels = None if mail.label is None else [mail.label] * len(files)
     digest = hashlib.sha256()
-    emails, names, cut = [], [], 0
+    emails, names, given, cut = [], [], [], 0
     for path in files:
         data, was_cut = _read_limited(path, mail.limits.max_message_bytes)
         cut += was_cut
@@ -192,11 +196,12 @@ def _read_folder(folder: Path, mail: MailInput) -> Messages:
         digest.update(name.encode("utf-8", errors="surrogateescape") + b"\0")
         digest.update(hashlib.sha256(data).digest())
         emails.append(read_email(data, mail.limits, mail.rules))
+        given.append(decode_utf8(data)[0] if mail.view == RAW_VIEW else None)
         names.append(name)
     # The folder below the data folder, or below the label folder with labels_from_folders.
     skip = 1 if mail.labels_from_folders else 0
     folders = ["/".join(p.relative_to(folder).parts[skip:-1]) for p in files]
-    return _messages(emails, names, labels, folder, digest.hexdigest(), mail, cut, folders)
+    return _messages(emails, names, labels, folder, digest.hexdigest(), mail, cut, folders, given)
 
 
 def _read_mbox(path: Path, mail: MailInput) -> Messages:
@@ -206,18 +211,20 @@ def _read_mbox(path: Path, mail: MailInput) -> Messages:
         file_digest = hashlib.file_digest(fh, "sha256").hexdigest()
     box = mailbox.mbox(path, create=False)
     try:
-        emails, names, cut = [], [], 0
+        emails, names, given, cut = [], [], [], 0
         for n, key in enumerate(box.iterkeys(), start=1):
             data = box.get_bytes(key)
             cut += len(data) > mail.limits.max_message_bytes
-            emails.append(read_email(data[: mail.limits.max_message_bytes], mail.limits, mail.rules))
+            data = data[: mail.limits.max_message_bytes]
+            emails.append(read_email(data, mail.limits, mail.rules))
+            given.append(decode_utf8(data)[0] if mail.view == RAW_VIEW else None)
             names.append(f"{path.name}#{n}")
     finally:
         box.close()
     if not emails:
         raise NbledgerError(f"{path.name} holds no messages")
     labels = None if mail.label is None else [mail.label] * len(emails)
-    return _messages(emails, names, labels, path, file_digest, mail, cut)
+    return _messages(emails, names, labels, path, file_digest, mail, cut, given=given)
 
 
 @dataclass(frozen=True, eq=False)
@@ -255,13 +262,15 @@ def mail_columns(emails: list[EmailText], folders, mail: MailInput) -> MailColum
 
 
 def _messages(
-    emails: list[EmailText], names, labels, source: Path, sha256: str, mail: MailInput, cut: int, folders=None
+    emails: list[EmailText], names, labels, source: Path, sha256: str, mail: MailInput, cut: int, folders=None,
+    given=None,
 ) -> Messages:
+    """The data set; in the raw text view its texts are ``given`` (each message's bytes as UTF-8 text)."""
     notes = summarise(emails)
     if cut:
         notes += (f"{cut} of {len(emails)} messages were larger than {mail.limits.max_message_bytes:,} bytes and were cut",)
     return Messages(
-        texts=[e.text(mail.view) for e in emails],
+        texts=list(given) if mail.view == RAW_VIEW else [e.text(mail.view) for e in emails],
         labels=None if labels is None else np.asarray(labels, dtype=object),
         ids=np.asarray([e.message_id or name for e, name in zip(emails, names)], dtype=object),
         replaced_chars=0,

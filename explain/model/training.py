@@ -47,7 +47,7 @@ class TrainSettings:
         if self.text_view is not None:
             from explain.model.email_reader import check_view
 
-            check_view(self.text_view)
+            check_view(self.text_view, raw=True)
         if self.features not in FEATURES:
             raise NbledgerError(f"--features must be one of {', '.join(FEATURES)}")
         if self.analyzer not in ANALYZERS:

@@ -43,7 +43,7 @@ def _score(s) -> dict | None:
 
 
 def to_json(c: Comparison, *, top: int = 10) -> dict:
-    """The comparison as plain data (``nbledger.compare/1``); each changed message with both ledgers as ``nbledger.why/2``."""
+    """The comparison as plain data (``nbledger.compare/1``); each changed message with both ledgers as ``nbledger.why/3``."""
     from explain.present.ledger_json import to_json as ledger_json
 
     v = c.vocabulary
@@ -58,6 +58,7 @@ def to_json(c: Comparison, *, top: int = 10) -> dict:
         "same_text_steps": c.same_text_steps,
         "normal_class": c.normal_class,
         "threshold": c.threshold,
+        "threshold_log_odds": c.threshold_log_odds,
         "notes": list(c.notes),
         "appeals": None if c.appeals is None else {
             side: appeals_json(a) for side, a in zip(("old", "new"), c.appeals)

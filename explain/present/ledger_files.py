@@ -48,10 +48,11 @@ def ledger_schema():
         ("id", pa.string()), ("decided", pa.string()), ("flagged", pa.bool_()),
         ("predicted", pa.string()), ("runner_up", pa.string()), ("probability", pa.float64()),
         ("flag_probability", pa.float64()), ("log_odds", pa.float64()), ("margin", pa.float64()),
+        ("credit_class", pa.string()), ("debit_class", pa.string()),
         ("top_for", tokens), ("top_for_evidence", values),
         ("top_against", tokens), ("top_against_evidence", values),
         ("flip_size", pa.int64()), ("model_sha256", pa.string()),
-        ("model_fingerprint", pa.string()),
+        ("model_fingerprint", pa.string()), ("text_view", pa.string()),
     ])
 
 
@@ -98,10 +99,13 @@ def ledger_table(rows, sha256: str, only_flagged: bool = False, fingerprint: str
             maybe(rows.flag_probability),
             pa.array(e.log_odds[keep]),
             maybe(rows.margin),
+            _names(e.credit[keep], classes),
+            _names(e.debit[keep], classes),
             for_names, for_values, against_names, against_values,
             pa.array(flip, mask=flip < 0, type=pa.int64()),
             pa.array(np.full(n, sha256, dtype=object), type=pa.string()),
             pa.array(np.full(n, fingerprint, dtype=object), type=pa.string()),
+            pa.array(np.full(n, rows.text_view, dtype=object), type=pa.string()),
         ],
         schema=ledger_schema(),
     )

@@ -23,6 +23,7 @@ from explain.present.token_display import shown
 from explain.present.ledger_words import (
     CAUTION,
     closing_figure,
+    beat_line,
     closing_odds,
     credit_colour_class,
     ledger_notes,
@@ -32,6 +33,7 @@ from explain.present.ledger_words import (
     rule_line,
     shown_rows,
     support_cell,
+    versus_note,
     word_notes,
 )
 from explain.present.wording import amount, folded
@@ -184,6 +186,8 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "closing": closing_figure(ledger),
         "closing_odds": closing_odds(ledger),
         "rule": rule_line(ledger),
+        "beat": None if ledger.beat is None else beat_line(ledger),
+        "versus_note": versus_note(ledger),
         "legend": legend,
         "notes": ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top),
         "word_notes": word_notes(ledger),

@@ -1,8 +1,9 @@
 """The ledger of one message as JSON (``nbledger why --format json``).
 
-Schema ``nbledger.why/2`` keeps every key of ``nbledger.why/1`` with its
+Schema ``nbledger.why/3`` keeps every key of ``nbledger.why/1`` with its
 meaning (listed in the README) and adds ``message_id``, ``date``,
-``card_date``, ``redacted``, ``ledger`` (see :func:`to_json`) and ``email``
+``card_date``, ``redacted``, ``text_view``, ``ledger`` (``ledger.versus`` names the
+comparison the balance makes) (see :func:`to_json`) and ``email``
 (for a raw e-mail, what was read: ``text_view``, redacted ``subject`` and
 ``sender``, ``attachments``, ``undecodable_parts``, ``problems``; null for
 plain text).
@@ -57,7 +58,7 @@ from explain.analysis.ledger import Ledger
 from explain.present.email_lines import email_json
 from explain.present.wording import flip_sentence
 
-SCHEMA = "nbledger.why/2"
+SCHEMA = "nbledger.why/3"
 
 
 def _finite(x: float) -> float | None:
@@ -115,12 +116,14 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
         "card_date": ledger.card_date,
         "redacted": ledger.redacted,
         "circulation": "internal",
+        # nbledger.why/3 adds:
+        "text_view": ledger.text_view,
         "ledger": _ledger_keys(ledger, top),
     }
 
 
 def _ledger_keys(ledger: Ledger, top: int) -> dict:
-    """The ``ledger`` object of ``nbledger.why/2``: sides, rule, opening, entries, closing, folding."""
+    """The ``ledger`` object of ``nbledger.why/3``: sides (``versus``), rule, opening, entries, closing, folding."""
     spans_known = ledger.explanation.spans_note is None
     summary = ledger.summary(top)
     index = {id(e): i for i, e in enumerate(ledger.entries)}
@@ -128,6 +131,9 @@ def _ledger_keys(ledger: Ledger, top: int) -> dict:
         "credit_side": ledger.credit_side,
         "credit_classes": list(ledger.credit_classes),
         "debit_class": ledger.debit_class,
+        "credit_class": ledger.credit_class,
+        "versus": ledger.versus,
+        "beat": None if ledger.beat is None else {"flagged_class": ledger.beat[0], "log_odds": ledger.beat[1]},
         "balance_method": ledger.balance_method,
         "exact": ledger.exact,
         "rule": ledger.rule,

@@ -29,6 +29,7 @@ from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines
 from explain.present.ledger_words import (
     CAUTION,
+    beat_line,
     closing_figure,
     closing_odds,
     credit_colour_class,
@@ -39,6 +40,7 @@ from explain.present.ledger_words import (
     rule_line,
     shown_rows,
     support_cell,
+    versus_note,
     word_notes,
 )
 from explain.present.tint import MARKS, heat_runs, tint
@@ -129,6 +131,8 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     decision.append(f"   {probability_line(ledger)}")
     console.print(decision)
     console.print(Text(f"balance = {ledger.balance_method}"))
+    if versus_note(ledger):
+        console.print(Text(versus_note(ledger)))
     console.print()
 
     rows = shown_rows(ledger, top)
@@ -140,6 +144,8 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     closing.append(f"   {closing_odds(ledger)}")
     console.print(closing)
     console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
+    if ledger.beat is not None:
+        console.print(Text(beat_line(ledger)))
     console.print(_legend(ledger, rows, mode, families))
     for note in ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
         console.print(Text(note, style="dim" if mode != "none" else ""))

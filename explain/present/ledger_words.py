@@ -46,11 +46,8 @@ def support_cell(entry, ledger: Ledger) -> str:
 
 
 def credit_colour_class(ledger: Ledger) -> str:
-    """The class credits are drawn in: the credit class, or the most probable flagged class."""
-    if len(ledger.credit_classes) == 1:
-        return ledger.credit_classes[0]
-    probs = dict(zip(ledger.classes, ledger.probabilities))
-    return max(ledger.credit_classes, key=lambda c: probs[c])
+    """The class credits are drawn in: the ledger's credit class (read, never worked out here)."""
+    return ledger.credit_class
 
 
 def shown_rows(ledger: Ledger, top: int):
@@ -91,6 +88,19 @@ def rule_line(ledger: Ledger) -> str:
         )
     tie = "or equal to " if ledger.line_inclusive else ""
     return f"rule: the most probable class; {ledger.credit_side} when the balance is above {tie}0"
+
+
+def versus_note(ledger: Ledger) -> str | None:
+    """Without a normal class, the line saying what the balance compares instead; else None."""
+    if ledger.versus != "predicted-against-runner-up":
+        return None
+    return f"balance: {ledger.versus_words} (--normal-class names one)"
+
+
+def beat_line(ledger: Ledger) -> str:
+    """The second question a flagged decision answered: how far it led the strongest other flagged class."""
+    other, by = ledger.beat
+    return f"and beat {other} by {by:.2f} (log-odds of {ledger.decision} against {other})"
 
 
 def money(x: float) -> tuple[str, str]:

@@ -4,15 +4,17 @@ Nothing here computes a figure. Evasion costs count added token
 occurrences; shifts are substituted minus original; log-odds are
 ``log P(flag) - log P(normal)`` (natural logarithms).
 
-JSON (``--format json``), schema ``nbledger.probe/1``: ``classes``,
+JSON (``--format json``), schema ``nbledger.probe/2``: ``classes``,
 ``normal_class``, ``threshold``, ``threshold_log_odds``, ``messages``,
 ``cautions``; ``evasion`` (null unless asked): ``max_added``, ``note``,
 ``flagged_messages`` and per budget (``repeats``, ``distinct``): ``method``
 (exact or greedy), ``per_class`` (``flagged_class``, ``messages``, ``evaded``,
-``median``, ``q1``, ``q3``: null when beyond ``max_added``, ``share_within``
+``median``, ``q1``, ``q3``: a number, ``{"more_than": max_added}`` past the
+greedy search's cap, or ``{"no_attack": true}`` when no addition lets the
+messages through (exact costs are never capped), ``share_within``
 keyed by 1, 3, 5, 10), ``weak_points`` (``token``, ``attacks``,
 ``per_occurrence_evidence`` keyed by flagged class, ``support`` keyed by class)
-and ``attacks`` (``row``, ``decided``, ``cost``: null when not evaded,
+and ``attacks`` (``row``, ``decided``, ``cost``: a number or an object as above,
 ``additions`` as ``{token, occurrences}``); ``term_evidence`` (``group``,
 ``term``, ``token``, ``known``, ``evidence`` keyed by class, ``support``);
 ``swap_notes``; ``term_swaps`` (null without data): ``groups`` (``group``,
@@ -28,12 +30,12 @@ from __future__ import annotations
 
 from rich.table import Table
 
-from explain.analysis.evasion import WITHIN
+from explain.analysis.evasion import WITHIN, MoreThan
 from explain.analysis.probe import ProbeResult
 from explain.present.token_display import shown
 from explain.present.wording import amount, plural
 
-SCHEMA = "nbledger.probe/1"
+SCHEMA = "nbledger.probe/2"
 CAUTIONS = (
     "Evasion results are sensitive: they show a sender what to add to get a message through. "
     "Keep them for internal circulation.",
@@ -44,8 +46,9 @@ CAUTIONS = (
 PAIRS_SHOWN = 12
 
 
-def _cost(value: float | None, limit: int) -> str:
-    return f">{limit}" if value is None else f"{value:g}"
+def _cost(value) -> str:
+    """A cost on the screen: a count, ``more than N`` past the greedy search's cap, or ``no attack``."""
+    return str(value) if isinstance(value, MoreThan) else f"{value:g}"
 
 
 def render(result: ProbeResult, console) -> None:
@@ -59,7 +62,8 @@ def render(result: ProbeResult, console) -> None:
         console.print()
         console.print(
             f"[bold]Evasion cost[/bold]: added tokens that let a flagged message through "
-            f"({plural(len(ev.rows), 'flagged message')}, searched up to {ev.max_added})"
+            f"({plural(len(ev.rows), 'flagged message')}, "
+            + ("exact, no limit)" if ev.repeats.exact else f"greedy, searched up to {ev.max_added})")
         )
         if ev.note:
             console.print(f"note: {ev.note}")
@@ -76,8 +80,8 @@ def render(result: ProbeResult, console) -> None:
             for s in res.summaries:
                 shares = dict(s.within)
                 table.add_row(
-                    shown(s.flagged_class), f"{s.messages:,}", _cost(s.median, ev.max_added),
-                    f"{_cost(s.q1, ev.max_added)} to {_cost(s.q3, ev.max_added)}",
+                    shown(s.flagged_class), f"{s.messages:,}", _cost(s.median),
+                    f"{_cost(s.q1)} to {_cost(s.q3)}",
                     *(f"{100 * shares[k]:.0f}%" for k in WITHIN),
                 )
             console.print(table)
@@ -153,12 +157,15 @@ def _print_swaps(sw, console) -> None:
         console.print(f"term pairs untested (0 messages hold the term), no gap: {listed}")
 
 
-def _none_if_beyond(value):
-    return None if value is None else float(value)
+def _cost_json(value):
+    """A cost in JSON: a number, ``{"more_than": N}`` past the greedy cap, or ``{"no_attack": true}``."""
+    if isinstance(value, MoreThan):
+        return {"no_attack": True} if value.limit is None else {"more_than": value.limit}
+    return float(value)
 
 
 def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
-    """The probe as plain JSON-ready data (schema ``nbledger.probe/1``)."""
+    """The probe as plain JSON-ready data (schema ``nbledger.probe/2``)."""
     ev = result.evasion
     evasion = None
     if ev is not None:
@@ -170,7 +177,7 @@ def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
                 "per_class": [
                     {
                         "flagged_class": s.flagged_class, "messages": s.messages, "evaded": s.evaded,
-                        "median": _none_if_beyond(s.median), "q1": _none_if_beyond(s.q1), "q3": _none_if_beyond(s.q3),
+                        "median": _cost_json(s.median), "q1": _cost_json(s.q1), "q3": _cost_json(s.q3),
                         "share_within": {str(k): v for k, v in s.within},
                     }
                     for s in res.summaries
@@ -187,7 +194,8 @@ def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
             if include_attacks:
                 block["attacks"] = [
                     {
-                        "row": int(r), "decided": str(d), "cost": int(c) if c > 0 else None,
+                        "row": int(r), "decided": str(d),
+                        "cost": int(c) if c > 0 else _cost_json(MoreThan(None if res.exact else ev.max_added)),
                         "additions": [{"token": t, "occurrences": n} for t, n in adds],
                     }
                     for r, d, c, adds in zip(ev.rows, ev.decided, res.costs, res.additions)

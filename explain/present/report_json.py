@@ -58,6 +58,7 @@ def to_json(report: Report) -> dict:
             "threshold_log_odds": s.threshold_log_odds,
             "base_rate": s.base_rate,
             "costs": None if s.costs is None else list(s.costs),
+            "text_view": report.text_view,
             "versions": report.versions,
             "model": dataclasses.asdict(report.facts),
             "data": data,

@@ -146,7 +146,7 @@ def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
 def write_ledger_dask(
     model, paths, text_col: str, out, *, scheduler=None, workers=2, connect_timeout=10.0,
     id_col=None, top_k=5, chunk_rows=20_000, only_flagged=False, threshold=None, summary=None,
-    on_chunk=None, progress=None, mail=None,
+    on_chunk=None, progress=None, mail=None, threshold_log_odds=None,
 ) -> LedgerProgress:
     """Like :func:`~explain.runs.ledger_local.write_ledger`, on a Dask cluster (an .eml folder in pieces of
     :data:`~explain.model.data_stream.MAIL_PIECE_FILES` files, an mbox file as one)."""
@@ -155,7 +155,7 @@ def write_ledger_dask(
     out = Path(out)
     single = out.suffix.lower() in LEDGER_FORMATS or out.name.lower().endswith((".csv.gz", ".jsonl.gz"))
     fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger") if single else ("parquet", False)
-    rule, drivers = run_rule(model, threshold, only_flagged, summary)
+    rule, drivers = run_rule(model, threshold, only_flagged, summary, threshold_log_odds)
     pieces = input_pieces(paths, mail)
     progress = progress if progress is not None else LedgerProgress()
     progress.flags_known = rule.normal_index is not None

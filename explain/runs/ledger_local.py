@@ -115,20 +115,23 @@ def drivers_header(model, rule, progress: LedgerProgress) -> dict:
         "classes": [str(c) for c in view.classes],
         "normal_class": str(view.classes[rule.normal_index]),
         "threshold": rule.threshold,
+        "threshold_log_odds": rule.threshold_log_odds,
         "margin_scale": "threshold" if rule.threshold is not None else "argmax",
         "messages": progress.messages,
         "flagged": {str(c): progress.flagged.get(str(c), 0) for c in view.classes if str(c) != str(view.classes[rule.normal_index])},
     }
 
 
-def run_rule(model, threshold, only_flagged, summary):
-    """The decision rule of a run and its starting flag drivers (None without ``summary``)."""
+def run_rule(model, threshold, only_flagged, summary, threshold_log_odds=None):
+    """The decision rule of a run and its starting flag drivers (None without ``summary``).
+
+    The threshold is a probability (``threshold``) or exact flag log-odds (``threshold_log_odds``)."""
     from explain.analysis.drivers import empty_drivers
     from explain.model.decision import DecisionRule
 
     if summary is not None:
         output_format(summary, DRIVER_FORMATS, "flag-driver")
-    rule = DecisionRule.for_view(model.view, threshold)
+    rule = DecisionRule.for_view(model.view, threshold, threshold_log_odds)
     if (only_flagged or summary is not None) and rule.normal_index is None:
         raise NbledgerError("flagging needs a normal class: name it with --normal-class")
     return rule, (empty_drivers(model.view, rule) if summary is not None else None)
@@ -136,7 +139,7 @@ def run_rule(model, threshold, only_flagged, summary):
 
 def write_ledger(
     model, paths, text_col: str | None, out, *, id_col=None, top_k=5, chunk_rows=20_000,
-    only_flagged=False, threshold=None, summary=None,
+    only_flagged=False, threshold=None, summary=None, threshold_log_odds=None,
     on_chunk: Callable[[LedgerProgress], None] | None = None, progress: LedgerProgress | None = None,
     helper: bool = True, mail=None,
 ) -> LedgerProgress:
@@ -153,7 +156,7 @@ def write_ledger(
     from explain.model.feature_worker import featured
 
     fmt, gzipped = output_format(out, LEDGER_FORMATS, "ledger")
-    rule, drivers = run_rule(model, threshold, only_flagged, summary)
+    rule, drivers = run_rule(model, threshold, only_flagged, summary, threshold_log_odds)
     progress = progress if progress is not None else LedgerProgress()
     progress.flags_known = rule.normal_index is not None
     ids_seen = IdCounter() if id_col is not None else None

@@ -1,6 +1,6 @@
 """Records of ``nbledger why --out``: the ledgers of the chosen messages in one file, by its suffix.
 
-``.txt`` is the terminal ledger as plain text, ``.json`` the ``nbledger.why/2``
+``.txt`` is the terminal ledger as plain text, ``.json`` the ``nbledger.why/3``
 object (several messages: ``nbledger.why-set/2``), ``.html`` and ``.pdf`` the
 one-page sheet of the printable report. The presenters format; this table
 picks one and runs it.
@@ -20,7 +20,7 @@ from explain.present.token_display import make_console
 RECORD_WIDTH = 80
 
 
-SET_SCHEMA = "nbledger.why-set/2"
+SET_SCHEMA = "nbledger.why-set/3"
 
 
 def text_record(ledgers, *, date: str, top: int = 10) -> str:
@@ -34,7 +34,7 @@ def text_record(ledgers, *, date: str, top: int = 10) -> str:
 
 
 def json_record(ledgers, *, date: str, top: int = 10) -> str:
-    """One ``nbledger.why/2`` object, or for several messages ``{schema, messages: [...]}``."""
+    """One ``nbledger.why/3`` object, or for several messages ``{schema, messages: [...]}``."""
     docs = [to_json(ledger, date=date, top=top) for ledger in ledgers]
     doc = docs[0] if len(docs) == 1 else {"schema": SET_SCHEMA, "date": date, "messages": docs}
     return json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"

@@ -30,7 +30,7 @@ class ReportFiles:
 def build_report_files(
     loaded, *, settings: ReportSettings, data=None, explain=None, watchlist=None,
     slices=(), label_errors=None, probe_evasion: bool = False, swap_terms=None, reviews=None,
-    on_step: Callable[[str], None] = lambda name: None,
+    on_step: Callable[[str], None] = lambda name: None, features=None, text_view: str | None = None,
 ) -> ReportFiles:
     """Compute the report of ``loaded`` (a :class:`~explain.model.loading.LoadedModel`) and render its files.
 
@@ -39,7 +39,8 @@ def build_report_files(
     """
     result = build_report(loaded, settings=settings, data=data, explain=explain, watchlist=watchlist,
                           on_step=on_step, slices=list(slices), label_errors=label_errors,
-                          probe_evasion=probe_evasion, swap_terms=swap_terms, reviews=reviews)
+                          probe_evasion=probe_evasion, swap_terms=swap_terms, reviews=reviews, features=features,
+                          text_view=text_view)
     on_step("drawing the pictures")
     twin = to_json(result)
     pictures = draw_pictures(result)

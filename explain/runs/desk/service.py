@@ -76,10 +76,11 @@ def checked_text(settings: DeskSettings, text) -> str:
 def ledger_for(settings: DeskSettings, text: str, message_id: str | None = None):
     """The ledger of ``text`` under the desk's model and rule (redacted when the desk redacts)."""
     from explain.analysis.ledger import ledger_of, redacted
+    from explain.model.email_reader import resolve_text_view
 
     ledger = ledger_of(
         settings.loaded, text, settings.threshold, threshold_log_odds=settings.threshold_log_odds,
-        message_id=message_id,
+        message_id=message_id, text_view=resolve_text_view(settings.loaded.card),  # the card's view, else raw
     )
     return redacted(ledger) if settings.redact else ledger
 
