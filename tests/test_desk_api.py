@@ -76,7 +76,7 @@ def test_queued_ledgers_equal_scikit_learn(desk):
     texts = {item.id: item.text for item in settings.queue.items}
     for entry in queue[:25]:
         record = client.get(f"/api/messages/{entry['id']}/ledger").json()
-        assert record["schema"] == "nbledger.why/2" and record["message_id"] == entry["id"]
+        assert record["schema"] == "nbledger.why/3" and record["message_id"] == entry["id"]
         text = texts[entry["id"]]
         assert close(record["ledger"]["closing"], expected_closing(pipeline, text, record))
         proba = pipeline.predict_proba([text])[0]
@@ -108,7 +108,7 @@ def test_a_review_is_stored_with_what_it_was_based_on(desk):
     assert review["reviewer"] == "local" and review["outcome"] == "overturned" and review["message_id"] == mid
     assert review["model_sha256"] == hashlib.sha256(model.read_bytes()).hexdigest()
     assert review["model_fingerprint"] == settings.loaded.fingerprint and len(review["model_fingerprint"]) == 64
-    assert review["ledger"]["schema"] == "nbledger.why/2" and review["ledger"]["message_id"] == mid
+    assert review["ledger"]["schema"] == "nbledger.why/3" and review["ledger"]["message_id"] == mid
     assert review["recorded_at"].endswith("Z")
     # A correction is a new review naming the one it supersedes.
     again = client.post(f"/api/messages/{mid}/reviews", json={"outcome": "upheld", "reason": "on reflection",

@@ -12,7 +12,7 @@ The keys of ``nbledger.why/1``:
 
 key                    meaning
 =====================  ==========================================================
-``schema``             ``"nbledger.why/2"``
+``schema``             ``"nbledger.why/3"``
 ``model``              ``{path, sha256, fingerprint, from_cache}``: the model file, its SHA-256, the
                        model's fingerprint and whether its view came from the cache of loaded models
 ``classes``            class labels in the model's order

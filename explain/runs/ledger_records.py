@@ -1,7 +1,7 @@
 """Records of ``nbledger why --out``: the ledgers of the chosen messages in one file, by its suffix.
 
 ``.txt`` is the terminal ledger as plain text, ``.json`` the ``nbledger.why/3``
-object (several messages: ``nbledger.why-set/2``), ``.html`` and ``.pdf`` the
+object (several messages: ``nbledger.why-set/3``), ``.html`` and ``.pdf`` the
 one-page sheet of the printable report. The presenters format; this table
 picks one and runs it.
 """

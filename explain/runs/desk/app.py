@@ -2,7 +2,7 @@
 
 State lives on the app (``app.state.settings``), never in module globals, so tests and ``nbledger
 serve`` run the same object. Handlers are thin: a ledger is :func:`explain.analysis.ledger.ledger_of`
-presented by :func:`explain.present.ledger_json.to_json` (the ``nbledger.why/2`` record) or by
+presented by :func:`explain.present.ledger_json.to_json` (the ``nbledger.why/3`` record) or by
 :func:`explain.present.ledger_html.ledger_context` (the report's ledger partial); reviews go to
 :class:`explain.runs.desk.store.Store`, committed before the 201 is sent.
 """
