@@ -111,10 +111,19 @@ def read_messages_or_fail(
     for line in messages.notes:
         warn(f"{data.name}: {line}")
     if mail is not None:
-        from explain.cli.mail_options import raw_mail_note
-
         raw_mail_note(messages.texts, mail.view)
     return messages
+
+
+def raw_mail_note(texts, view: str) -> None:
+    """In the raw text view, one note line when messages look like e-mail (explained as given all the same)."""
+    from explain.model.email_reader import RAW_VIEW, looks_like_email, mail_view_note
+
+    if view != RAW_VIEW:
+        return
+    found = sum(looks_like_email(t[: 64 * 1024].encode("utf-8", "surrogatepass")) for t in texts)
+    if found:
+        note(mail_view_note(found, len(texts)))
 
 
 def labelled_or_fail(messages, data: Path):

@@ -29,14 +29,3 @@ def mail_input(card: dict | None, text_view: str | None, raw_email=False, labels
         raw_email, labels_from_folders, label, resolve_text_view(card, text_view), rules=text_rules_of(card)
     )
 
-
-def raw_mail_note(texts, view: str) -> None:
-    """In the raw text view, one note line when messages look like e-mail (explained as given all the same)."""
-    from explain.cli.common import note
-    from explain.model.email_reader import RAW_VIEW, looks_like_email, mail_view_note
-
-    if view != RAW_VIEW:
-        return
-    found = sum(looks_like_email(t[: 64 * 1024].encode("utf-8", "surrogatepass")) for t in texts)
-    if found:
-        note(mail_view_note(found, len(texts)))

@@ -11,9 +11,10 @@ import typer
 
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
-    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, read_messages_or_fail, warn, one_threshold,
+    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold, raw_mail_note,
+    read_messages_or_fail, warn,
 )
-from explain.cli.mail_options import TEXT_VIEW, raw_mail_note
+from explain.cli.mail_options import TEXT_VIEW
 from explain.dates import record_date
 from explain.present.token_display import for_terminal, make_console
 

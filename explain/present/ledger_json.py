@@ -110,7 +110,7 @@ def to_json(ledger: Ledger, *, date: str | None = None, top: int = 10) -> dict:
         "feature_kind": expl.feature_kind,
         "variant": expl.variant,
         "email": email_json(expl.mail),
-        # nbledger.why/2 adds:
+        # nbledger.why/2 adds (and /3 the text view, and ledger.versus, credit_class and beat):
         "message_id": ledger.message_id,
         "date": date,
         "card_date": ledger.card_date,
