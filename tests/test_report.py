@@ -255,7 +255,7 @@ def test_audit_figures_are_the_ones_assess_computes(files, tmp_path, capsys):
 
 
 def test_a_raw_e_mail_is_explained_in_the_text_view_why_uses(files, tmp_path, capsys):
-    """--explain FILE.eml reads the e-mail as why --file does, in the card's view or --text-view."""
+    """--explain FILE.eml reads the e-mail as why --file does: as given (a card with no view), or in --text-view."""
     eml = CORPUS / "examples" / "notice.eml"
     for view in ([], ["--text-view", "subject+body"]):
         made = nbledger(capsys, "report", files / "filter.skops", "--normal-class", "ok", "--explain", eml, *view,
@@ -267,7 +267,9 @@ def test_a_raw_e_mail_is_explained_in_the_text_view_why_uses(files, tmp_path, ca
         assert why.code == 0, why.err
         assert shown["id"] == "notice.eml"
         assert shown["ledger"]["closing"] == json.loads(why.out)["ledger"]["closing"]
-        assert "Content-Type" not in (shown["text"] or "")
+        # The filter's card records no text view: without --text-view the file is explained as given.
+        assert shown["text_view"] == json.loads(why.out)["text_view"] == ("subject+body" if view else "raw")
+        assert ("Content-Type" in (shown["text"] or "")) == (not view)
 
 
 # --- redaction -------------------------------------------------------------------------
