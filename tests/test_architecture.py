@@ -125,8 +125,6 @@ def test_public_names_are_the_objects_inside(name):
 MAX_BODY_LINES = 80
 #: Bodies still longer, each with who splits it; the list only shrinks.
 KNOWN_LONG = {
-    "explain/analysis/ledger.py:ledger_of",  # the ledger's owner (issue 17) splits it
-    "explain/analysis/evidence.py:exact_flips",  # the ledger's owner (issue 17) splits it
     "explain/analysis/assessment.py:assess",
     "explain/analysis/report.py:build_report",
 }

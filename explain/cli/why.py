@@ -11,8 +11,8 @@ import typer
 
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
-    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold, raw_mail_note,
-    read_messages_or_fail, warn,
+    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold, read_messages_or_fail,
+    warn,
 )
 from explain.cli.mail_options import TEXT_VIEW
 from explain.dates import record_date
@@ -157,6 +157,20 @@ def read_one(raw: bytes | str, as_email: bool, view: str, rules: str | None = No
     if not mail.text(view).strip():
         fail(f"the e-mail has no text in the {view} view" + (" (attachments only)" if mail.attachments else ""))
     return mail.message_id or None, mail.text(view), mail_facts(mail, view), view
+
+
+def given_message(loaded, text, file, max_bytes: int, as_email: bool, text_view) -> tuple[list, str]:
+    """``([(id, text, mail facts)], text view)`` of the one message given as TEXT, ``-`` or ``--file``."""
+    from explain.model.email_reader import resolve_text_view, text_rules_of
+
+    if as_email and text_view == "raw":
+        fail("--email reads a mail view; --text-view raw explains the message as given: give one of them")
+    mid, message, mail, view = read_one(
+        read_message(text, file, max_bytes), as_email, resolve_text_view(loaded.card, text_view),
+        text_rules_of(loaded.card),
+    )
+    # A message from a file is named by its file when it carries no id of its own.
+    return [(mid or (file.name if file is not None else None), message, mail)], view
 
 
 def member_out_ok(out: Optional[Path], ids: Optional[Path], output_format: str) -> None:
@@ -309,17 +323,8 @@ def why(
                 features = loaded.featurizer.transform(messages.texts)
                 documents = document_counts(loaded.view, features, messages.labels, source)
             chosen = [(mid, message, None) for mid, message in chosen]
-            raw_mail_note([message for _, message, _ in chosen], view)
         else:
-            from explain.model.email_reader import text_rules_of
-
-            if as_email and text_view == "raw":
-                fail("--email reads a mail view; --text-view raw explains the message as given: give one of them")
-            mid, message, mail, view = read_one(
-                read_message(text, file, max_bytes), as_email, view, text_rules_of(loaded.card),
-            )
-            # A message from a file is named by its file when it carries no id of its own.
-            chosen = [(mid or (file.name if file is not None else None), message, mail)]
+            chosen, view = given_message(loaded, text, file, max_bytes, as_email, text_view)
         ledgers = []
         for mid, message, mail in chosen:
             ledger = ledger_of(
