@@ -36,10 +36,13 @@ def test_heat_is_the_sum_of_covering_ngrams_and_the_total_is_exact(text, analyze
         j = vec.vocabulary_.get(token)
         if j is not None:
             expected[a:b] += w[j]
-    np.testing.assert_allclose(ledger.character_heat(), expected, atol=1e-9)
+    # The ledger answers the decision's question: scam against ok when flagged, ok against scam when let through.
+    sign = 1.0 if pipeline.predict([text])[0] == "scam" else -1.0
+    np.testing.assert_allclose(ledger.character_heat(), sign * expected, atol=1e-9)
     # The entries still add up to scikit-learn's log-odds exactly.
     jll = nb.predict_joint_log_proba(vec.transform([text]))[0]
-    assert ledger.closing == pytest.approx(jll[list(nb.classes_).index("scam")] - jll[list(nb.classes_).index("ok")], abs=1e-9)
+    scam_vs_ok = jll[list(nb.classes_).index("scam")] - jll[list(nb.classes_).index("ok")]
+    assert ledger.closing == pytest.approx(sign * scam_vs_ok, abs=1e-9)
 
 
 def test_html_tints_runs_of_heat_and_keeps_the_text():

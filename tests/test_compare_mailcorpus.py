@@ -49,10 +49,13 @@ def test_changed_decisions_on_hard_ham_with_both_explanations(setting):
     assert d.changed == len(changed) > 0
     assert [m.row for m in d.shown] == changed.tolist()
     for m in d.shown:
-        # Each explanation's closing balance is scikit-learn's own log-odds of the two classes.
+        # Each explanation's closing balance is scikit-learn's own log-odds of the decided class against the
+        # other (spam against ham when flagged, ham against spam when let through), as why tells it.
         for pipeline, ledger in ((old, m.old), (new, m.new)):
-            jll = pipeline[-1].predict_joint_log_proba(pipeline[:-1].transform([messages.texts[m.row]]))[0]
-            assert ledger.closing == pytest.approx(jll[1] - jll[0], abs=1e-8)
+            text = messages.texts[m.row]
+            jll = pipeline[-1].predict_joint_log_proba(pipeline[:-1].transform([text]))[0]
+            sign = 1.0 if pipeline.predict([text])[0] == "spam" else -1.0
+            assert ledger.closing == pytest.approx(sign * (jll[1] - jll[0]), abs=1e-8)
     # hard-ham-1 is all ham: a change toward ham is a fixed false alarm, and McNemar counts exactly those.
     fixed = int(np.sum((before == "spam") & (after == "ham")))
     broken = int(np.sum((before == "ham") & (after == "spam")))

@@ -9,6 +9,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from batch_tops import top_tokens
 from corpora import cases, loaded, make_pipeline, messages
 from explain.analysis.batch import batch_evidence, score_texts
 from explain.model.decision import DecisionRule
@@ -64,11 +65,11 @@ def test_batch_matches_sklearn_and_single_messages(case, texts):
             continue
         e = explain_message(case.model, text)
         want = [(t.token, t.evidence) for t in e.strongest(3, "for")]
-        got = batch.top_tokens(i, "for")
+        got = top_tokens(batch, i, "for")
         assert [round(v, 9) for _, v in got] == [round(v, 9) for _, v in want]
         assert {tok for tok, _ in got} <= {t.token for t in e.tokens}
         against = [(t.token, t.evidence) for t in e.strongest(3, "against")]
-        assert [round(v, 9) for _, v in batch.top_tokens(i, "against")] == [round(v, 9) for _, v in against]
+        assert [round(v, 9) for _, v in top_tokens(batch, i, "against")] == [round(v, 9) for _, v in against]
 
 
 @PROPERTY

@@ -12,6 +12,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from batch_tops import top_tokens
 from corpora import cases, loaded, messages
 from explain.analysis.batch import batch_evidence
 from explain.analysis.ledger import ledger_of
@@ -73,7 +74,7 @@ def test_batch_top_tokens_use_the_ledgers_comparison(case, texts):
         assert model.view.classes[batch.credit[i]] == ledger.credit_class
         assert model.view.classes[batch.debit[i]] == ledger.debit_class
         amounts = {e.token: e.amount for e in ledger.entries}
-        for token, value in batch.top_tokens(i, "for") + batch.top_tokens(i, "against"):
+        for token, value in top_tokens(batch, i, "for") + top_tokens(batch, i, "against"):
             assert close(value, amounts[token])
 
 
