@@ -235,11 +235,6 @@ def load() -> list[dict]:
     return [json.loads(line) for line in PATH.read_text(encoding="utf-8").splitlines()]
 
 
-if __name__ == "__main__":
-    PATH.parent.mkdir(exist_ok=True)
-    PATH.write_text("".join(json.dumps(x, ensure_ascii=False) + "\n" for x in build()), encoding="utf-8")
-
-
 def measure(messages, detect) -> dict[str, dict[str, float]]:
     """Precision and recall per kind of ``detect(text) -> [(start, end, kind)]`` on labelled ``messages``.
 
@@ -273,8 +268,64 @@ def measure(messages, detect) -> dict[str, dict[str, float]]:
                 wrong.setdefault(k, []).append(f"{m['id']}: {text[a:b]!r}")
     kinds = sorted(set(labelled) | set(detected))
     return {
-        k: {"labelled": labelled[k], "recall": found[k] / labelled[k] if labelled[k] else float("nan"),
-            "detected": detected[k], "precision": right[k] / detected[k] if detected[k] else float("nan"),
+        k: {"labelled": labelled[k], "found": found[k],
+            "recall": found[k] / labelled[k] if labelled[k] else float("nan"),
+            "detected": detected[k], "right": right[k],
+            "precision": right[k] / detected[k] if detected[k] else float("nan"),
             "misses": misses.get(k, []), "wrong": wrong.get(k, [])}
         for k in kinds
     }
+
+
+TABLE_HEAD = (
+    "| kind | labelled | found | recall | recall, 95% lower end | detected | right | precision |\n"
+    "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: |\n"
+)
+
+
+def table(figures: dict[str, dict]) -> str:
+    """The "Measured" table of ``docs/redaction.md``, made from :func:`measure`'s figures.
+
+    ``recall, 95% lower end`` is the lower end of the two-sided Wilson score
+    interval (Wilson 1927) of found / labelled, through
+    :func:`explain.analysis.stats.wilson_interval`: with few labelled values a
+    recall of 1.000 promises little. ``test_personal_data`` compares this
+    table with the one in the docs, so the two cannot drift apart.
+    """
+    from explain.analysis.stats import wilson_interval
+
+    def share(value: float) -> str:
+        return "-" if value != value else f"{value:.3f}"
+
+    rows = []
+    for kind, f in figures.items():
+        low = float(wilson_interval(f["found"], f["labelled"])[0]) if f["labelled"] else float("nan")
+        rows.append(
+            f"| `{kind}` | {f['labelled']} | {f['found']} | {share(f['recall'])} | {share(low)} | "
+            f"{f['detected']} | {f['right']} | {share(f['precision'])} |\n"
+        )
+    return TABLE_HEAD + "".join(rows)
+
+
+def table_in(markdown: str) -> str:
+    """The table under ``## Measured`` in ``markdown`` (from its heading row to the first line not a row)."""
+    start = markdown.index(TABLE_HEAD.splitlines()[0])
+    lines = []
+    for line in markdown[start:].splitlines(keepends=True):
+        if not line.startswith("|"):
+            break
+        lines.append(line)
+    return "".join(lines)
+
+
+if __name__ == "__main__":
+    import sys
+
+    if sys.argv[1:] == ["table"]:
+        # python tests/personal_set.py table: the figures for docs/redaction.md
+        from explain.analysis.personal_data import find_personal
+
+        print(table(measure(load(), find_personal)), end="")
+    else:
+        PATH.parent.mkdir(exist_ok=True)
+        PATH.write_text("".join(json.dumps(x, ensure_ascii=False) + "\n" for x in build()), encoding="utf-8")

@@ -91,3 +91,25 @@ def test_a_bad_key_file_is_one_error(tmp_path):
         read_id_key(tmp_path / "empty.key")
     with pytest.raises(NbledgerError, match="is a folder"):
         read_id_key(tmp_path)
+
+
+def test_the_table_in_the_docs_is_what_the_set_and_the_detector_give(figures):
+    # The "Measured" table of docs/redaction.md is made by personal_set.table from these figures
+    # (python tests/personal_set.py table); a changed detector or set without new docs fails here.
+    from pathlib import Path
+
+    from personal_set import table, table_in
+
+    docs = (Path(__file__).resolve().parents[1] / "docs" / "redaction.md").read_text(encoding="utf-8")
+    assert table_in(docs) == table(figures)
+    for kind, f in figures.items():
+        assert f["found"] == round(f["recall"] * f["labelled"]) and f["right"] <= f["detected"], kind
+
+
+def test_family_names_with_particles_are_masked_whole():
+    # "van der Berg" after a given name, under a sign-off and after a title (common practice, no source)
+    for text, name in [("Kind regards,\nMei van der Berg", "Mei van der Berg"),
+                       ("Dr van der Berg will run the session.", "van der Berg"),
+                       ("Ask for Anna de Souza at the desk.", "Anna de Souza")]:
+        assert [text[a:b] for a, b, k in find_personal(text) if k == "name"] == [name], text
+    assert find_personal("I saw the van der Waals talk") == []

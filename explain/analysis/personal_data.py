@@ -491,11 +491,17 @@ def _name_run(text: str, at: int, strong: bool, limit: int = 3) -> tuple[int, in
     so a capitalised word will do; otherwise the first word must be a known
     given name or a capitalised word followed by another one.
     """
-    words = []
+    words, named = [], 0  # named: the words that are not particles, at most ``limit``
     for m in _WORD.finditer(text, at):
         gap = text[words[-1].end(): m.start()] if words else text[at: m.start()]
         if "\n" in gap or (words and gap.strip(" \t") not in ("",)) or (not words and gap.strip()):
             break
+        if m.group().lower() in _PARTICLES and named < limit:
+            # "Rhiannon van der Berg", "Dr van der Berg": lower-case particles inside a family name
+            nxt = _WORD.match(text, m.end() + 1)
+            if (words or strong) and nxt and text[m.end()] == " " and (_name_like(nxt.group()) or nxt.group().lower() in _PARTICLES):
+                words.append(m)
+                continue
         after = text[m.end(): m.end() + 3]
         addressed = strong and not words and re.match(r"[ \t]*(?:[,!:\n]| -|$)", after) is not None
         if not _name_like(m.group()) and not (strong and not words and (is_given_name(m.group()) or addressed)):
@@ -504,13 +510,9 @@ def _name_run(text: str, at: int, strong: bool, limit: int = 3) -> tuple[int, in
             break
         if words and m.group().lower() in _PLACE_WORDS:
             return None
-        if m.group().lower() in _PARTICLES and len(words) < limit - 1:
-            nxt = _WORD.match(text, m.end() + 1)
-            if (words or strong) and nxt and text[m.end()] == " " and (_name_like(nxt.group()) or nxt.group().lower() in _PARTICLES):
-                words.append(m)
-                continue
         words.append(m)
-        if len(words) == limit:
+        named += 1
+        if named == limit:
             break
     if not words:
         return None
