@@ -48,9 +48,12 @@ def test_json_output_is_the_library_result(files, capsys):
     assert result.code == 0, result.err
     written = json.loads(out.read_text(encoding="utf-8"))
     model = load_model(files / "model.skops")
-    texts = pd.read_csv(files / "messages.csv", dtype=str, keep_default_na=False).text
-    expected = json.loads(json.dumps(to_json(probe(model, texts, swap_terms=SWAPS, max_added=20))))
+    frame = pd.read_csv(files / "messages.csv", dtype=str, keep_default_na=False)
+    expected = json.loads(json.dumps(to_json(probe(model, frame.text, swap_terms=SWAPS, max_added=20, ids=frame.id))))
     assert written == expected
+    # each attack names its message by the data's id column (the default "id"), verbatim
+    attacks = written["evasion"]["repeats"]["attacks"]
+    assert attacks and all(a["id"] == frame.id.iloc[a["row"]] for a in attacks)
     assert written["evasion"]["repeats"]["method"] == "exact"
     assert any("Internal circulation" in c or "internal circulation" in c for c in written["cautions"])
     assert (images / "evasion-cost.png").exists()
@@ -136,3 +139,50 @@ def test_term_evidence_needs_only_the_model(files, capsys):
             assert set(row["evidence"].values()) == {0.0}
     evasion = nbledger(capsys, "probe", files / "model.skops", "--evasion")
     assert "--evasion needs DATA" in evasion.one_error_line()
+
+
+def test_id_col_and_id_key_file_name_each_attack_traceably(files, capsys, tmp_path):
+    """--id-col names the ids; an id holding an address is its keyed pseudonym, the same in every run with the key.
+
+    Reference: HMAC-SHA-256 (RFC 2104) through explain.analysis.redaction.pseudonym, itself checked against
+    RFC 4231 in test_personal_data.py.
+    """
+    from explain.analysis.redaction import pseudonym
+
+    frame = pd.read_csv(files / "messages.csv", dtype=str, keep_default_na=False)
+    frame["msgid"] = [f"<{i}.notice@example.org>" if n % 2 else f"ref-{n}" for n, i in enumerate(frame.id)]
+    frame.to_csv(tmp_path / "ided.csv", index=False)
+    key = tmp_path / "org.key"
+    key.write_bytes(b"tideway commons secret 2026\n")
+    common = ["probe", files / "model.skops", tmp_path / "ided.csv", "--text-col", "text", "--evasion",
+              "--id-col", "msgid", "--format", "json"]
+    runs = [nbledger(capsys, *common, "--id-key-file", key) for _ in range(2)]
+    assert all(r.code == 0 for r in runs), runs[0].err
+    attacks = [json.loads(r.out)["evasion"]["repeats"]["attacks"] for r in runs]
+    assert attacks[0] == attacks[1]  # the same key: the same pseudonyms
+    shown = {a["row"]: a["id"] for a in attacks[0]}
+    assert any(frame.msgid.iloc[r].startswith("ref-") for r in shown) and any("@" in frame.msgid.iloc[r] for r in shown)
+    for row, given in shown.items():
+        original = frame.msgid.iloc[row]
+        assert given == (pseudonym(b"tideway commons secret 2026", original) if "@" in original else original)
+    assert "example.org" not in runs[0].out
+    other = nbledger(capsys, *common)  # no key: a pseudonym drawn for this run, never the address
+    assert other.code == 0 and "example.org" not in other.out
+
+
+@pytest.mark.parametrize("case", ["missing", "empty", "folder", "under a file"])
+def test_a_bad_id_key_file_is_one_error_line(files, capsys, tmp_path, case):
+    key = {"missing": tmp_path / "none.key", "empty": tmp_path / "empty.key", "folder": tmp_path,
+           "under a file": tmp_path / "empty.key" / "org.key"}[case]
+    (tmp_path / "empty.key").write_bytes(b"")
+    result = nbledger(capsys, "probe", files / "model.skops", files / "messages.csv", "--text-col", "text",
+                      "--evasion", "--id-key-file", key)
+    assert result.code == 2 and "id key file" in result.one_error_line()
+
+
+def test_id_col_needs_data_and_an_existing_column(files, capsys):
+    alone = nbledger(capsys, "probe", files / "model.skops", "--swap-terms", SWAPS, "--id-col", "id")
+    assert alone.code == 2 and "--id-col names a column of DATA" in alone.one_error_line()
+    missing = nbledger(capsys, "probe", files / "model.skops", files / "messages.csv", "--text-col", "text",
+                       "--evasion", "--id-col", "msgid")
+    assert missing.code == 2 and "msgid" in missing.one_error_line()

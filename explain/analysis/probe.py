@@ -24,6 +24,9 @@ class ProbeResult:
 
     ``evasion`` is None unless asked; ``swaps`` is None without data or a
     swap-terms file; ``term_evidence`` needs only the model and the file.
+    ``evasion_ids`` holds the id of each message of ``evasion.rows`` (as the
+    caller gave them; data row numbers from 1 when it gave none), so that an
+    attack can be traced to its message.
     """
 
     classes: tuple[str, ...]
@@ -35,6 +38,7 @@ class ProbeResult:
     swaps: TermSwaps | None
     term_evidence: tuple[TermEvidence, ...]
     swap_notes: tuple[str, ...]
+    evasion_ids: tuple[str, ...] = ()
 
 
 def probe(
@@ -47,9 +51,12 @@ def probe(
     threshold: float | None = None,
     threshold_log_odds: float | None = None,
     counts=None,
+    ids=None,
 ) -> ProbeResult:
     """Probe a loaded model with messages ``texts`` (a sequence of str, or None).
 
+    ``ids`` are the messages' ids, one per text, as they are to be shown
+    (default: row numbers from 1, as :class:`~explain.model.data_io.Messages` counts them);
     ``swap_terms`` is a path to a swap-terms file or a parsed :class:`SwapTerms`;
     ``counts`` the texts' occurrence counts (``featurizer.counts_and_features``)
     when the caller has them, so that the texts are not featurized again.
@@ -71,14 +78,18 @@ def probe(
     if not evasion and terms is None:
         raise NbledgerError("nothing to probe: ask for --evasion, --swap-terms FILE or both")
     texts = None if texts is None else list(texts)
+    if ids is not None and texts is not None and len(ids) != len(texts):
+        raise NbledgerError(f"{len(ids)} ids for {len(texts)} messages")
+    costs = evasion_costs(model, texts, rule, max_added, counts=counts) if evasion else None
     return ProbeResult(
         classes=tuple(str(c) for c in view.classes),
         normal_class=str(view.classes[rule.normal_index]),
         threshold=rule.threshold,
         threshold_log_odds=rule.threshold_log_odds,
         messages=0 if texts is None else len(texts),
-        evasion=evasion_costs(model, texts, rule, max_added, counts=counts) if evasion else None,
+        evasion=costs,
         swaps=term_swaps(model, texts, rule, terms) if terms is not None and texts is not None else None,
         term_evidence=term_evidence(view, rule, terms) if terms is not None else (),
         swap_notes=() if terms is None else terms.notes,
+        evasion_ids=() if costs is None else tuple(str(ids[r]) if ids is not None else str(r + 1) for r in costs.rows),
     )

@@ -195,6 +195,16 @@ THRESHOLD_LOG_ODDS = typer.Option(
 )
 MAX_BYTES = typer.Option(1 << 20, "--max-bytes", min=1, help="Refuse data files holding a message larger than this (bytes).")
 MAX_DATA_BYTES = typer.Option("1G", "--max-data-bytes", help="Refuse data files larger than this once decompressed.")
+# Message ids: one wording for every command that shows them.
+ID_KEY_FILE = typer.Option(
+    None, "--id-key-file",
+    help="The organisation's secret: ids holding an e-mail address are shown as their HMAC-SHA-256 pseudonym.",
+)
+
+
+def id_col_option(of: str):
+    """The ``--id-col`` option of a command whose messages come from ``of`` (``DATA``, ``--data`` ...)."""
+    return typer.Option(None, "--id-col", help=f"Column of {of} holding message ids (default: id, if present).")
 
 
 @dataclass(frozen=True)

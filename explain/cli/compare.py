@@ -11,7 +11,7 @@ import typer
 from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, ModelOptions, app, console, fail, load_model_or_fail, model_inputs, one_threshold,
-    read_messages_or_fail,
+    read_messages_or_fail, ID_KEY_FILE, id_col_option,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.present.token_display import for_terminal
@@ -34,10 +34,8 @@ def compare(
     top: int = typer.Option(10, "--top", help="Tokens listed per change."),
     show: int = typer.Option(20, "--show", help="Changed messages shown with both explanations."),
     redact: str = typer.Option("personal", "--redact", help="personal (mask people: names, addresses, numbers, e-mail, IP, URL) | none"),
-    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data holding message ids (default: id, if present)."),
-    id_key_file: Optional[Path] = typer.Option(
-        None, "--id-key-file", help="The organisation's secret: ids holding an e-mail address are shown as its HMAC-SHA-256 pseudonym."
-    ),
+    id_col: Optional[str] = id_col_option("--data"),
+    id_key_file: Optional[Path] = ID_KEY_FILE,
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the comparison to a .pdf, .html or .json file."),
     reviews: Optional[str] = typer.Option(

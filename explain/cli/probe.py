@@ -11,7 +11,7 @@ import typer
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
     THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
-    model_inputs, plain_text, read_messages_or_fail, one_threshold,
+    model_inputs, plain_text, read_messages_or_fail, one_threshold, ID_KEY_FILE, id_col_option,
 )
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
 from explain.output_files import OutputSet
@@ -27,6 +27,8 @@ def probe(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column of DATA holding the text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of DATA holding the class (read, not needed)."),
+    id_col: Optional[str] = id_col_option("DATA"),
+    id_key_file: Optional[Path] = ID_KEY_FILE,
     normal_class: Optional[str] = NORMAL_CLASS,
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
@@ -63,21 +65,28 @@ def probe(
         fail("nothing to probe: ask for --evasion, --swap-terms FILE or both")
     if evasion and data is None:
         fail("--evasion needs DATA: the messages whose evasion cost is measured")
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, swap_terms]) as outputs:
+    if id_col is not None and data is None:
+        fail("--id-col names a column of DATA: give DATA")
+    from explain.analysis.redaction import IdPseudonyms, read_id_key
+
+    pseudonyms = IdPseudonyms(read_id_key(id_key_file) if id_key_file is not None else None)
+    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, swap_terms, id_key_file]) as outputs:
         if out is not None:
             outputs.file(out)
         if images is not None:
             outputs.folder(images)
         loaded = load_model_or_fail(model, ModelOptions.of(locals()))
-        texts = None
+        texts = ids = None
         if data is not None:
             mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-            texts = read_messages_or_fail(
-                data, text_col, label_col, mail, max_data_bytes=max_data_bytes, max_bytes=max_bytes
-            ).texts
+            messages = read_messages_or_fail(
+                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
+            )
+            # ids as team papers show them: as given, a keyed pseudonym when one holds an e-mail address
+            texts, ids = messages.texts, [pseudonyms(str(i)) for i in messages.ids]
         result = run_probe(
             loaded, texts, evasion=evasion, swap_terms=swap_terms, max_added=max_added,
-            threshold=threshold, threshold_log_odds=threshold_log_odds,
+            threshold=threshold, threshold_log_odds=threshold_log_odds, ids=ids,
         )
 
         from explain.present.probe import render, to_json

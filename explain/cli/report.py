@@ -15,7 +15,7 @@ import typer
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
-    read_messages_or_fail,
+    read_messages_or_fail, ID_KEY_FILE, id_col_option,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
 from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
@@ -113,10 +113,8 @@ def report(
         "personal", "--redact",
         help="personal (mask people: names, addresses, numbers, e-mail, IP, URL) | bodies (no message text) | none",
     ),
-    id_col: Optional[str] = typer.Option(None, "--id-col", help="Column of --data / --explain holding message ids (default: id, if present)."),
-    id_key_file: Optional[Path] = typer.Option(
-        None, "--id-key-file", help="The organisation's secret: ids holding an e-mail address are shown as its HMAC-SHA-256 pseudonym."
-    ),
+    id_col: Optional[str] = id_col_option("--data / --explain"),
+    id_key_file: Optional[Path] = ID_KEY_FILE,
     title: str = typer.Option("Review of a naive Bayes message filter", "--title", help="Title on the cover."),
     organisation: Optional[str] = typer.Option(None, "--organisation", help="Organisation on the cover."),
     paper: str = typer.Option("a4", "--paper", help="a4 | letter"),

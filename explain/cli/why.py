@@ -12,7 +12,7 @@ import typer
 from explain.cli.common import (
     ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
     TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold, read_messages_or_fail,
-    warn,
+    warn, ID_KEY_FILE,
 )
 from explain.cli.mail_options import TEXT_VIEW
 from explain.dates import record_date
@@ -268,9 +268,7 @@ def why(
     organisation: Optional[str] = typer.Option(None, "--organisation", help="The member letter's sender."),
     contact: Optional[str] = typer.Option(None, "--contact", help="Where a member asks questions (member letter)."),
     appeal: Optional[str] = typer.Option(None, "--appeal", help="How a member asks for a person's review (member letter)."),
-    id_key_file: Optional[Path] = typer.Option(
-        None, "--id-key-file", help="The organisation's secret: an id holding an e-mail address is shown as its HMAC-SHA-256 pseudonym."
-    ),
+    id_key_file: Optional[Path] = ID_KEY_FILE,
 ):
     """Why did the filter decide this message the way it did? Told as a ledger, or as a letter to the member."""
     from explain.model.email_reader import resolve_text_view

@@ -14,7 +14,8 @@ greedy search's cap, or ``{"no_attack": true}`` when no addition lets the
 messages through (exact costs are never capped), ``share_within``
 keyed by 1, 3, 5, 10), ``weak_points`` (``token``, ``attacks``,
 ``per_occurrence_evidence`` keyed by flagged class, ``support`` keyed by class)
-and ``attacks`` (``row``, ``decided``, ``cost``: a number or an object as above,
+and ``attacks`` (``row`` counted from 0, ``id``: the message's id, as given or its keyed pseudonym when it
+holds an e-mail address, else the data row counted from 1; ``decided``, ``cost``: a number or an object as above,
 ``additions`` as ``{token, occurrences}``); ``term_evidence`` (``group``,
 ``term``, ``token``, ``known``, ``evidence`` keyed by class, ``support``);
 ``swap_notes``; ``term_swaps`` (null without data): ``groups`` (``group``,
@@ -194,11 +195,11 @@ def to_json(result: ProbeResult, include_attacks: bool = True) -> dict:
             if include_attacks:
                 block["attacks"] = [
                     {
-                        "row": int(r), "decided": str(d),
+                        "row": int(r), "id": i, "decided": str(d),
                         "cost": int(c) if c > 0 else _cost_json(MoreThan(None if res.exact else ev.max_added)),
                         "additions": [{"token": t, "occurrences": n} for t, n in adds],
                     }
-                    for r, d, c, adds in zip(ev.rows, ev.decided, res.costs, res.additions)
+                    for r, i, d, c, adds in zip(ev.rows, result.evasion_ids, ev.decided, res.costs, res.additions)
                 ]
             evasion[budget] = block
     sw = result.swaps
