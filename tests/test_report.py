@@ -101,6 +101,7 @@ def built(files, tmp_path_factory):
     assert code == 0
     reader = PdfReader(out / "r.pdf")
     return {
+        "pdf": out / "r.pdf",
         "reader": reader,
         "text": "\n".join(page.extract_text() for page in reader.pages),
         "html": (out / "r.html").read_text(encoding="utf-8"),
@@ -287,6 +288,75 @@ def test_every_page_says_internal(built):
     pages = [page.extract_text() for page in built["reader"].pages]
     assert pages and all("Internal" in page for page in pages)
     assert '"circulation": "internal"' in built["json"] and 'content="Internal"' in built["html"]
+
+
+def _pdftotext_pages(path) -> list[str]:
+    """Each page's text as poppler's pdftotext reads it (a second reader beside pypdf; pages end in a form feed)."""
+    import subprocess
+
+    done = subprocess.run(["pdftotext", "-enc", "UTF-8", str(path), "-"], capture_output=True, check=True)
+    return done.stdout.decode("utf-8").split("\f")[:-1]
+
+
+def test_poppler_reads_internal_on_every_page_and_no_planted_value(built):
+    pages = _pdftotext_pages(built["pdf"])
+    assert len(pages) == len(built["reader"].pages)
+    for n, page in enumerate(pages, 1):
+        assert "Internal" in page, n
+        for value in PLANTED:
+            assert _squeezed(value) not in _squeezed(page), (n, value)
+
+
+def test_ids_of_misjudged_messages_are_printed_verbatim_in_the_error_tables(built, files):
+    """Every id the error tables list is a message scikit-learn's predict misjudges, printed as given."""
+    import skops.io as sio
+
+    path = files / "filter.skops"
+    pipeline = sio.load(path, trusted=sio.get_untrusted_types(file=path))  # our own file
+    frame = pd.read_csv(files / "test.csv", dtype=str, keep_default_na=False)
+    decided = pipeline.predict(frame.text)
+    errors = json.loads(built["json"])["assessment"]["errors"]
+    false_alarms = set(frame.id[(frame.label == "ok") & (decided != "ok")])
+    missed = set(frame.id[(frame.label != "ok") & (decided == "ok")])
+    assert (errors["n_false_alarms"], errors["n_missed"]) == (len(false_alarms), len(missed))
+    listed = [(x["id"], false_alarms) for x in errors["false_alarms"]] + [(x["id"], missed) for x in errors["missed"]]
+    assert len(listed) >= 4
+    pages = _pdftotext_pages(built["pdf"])
+    tables = "".join(p for p in pages if "Most confident false alarms" in p or "Most confident misses" in p)
+    for shown_id, truth in listed:
+        assert shown_id in truth, shown_id
+        assert shown_id in tables.split(), shown_id  # whole, on one line, not cut
+        assert f'<td class="id whole">{shown_id}</td>' in built["html"], shown_id
+
+
+def test_message_ids_holding_an_address_are_keyed_pseudonyms_stable_across_runs(files, tmp_path, capsys):
+    """--id-col names the ids; those holding an address are shown as HMAC-SHA-256 pseudonyms (RFC 2104) under
+    --id-key-file, the same in every run with the same key; the other ids verbatim; the address nowhere."""
+    from explain.analysis.redaction import pseudonym
+
+    frame = pd.read_csv(files / "test.csv", dtype=str, keep_default_na=False)
+    frame["msgid"] = [f"<{i}.{n}@mail.example.org>" if n % 2 else i for n, i in enumerate(frame.id)]
+    frame.to_csv(tmp_path / "ided.csv", index=False)
+    secret = b"tideway commons secret 2026"
+    (tmp_path / "org.key").write_bytes(secret + b"\n")
+    given = dict(zip(frame.id, frame.msgid))
+    twins = []
+    for run in (1, 2):
+        made = nbledger(capsys, "report", files / "filter.skops", "--data", tmp_path / "ided.csv", "--normal-class", "ok",
+                        "--id-col", "msgid", "--id-key-file", tmp_path / "org.key",
+                        "--out", tmp_path / f"r{run}.pdf", "--json", tmp_path / f"r{run}.json")
+        assert made.code == 0, made.err
+        twins.append(json.loads((tmp_path / f"r{run}.json").read_text(encoding="utf-8")))
+    errors = [twin["assessment"]["errors"] for twin in twins]
+    ids = [[x["id"] for x in e["false_alarms"] + e["missed"]] for e in errors]
+    assert ids[0] == ids[1]
+    expected = {pseudonym(secret, m) if "@" in m else m for m in given.values()}
+    assert set(ids[0]) <= expected
+    assert any(i.startswith("id-") for i in ids[0]) and any(not i.startswith("id-") for i in ids[0])
+    text = "".join(_pdftotext_pages(tmp_path / "r1.pdf"))
+    for i in ids[0]:
+        assert i in text.split(), i
+    assert "mail.example.org" not in text and "mail.example.org" not in json.dumps(twins[0])
 
 
 def test_pictures_draw_no_personal_token(files):
