@@ -177,30 +177,6 @@ def test_pictures_are_png_at_print_resolution_and_deterministic(files, capsys, t
     assert pictures.support_map(review, 0) == (images / "support_scam_vs_ok.png").read_bytes()
 
 
-@pytest.fixture
-def picture_inputs(monkeypatch):
-    """Every word handed to the word-cloud layout and every text drawn in a figure."""
-    import matplotlib.text
-    import wordcloud
-
-    seen = []
-    layout = wordcloud.WordCloud.generate_from_frequencies
-
-    def recording_layout(self, frequencies, *args, **kwargs):
-        seen.extend(frequencies)
-        return layout(self, frequencies, *args, **kwargs)
-
-    png = pictures.png_bytes
-
-    def recording_png(fig):
-        seen.extend(t.get_text() for t in fig.findobj(matplotlib.text.Text))
-        return png(fig)
-
-    monkeypatch.setattr(wordcloud.WordCloud, "generate_from_frequencies", recording_layout)
-    monkeypatch.setattr(pictures, "png_bytes", recording_png)
-    return seen
-
-
 @pytest.mark.parametrize("redact", [True, False])
 def test_redaction_keeps_planted_personal_data_out_of_tables_and_pictures(files, capsys, tmp_path, picture_inputs, redact):
     outputs = []
