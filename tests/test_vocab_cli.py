@@ -238,3 +238,45 @@ def test_real_entry_point_prints_no_traceback(files):
     assert done.returncode == 2
     assert done.stderr == "error: no class 'spam' in this model; its classes are: advert, ok, scam\n"
     assert done.stdout == ""
+
+
+# Invented people and reserved values (issue 18): names found by where they stand in the messages at hand.
+PEOPLE = ["Oksana", "Petrenko", "Tomasz", "Nowak", "Keziah", "Quayle", "4111111111111111", "GB82WEST12345698765432",
+          "TD4 7QX", "12/03/1984", "2001:db8::17"]
+
+
+def _people_message(i: int) -> str:
+    return (f"Dear Oksana Petrenko, your berth refund {i} is held. Card 4111111111111111 or IBAN GB82WEST12345698765432, "
+            f"postcode TD4 7QX, DOB 12/03/1984, from 2001:db8::17. Ask Keziah Quayle at the desk.\n"
+            "Kind regards,\nTomasz Nowak")
+
+
+@pytest.mark.parametrize("redact", [True, False])
+def test_vocab_outputs_hold_no_planted_person_with_redact(files, capsys, tmp_path, picture_inputs, redact):
+    """Tables (text, csv with every token, json) and pictures of `vocab --redact --data` name nobody; the
+    control without --redact shows the planted names, so the check can fail."""
+    import re
+
+    frame = pd.read_csv(DEMO, dtype=str, keep_default_na=False)
+    people = pd.DataFrame({"id": [f"p-{i}" for i in range(60)], "sent_at": "", "label": "scam",
+                           "text": [_people_message(i) for i in range(60)]})
+    both = pd.concat([frame, people])
+    both.to_csv(tmp_path / "people.csv", index=False)
+    pipe = Pipeline([("v", CountVectorizer(token_pattern=r"(?u)\w[\w.@+:/-]*\w")), ("nb", MultinomialNB())])
+    sio.dump(pipe.fit(both.text, both.label), tmp_path / "people.skops")
+    outputs = []
+    for fmt, images in (("text", ["--images", tmp_path / "img"]), ("csv", []), ("json", [])):
+        code, out, err = vocab_cli(capsys, tmp_path / "people.skops", "--normal-class", "ok", "--format", fmt,
+                                   "--top", "40", "--by", "ratio", "--data", tmp_path / "people.csv", "--text-col",
+                                   "text", "--label-col", "label", *images, *(["--redact"] if redact else []))
+        assert code == 0, err
+        outputs.append(out)
+    assert picture_inputs, "no picture was drawn"
+    shown = "\n".join(outputs + [str(s) for s in picture_inputs]).lower()
+    drawn = "\n".join(map(str, picture_inputs)).lower()
+    found = [v for v in PEOPLE if re.search(rf"(?<![\w.]){re.escape(v.lower())}(?![\w])", shown)]
+    if redact:
+        assert found == [], found
+        assert not any(re.search(rf"\b{n.lower()}\b", drawn) for n in PEOPLE[:6])
+    else:
+        assert {"oksana", "petrenko", "tomasz", "nowak"} <= {v.lower() for v in found}, found

@@ -445,7 +445,8 @@ def names_in(texts) -> frozenset[str]:
     """Lower-case words that stand as people's names in ``texts`` (for the vocabulary's ``personal`` flag).
 
     Only the positions that say a name follows count (header display names,
-    greetings, titles, introductions, sign-offs), and a word is kept only when
+    greetings, titles, introductions, sign-offs, the capitalised words after a
+    known given name: "Keziah Quayle"), and a word is kept only when
     the texts write it with a capital at least as often as without: "Parcel"
     in a business's name does not make the token ``parcel`` a person.
     """
@@ -458,7 +459,7 @@ def names_in(texts) -> frozenset[str]:
     for text in map(str, texts):
         spans = [(s, e) for s, e, _ in display_names(text)]
         spans += _after(text, _GREETING, strong=True) + _after(text, _TITLE, strong=True)
-        spans += _after(text, _INTRODUCTION, strong=False) + _signatures(text)
+        spans += _after(text, _INTRODUCTION, strong=False) + _signatures(text) + _given_name_runs(text)
         for s, e in spans:
             candidates.update(w.group().lower() for w in _WORD.finditer(text, s, e))
         for w in _WORD.finditer(text):
@@ -568,7 +569,7 @@ def _signatures(text: str) -> list[tuple[int, int]]:
     return spans
 
 
-def _known_names(text: str) -> list[tuple[int, int]]:
+def _given_name_runs(text: str) -> list[tuple[int, int]]:
     """Known given names written with a capital, with the capitalised words after them (a surname)."""
     spans = []
     for m in _WORD.finditer(text):
@@ -578,6 +579,12 @@ def _known_names(text: str) -> list[tuple[int, int]]:
         run = _name_run(text, m.start(), strong=True)
         if run is not None:
             spans.append(run)
+    return spans
+
+
+def _known_names(text: str) -> list[tuple[int, int]]:
+    """Known given names with the capitalised words after them, and pairs of capitalised words in a sentence."""
+    spans = _given_name_runs(text)
     # Two capitalised words inside a sentence ("I met Oksana Petrenko at the AGM").
     for m in re.finditer(r"(?:(?<=[a-z,;:] )|(?<=[.!?] )|(?<=^)|(?<=\n))([^\W\d_][\w'’-]+)[ \t]+([^\W\d_][\w'’-]+)", text):
         a, b = m.group(1), m.group(2)
