@@ -25,6 +25,7 @@ from sklearn.naive_bayes import MultinomialNB
 from sklearn.pipeline import Pipeline
 
 from clirun import nbledger
+from pdf_text import pdftotext_pages
 from explain.analysis.report import ReportSettings, build_report
 from explain.analysis.risk import read_watchlist
 from explain.model.data_io import read_messages
@@ -290,16 +291,8 @@ def test_every_page_says_internal(built):
     assert '"circulation": "internal"' in built["json"] and 'content="Internal"' in built["html"]
 
 
-def _pdftotext_pages(path) -> list[str]:
-    """Each page's text as poppler's pdftotext reads it (a second reader beside pypdf; pages end in a form feed)."""
-    import subprocess
-
-    done = subprocess.run(["pdftotext", "-enc", "UTF-8", str(path), "-"], capture_output=True, check=True)
-    return done.stdout.decode("utf-8").split("\f")[:-1]
-
-
 def test_poppler_reads_internal_on_every_page_and_no_planted_value(built):
-    pages = _pdftotext_pages(built["pdf"])
+    pages = pdftotext_pages(built["pdf"])
     assert len(pages) == len(built["reader"].pages)
     for n, page in enumerate(pages, 1):
         assert "Internal" in page, n
@@ -321,7 +314,7 @@ def test_ids_of_misjudged_messages_are_printed_verbatim_in_the_error_tables(buil
     assert (errors["n_false_alarms"], errors["n_missed"]) == (len(false_alarms), len(missed))
     listed = [(x["id"], false_alarms) for x in errors["false_alarms"]] + [(x["id"], missed) for x in errors["missed"]]
     assert len(listed) >= 4
-    pages = _pdftotext_pages(built["pdf"])
+    pages = pdftotext_pages(built["pdf"])
     tables = "".join(p for p in pages if "Most confident false alarms" in p or "Most confident misses" in p)
     for shown_id, truth in listed:
         assert shown_id in truth, shown_id
@@ -353,7 +346,7 @@ def test_message_ids_holding_an_address_are_keyed_pseudonyms_stable_across_runs(
     expected = {pseudonym(secret, m) if "@" in m else m for m in given.values()}
     assert set(ids[0]) <= expected
     assert any(i.startswith("id-") for i in ids[0]) and any(not i.startswith("id-") for i in ids[0])
-    text = "".join(_pdftotext_pages(tmp_path / "r1.pdf"))
+    text = "".join(pdftotext_pages(tmp_path / "r1.pdf"))
     for i in ids[0]:
         assert i in text.split(), i
     assert "mail.example.org" not in text and "mail.example.org" not in json.dumps(twins[0])

@@ -659,11 +659,11 @@ def redacted(ledger: Ledger) -> Ledger:
     entries = tuple(
         replace(e, token=mask(e.token, e.spans), spans=moved(e.spans)) for e in ledger.entries
     )
-    unknown = tuple(
+    unknown = _one_per_mask(tuple(
         replace(u, token=mask(u.token, u.spans), spans=moved(u.spans),
                 looks_like=None if u.looks_like is None else mask(u.looks_like))
         for u in ledger.unknown
-    )
+    ), set(names.values()) - set(names))
     flip = replace(ledger.flip, removals=tuple((mask(t), n) for t, n in ledger.flip.removals))
     expl = ledger.explanation
     expl = replace(
@@ -678,6 +678,23 @@ def redacted(ledger: Ledger) -> Ledger:
         ledger, text=text, entries=entries, unknown=unknown, flip=flip, redacted=True,
         explanation=expl,
     )
+
+
+def _one_per_mask(unknown: tuple[Unknown, ...], placeholders: set[str]) -> tuple[Unknown, ...]:
+    """Unknown words that became the same placeholder as one word: "[card 2] x4", not "[card 2] x3, [card 2]"."""
+    at: dict[str, int] = {}
+    out: list[Unknown] = []
+    for u in unknown:
+        if u.token not in placeholders or u.looks_like is not None:
+            out.append(u)
+        elif u.token not in at:
+            at[u.token] = len(out)
+            out.append(u)
+        else:
+            first = out[at[u.token]]
+            spans = tuple(sorted(set(first.spans + u.spans)))
+            out[at[u.token]] = replace(first, count=first.count + u.count, spans=spans)
+    return tuple(out)
 
 
 def placeholder_numbers(text: str, found) -> list[int]:

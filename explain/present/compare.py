@@ -9,7 +9,7 @@ changed message).
 from __future__ import annotations
 
 from explain.analysis.compare import Comparison
-from explain.present.ledger_words import CAUTION
+from explain.present.ledger_words import CAUTION, closing_figure
 
 CAUTIONS = (
     CAUTION,
@@ -272,8 +272,8 @@ def _lines(c: Comparison, top: int) -> list[str]:
         for m in d.shown:
             label = f", labelled {m.label}" if m.label is not None else ""
             out += ["", f"  message {shown(m.message_id)}{label}: {m.old_decision} -> {m.new_decision}",
-                    f"    old: {m.old.decision} at balance {m.old.closing:+.2f}; largest: {_drivers(m.old)}",
-                    f"    new: {m.new.decision} at balance {m.new.closing:+.2f}; largest: {_drivers(m.new)}"]
+                    f"    old: {m.old.decision} at balance {closing_figure(m.old)}; largest: {_drivers(m.old)}",
+                    f"    new: {m.new.decision} at balance {closing_figure(m.new)}; largest: {_drivers(m.new)}"]
         if d.changed > len(d.shown):
             out.append(f"  ({d.changed - len(d.shown):,} more changed messages not shown; see --show)")
     out += [""] + [f"caution: {x}" for x in CAUTIONS]

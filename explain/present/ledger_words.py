@@ -28,6 +28,10 @@ CAUTION = (
 )
 
 
+#: The mark every team paper carries (glossary: circulation): first line of each page of a plain-text record.
+INTERNAL_MARK = "Internal: a team paper, not for the member or outside circulation."
+
+
 SUPPORT_WORDS = {
     "documents": "training messages holding the word",
     "occurrences": "training occurrences of the word",
@@ -143,11 +147,24 @@ def closing_figure(ledger: Ledger) -> str:
     return f"{x:+.{digits}f}"
 
 
+def counted_elsewhere(ledger: Ledger) -> str | None:
+    """The file the "seen" counts come from when they are not the model's training messages, else None.
+
+    The training file itself counts as training messages only when the model
+    card holds none of its messages out: held-out messages are not training
+    messages, so such a file is named like any other.
+    """
+    source = ledger.support_source
+    if not source or ("training data" in source and "held-out" not in source):
+        return None
+    return source
+
+
 def support_words(ledger: Ledger) -> str:
     """What a "seen" count counts, naming its true source (a file that is not the training data is named)."""
     words = SUPPORT_WORDS[ledger.support_kind]
-    source = ledger.support_source
-    if source and "training data" not in source:
+    source = counted_elsewhere(ledger)
+    if source:
         words = (words.replace("training messages", f"messages of {source}")
                  .replace("training occurrences", f"occurrences in {source}").replace(" in training", f" in {source}"))
     return words
@@ -157,21 +174,27 @@ def _whole(x: float) -> str:
     return f"{x:,.0f}"
 
 
+def _times(x: float) -> str:
+    """A whole count of occurrences in words: "once", "twice", "70 times"."""
+    n = round(x)
+    return {1: "once", 2: "twice"}.get(n, f"{n:,} times")
+
+
 def seen_sentence(entry, ledger: Ledger) -> str:
-    """One entry's support in words: "'parcel' was seen in 133 ok and 166 scam training messages"."""
-    count = _whole
+    """One entry's support in words, in the order of the "seen" column (credit class first):
+    "'parcel' was seen in 166 scam and 133 ok training messages"; counts from another file name it."""
     c, d = ledger.classes.index(credit_colour_class(ledger)), ledger.classes.index(ledger.debit_class)
     credit, debit = credit_colour_class(ledger), ledger.debit_class
-    source = ledger.support_source if ledger.support_source and "training data" not in ledger.support_source else None
+    source = counted_elsewhere(ledger)
+    unit = f"messages of {source}" if source else "training messages"
     if ledger.support_kind == "documents":
-        unit = f"messages of {source}" if source else "training messages"
-        return f"'{shown(entry.token)}' was seen in {count(entry.support[d])} {debit} and {count(entry.support[c])} {credit} {unit}"
+        return (f"'{shown(entry.token)}' was seen in {_whole(entry.support[c])} {credit} and "
+                f"{_whole(entry.support[d])} {debit} {unit}")
     if ledger.support_kind == "occurrences":
-        unit = f"messages of {source}" if source else "training messages"
-        return (f"'{shown(entry.token)}' occurs {count(entry.support[d])} times in {debit} and "
-                f"{count(entry.support[c])} times in {credit} {unit}")
-    return (f"'{shown(entry.token)}' weighs {entry.support[d]:,.1f} in {debit} and {entry.support[c]:,.1f} in "
-            f"{credit} ({support_words(ledger)})")
+        return (f"'{shown(entry.token)}' occurs {_times(entry.support[c])} in {credit} and "
+                f"{_times(entry.support[d])} in {debit} {unit}")
+    return (f"'{shown(entry.token)}' weighs {entry.support[c]:,.1f} in {credit} and {entry.support[d]:,.1f} in "
+            f"{debit} ({support_words(ledger)})")
 
 
 def collision_note(collisions) -> str:

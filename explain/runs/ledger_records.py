@@ -13,6 +13,7 @@ import json
 
 from explain.present.ledger_json import to_json
 from explain.present.ledger_terminal import render
+from explain.present.ledger_words import INTERNAL_MARK
 from explain.present.report import sheet_html, sheet_pdf
 from explain.present.token_display import make_console
 
@@ -24,10 +25,12 @@ SET_SCHEMA = "nbledger.why-set/3"
 
 
 def text_record(ledgers, *, date: str, top: int = 10) -> str:
-    """The terminal ledger of each message as plain text, one after another (form feed between)."""
+    """The terminal ledger of each message as plain text, one after another (form feed between), each page
+    headed by the Internal mark of team papers."""
     parts = []
     for ledger in ledgers:
-        buffer = io.StringIO()
+        buffer = io.StringIO(f"{INTERNAL_MARK}\n\n")
+        buffer.seek(0, io.SEEK_END)
         render(ledger, make_console(file=buffer, width=RECORD_WIDTH, no_color=True, highlight=False), top, date)
         parts.append(buffer.getvalue())
     return "\f\n".join(parts)
@@ -36,7 +39,7 @@ def text_record(ledgers, *, date: str, top: int = 10) -> str:
 def json_record(ledgers, *, date: str, top: int = 10) -> str:
     """One ``nbledger.why/3`` object, or for several messages ``{schema, messages: [...]}``."""
     docs = [to_json(ledger, date=date, top=top) for ledger in ledgers]
-    doc = docs[0] if len(docs) == 1 else {"schema": SET_SCHEMA, "date": date, "messages": docs}
+    doc = docs[0] if len(docs) == 1 else {"schema": SET_SCHEMA, "date": date, "circulation": "internal", "messages": docs}
     return json.dumps(doc, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
 
 
