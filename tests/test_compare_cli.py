@@ -99,3 +99,26 @@ def test_the_balance_of_each_changed_message_is_why_s_own(models, capsys):
             assert m[side]["closing"] == pytest.approx(why["ledger"]["closing"], abs=1e-12), (m["row"], side)
             decisions.add(m[f"{side}_decision"])
     assert "ok" in decisions and len(decisions) > 1
+
+
+def test_id_col_and_keyed_pseudonyms_name_the_changed_messages(models, capsys, tmp_path):
+    """--id-col names the ids of the changed messages; one holding an address is its HMAC-SHA-256 pseudonym
+    (RFC 2104) under --id-key-file, the same in two runs; a bad key file is one error line."""
+    from explain.analysis.redaction import pseudonym
+
+    f = models
+    frame = pd.read_csv(f / "test.csv", dtype=str, keep_default_na=False)
+    frame["msgid"] = [f"<{i}@mail.example.org>" if n % 2 else f"ref-{i}" for n, i in enumerate(frame.id)]
+    frame.to_csv(tmp_path / "ided.csv", index=False)
+    (tmp_path / "org.key").write_bytes(b"tideway commons secret 2026")
+    args = ["compare", f / "old.skops", f / "new.skops", "--data", tmp_path / "ided.csv", "--id-col", "msgid",
+            "--format", "json"]
+    runs = [nbledger(capsys, *args, "--id-key-file", tmp_path / "org.key") for _ in range(2)]
+    assert all(r.code == 0 for r in runs), runs[0].err
+    shown = [[m["id"] for m in json.loads(r.out)["decisions"]["shown"]] for r in runs]
+    assert shown[0] == shown[1] and shown[0]
+    expected = {pseudonym(b"tideway commons secret 2026", m) if "@" in m else m for m in frame.msgid}
+    assert set(shown[0]) <= expected and "mail.example.org" not in runs[0].out
+    (tmp_path / "empty.key").write_bytes(b"")
+    bad = nbledger(capsys, *args, "--id-key-file", tmp_path / "empty.key")
+    assert bad.code == 2 and "id key file" in bad.one_error_line()

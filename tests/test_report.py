@@ -514,6 +514,9 @@ def test_bad_input_is_one_line_and_writes_nothing(files, tmp_path, capsys):
     assert "--data" in _bad(capsys, files, tmp_path, "--slice-by", "sent_at:month", *out)
     assert "--base-rate" in _bad(capsys, files, tmp_path, "--base-rate", "150%", *out)
     assert "not both" in _bad(capsys, files, tmp_path, "--threshold", "0.5", "--threshold-log-odds", "0", *out)
+    (tmp_path / "empty.key").write_bytes(b"\n")
+    for key in (tmp_path / "missing.key", tmp_path / "empty.key", tmp_path, tmp_path / "empty.key" / "org.key"):
+        assert "id key file" in _bad(capsys, files, tmp_path, "--id-key-file", key, *out)
 
 
 @pytest.mark.skipif(os.geteuid() == 0, reason="root may write anywhere")
