@@ -564,3 +564,36 @@ def test_a_sheet_that_cannot_fit_one_page_says_how_many_pages_it_has(files):
     text = _squeezed(" ".join(p.extract_text() for p in both.pages))
     assert _squeezed(f"This sheet runs to {n} pages") in text and text.count("runsto") == 1
     assert "one-pagesheet" not in text
+
+
+@pytest.mark.parametrize("redact", ["personal", "none"])
+def test_the_probe_section_masks_names_found_in_the_messages_at_hand(tmp_path, picture_inputs, redact):
+    """Weak points of the evasion probe are tokens toward the normal class: people thanked in ok messages become
+    weak points. Their names, found in the report's data, are masked in the JSON twin and the pictures as in the
+    vocabulary; --redact none (the control) shows them, so the check can fail."""
+    import skops.io as sio
+
+    from explain.present.report import draw_pictures
+
+    frame = pd.read_csv(CORPUS / "messages.csv", dtype=str, keep_default_na=False)
+    frame = frame[frame.label != "advert"]
+    thanks = pd.DataFrame([{"id": f"thanks-{i}", "sent_at": "", "label": "ok",
+                            "text": f"Thanks Oksana Petrenko, the rota is fine. Write to {PLANTED[0]} or ring {PLANTED[2]}, "
+                                    f"server {PLANTED[3]}.\nKind regards,\nTomasz Nowak"} for i in range(150)])
+    pipeline = Pipeline([("words", CountVectorizer(token_pattern=r"[^\s,]+")), ("nb", MultinomialNB())])
+    sio.dump(pipeline.fit(pd.concat([frame.iloc[:3000], thanks]).text, pd.concat([frame.iloc[:3000], thanks]).label),
+             tmp_path / "thanked.skops")
+    pd.concat([frame.iloc[3000:3300], thanks.iloc[:3]]).to_csv(tmp_path / "test.csv", index=False)
+    model = load_model(tmp_path / "thanked.skops", normal_class="ok")
+    report = build_report(model, data=read_messages(tmp_path / "test.csv", "text", "label"),
+                          settings=ReportSettings(redact=redact), probe_evasion=True)
+    section = json.dumps(json.loads(dumps(report))["robustness_and_fairness"])
+    draw_pictures(report)
+    drawn = "\n".join(map(str, picture_inputs))
+    names = ("oksana", "petrenko", "tomasz", "nowak")
+    shown = [n for n in names if re.search(rf"\b{n}\b", section.lower() + drawn.lower())]
+    if redact == "personal":
+        assert shown == [] and "[name]" in section
+        assert not [v for v in PLANTED if v.lower() in section.lower() + drawn.lower()]
+    else:
+        assert shown, section

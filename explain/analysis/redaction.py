@@ -103,11 +103,13 @@ def pseudonym(key: bytes, value: str) -> str:
     return "id-" + hmac.new(key, value.encode("utf-8"), hashlib.sha256).hexdigest()[:16]
 
 
-def redact_assessment(assessment, mode: str, ids: IdPseudonyms | None = None):
+def redact_assessment(assessment, mode: str, ids: IdPseudonyms | None = None, names=frozenset()):
     """An :class:`~explain.analysis.assessment.Assessment` whose error review shows no personal value.
 
-    Tokens and slice names are masked; ids are kept as given, except those
-    holding an e-mail address, which become their keyed pseudonym (``ids``).
+    Tokens and slice names are masked (``names``: the words found as people's
+    names, or a word -> kind mapping, in the messages at hand, as for
+    :func:`mask_value`); ids are kept as given, except those holding an
+    e-mail address, which become their keyed pseudonym (``ids``).
     """
     if mode == "none":
         return assessment
@@ -115,7 +117,7 @@ def redact_assessment(assessment, mode: str, ids: IdPseudonyms | None = None):
     errors = assessment.errors
 
     def pushes(ps):
-        return tuple(dataclasses.replace(p, token=mask_value(p.token)) for p in ps)
+        return tuple(dataclasses.replace(p, token=mask_value(p.token, names)) for p in ps)
 
     def message(m):
         return dataclasses.replace(
@@ -142,7 +144,7 @@ def redact_assessment(assessment, mode: str, ids: IdPseudonyms | None = None):
     if slices is not None:
         # a slice is named by a value of the data (a sender, a term): masked like any token
         def named(group):
-            return tuple(dataclasses.replace(x, name=mask_value(x.name)) for x in group)
+            return tuple(dataclasses.replace(x, name=mask_value(x.name, names)) for x in group)
 
         slices = dataclasses.replace(slices, slices=named(slices.slices), differing=named(slices.differing),
                                      most_different=named(slices.most_different))
@@ -164,16 +166,17 @@ def withhold_text(ledger):
     )
 
 
-def redact_probe(result):
-    """A :class:`~explain.analysis.probe.ProbeResult` whose weak points and attacks show no personal token."""
+def redact_probe(result, names=frozenset()):
+    """A :class:`~explain.analysis.probe.ProbeResult` whose weak points and attacks show no personal token
+    (``names`` as for :func:`mask_value`: names and values found in the messages at hand)."""
     if result is None or result.evasion is None:
         return result
 
     def budget(b):
         return dataclasses.replace(
             b,
-            additions=tuple(tuple((mask_value(t), n) for t, n in attack) for attack in b.additions),
-            weak_points=tuple(dataclasses.replace(w, token=mask_value(w.token)) for w in b.weak_points),
+            additions=tuple(tuple((mask_value(t, names), n) for t, n in attack) for attack in b.additions),
+            weak_points=tuple(dataclasses.replace(w, token=mask_value(w.token, names)) for w in b.weak_points),
         )
 
     evasion = dataclasses.replace(result.evasion, repeats=budget(result.evasion.repeats),

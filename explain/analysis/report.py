@@ -320,8 +320,9 @@ def build_report(
     on_step("reviewing the vocabulary")
     # Hashed features store no vocabulary: name each column by the tokens of the report's texts hashed into it.
     model = model.named_for([*(data.texts if data is not None else ()), *(explain.texts if explain is not None else ())])
+    names = _names_at_hand(redact, data, explain)  # masked wherever they show up as tokens
     vocab = review_vocabulary(model.view, top=VOCAB_TOP, watchlist=watchlist, redact_personal=redact != "none",
-                              names=_names_at_hand(redact, data, explain))
+                              names=names)
     rule = DecisionRule.for_view(model.view, settings.threshold, settings.threshold_log_odds)
     assessment = scored = None
     if data is not None:
@@ -333,7 +334,7 @@ def build_report(
                    threshold_log_odds=settings.threshold_log_odds, base_rate=settings.base_rate, ids=data.ids,
                    slices=list(slices), label_errors=label_errors, costs=settings.costs,
                    evidence=scored),
-            redact, pseudonyms,
+            redact, pseudonyms, names,
         )
     on_step("explaining messages")
     source, explained, total = _explained(model, settings, data, explain, scored, watchlist, text_view, pseudonyms)
@@ -357,7 +358,7 @@ def build_report(
         appeals = appeals_of(reviews[0], model.sha256, reviews[1])
     return Report(
         appeals=appeals,
-        probe=probe_result if redact == "none" else redact_probe(probe_result),
+        probe=probe_result if redact == "none" else redact_probe(probe_result, names),
         settings=settings,
         date=date,
         model=model,
