@@ -597,3 +597,42 @@ def test_the_probe_section_masks_names_found_in_the_messages_at_hand(tmp_path, p
         assert not [v for v in PLANTED if v.lower() in section.lower() + drawn.lower()]
     else:
         assert shown, section
+
+
+def test_message_id_headers_of_an_eml_folder_are_keyed_pseudonyms(files, tmp_path, capsys):
+    """Raw e-mail: each message's id is its Message-ID header; one holding an address is shown in the error
+    tables as its HMAC-SHA-256 pseudonym (RFC 2104) under --id-key-file, the same in two runs, never the address."""
+    from explain.analysis.redaction import pseudonym
+
+    frame = pd.read_csv(CORPUS / "messages.csv", dtype=str, keep_default_na=False)
+    # scam texts filed under ok/ are false alarms for sure: the error tables list them
+    rows = [("ok", t) for t in frame[frame.label == "ok"].text.iloc[:8]] + \
+           [("ok", t) for t in frame[frame.label == "scam"].text.iloc[:4]] + \
+           [("scam", t) for t in frame[frame.label == "scam"].text.iloc[4:12]]
+    message_ids = {}
+    for n, (label, text) in enumerate(rows):
+        folder = tmp_path / "mail" / label
+        folder.mkdir(parents=True, exist_ok=True)
+        message_ids[n] = f"<2026{n:04d}.notice@mail.example.org>" if n % 2 else f"<2026{n:04d}.tc-notice>"
+        (folder / f"m{n:02d}.eml").write_text(
+            f"From: Rota <rota@example.org>\nTo: Member <member@example.net>\nSubject: Notice\n"
+            f"Message-ID: {message_ids[n]}\nDate: Sun, 01 Nov 2026 09:00:00 +0000\n\n{text}\n", encoding="utf-8")
+    secret = b"tideway commons secret 2026"
+    (tmp_path / "org.key").write_bytes(secret)
+    twins = []
+    for run in (1, 2):
+        made = nbledger(capsys, "report", files / "filter.skops", "--data", tmp_path / "mail", "--labels-from-folders",
+                        "--normal-class", "ok", "--id-key-file", tmp_path / "org.key",
+                        "--out", tmp_path / f"r{run}.pdf", "--json", tmp_path / f"r{run}.json")
+        assert made.code == 0, made.err
+        twins.append((tmp_path / f"r{run}.json").read_text(encoding="utf-8"))
+    errors = json.loads(twins[0])["assessment"]["errors"]
+    ids = [x["id"] for x in errors["false_alarms"] + errors["missed"]]
+    assert ids == [x["id"] for e in [json.loads(twins[1])["assessment"]["errors"]] for x in e["false_alarms"] + e["missed"]]
+    expected = {pseudonym(secret, m) if "@" in m else m for m in message_ids.values()}
+    assert len(errors["false_alarms"]) >= 2 and set(ids) <= expected
+    assert any(i.startswith("id-") for i in ids)
+    text = " ".join(pdftotext_pages(tmp_path / "r1.pdf"))
+    for i in ids:
+        assert i in text.split(), i
+    assert "mail.example.org" not in twins[0] and "mail.example.org" not in text
