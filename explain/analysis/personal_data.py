@@ -171,7 +171,10 @@ _PLACE_WORDS = frozenset(
         "hall house centre center store shop room club board committee bank council group team day night "
         "week month year road station market school college university hospital church trust society "
         "association services service ltd limited inc plc co company fitness gym cafe café bar pub "
-        "garden bridge river lake estate block building tower court point dock harbour harbor"
+        "garden bridge river lake estate block building tower court point dock harbour harbor "
+        # businesses ("Golden Anchor Takeaway", "Anchor Driving School")
+        "takeaway bakery salon studio garage kitchen deli removals lettings cleaning plumbing tutors academy "
+        "surgery pharmacy clinic nursery barbers hotel inn shipping motors"
     ).split()
 )
 # Capitalised words that often open or sit inside a sentence and are not names (common practice, no source).
@@ -510,7 +513,9 @@ def _name_run(text: str, at: int, strong: bool, limit: int = 3) -> tuple[int, in
         if m.group().lower() in _NOT_NAMES:
             break
         if words and m.group().lower() in _PLACE_WORDS:
-            return None
+            if not strong:
+                return None  # "Golden Anchor Takeaway", "Tide Mill Road": a business or a place
+            break  # "Kind regards, Priya Raman Lettings": where a name must stand, the words before it are kept
         words.append(m)
         named += 1
         if named == limit:
@@ -588,6 +593,9 @@ def _known_names(text: str) -> list[tuple[int, int]]:
     # Two capitalised words inside a sentence ("I met Oksana Petrenko at the AGM").
     for m in re.finditer(r"(?:(?<=[a-z,;:] )|(?<=[.!?] )|(?<=^)|(?<=\n))([^\W\d_][\w'’-]+)[ \t]+([^\W\d_][\w'’-]+)", text):
         a, b = m.group(1), m.group(2)
+        after = re.match(r"[ \t]+([^\W\d_][\w'’-]+)", text[m.end(2):])
+        if after and after.group(1)[0].isupper() and after.group(1).lower() in _PLACE_WORDS:
+            continue  # a business or a place: "Golden Anchor Takeaway", "Anchor Driving School"
         if (a[0].isupper() and b[0].isupper() and a.lower() not in _COMMON_CAPITALS
                 and b.lower() not in _PLACE_WORDS and b.lower() not in _COMMON_CAPITALS
                 and a.lower() not in _PLACE_WORDS and not a.isupper() and not b.isupper()):
