@@ -53,7 +53,11 @@ def _refused_quickly(args, tmp_path, expected):
     return seconds
 
 
-def test_a_one_line_jsonl_gz_bomb_is_refused_before_the_line_is_held(model, tmp_path):
+ENGINES = {"local": [], "dask": ["--engine", "dask", "--workers", "1"]}
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_a_one_line_jsonl_gz_bomb_is_refused_before_the_line_is_held(model, tmp_path, engine):
     bomb = tmp_path / "bomb.jsonl.gz"
     with gzip.open(bomb, "wb", compresslevel=1) as stream:
         stream.write(b'{"text": "')
@@ -62,8 +66,26 @@ def test_a_one_line_jsonl_gz_bomb_is_refused_before_the_line_is_held(model, tmp_
             stream.write(block)
         stream.write(b'"}\n')
     assert bomb.stat().st_size < 4 << 20
-    _refused_quickly(["ledger", model, bomb, "--text-col", "text", "--out", tmp_path / "l.csv"], tmp_path, "--max-bytes")
-    assert not (tmp_path / "l.csv").exists()
+    out = tmp_path / ("l.csv" if engine == "local" else "set")
+    _refused_quickly(["ledger", model, bomb, "--text-col", "text", "--out", out, *ENGINES[engine]], tmp_path,
+                     "--max-bytes")
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_parquet_rows_of_100_mb_are_refused_unread(model, tmp_path, engine):
+    """One 100 MiB row per row group: the file's own metadata shows it before a page is decompressed."""
+    data = tmp_path / "rows.parquet"
+    big = pa.array(["fee " * (25 << 20)], type=pa.large_string())  # 100 MiB, built once
+    with pq.ParquetWriter(data, pa.schema([("text", pa.large_string())]), compression="zstd") as writer:
+        for _ in range(6):
+            writer.write_table(pa.table({"text": big}))
+    del big
+    assert data.stat().st_size < 1 << 20
+    out = tmp_path / ("l.parquet" if engine == "local" else "set")
+    _refused_quickly(["ledger", model, data, "--text-col", "text", "--out", out, *ENGINES[engine]], tmp_path,
+                     "row group 1 holds")
+    assert not out.exists()
 
 
 def test_parquet_rows_of_40_mb_are_refused_a_row_at_a_time(model, tmp_path):

@@ -486,6 +486,7 @@ def _parquet_pieces(path: Path, handle, text_col, id_col, chunk_rows, row_groups
     try:
         column = handle.schema_arrow.names.index(text_col)
         for group in groups:
+            _check_group_size(path, meta.row_group(group), column, group, limits)
             size = _parquet_batch_rows(meta.row_group(group), column, chunk_rows, limits)
             for batch in handle.iter_batches(batch_size=size, row_groups=[group], columns=wanted):
                 _check_arrow_lengths(path, batch.column(text_col), limits)
@@ -494,6 +495,30 @@ def _parquet_pieces(path: Path, handle, text_col, id_col, chunk_rows, row_groups
                 yield texts, ids, nulls, replaced
     except pa.ArrowException as exc:
         raise ValueError(str(exc)) from None
+
+
+def _check_group_size(path: Path, info, column: int, group: int, limits: ReadingLimits) -> None:
+    """Refuse a row group whose text column holds more than its rows times the row bound, unread.
+
+    The column chunk's uncompressed size (Parquet file metadata) is its values
+    plus a few bytes per value and page; above ``rows x (max_bytes + ROW_SLACK)``
+    at least one value must be longer than ``max_bytes`` (pigeonhole), so the
+    group is refused before any page is decompressed: a row group of one 100 MB
+    row is never held. Common practice, no source.
+    """
+    bound = limits.row_bound()
+    if bound is None:
+        return
+    try:
+        stored = info.column(column).total_uncompressed_size
+    except (IndexError, AttributeError):
+        return
+    if stored > max(info.num_rows, 1) * bound:
+        raise NbledgerError(
+            f"{path.name}: row group {group + 1:,} holds {stored:,} bytes of text in {info.num_rows:,} "
+            f"row{'' if info.num_rows == 1 else 's'}, so at least one message is longer than {limits.max_bytes:,} "
+            "bytes (--max-bytes); raise --max-bytes to read it"
+        )
 
 
 def _parquet_batch_rows(info, column: int, chunk_rows: int, limits: ReadingLimits) -> int:
