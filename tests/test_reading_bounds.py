@@ -144,3 +144,48 @@ def test_why_data_id_honours_max_bytes(model, tmp_path, capsys):
     line = nbledger(capsys, "why", model, "--data", data, "--id", "big", "--text-col", "text").one_error_line()
     assert "--max-bytes" in line and "1,048,576" in line, line
     assert nbledger(capsys, "why", model, "--data", data, "--id", "small", "--text-col", "text").code == 0
+
+
+#: Commands that read a model or data, and the five limit options the README promises each of them.
+READERS = ("why", "vocab", "assess", "report", "compare", "probe", "serve", "ledger")
+LIMITS = {"--max-bytes", "--max-data-bytes", "--max-model-memory", "--load-timeout", "--no-cache"}
+
+
+def test_every_command_that_reads_a_model_or_data_takes_the_five_limit_options():
+    import typer
+
+    import explain.cli  # noqa: F401  (registers every command)
+    from explain.cli.common import app
+
+    commands = typer.main.get_command(app).commands
+    for name in READERS:
+        options = {o for p in commands[name].params for o in p.opts}
+        assert LIMITS <= options, (name, sorted(LIMITS - options))
+    assert {"--max-bytes", "--max-data-bytes"} <= {o for p in commands["train"].params for o in p.opts}
+
+
+def test_report_compare_serve_and_why_data_honour_the_limits(model, tmp_path, capsys):
+    data = tmp_path / "long.csv"
+    data.write_text("id,text,label\n1,pay the fee,scam\n2,tea at noon,ok\n3," + "fee " * (300 << 10) + ",scam\n")
+    message = tmp_path / "long.txt"
+    message.write_text("fee " * (300 << 10))
+    other = tmp_path / "other.skops"
+    other.write_bytes(model.read_bytes())
+    runs = [
+        ("report", model, "--data", data, "--text-col", "text", "--label-col", "label", "--out", tmp_path / "r.pdf"),
+        ("report", model, "--explain", message, "--out", tmp_path / "r.pdf"),
+        ("compare", model, other, "--data", data, "--text-col", "text"),
+        ("serve", model, "--queue", data, "--text-col", "text", "--db", tmp_path / "q.db", "--port", "0"),
+    ]
+    for args in runs:
+        result = nbledger(capsys, *args)
+        errors = [l for l in result.err.splitlines() if l.startswith("error: ")]  # report also names its steps
+        assert result.code == 2 and len(errors) == 1 and "Traceback" not in result.err, result.err
+        assert "--max-bytes" in errors[0] and "1,048,576" in errors[0], (args[0], errors[0])
+    assert not (tmp_path / "r.pdf").exists()
+    # Raised, the long message is read (compare is the quickest to finish).
+    result = nbledger(capsys, "compare", model, other, "--data", data, "--text-col", "text", "--max-bytes", 2 << 20)
+    assert result.code == 0, result.err
+    line = nbledger(capsys, "why", model, "--data", data, "--id", "1", "--text-col", "text",
+                    "--max-data-bytes", "1K").one_error_line()
+    assert "--max-data-bytes" in line, line

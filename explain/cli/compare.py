@@ -9,7 +9,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, ModelOptions, app, console, fail, load_model_or_fail, model_inputs, one_threshold,
     read_messages_or_fail, ID_KEY_FILE, id_col_option,
 )
@@ -47,6 +47,7 @@ def compare(
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
     max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
     text_view: Optional[str] = TEXT_VIEW,
     raw_email: bool = RAW_EMAIL,
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
@@ -88,7 +89,7 @@ def compare(
                      "message would not be about the same text")
             mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
             messages = read_messages_or_fail(data, text_col, label_col or None, mail, id_col=id_col,
-                                             max_data_bytes=max_data_bytes)
+                                             max_data_bytes=max_data_bytes, max_bytes=max_bytes)
         result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show,
                                 threshold_log_odds=threshold_log_odds, text_view=None if mail is None else mail.view)
         if desk_reviews is not None:

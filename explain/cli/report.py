@@ -13,8 +13,8 @@ import numpy as np
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
+    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
     read_messages_or_fail, ID_KEY_FILE, id_col_option,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
@@ -35,21 +35,22 @@ def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     return path
 
 
-def read_explain(path: Path, text_col: str, mail, id_col: str | None = None):
+def read_explain(path: Path, text_col: str, mail, id_col: str | None = None, *, max_data_bytes="1G",
+                 max_bytes: int = 1 << 20):
     """Messages to explain: a data file (its ``text_col``), or a ``.txt``/``.eml`` file holding one message.
 
     A raw e-mail is read as ``why`` reads it, in the text view ``mail.view``
     (the model card's unless ``--text-view`` says otherwise); the message is
-    named by its file name, as ``why --file`` names it.
+    named by its file name, as ``why --file`` names it. The limits are the command's
+    ``--max-data-bytes`` (a data file) and ``--max-bytes`` (each message, as ``why`` bounds one).
     """
-    from explain.cli.why import read_one
+    from explain.cli.why import read_message, read_one
     from explain.model.data_io import Messages, decode_utf8
 
     if path.suffix.lower() not in (".txt", ".eml"):
-        return read_messages_or_fail(path, text_col, mail=mail, id_col=id_col)
-    if not path.is_file():
-        fail(f"no message file at {path}")
-    raw = path.read_bytes()
+        return read_messages_or_fail(path, text_col, mail=mail, id_col=id_col, max_data_bytes=max_data_bytes,
+                                     max_bytes=max_bytes)
+    raw = read_message(None, path, max_bytes)  # a missing, special or over-long file: one line
     text, replaced = decode_utf8(raw)
     if not text.strip():
         fail(f"{path.name} is empty")
@@ -141,6 +142,7 @@ def report(
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
     max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
 ):
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings
@@ -185,10 +187,12 @@ def report(
         step("reading the data")
         mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
         messages = (
-            read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes)
+            read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes,
+                                  max_bytes=max_bytes)
             if data is not None else None
         )
-        to_explain = read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email), id_col) if explain else None
+        to_explain = (read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email), id_col,
+                                   max_data_bytes=max_data_bytes, max_bytes=max_bytes) if explain else None)
         groups, suspected = [], None
         # The data are featurized once, for every section of the report.
         features = loaded.featurizer.counts_and_features(messages.texts) if messages is not None else None

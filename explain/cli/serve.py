@@ -11,7 +11,7 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
     THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, err_console, fail, load_model_or_fail, one_threshold, parse_size,
     read_messages_or_fail,
 )
@@ -59,7 +59,8 @@ def default_db(queue: Optional[Path]) -> Path:
     return queue.parent / f"{queue.name.split('.')[0] or 'queue'}.reviews.sqlite"
 
 
-def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_bytes, threshold, log_odds, date_col=None):
+def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_bytes, threshold, log_odds, date_col=None,
+               max_bytes: int | None = None):
     """The queue read and scored, with progress on standard error while it loads."""
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
@@ -67,7 +68,8 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
     from explain.runs.desk.queue import score_queue
 
     err_console.print(f"reading the queue {data.name} ...", markup=False, highlight=False)
-    messages = read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes)
+    messages = read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes,
+                                     max_bytes=max_bytes)
     rule = DecisionRule.for_view(loaded.view, threshold, log_odds)
     dates = None
     if messages.mail is not None:
@@ -112,6 +114,7 @@ def serve(
     labels_from_folders: bool = LABELS_FROM_FOLDERS,
     label: Optional[str] = LABEL,
     max_data_bytes: str = MAX_DATA_BYTES,
+    max_bytes: int = MAX_BYTES,
     vectorizer: Optional[Path] = VECTORIZER,
     allow_pickle: bool = ALLOW_PICKLE,
     trust: Optional[List[str]] = TRUST,
@@ -139,7 +142,7 @@ def serve(
         if queue is not None:
             mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
             scored = load_queue(loaded, queue, text_col, id_col, label_col, mail, max_data_bytes, threshold,
-                                threshold_log_odds, date_col)
+                                threshold_log_odds, date_col, max_bytes=max_bytes)
         settings = DeskSettings(
             loaded=loaded, store=store, queue=scored, threshold=threshold, threshold_log_odds=threshold_log_odds,
             users=people, redact=redact,

@@ -10,9 +10,9 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD, THRESHOLD_LOG_ODDS,
-    TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold, read_messages_or_fail,
-    warn, ID_KEY_FILE,
+    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
+    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold,
+    read_messages_or_fail, warn, ID_KEY_FILE,
 )
 from explain.cli.mail_options import TEXT_VIEW
 from explain.dates import record_date
@@ -259,6 +259,7 @@ def why(
     max_model_memory: str = MAX_MODEL_MEMORY,
     load_timeout: float = LOAD_TIMEOUT,
     no_cache: bool = NO_CACHE,
+    max_data_bytes: str = MAX_DATA_BYTES,
     audience: str = typer.Option(
         "team", "--audience", help="team (the ledger, with every figure) | member (a plain letter to the person whose message was held)."
     ),
@@ -309,7 +310,8 @@ def why(
             from explain.cli.mail_options import mail_input
 
             # An .eml folder or mbox file is read in the card's view and text rules, as every data command reads it.
-            messages = read_messages_or_fail(data, text_col, label_col, mail_input(loaded.card, text_view), id_col=id_col)
+            messages = read_messages_or_fail(data, text_col, label_col, mail_input(loaded.card, text_view), id_col=id_col,
+                                             max_data_bytes=max_data_bytes)
             chosen = pick_messages(messages, wanted, data.name)
             for mid, message in chosen:  # the same --max-bytes as a message given directly
                 size = len(message.encode("utf-8", "surrogatepass"))

@@ -186,8 +186,9 @@ def read_messages(
         long = [i for i, t in enumerate(texts) if len(t) > max_message_bytes // 4 and _utf8_size(t) > max_message_bytes]
         if long:
             raise NbledgerError(
-                f"{path.name}: {len(long)} messages are longer than {max_message_bytes:,} bytes (--max-bytes), "
-                f"first at data row {long[0] + 1}; raise --max-bytes if they are genuine"
+                f"{path.name}: {len(long):,} {'message is' if len(long) == 1 else 'messages are'} longer than "
+                f"{max_message_bytes:,} bytes (--max-bytes), first at data row {long[0] + 1}; raise --max-bytes if "
+                f"{'it is' if len(long) == 1 else 'they are'} genuine"
             )
     labels = None
     if label_col is not None:
