@@ -8,6 +8,7 @@ no source: each bomb is refused in seconds and under 1 GB.
 from __future__ import annotations
 
 import os
+import shutil
 import time
 import zipfile
 from pathlib import Path
@@ -67,3 +68,35 @@ def test_a_part_that_inflates_past_its_declared_size_is_stopped_within_a_step(go
 def test_two_million_parts_are_refused_before_the_directory_is_read(tmp_path):
     many = many_part_zip(tmp_path / "many.skops", 2_000_000)
     _refused(many, tmp_path, "2,000,000 parts")
+
+
+def test_a_part_beyond_the_ratio_deflate_can_reach_is_refused_unopened(good, tmp_path, capsys):
+    """bzip2 (a zip method, APPNOTE.TXT 4.4.5) packs zeros far beyond deflate's limit of about 1032:1
+    (RFC 1951: at most 258 bytes per match of at least 2 bits); no array written by skops gets there."""
+    from clirun import nbledger
+    from explain.errors import NbledgerError
+    from explain.model.model_files import MAX_RATIO, check_archive
+
+    bomb = tmp_path / "ratio.skops"
+    shutil.copyfile(good, bomb)
+    with zipfile.ZipFile(bomb, "a", compression=zipfile.ZIP_BZIP2) as out:  # 8 MiB of zeros in a few dozen bytes
+        with out.open("zeros.npy", "w") as stream:
+            for _ in range(8):
+                stream.write(bytes(1 << 20))
+    with zipfile.ZipFile(bomb) as archive:
+        info = archive.getinfo("zeros.npy")
+        assert info.file_size > MAX_RATIO * info.compress_size  # the bomb is what it claims
+    with pytest.raises(NbledgerError, match=f"more than {MAX_RATIO}:1"):
+        check_archive(bomb, 8 << 30)
+    line = nbledger(capsys, "why", bomb, "fee", "--no-cache").one_error_line()
+    assert f"more than {MAX_RATIO}:1" in line and "it was not opened" in line, line
+    # The same zeros deflated stay within the bound: a sound model's arrays are never refused.
+    sound = tmp_path / "sound.skops"
+    with zipfile.ZipFile(bomb) as source, zipfile.ZipFile(sound, "w", compression=zipfile.ZIP_DEFLATED,
+                                                          compresslevel=9) as out:
+        for info in source.infolist():
+            out.writestr(info.filename, source.read(info))
+    with zipfile.ZipFile(sound) as archive:
+        info = archive.getinfo("zeros.npy")
+        assert info.file_size < MAX_RATIO * info.compress_size, info.file_size / info.compress_size
+    check_archive(sound, 8 << 30)
