@@ -133,14 +133,123 @@ def dask_client(scheduler: str | None, workers: int, connect_timeout: float):
     from explain.run_folder import run_folder
 
     scratch = str(run_folder())
+    _quiet_resource_tracker()
+    earlier = _child_ids()
     with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
                           "distributed.worker.profile.enabled": False, "temporary-directory": scratch}):
-        cluster = LocalCluster(
-            n_workers=workers, threads_per_worker=1, processes=True,
-            dashboard_address=":0", silence_logs=logging.CRITICAL, local_directory=scratch,
-        )
-    with cluster, Client(cluster, set_as_default=False) as client:
-        yield client
+        try:
+            cluster = LocalCluster(
+                n_workers=workers, threads_per_worker=1, processes=True,
+                dashboard_address=":0", silence_logs=logging.CRITICAL, local_directory=scratch,
+            )
+        except RuntimeError as exc:  # a worker killed while it started ("Nanny failed to start.")
+            _end_children(earlier)
+            raise NbledgerError(f"the local Dask cluster could not start its workers ({_one_line(exc)})") from None
+    try:
+        with _quiet_loggers(), cluster, Client(cluster, set_as_default=False) as client:
+            yield client
+    finally:
+        _end_children(earlier)
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return f"{type(exc).__name__}: {text[0][:200]}" if text else type(exc).__name__
+
+
+@contextlib.contextmanager
+def _lost_workers():
+    """A cluster that loses its workers mid-run (killed, out of memory) ends in one line, not an internal problem.
+
+    Dask then cancels the tasks that needed them (``FutureCancelledError``: the model
+    scattered to the workers is gone) or gives up on a task whose workers kept dying
+    (``KilledWorker``); both say the cluster failed, not nbledger.
+    """
+    from concurrent.futures import CancelledError
+
+    from distributed.comm.core import CommClosedError
+    from distributed.scheduler import KilledWorker
+
+    try:
+        yield
+    except (CancelledError, KilledWorker, CommClosedError) as exc:
+        raise NbledgerError(
+            f"the Dask cluster failed during the run ({_one_line(exc)}; most often a worker stopped or out of memory)"
+        ) from None
+
+
+#: Loggers of the cluster's parts in nbledger's own process (the scheduler, the client, their event loop).
+_CLUSTER_LOGGERS = ("distributed", "asyncio", "tornado")
+
+
+@contextlib.contextmanager
+def _quiet_loggers():
+    """Keep the local cluster's own records off the terminal while it runs and stops.
+
+    An interrupt stops the workers in the middle of their work, and the scheduler's
+    event loop then logs what it could not finish (``Task exception was never
+    retrieved`` and its traceback); nbledger's one line says what happened.
+    """
+    saved = {name: logging.getLogger(name).level for name in _CLUSTER_LOGGERS}
+    for name in _CLUSTER_LOGGERS:
+        logging.getLogger(name).setLevel(logging.CRITICAL + 1)
+    try:
+        yield
+    finally:
+        for name, level in saved.items():
+            logging.getLogger(name).setLevel(level)
+
+
+def _child_ids() -> set:
+    import multiprocessing
+
+    return {child.pid for child in multiprocessing.active_children()}
+
+
+def _end_children(earlier: set, grace: float = 5.0) -> None:
+    """Stop and reap the worker processes the local cluster left (children not in ``earlier``),
+    before the run's folder is removed.
+
+    A worker still starting when an interrupt closes the cluster would otherwise make
+    its scratch folder after the run's temporary folder was removed, and outlive the run.
+    """
+    import multiprocessing
+
+    children = [child for child in multiprocessing.active_children() if child.pid not in earlier]
+    for child in children:
+        child.terminate()
+    for child in children:
+        child.join(grace)
+        if child.is_alive():
+            child.kill()
+            child.join(1.0)
+
+
+#: The resource tracker's own warnings (leaked semaphores of workers stopped by an interrupt), as a
+#: ``-W``/``PYTHONWARNINGS`` filter (Python's warnings documentation: action:message:category:module).
+_TRACKER_QUIET = "ignore::UserWarning:multiprocessing.resource_tracker"
+
+
+def _quiet_resource_tracker() -> None:
+    """Start multiprocessing's resource tracker, which the local cluster's processes share, with its warnings off.
+
+    The tracker is a process of its own that writes to the terminal after nbledger
+    has ended: when an interrupt stops the workers, it frees the semaphores they
+    left and says so in two raw lines below nbledger's one. It inherits the
+    environment it is started with, so the filter is set only while it starts.
+    """
+    import os
+    from multiprocessing import resource_tracker
+
+    saved = os.environ.get("PYTHONWARNINGS")
+    os.environ["PYTHONWARNINGS"] = _TRACKER_QUIET if not saved else f"{saved},{_TRACKER_QUIET}"
+    try:
+        resource_tracker.ensure_running()
+    finally:
+        if saved is None:
+            del os.environ["PYTHONWARNINGS"]
+        else:
+            os.environ["PYTHONWARNINGS"] = saved
 
 
 def write_ledger_dask(
@@ -160,7 +269,7 @@ def write_ledger_dask(
     progress = progress if progress is not None else LedgerProgress()
     progress.flags_known = rule.normal_index is not None
     start = time.perf_counter()
-    with dask_client(scheduler, workers, connect_timeout) as client:
+    with _lost_workers(), dask_client(scheduler, workers, connect_timeout) as client:
         import dask
         import dask.dataframe as dd
         import pandas as pd
