@@ -261,7 +261,7 @@ def test_a_base64_part_past_the_decoded_size_limit_is_not_decoded():
         b"--z\nContent-Type: application/octet-stream\nContent-Transfer-Encoding: base64\n\n" + big + b"\n--z--\n"
     )
     mail, peak = _peak_bytes(lambda: read_email(raw, Limits(max_decoded_bytes=limit)))
-    assert mail.problems == (f"parts past {limit:,} decoded bytes were not read",)
+    assert mail.problems == (f"parts past the reading limit of {limit:,} decoded bytes were not read",)
     assert [(a.content_type, a.size) for a in mail.attachments] == [("application/octet-stream", None)]
     assert mail.body == "see attached"  # the line break before a boundary belongs to it (RFC 2046 5.1.1)
     # Memory follows the raw size, not the payload: the standard parser holds the raw text

@@ -91,6 +91,32 @@ def test_closed_standard_input(model, tmp_path):
     assert done.returncode == 2 and done.stderr.startswith("error: standard input is closed"), done.stderr
 
 
+@pytest.mark.parametrize("command", [("why", "{model}", "pay the fee"), ("vocab", "{model}")])
+def test_closed_standard_output_is_one_line(model, tmp_path, command):
+    """``nbledger ... >&-``: POSIX lets a program start with a standard stream closed (the shell's ``>&-``)."""
+    args = " ".join(f'"{a.format(model=model)}"' for a in command)
+    done = subprocess.run(
+        f'exec 1>&-; "{sys.executable}" -m explain {args}', shell=True, capture_output=True, text=True,
+        env=dict(os.environ, PYTHONPATH=str(ROOT), XDG_CACHE_HOME=str(tmp_path / "cache")), timeout=120,
+    )
+    assert done.returncode == 2 and "Traceback" not in done.stderr, done.stderr
+    assert done.stderr.count("\n") == 1 and done.stderr.startswith("error: standard output is closed"), done.stderr
+
+
+def test_a_text_part_past_the_reading_limit_is_named_in_the_one_line(model, tmp_path, capsys):
+    """An e-mail whose only text part is 20 MB: the line says which reading limit left no text to explain."""
+    from explain.model.email_reader import Limits
+
+    size = 20_000_000
+    assert size > Limits().max_decoded_bytes
+    mail = tmp_path / "big.eml"
+    mail.write_bytes(b"From: desk@example.org\r\nSubject: fee\r\nMIME-Version: 1.0\r\n"
+                     b"Content-Type: multipart/mixed; boundary=b\r\n\r\n--b\r\nContent-Type: text/plain\r\n\r\n"
+                     + b"pay the fee " * (size // 12) + b"\r\n--b--\r\n")
+    line = nbledger(capsys, "why", model, "--file", mail, "--email", "--max-bytes", 32_000_000).one_error_line()
+    assert "no text in the body view" in line and f"reading limit of {Limits().max_decoded_bytes:,}" in line, line
+
+
 @pytest.mark.parametrize("where, expected", [
     ("missing", "no model file at"),
     ("folder", "is a folder"),

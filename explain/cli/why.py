@@ -152,10 +152,11 @@ def read_one(raw: bytes | str, as_email: bool, view: str, rules: str | None = No
     mail = read_email(data, rules=rules or CURRENT_RULES)
     if mail.raw_fallback:
         fail(f"the e-mail could not be read: {mail.problems[0]}")
+    if not mail.text(view).strip():  # a reading limit met says why, in the same line
+        why_not = "; ".join(mail.problems) or ("attachments only" if mail.attachments else "")
+        fail(f"the e-mail has no text in the {view} view" + (f" ({why_not})" if why_not else ""))
     for problem in mail.problems:
         warn(f"e-mail: {problem}")
-    if not mail.text(view).strip():
-        fail(f"the e-mail has no text in the {view} view" + (" (attachments only)" if mail.attachments else ""))
     return mail.message_id or None, mail.text(view), mail_facts(mail, view), view
 
 

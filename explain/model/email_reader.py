@@ -381,7 +381,7 @@ class _Walk:
         # Decoding never makes a payload longer than its encoded form, so the encoded
         # length bounds the memory spent before anything is decoded.
         if isinstance(encoded, str) and len(encoded) > room:
-            self.note(f"parts past {self.limits.max_decoded_bytes:,} decoded bytes were not read")
+            self.note(f"parts past the reading limit of {self.limits.max_decoded_bytes:,} decoded bytes were not read")
             return None
         payload = part.get_payload(decode=True)
         self.decoded += len(payload or b"")
