@@ -59,6 +59,7 @@ when known. Risk flags are those of :mod:`explain.analysis.risk`.
 
 from __future__ import annotations
 
+import collections.abc
 from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Callable, Mapping, Sequence
@@ -210,7 +211,7 @@ class VocabComparison:
 
     target: str
     other: str
-    other_classes: tuple[str, ...]
+    other_classes: Sequence[str]
     ratio: np.ndarray
     weighted_log_odds: np.ndarray
     zscore: np.ndarray
@@ -336,9 +337,9 @@ def plan_comparisons(view: ModelView, target: str | None = None, against: str | 
         raise NbledgerError("the model has a single class, so there is nothing to compare")
     everyone = range(C)
 
-    def others(t: int, a: str | None) -> tuple[int, ...]:
+    def others(t: int, a: str | None) -> Sequence[int]:
         if a == REST:
-            return tuple(c for c in everyone if c != t)
+            return _AllBut(t, C)
         return (view.class_index(a),)
 
     if target is not None:
@@ -364,6 +365,44 @@ def plan_comparisons(view: ModelView, target: str | None = None, against: str | 
     return [(t, others(t, REST)) for t in everyone]
 
 
+class _AllBut(collections.abc.Sequence):
+    """The classes ``0 .. C-1`` except ``t``, in order, without holding them.
+
+    Every class against the rest makes C comparisons with C - 1 others each: as
+    tuples that is C squared numbers (10^8 for 10,000 classes) in the plan alone.
+    """
+
+    def __init__(self, t: int, n: int, names=None):
+        self._t, self._n, self._names = t, n, names
+
+    def __len__(self) -> int:
+        return self._n - 1
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[k] for k in range(*i.indices(len(self)))]
+        if not -len(self) <= i < len(self):
+            raise IndexError(i)
+        i %= len(self)
+        c = i if i < self._t else i + 1
+        return c if self._names is None else str(self._names[c])
+
+    def __iter__(self):
+        for c in range(self._n):
+            if c != self._t:
+                yield c if self._names is None else str(self._names[c])
+
+    def __eq__(self, other) -> bool:  # equal to a tuple or list of the same classes
+        if not isinstance(other, collections.abc.Sequence) or isinstance(other, str) or len(other) != len(self):
+            return False
+        return all(a == b for a, b in zip(self, other))
+
+    __hash__ = None
+
+    def __repr__(self) -> str:
+        return repr(tuple(self))
+
+
 class _Rest:
     """Sums over "every class but t" for all t at once, in O(classes x features) rather than its square.
 
@@ -373,10 +412,13 @@ class _Rest:
     down to t (prefix and suffix scans): no subtraction, so no cancellation.
     """
 
-    def __init__(self, view: ModelView):
+    def __init__(self, view: ModelView, documents: "DocumentCounts | None" = None):
         W, b = view.weights, view.baseline
         self.feature_total = view.feature_count.sum(axis=0)
         self.class_total = float(view.class_count.sum())
+        if documents is not None:  # message counts per token and class, pooled the same way
+            self.document_total = documents.counts.sum(axis=0)
+            self.message_total = float(documents.messages.sum())
         joint = W + b[:, None]
         self._before = _shifted_scan(joint)
         self._after = _shifted_scan(joint[::-1])[::-1]
@@ -399,7 +441,7 @@ def _shifted_scan(values: np.ndarray) -> np.ndarray:
     return out
 
 
-def _ratio(view: ModelView, t: int, others: tuple[int, ...], rest: "_Rest | None" = None) -> np.ndarray:
+def _ratio(view: ModelView, t: int, others: Sequence[int], rest: "_Rest | None" = None) -> np.ndarray:
     W, b = view.weights, view.baseline
     if len(others) == 1:
         return W[t] - W[others[0]]
@@ -441,6 +483,8 @@ def monroe_zscore(y_target, y_other, prior_scale: float | None = None) -> tuple[
 
 def _ranking(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     order = np.argsort(-values, kind="stable")
+    if len(order) < 2**31:  # half the memory of every comparison's rankings
+        order = order.astype(np.int32)
     rank = np.empty_like(order)
     rank[order] = np.arange(1, len(order) + 1)
     return order, rank
@@ -449,7 +493,7 @@ def _ranking(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 def _comparison(
     view: ModelView,
     t: int,
-    others: tuple[int, ...],
+    others: Sequence[int],
     documents: DocumentCounts | None,
     traits: TokenTraits,
     watched: np.ndarray,
@@ -457,10 +501,11 @@ def _comparison(
     prior_scale: float | None,
     rest: _Rest | None = None,
 ) -> VocabComparison:
-    idx = list(others)
     fc, cc = view.feature_count, view.class_count
     y_t = fc[t]
-    if rest is not None and len(idx) == view.n_classes - 1:  # t against the rest: totals less t's own
+    against_rest = rest is not None and len(others) == view.n_classes - 1
+    idx = None if against_rest else list(others)
+    if against_rest:  # t against the rest: totals less t's own
         y_o, m_o = rest.feature_total - y_t, rest.class_total - float(cc[t])
     else:
         y_o, m_o = fc[idx].sum(axis=0), float(cc[idx].sum())
@@ -473,8 +518,12 @@ def _comparison(
     mass = np.where(np.isfinite(rate), ratio * rate, 0.0)
 
     if documents is not None:
-        d_t, d_o = documents.counts[t], documents.counts[idx].sum(axis=0)
-        table = np.stack([d_t, d_o, documents.messages[t] - d_t, documents.messages[idx].sum() - d_o])
+        d_t = documents.counts[t]
+        if against_rest:
+            d_o, n_o = rest.document_total - d_t, rest.message_total - float(documents.messages[t])
+        else:
+            d_o, n_o = documents.counts[idx].sum(axis=0), float(documents.messages[idx].sum())
+        table = np.stack([d_t, d_o, documents.messages[t] - d_t, n_o - d_o])
     elif view.feature_kind == "binary":
         d_t, d_o = y_t, y_o
         table = np.stack([y_t, y_o, m_t - y_t, m_o - y_o])
@@ -491,8 +540,9 @@ def _comparison(
     rankings = [_ranking(columns[lens]) for lens in LENSES]
     return VocabComparison(
         target=str(view.classes[t]),
-        other=str(view.classes[idx[0]]) if len(idx) == 1 else REST,
-        other_classes=tuple(str(view.classes[o]) for o in idx),
+        other=str(view.classes[others[0]]) if len(others) == 1 else REST,
+        other_classes=(_AllBut(t, view.n_classes, view.classes) if against_rest
+                       else tuple(str(view.classes[o]) for o in idx)),
         ratio=ratio,
         weighted_log_odds=delta,
         zscore=z,
@@ -567,7 +617,7 @@ def review_vocabulary(
     columns = watchlist_columns(terms, view.tokens)
     watched = np.zeros(view.n_features, dtype=bool)
     watched[columns[columns >= 0]] = True
-    rest = _Rest(view) if any(len(o) == view.n_classes - 1 and len(o) > 1 for _, o in plan) else None
+    rest = _Rest(view, documents) if any(len(o) == view.n_classes - 1 and len(o) > 1 for _, o in plan) else None
     comparisons = tuple(
         _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale, rest) for t, others in plan
     )
