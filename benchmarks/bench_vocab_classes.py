@@ -37,6 +37,7 @@ clf._update_class_log_prior()
 view = view_of(clf, [f"w{j}" for j in range(F)], "counts")
 start = time.perf_counter()
 review = review_vocabulary(view)
+flagged = sum(sum(c.flag_counts.values()) for c in review.comparisons)  # every comparison computed
 seconds = time.perf_counter() - start
 if part == "render":
     from explain.present.token_display import make_console

@@ -299,3 +299,30 @@ def test_flags_counts_and_watchlist_in_the_review():
     shown = list(hidden.tokens) + [w.term for w in hidden.watchlist]
     assert not any("example.org" in s or "555-0142" in s for s in shown)
     np.testing.assert_array_equal(hidden.comparisons[0].zscore, c.zscore)
+
+
+def test_many_comparisons_are_computed_on_demand_with_the_same_numbers(monkeypatch):
+    """A review keeps only some comparisons computed; one asked for again is recomputed, to the bit.
+
+    Common practice, no source: the numbers must not depend on what was kept.
+    """
+    import explain.analysis.vocab as vocab
+
+    rng = np.random.default_rng(7)
+    classes = [f"class{i}" for i in range(9)]
+    X = rng.poisson(1.0, (45, 6))
+    clf = MultinomialNB().fit(X, classes * 5)
+    view = view_of(clf, [f"w{j}" for j in range(6)], "counts")
+    whole = review_vocabulary(view)
+    monkeypatch.setattr(vocab, "_KEPT_CELLS", 6)  # room for one comparison of 6 tokens: at least 4 kept
+    lazy = review_vocabulary(view)
+    assert len(lazy.comparisons) == len(whole.comparisons) == 9
+    for _ in range(2):  # the second pass recomputes what the first let go
+        for a, b in zip(whole.comparisons, lazy.comparisons):
+            assert a.label == b.label and list(a.other_classes) == list(b.other_classes)
+            for name in ("ratio", "zscore", "mass", "chi2", "g2", "mi", "order", "rank", "flags", "table"):
+                np.testing.assert_array_equal(getattr(a, name), getattr(b, name))
+        assert len(lazy.comparisons._kept) == 4
+    assert lazy.comparisons[-1].target == "class8" and lazy.comparisons[1:3][0].target == "class1"
+    with pytest.raises(IndexError):
+        lazy.comparisons[9]

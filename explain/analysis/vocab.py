@@ -286,7 +286,8 @@ class VocabReview:
     ``feature_count_`` (C, F). ``lens`` and ``top`` are the ranking and list
     length asked for; every lens is ranked regardless. ``redaction`` says
     what the personal-data check looked at and found (also without
-    ``redacted``).
+    ``redacted``). ``comparisons`` is a sequence whose items are computed
+    when first asked for (a model of many classes never holds them all).
     """
 
     classes: tuple[str, ...]
@@ -295,7 +296,7 @@ class VocabReview:
     feature_kind: str
     tokens: np.ndarray
     support_by_class: np.ndarray
-    comparisons: tuple[VocabComparison, ...]
+    comparisons: Sequence[VocabComparison]
     traits: TokenTraits
     counts: CountSource
     prior_scale: float | None
@@ -401,6 +402,53 @@ class _AllBut(collections.abc.Sequence):
 
     def __repr__(self) -> str:
         return repr(tuple(self))
+
+
+#: Comparisons x tokens a review keeps computed at once (about 150 bytes each): all of a model's
+#: comparisons when they fit, else the most recently used.
+_KEPT_CELLS = 1 << 20
+
+
+class _Comparisons(collections.abc.Sequence):
+    """A review's comparisons, each computed when first asked for.
+
+    A model of many classes makes as many comparisons, each of several arrays
+    over the whole vocabulary (10,000 classes x 1,000 tokens: 1.5 GB held at
+    once). Presenters go through them in order, so only the ``keep`` most
+    recently used are kept; one asked for again after that is computed again,
+    the same numbers.
+    """
+
+    def __init__(self, plan, make, keep: int):
+        import collections
+
+        self._plan, self._make, self._keep = list(plan), make, max(1, int(keep))
+        self._kept: "collections.OrderedDict[int, VocabComparison]" = collections.OrderedDict()
+
+    def __len__(self) -> int:
+        return len(self._plan)
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return tuple(self[k] for k in range(*i.indices(len(self))))
+        if not -len(self) <= i < len(self):
+            raise IndexError(i)
+        i %= len(self)
+        found = self._kept.get(i)
+        if found is None:
+            found = self._kept[i] = self._make(*self._plan[i])
+            if len(self._kept) > self._keep:
+                self._kept.popitem(last=False)
+        else:
+            self._kept.move_to_end(i)
+        return found
+
+    def __iter__(self):
+        for i in range(len(self)):
+            yield self[i]
+
+    def __repr__(self) -> str:
+        return f"<{len(self)} comparisons>"
 
 
 class _Rest:
@@ -618,9 +666,12 @@ def review_vocabulary(
     watched = np.zeros(view.n_features, dtype=bool)
     watched[columns[columns >= 0]] = True
     rest = _Rest(view, documents) if any(len(o) == view.n_classes - 1 and len(o) > 1 for _, o in plan) else None
-    comparisons = tuple(
-        _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale, rest) for t, others in plan
+    comparisons = _Comparisons(
+        plan, lambda t, others: _comparison(view, t, others, documents, traits, watched, thresholds, prior_scale, rest),
+        keep=len(plan) if len(plan) * view.n_features <= _KEPT_CELLS else max(4, _KEPT_CELLS // view.n_features),
     )
+    if len(comparisons):
+        comparisons[0]  # a bad setting (the prior scale) is refused now, not while presenting
     tokens = redact(view.tokens, traits) if redact_personal else np.asarray(view.tokens, dtype=object)
     shown = list(terms)
     if redact_personal:
