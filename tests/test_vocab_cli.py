@@ -280,3 +280,34 @@ def test_vocab_outputs_hold_no_planted_person_with_redact(files, capsys, tmp_pat
         assert not any(re.search(rf"\b{n.lower()}\b", drawn) for n in PEOPLE[:6])
     else:
         assert {"oksana", "petrenko", "tomasz", "nowak"} <= {v.lower() for v in found}, found
+
+
+def test_a_model_of_many_classes_gives_each_comparison_one_line(tmp_path, capsys):
+    """Beyond FULL_COMPARISONS the screen lists each comparison in one line, with the tokens the tables would lead with."""
+    import numpy as np
+    import skops.io as sio
+    from sklearn.feature_extraction.text import CountVectorizer
+    from sklearn.naive_bayes import MultinomialNB
+    from sklearn.pipeline import make_pipeline
+
+    from explain.analysis.vocab import review_vocabulary
+    from explain.model.loading import load_model
+    from clirun import nbledger
+    from explain.present.vocab import FULL_COMPARISONS, LINE_TOKENS
+
+    rng = np.random.default_rng(3)
+    n = FULL_COMPARISONS + 20
+    words = [f"w{j}" for j in range(30)]
+    texts = [" ".join(rng.choice(words, 6)) for _ in range(2 * n)]
+    labels = [f"group{i:03d}" for i in range(n)] * 2
+    path = tmp_path / "many.skops"
+    sio.dump(make_pipeline(CountVectorizer(), MultinomialNB()).fit(texts, labels), path)
+    result = nbledger(capsys, "vocab", path)
+    assert result.code == 0, result.err
+    lines = [l for l in result.out.splitlines() if " vs rest: " in l]
+    assert len(lines) == n and f"{n:,} comparisons, one line each" in result.out
+    review = review_vocabulary(load_model(path).view)
+    for line, c in zip(lines, review.comparisons):
+        assert line.startswith(f"{c.label}: ")
+        strongest = ", ".join(review.tokens[c.top("zscore", LINE_TOKENS, "for")])
+        assert f"strongest for {c.target}: {strongest};" in line, line

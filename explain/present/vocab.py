@@ -78,6 +78,12 @@ VALUE_COLUMNS = ("zscore", "weighted_log_odds", "ratio", "mass", "chi2", "g2", "
 TABLE_CELLS = ("n11", "n10", "n01", "n00")
 # How many of the strongest flagged tokens the terminal names per flag.
 TERMINAL_FLAG_EXAMPLES = 5
+#: Beyond this many comparisons the terminal gives each one line, not two tables: tables take about
+#: 0.1 s a comparison, so a model of 10,000 classes would print for some 18 minutes
+#: (benchmarks/README.md); ``--class C`` shows one comparison in full.
+FULL_COMPARISONS = 100
+#: Tokens named each way on a comparison's one line.
+LINE_TOKENS = 3
 
 
 def _number(x):
@@ -391,6 +397,26 @@ def _comparison(review: VocabReview, c: VocabComparison, console: Console) -> No
         console.print(_hanging(f"  strongest {FLAG_LABELS[name]}: {listed}", console.width), markup=False)
 
 
+def _comparison_lines(review: VocabReview, console: Console) -> None:
+    """Each comparison in one line: its sizes, the strongest tokens each way, the flags it has."""
+    console.print()
+    console.print(
+        f"{len(review.comparisons):,} comparisons, one line each with the {LINE_TOKENS} strongest tokens each way "
+        f"({LENS_TITLES[review.lens]}); --class C shows one in full.", markup=False,
+    )
+
+    def line(c: VocabComparison) -> str:
+        strongest = {side: ", ".join(shown(review.tokens[j]) for j in c.top(review.lens, LINE_TOKENS, side))
+                     for side in ("for", "against")}
+        counts = ", ".join(f"{FLAG_LABELS[name]}={c.flag_counts[name]:,}" for name in FLAGS if c.flag_counts[name])
+        return (
+            f"{c.label}: {_count(c.messages_target)} vs {_count(c.messages_other)} training messages; strongest for "
+            f"{c.target}: {strongest['for']}; for {c.other}: {strongest['against']}" + (f"; flags: {counts}" if counts else "")
+        )
+
+    console.print("\n".join(line(c) for c in review.comparisons), markup=False, highlight=False, soft_wrap=True)
+
+
 def _hanging(line: str, width: int) -> str:
     """``line`` folded at ``width`` between list items' words, the folded lines indented under the first."""
     import textwrap
@@ -432,10 +458,14 @@ def _watchlist(review: VocabReview, c: VocabComparison) -> Table:
 
 
 def render(review: VocabReview, console: Console) -> None:
-    """The review as terminal tables, the personal-data check last."""
+    """The review as terminal tables (one line per comparison beyond :data:`FULL_COMPARISONS`), the
+    personal-data check last."""
     _header(review, console)
-    for c in review.comparisons:
-        _comparison(review, c, console)
+    if len(review.comparisons) > FULL_COMPARISONS:
+        _comparison_lines(review, console)
+    else:
+        for c in review.comparisons:
+            _comparison(review, c, console)
     if review.watchlist_source is not None:
         console.print()
         console.print(f"Watchlist {review.watchlist_source}: every term in every comparison.", markup=False)
