@@ -636,3 +636,109 @@ def test_message_id_headers_of_an_eml_folder_are_keyed_pseudonyms(files, tmp_pat
     for i in ids:
         assert i in text.split(), i
     assert "mail.example.org" not in twins[0] and "mail.example.org" not in text
+
+
+# --- pages that read well (issue 21, item 7) -------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def full(files, tmp_path_factory):
+    """A report with every section: slices, suspected label errors, a projection, costs, the probe and term swaps."""
+    out = tmp_path_factory.mktemp("full")
+    code = nbledger_run(["report", str(files / "filter.skops"), "--data", str(files / "test.csv"),
+                         "--explain", str(files / "explain.csv"), "--normal-class", "ok",
+                         "--watchlist", str(CORPUS / "examples" / "watchlist.txt"), "--slice-by", "sent_at:month",
+                         "--label-errors", "--folds", "3", "--base-rate", "2%", "--costs", "1:5", "--probe",
+                         "--swap-terms", str(CORPUS / "examples" / "swap_terms.txt"),
+                         "--out", str(out / "r.pdf"), "--html", str(out / "r.html")])
+    assert code == 0
+    return {"html": (out / "r.html").read_text(encoding="utf-8"),
+            "text": "\n".join(page.extract_text() for page in PdfReader(out / "r.pdf").pages)}
+
+
+def nbledger_run(argv: list[str]) -> int:
+    from explain.cli import run
+
+    return run(argv)
+
+
+def _visible_text(html_text: str) -> str:
+    """The text a reader sees in an HTML page (the standard library's parser; style and script left out)."""
+    from html.parser import HTMLParser
+
+    class Visible(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.parts, self.hidden = [], 0
+
+        def handle_starttag(self, tag, attrs):
+            self.hidden += tag in ("style", "script", "title")
+
+        def handle_endtag(self, tag):
+            self.hidden -= tag in ("style", "script", "title")
+
+        def handle_data(self, data):
+            if not self.hidden:
+                self.parts.append(data)
+
+    parser = Visible()
+    parser.feed(html_text)
+    return " ".join(" ".join(parser.parts).split())
+
+
+def test_every_per_10000_names_its_population(full):
+    # the glossary's populations (docs/glossary.md, "per 10,000"): ok messages (the normal class),
+    # flagged-class messages, messages of traffic; appeals are per 10,000 flagged messages reviewed
+    population = re.compile(r"per 10,000 (ok messages|flagged-class messages|messages of traffic|flagged messages"
+                            r"|of each population)")
+    pdf = re.sub(r"(?<=\w)- (?=\w)", "-", " ".join(full["text"].split()))  # "flagged-" at a line's end
+    for medium, text in (("HTML", _visible_text(full["html"])), ("PDF", pdf)):
+        said = [m.start() for m in re.finditer(r"per 10,000", text)]
+        assert len(said) >= 4, medium  # summary, projection, operating points, method
+        for start in said:
+            assert population.match(text, start), (medium, text[start - 60:start + 60])
+    assert "false alarms per 10,000 ok messages" in _visible_text(full["html"])  # the summary's first figure
+
+
+def _layout(html_text: str):
+    """Each page of the rendered report as (fill, blocks): how far down its content reaches (0 to 1 of the
+    page's content height) and, in document order, (element, tag, ancestor tags) of every text or picture box."""
+    from explain.present.report import render_document
+
+    def walk(box, ancestors):
+        tag = getattr(box, "element_tag", None)
+        if type(box).__name__ in ("TextBox", "InlineReplacedBox", "BlockReplacedBox"):
+            yield box, ancestors
+        for child in getattr(box, "children", ()):
+            yield from walk(child, ancestors + ((tag, getattr(box, "element", None)),))
+
+    pages = []
+    for page in render_document(html_text, "2026-05-28T00:00:00+00:00").pages:
+        box = page._page_box  # WeasyPrint's laid-out page (its content area and boxes)
+        found = list(walk(box.children[0], ()))
+        bottom = max((b.position_y + b.margin_height() for b, _ in found), default=box.content_box_y())
+        pages.append(((bottom - box.content_box_y()) / box.height, found))
+    return pages
+
+
+def test_no_page_is_less_than_a_third_full_but_the_cover_and_section_ends(full):
+    pages = _layout(full["html"])
+    starts_section = [any(tag == "h2" for tag, _ in found[0][1]) if found else False for _, found in pages]
+    fills = [round(fill, 2) for fill, _ in pages]
+    for i, (fill, _) in enumerate(pages):
+        ends_section = i + 1 == len(pages) or starts_section[i + 1]
+        assert i == 0 or ends_section or fill >= 1 / 3, (i + 1, fills)
+    # a heading stays with the table or picture it introduces: never at a page's foot with its table overleaf
+    first_page = {}
+    for number, (_, found) in enumerate(pages):
+        for box, ancestors in found:
+            for tag, element in ancestors:
+                first_page.setdefault(id(element), (number, tag))
+    order = sorted(first_page.items(), key=lambda item: item[1][0])  # stable: document order within a page
+    heading = None
+    for key, (number, tag) in order:
+        if tag in ("h2", "h3", "h4"):
+            heading = (number, tag)
+        elif tag in ("table", "figure") and heading is not None:
+            assert number == heading[0], (heading, tag, number + 1, fills)
+            heading = None
