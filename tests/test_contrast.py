@@ -108,3 +108,67 @@ def test_every_text_colour_of_the_stylesheets_passes_on_every_background_they_us
     for selector, colour, own_background in texts:
         for background in ([own_background] if own_background else sorted(backgrounds)):
             assert wcag_contrast(colour, background) >= LEAST, (selector, colour, background)
+
+
+def _figures_of_a_full_report(monkeypatch, folder):
+    """Every matplotlib figure a report with slices, a probe and term swaps draws (demo corpus, a fresh filter)."""
+    import pandas as pd
+    import skops.io as sio
+    from sklearn.feature_extraction.text import CountVectorizer
+    from sklearn.naive_bayes import MultinomialNB
+    from sklearn.pipeline import Pipeline
+
+    from explain.analysis import slices
+    from explain.analysis.report import build_report
+    from explain.model.data_io import read_messages
+    from explain.model.loading import load_model
+    from explain.present import assess_pictures, probe_pictures, report, vocab_pictures
+
+    figures = []
+    for module in (assess_pictures, probe_pictures, vocab_pictures):
+        monkeypatch.setattr(module, "png_bytes", lambda fig: figures.append(fig) or b"")
+    frame = pd.read_csv(ROOT / "demo_corpus" / "messages.csv", dtype=str, keep_default_na=False)
+    pipeline = Pipeline([("v", CountVectorizer()), ("nb", MultinomialNB())]).fit(frame.text[:3000], frame.label[:3000])
+    sio.dump(pipeline, folder / "filter.skops")
+    frame.iloc[3000:4000].to_csv(folder / "test.csv", index=False)
+    data = read_messages(folder / "test.csv", "text", "label")
+    built = build_report(load_model(folder / "filter.skops", normal_class="ok"), data=data,
+                         slices=[slices.by_length(data.texts)], probe_evasion=True,
+                         swap_terms=ROOT / "demo_corpus" / "examples" / "swap_terms.txt")
+    report.draw_pictures(built)
+    return figures
+
+
+def test_every_text_drawn_in_the_pictures_passes_on_what_lies_under_it(monkeypatch, tmp_path):
+    # each picture drawn, its texts measured, then drawn again without them: the colour under a text is the
+    # commonest pixel of its box (a heat-map cell, a legend, the paper); its ink must pass 4.5:1 on it
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.text import Text
+
+    figures = _figures_of_a_full_report(monkeypatch, tmp_path)
+    assert len(figures) >= 9  # confusion, ROC, PR, reliability, scores, slices, bars, evasion, term swaps
+    checked = 0
+    for fig in figures:
+        canvas = FigureCanvasAgg(fig)
+        canvas.draw()
+        texts = [t for t in fig.findobj(Text) if t.get_visible() and t.get_text().strip()]
+        boxes = [t.get_window_extent(canvas.get_renderer()) for t in texts]
+        for t in texts:
+            t.set_visible(False)
+        canvas.draw()
+        pixels = np.asarray(canvas.buffer_rgba())[..., :3]
+        height, width = pixels.shape[:2]
+        for text, box in zip(texts, boxes):
+            x0, x1 = max(0, int(box.x0)), min(width, int(np.ceil(box.x1)))
+            y0, y1 = max(0, height - int(np.ceil(box.y1))), min(height, height - int(box.y0))
+            region = pixels[y0:y1, x0:x1].reshape(-1, 3)
+            if len(region):
+                colours, counts = np.unique(region, axis=0, return_counts=True)
+                under = to_hex(colours[counts.argmax()] / 255)
+            else:  # drawn outside the figure's box (a footer): on the figure's own paper
+                under = to_hex(fig.get_facecolor())
+            assert (text.get_alpha() or 1.0) == 1.0, text.get_text()
+            ratio = wcag_contrast(to_hex(text.get_color()), under)
+            assert ratio >= LEAST, (text.get_text(), to_hex(text.get_color()), under, round(ratio, 2))
+            checked += 1
+    assert checked > 200

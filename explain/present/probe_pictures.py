@@ -72,7 +72,7 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
     hot = line_colours(result.classes, result.normal_class)[flagged[0]]
     cmap = LinearSegmentedColormap.from_list("shift", [NEUTRAL.base, PAPER, hot]).with_extremes(bad=PAPER)
     limit = max(float(np.nanmax(np.abs(grid))) if np.isfinite(grid).any() else 0.0, 1e-9)
-    size = 1.0 + 0.55 * n
+    size = max(3.0, 1.0 + 0.55 * n)  # room for the title and the colour bar's label even for two terms
     fig = Figure(figsize=(size + 1.6, size))
     ax = fig.add_subplot()
     image = ax.imshow(np.ma.masked_invalid(grid), cmap=cmap, vmin=-limit, vmax=limit)
@@ -90,7 +90,7 @@ def swap_grid(result: ProbeResult, group: str) -> bytes:
                 ax.text(j, i, "=" if i == j else "–", ha="center", va="center", fontsize=6, color=NEUTRAL.shade(1.0))
     bar = fig.colorbar(image, ax=ax, fraction=0.046, pad=0.04)
     bar.set_label("mean flag log-odds shift (+ toward flagging)", fontsize=8)
-    ax.set_title(f"Term swaps: {shown(group)} (cells: mean shift, messages; – untested)", fontsize=10, loc="left")
+    ax.set_title(f"Term swaps: {shown(group)}\n(cells: mean shift, messages; – untested)", fontsize=10, loc="left")
     return png_bytes(fig)
 
 
