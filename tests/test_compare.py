@@ -169,6 +169,34 @@ def test_compare_names_the_settings_that_differ(old, new, differing, weights):
     differing_line = next(line for line in lines.splitlines() if line.startswith("  differing: "))
     assert all(named[d] in differing_line for d in differing) and "model fingerprint" in differing_line
     assert to_json(result)["weights_compared"] == weights
+    # the page: the settings table marks each differing row, and says how tokens are compared
+    from html.parser import HTMLParser
+
+    from explain.present.compare import render_html
+
+    class Rows(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.rows, self.text = [], []
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "tr":
+                self.rows.append([dict(attrs).get("class")])
+            elif tag in ("th", "td") and self.rows:
+                self.rows[-1].append("")
+
+        def handle_data(self, data):
+            self.text.append(data)
+            if self.rows and len(self.rows[-1]) > 1:
+                self.rows[-1][-1] += data
+
+    page = Rows()
+    page.feed(render_html(result, to_json(result), "none"))
+    marked = {row[1] for row in page.rows if row[0] == "differs"}  # [class, first cell, ...]
+    assert marked == {named[d] for d in differing} | {"model fingerprint"}
+    text = " ".join(" ".join(page.text).split())
+    assert ("weigh tokens on different scales" in text) == (weights == "per occurrence")
+    assert f"evidence {weights} (log-odds against ok)" in text
     if weights == "per occurrence":
         assert "weight scales differ" in lines
         # per occurrence: what one occurrence adds in a message of that token alone, from scikit-learn's own
