@@ -650,9 +650,10 @@ def full(files, tmp_path_factory):
                          "--watchlist", str(CORPUS / "examples" / "watchlist.txt"), "--slice-by", "sent_at:month",
                          "--label-errors", "--folds", "3", "--base-rate", "2%", "--costs", "1:5", "--probe",
                          "--swap-terms", str(CORPUS / "examples" / "swap_terms.txt"),
-                         "--out", str(out / "r.pdf"), "--html", str(out / "r.html")])
+                         "--out", str(out / "r.pdf"), "--html", str(out / "r.html"), "--json", str(out / "r.json")])
     assert code == 0
     return {"html": (out / "r.html").read_text(encoding="utf-8"),
+            "json": json.loads((out / "r.json").read_text(encoding="utf-8")),
             "text": "\n".join(page.extract_text() for page in PdfReader(out / "r.pdf").pages)}
 
 
@@ -742,3 +743,17 @@ def test_no_page_is_less_than_a_third_full_but_the_cover_and_section_ends(full):
         elif tag in ("table", "figure") and heading is not None:
             assert number == heading[0], (heading, tag, number + 1, fills)
             heading = None
+
+
+def test_untested_term_swap_groups_are_listed_apart_never_as_a_gap(full):
+    swaps = full["json"]["robustness_and_fairness"]["term_swaps"]
+    untested = [g["group"] for g in swaps["groups"] if not g["tested"]]
+    tested = [g["group"] for g in swaps["groups"] if g["tested"]]
+    assert untested and tested  # the demo's swap file names terms no test message holds, and terms some do
+    assert all(g["fairness_gap"] is None and g["messages"] == 0 for g in swaps["groups"] if not g["tested"])
+    text = " ".join(full["text"].split())
+    line = text[text.index("Untested (0 messages), no gap:"):]
+    line = line[:line.index("not evidence of fair treatment")]
+    assert all(group in line for group in untested)
+    table = text[text.index("Term swaps"):text.index("Untested (0 messages), no gap:")]
+    assert not any(f"{group} 0 0 0" in table for group in untested)  # no row of zeros that reads as fair
