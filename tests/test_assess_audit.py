@@ -383,6 +383,24 @@ def test_pictures_include_the_slices(files, capsys, tmp_path):
         assert Image.open(tmp_path / name).size[0] > 600
 
 
+def test_thresholds_beside_the_roc_picture_have_six_significant_figures(files, monkeypatch):
+    # the case: 16 digits beside the ROC picture; pages show 6 significant figures (Python's "%g" as
+    # the reference), the JSON keeps every digit
+    from explain.present import assess_pictures
+
+    drawn = []
+    monkeypatch.setattr(assess_pictures, "png_bytes", lambda fig: drawn.append(fig) or b"")
+    result = full_result(files)
+    assess_pictures.roc_picture(result)
+    key = next(t.get_text() for t in drawn[0].findobj(lambda a: hasattr(a, "get_text"))
+               if t.get_text().startswith("operating points"))
+    printed = re.findall(r"log-odds >= (\S+)", key)
+    exact = [p.figures.threshold_log_odds for p in result.operating_points
+             if p.figures is not None and p.kind != "in use"]
+    assert len(printed) == len(exact) >= 3
+    assert printed == [f"{x:.6g}" for x in exact] and any(float(p) != x for p, x in zip(printed, exact))
+
+
 # Table structure rather than terms: what a column counts or where a row sits.
 STRUCTURE = {"class", "messages", "total", "id", "bin", "to", "chosen by", "positive class", "positive", "positives",
              "negatives", "true \\ decided"}

@@ -17,6 +17,7 @@ from matplotlib.patches import Rectangle
 from explain.analysis.assessment import FLAGGED, Assessment
 from explain.present.assessment import point_label
 from explain.present.drawing import INK, NEUTRAL, PALETTE, class_colours, ink_on, line_colours, png_bytes
+from explain.present.numbers import threshold
 
 # Marks drawn over the curves (operating points, threshold).
 MARK = INK
@@ -73,7 +74,7 @@ def roc_picture(result: Assessment) -> bytes:
                     ms=11 if in_use else 5, zorder=5, label="threshold in use" if in_use and ax is linear else None)
         if in_use:
             continue
-        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {float(f.threshold_log_odds)!r}")
+        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {threshold(f.threshold_log_odds)}")  # 6 digits; JSON: all
         # numbers, not names, beside the dots: operating points crowd together near the top left
         logx.annotate(str(len(key)), (max(f.false_alarm_rate.value, 1e-4), f.recall.value), fontsize=7,
                       xytext=(3, -9), textcoords="offset points", color=MARK)
