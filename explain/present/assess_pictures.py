@@ -74,7 +74,8 @@ def roc_picture(result: Assessment) -> bytes:
                     ms=11 if in_use else 5, zorder=5, label="threshold in use" if in_use and ax is linear else None)
         if in_use:
             continue
-        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {threshold(f.threshold_log_odds)}")  # 6 digits; JSON: all
+        # 6 significant figures, as on every page; the JSON keeps every digit
+        key.append(f"{len(key) + 1}  {point_label(p)}: log-odds >= {threshold(f.threshold_log_odds)}")
         # numbers, not names, beside the dots: operating points crowd together near the top left
         logx.annotate(str(len(key)), (max(f.false_alarm_rate.value, 1e-4), f.recall.value), fontsize=7,
                       xytext=(3, -9), textcoords="offset points", color=MARK)
