@@ -52,6 +52,12 @@ def test_terminal_json_and_report(models, capsys):
                         "--out", out).code == 0
         assert out.stat().st_size > 1000
     assert "example.org" not in (f / "c.html").read_text(encoding="utf-8")
+    # its pages: none under a third full but the cover and a section's last page (the changed messages'
+    # ledgers flow on; a rule that started each pair on a page of its own left pages nearly empty)
+    from page_layout import check_pages
+
+    fills = check_pages((f / "c.html").read_text(encoding="utf-8"), headings=False)
+    assert len(fills) >= 5
 
 
 def test_same_file_twice_says_so(models, capsys):
