@@ -720,3 +720,34 @@ def test_untested_term_swap_groups_are_listed_apart_never_as_a_gap(full):
     assert all(group in line for group in untested)
     table = text[text.index("Term swaps"):text.index("Untested (0 messages), no gap:")]
     assert not any(f"{group} 0 0 0" in table for group in untested)  # no row of zeros that reads as fair
+
+
+def test_a_sheet_whose_page_note_adds_a_page_states_the_pages_it_has(files):
+    # the note "This sheet runs to N pages" takes room of its own: a message that just fills two pages runs to
+    # three with it, and the sheet must say three (it said two). The message is found by bisection on its
+    # length; the pages are counted by pypdf, outside the renderer.
+    import io
+
+    from explain.analysis.ledger import ledger_of
+    from explain.present.report import render_document, sheet_html, sheet_pdf
+
+    model = load_model(files / "filter.skops", normal_class="ok")
+    words = "Your parcel is held at the depot, pay the fee today. The harbour tea club meets on Sunday.".split()
+    date = "2026-01-01T00:00:00+00:00"
+
+    def ledger(n):
+        text = " ".join(words[i % len(words)] + ("\n" if i % 9 == 8 else "") for i in range(n))
+        return ledger_of(model, text, message_id="long")
+
+    def bare_pages(n):  # without the note
+        return len(render_document(sheet_html([ledger(n)], date=date), date).pages)
+
+    low, high = 480, 700  # two pages at low, three at high (the boundary was at 576 words)
+    assert bare_pages(low) <= 2 < bare_pages(high)
+    while high - low > 1:
+        middle = (low + high) // 2
+        low, high = (middle, high) if bare_pages(middle) <= 2 else (low, middle)
+    # the longest message that fits two pages without the note
+    printed = PdfReader(io.BytesIO(sheet_pdf([ledger(low)], date=date)))
+    text = _squeezed(" ".join(p.extract_text() for p in printed.pages))
+    assert len(printed.pages) == 3 and _squeezed("This sheet runs to 3 pages") in text

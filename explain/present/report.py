@@ -210,10 +210,20 @@ def sheet_pdf(ledgers, *, date: str, top: int = 10, paper: str = "a4") -> bytes:
     """:func:`sheet_html` printed to PDF; a decision that runs past one page says how many pages it takes."""
     document = render_document(sheet_html(ledgers, date=date, top=top, paper=paper), date)
     if len(document.pages) > len(ledgers):  # some sheet ran over: count each one's pages, and say so on it
-        pages = [len(render_document(sheet_html([ledger], date=date, top=top, paper=paper), date).pages)
-                 for ledger in ledgers]
+        pages = [_sheet_pages(ledger, date=date, top=top, paper=paper) for ledger in ledgers]
         document = render_document(sheet_html(ledgers, date=date, top=top, paper=paper, pages=pages), date)
     return document.write_pdf()
+
+
+def _sheet_pages(ledger, *, date: str, top: int, paper: str) -> int:
+    """How many pages one decision's sheet takes with the line that says so, which can itself add a page."""
+    pages = 1
+    for _ in range(4):  # 1 -> n without the line -> n or n + 1 with it -> settled
+        counted = len(render_document(sheet_html([ledger], date=date, top=top, paper=paper, pages=[pages]), date).pages)
+        if counted == pages:
+            break
+        pages = counted
+    return pages
 
 
 # --- PDF -----------------------------------------------------------------------------
