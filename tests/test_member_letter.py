@@ -117,8 +117,26 @@ def test_every_page_of_a_team_sheet_says_internal_and_holds_no_planted_value(mod
         for value in PLANTED:
             assert value not in " ".join(text.split()), (suffix, value)
     control = model / "plain.txt"
-    assert nbledger(capsys, "why", str(model / "m.skops"), "--file", str(model / "held.txt"), "--out", str(control)).code == 0
+    assert nbledger(capsys, "why", str(model / "m.skops"), "--file", str(model / "held.txt"), "--no-redact",
+                    "--out", str(control)).code == 0
     assert "Oksana" in control.read_text() and "warden@example.org" in control.read_text()
+
+
+def test_a_written_record_is_masked_by_default_and_the_screen_shows_the_text(model, capsys):
+    """Papers circulate: `--out` masks people's details without being asked; the analyst's own screen shows the
+    message as given unless --redact (common practice, no source)."""
+    for suffix in (".txt", ".json", ".pdf"):
+        record = model / f"default{suffix}"
+        assert nbledger(capsys, "why", str(model / "m.skops"), "--file", str(model / "held.txt"),
+                        "--out", str(record)).code == 0
+        text = " ".join(pdftotext_pages(record)) if suffix == ".pdf" else record.read_text()
+        for value in PLANTED:
+            assert value not in " ".join(text.split()), (suffix, value)
+    screen = nbledger(capsys, "why", str(model / "m.skops"), "--file", str(model / "held.txt"), "--color", "never")
+    assert screen.code == 0 and "Oksana" in screen.out
+    masked = nbledger(capsys, "why", str(model / "m.skops"), "--file", str(model / "held.txt"), "--color", "never",
+                      "--redact")
+    assert masked.code == 0 and "Oksana" not in masked.out
 
 
 def test_settings_file_and_bad_input_are_one_error_line(model, capsys):

@@ -246,7 +246,11 @@ def why(
     normal_class: Optional[str] = NORMAL_CLASS,
     output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
-    redact: bool = typer.Option(False, "--redact", help="Mask personal-looking values in the text and the entries."),
+    redact: Optional[bool] = typer.Option(
+        None, "--redact/--no-redact",
+        help="Mask people's details (names, numbers, addresses) in the text and the entries (default: masked in a "
+             "record written with --out, which circulates; shown as given on the screen).",
+    ),
     watchlist: Optional[Path] = typer.Option(None, "--watchlist", help="Terms to flag as watchlist (one a line)."),
     color: str = typer.Option("auto", "--color", help="auto | always | never (auto honours NO_COLOR)."),
     vectorizer: Optional[Path] = VECTORIZER,
@@ -290,6 +294,8 @@ def why(
         settings = letter_settings(letter_settings_file, organisation=organisation, contact=contact, appeal=appeal)
         member_out_ok(out, ids, output_format)
     _check_choices(color, audience, out, data, text, file, message_id, ids, threshold, threshold_log_odds)
+    if redact is None:  # papers circulate: masked unless asked otherwise; the analyst's own screen shows the text
+        redact = out is not None
     with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file, letter_settings_file,
                            id_key_file]) as outputs:
         if out is not None:
