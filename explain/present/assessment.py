@@ -90,7 +90,7 @@ def _rate(r: Rate) -> str:
 def _count_interval(e: Estimate) -> str:
     """A projected count per 10,000 as ``12 (9.8 to 16)``: rounded to what its interval supports."""
     if not math.isfinite(e.value):
-        return "-"
+        return numbers.MISSING
     return per_10000_text(e.value, e.low, e.high)
 
 
@@ -101,7 +101,7 @@ def _share_interval(e: Estimate) -> str:
 def prob(p: float) -> str:
     """A probability readable near 0 and 1, where naive Bayes puts most of them (never rounded to certainty)."""
     if not math.isfinite(p):
-        return "-"
+        return numbers.MISSING
     return probability(p, (1.0 - p) if p < 1 else None)
 
 
@@ -269,8 +269,8 @@ def _operating_points(result: Assessment, console: Console) -> None:
                      _pct(f.precision.value), _pct(f.recall.value), _pct(f.false_alarm_rate.value)])
         fa, rc = f.false_alarm_rate, f.recall
         row = [Text(point_label(p)),
-               per_10000_text(*(10_000 * x for x in (fa.value, fa.low, fa.high))) if fa.denominator else "-",
-               per_10000_text(*(10_000 * (1 - x) for x in (rc.value, rc.high, rc.low))) if rc.denominator else "-"]
+               per_10000_text(*(10_000 * x for x in (fa.value, fa.low, fa.high))) if fa.denominator else numbers.MISSING,
+               per_10000_text(*(10_000 * (1 - x) for x in (rc.value, rc.high, rc.low))) if rc.denominator else numbers.MISSING]
         if result.costs is not None:
             row.append(_num(f.expected_cost, 4))
         expected.append(row)

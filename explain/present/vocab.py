@@ -70,6 +70,7 @@ from rich.table import Table
 from rich.text import Text
 
 from explain.analysis.risk import FLAG_LABELS, FLAGS, PERSONAL_KINDS
+from explain.present.numbers import MISSING
 from explain.present.token_display import shown
 from explain.analysis.vocab import LENS_TITLES, LENSES, VocabComparison, VocabReview
 
@@ -226,7 +227,7 @@ def to_csv(review: VocabReview) -> str:
 def _fmt(x) -> str:
     x = float(x)
     if not math.isfinite(x):
-        return "-"
+        return MISSING
     if abs(x) >= 100:
         return f"{x:,.0f}"
     # three significant digits, trailing zeros kept, so a column does not mix 5.1 with 5.13
