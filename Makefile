@@ -37,7 +37,7 @@ test: install
 demo: install
 	$(BIN)/nbledger demo --out $(OUT)
 	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/borderline.txt
-	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml
+	$(BIN)/nbledger why $(OUT)/tideway.skops --file demo_corpus/examples/notice.eml --text-view body
 	@echo "demo outputs are in $(OUT)/"
 
 # The README's picture of the report: its summary page (page 2: the contents share the cover), from the demo's PDF.
