@@ -66,6 +66,7 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 
 from explain.errors import NbledgerError
+from explain.model.input_files import term_text
 from explain.model.token_patterns import BARE_WEB_ADDRESS
 
 FLAGS = ("thin", "personal", "numeric", "mixed_script", "stopword", "watchlist", "watchlist_strong")
@@ -364,17 +365,7 @@ def parse_watchlist(text: str, source: str) -> Watchlist:
 def read_watchlist(path) -> Watchlist:
     """Read a watchlist file (UTF-8, an optional byte-order mark allowed)."""
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise NbledgerError(f"cannot read the watchlist {path}: {exc.strerror or exc}") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise NbledgerError(
-            f"the watchlist {path} is not UTF-8 text (byte 0x{raw[exc.start]:02x} at offset {exc.start})"
-        ) from None
-    return parse_watchlist(text, str(path))
+    return parse_watchlist(term_text(path, "watchlist"), str(path))
 
 
 def watchlist_columns(terms, tokens) -> np.ndarray:

@@ -34,8 +34,8 @@ from explain.analysis.evasion import raw_counts
 from explain.analysis.evidence import _score
 from explain.errors import NbledgerError
 from explain.model.decision import DecisionRule
+from explain.model.input_files import term_text
 
-MAX_FILE_BYTES = 1 << 20
 #: Texts tokenised at a time when looking for terms (memory for their tokens, not for all of them).
 TOKENISE_ROWS = 10_000
 
@@ -146,19 +146,7 @@ class TermSwaps:
 def read_swap_terms(path, featurizer) -> SwapTerms:
     """Read a swap-terms file (UTF-8): one group a line, ``name: a, b, c`` or ``a, b, c``, ``#`` comments."""
     path = Path(path)
-    try:
-        if path.stat().st_size > MAX_FILE_BYTES:
-            raise NbledgerError(f"the swap-terms file {path} is larger than {MAX_FILE_BYTES} bytes")
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise NbledgerError(f"cannot read the swap-terms file {path}: {exc.strerror or exc}") from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise NbledgerError(
-            f"the swap-terms file {path} is not UTF-8 text (byte 0x{raw[exc.start]:02x} at offset {exc.start})"
-        ) from None
-    return parse_swap_terms(text, featurizer, str(path))
+    return parse_swap_terms(term_text(path, "swap-terms file"), featurizer, str(path))
 
 
 def parse_swap_terms(text: str, featurizer, name: str = "the swap-terms file") -> SwapTerms:

@@ -69,12 +69,9 @@ def plain_message(raw: bytes | str) -> str:
 
 def read_id_list(path: Path) -> list[str]:
     """Ids one a line; blank lines and lines starting with # are skipped."""
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except OSError as exc:
-        fail(f"cannot read the id list {path}: {exc.strerror or exc}")
-    except UnicodeDecodeError:
-        fail(f"the id list {path} is not UTF-8 text")
+    from explain.model.input_files import term_text
+
+    text = term_text(path, "id list")
     ids = [line.strip() for line in text.splitlines() if line.strip() and not line.strip().startswith("#")]
     if not ids:
         fail(f"the id list {path} has no ids")

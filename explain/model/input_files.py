@@ -30,3 +30,33 @@ def input_file(path, what: str) -> Path:
     if not os.access(path, os.R_OK):
         raise NbledgerError(f"cannot read the {what} {path}: permission denied")
     return path
+
+
+#: The one size limit of a small text file of terms or ids (watchlist, swap terms, id list).
+TERM_FILE_LIMIT = 1 << 20
+
+
+def term_text(path, what: str, limit: int = TERM_FILE_LIMIT) -> str:
+    """The UTF-8 text (a byte-order mark allowed) of a small file of terms or ids, or one line naming the problem.
+
+    One reader for every such file, with one size limit: at most ``limit`` bytes are read, so a device,
+    a pipe or a huge file can neither block nor fill memory. ``what`` names the file ("watchlist", ...).
+    """
+    path = Path(path)
+    try:
+        mode = os.stat(path).st_mode
+        if not stat.S_ISREG(mode):
+            kind = "a folder" if stat.S_ISDIR(mode) else "not a regular file"
+            raise NbledgerError(f"cannot read the {what} {path}: it is {kind}")
+        with open(path, "rb") as handle:
+            raw = handle.read(limit + 1)
+    except OSError as exc:
+        raise NbledgerError(f"cannot read the {what} {path}: {exc.strerror or exc}") from None
+    if len(raw) > limit:
+        raise NbledgerError(f"the {what} {path} is larger than {limit:,} bytes")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise NbledgerError(
+            f"the {what} {path} is not UTF-8 text (byte 0x{raw[exc.start]:02x} at offset {exc.start})"
+        ) from None
