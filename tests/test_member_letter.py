@@ -177,7 +177,7 @@ def test_sheet_wording_says_seen_in_words_and_a_balance_on_the_line(model):
     ledger = ledger_of(model, "pay the parcel fee the")
     entry = {e.token: e for e in ledger.entries}
     # counted by hand from the four training texts (common practice, no source); the "seen" column's order
-    assert seen_sentence(entry["parcel"], ledger) == "'parcel' occurs twice in scam and 0 times in ok training messages"
+    assert seen_sentence(entry["parcel"], ledger) == "'parcel' occurs twice in scam and never in ok training messages"
     assert seen_sentence(entry["the"], ledger) == "'the' occurs once in scam and twice in ok training messages"
     notes = " ".join(ledger_notes(ledger, folding=False, top=10))
     assert "seen: training occurrences of the word, scam/ok" in notes

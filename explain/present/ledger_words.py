@@ -175,9 +175,9 @@ def _whole(x: float) -> str:
 
 
 def _times(x: float) -> str:
-    """A whole count of occurrences in words: "once", "twice", "70 times"."""
+    """A whole count of occurrences in words: "never", "once", "twice", "70 times"."""
     n = round(x)
-    return {1: "once", 2: "twice"}.get(n, f"{n:,} times")
+    return {0: "never", 1: "once", 2: "twice"}.get(n, f"{n:,} times")
 
 
 def seen_sentence(entry, ledger: Ledger) -> str:
