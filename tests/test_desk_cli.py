@@ -216,7 +216,7 @@ def test_serve_orders_the_queue_by_a_date_column(made, tmp_path):
     import pandas as pd
 
     from explain.cli.serve import load_queue
-    from explain.model.mail_data import MailInput
+    from explain.cli.option_sets import DataOptions
     from explain.runs.desk.queue import select
 
     folder, model, _ = made
@@ -225,7 +225,7 @@ def test_serve_orders_the_queue_by_a_date_column(made, tmp_path):
     queue_file = tmp_path / "dated.csv"
     frame.to_csv(queue_file, index=False)
     loaded = load_model(model, normal_class="ok")
-    queue = load_queue(loaded, queue_file, "text", "id", None, MailInput(), "1G", None, None, "sent_at")
+    queue = load_queue(loaded, queue_file, "text", "id", None, DataOptions(), None, None, "sent_at")
     assert [i.id for i in select(queue, {}, order="date")] == ["c", "a", "b"]
     assert [i.id for i in select(queue, {}, order="arrival")] == ["a", "b", "c"]
 
@@ -233,12 +233,12 @@ def test_serve_orders_the_queue_by_a_date_column(made, tmp_path):
 def test_a_large_queue_says_how_far_it_has_been_scored(made, capsys):
     from desk_support import CORPUS
     from explain.cli.serve import load_queue
-    from explain.model.mail_data import MailInput
+    from explain.cli.option_sets import DataOptions
 
     folder, model, _ = made
     loaded = load_model(model, normal_class="ok")
     capsys.readouterr()
-    queue = load_queue(loaded, CORPUS, "text", "id", None, MailInput(), "1G", None, None)
+    queue = load_queue(loaded, CORPUS, "text", "id", None, DataOptions(), None, None)
     said = capsys.readouterr().err.splitlines()
     assert len(queue) == 6000
     assert said[0] == "reading the queue messages.csv ..."

@@ -9,12 +9,10 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
-    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, labelled_or_fail,
-    load_model_or_fail, model_inputs, plain_text, read_messages_or_fail, one_threshold,
+    THRESHOLD, THRESHOLD_LOG_ODDS, app, console, deliver, fail, labelled_or_fail, plain_text, one_threshold,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.option_sets import DataOptions, ModelOptions, with_option_sets
 from explain.output_files import OutputSet
 
 
@@ -48,6 +46,7 @@ def parse_costs(text: Optional[str]) -> tuple[float, float] | None:
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions, reading=DataOptions)
 def assess(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     data: Path = typer.Argument(
@@ -55,7 +54,6 @@ def assess(
     ),
     text_col: Optional[str] = typer.Option(None, "--text-col", help="Column holding the message text."),
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column holding the true class."),
-    normal_class: Optional[str] = NORMAL_CLASS,
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     base_rate: Optional[str] = typer.Option(
@@ -84,18 +82,8 @@ def assess(
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
     top: int = typer.Option(10, "--top", min=0, help="Errors, borderline messages and error drivers to list."),
     bins: int = typer.Option(10, "--bins", min=1, help="Equal-count bins of the reliability diagram."),
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
     from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
@@ -112,18 +100,14 @@ def assess(
     prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
     one_threshold(threshold, threshold_log_odds)
     check_folds(folds)
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist]) as outputs:
+    with OutputSet(inputs=[*opening.inputs(model), data, watchlist]) as outputs:
         if out is not None:
             outputs.file(out)
         if images is not None:
             outputs.folder(images)
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
-        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
+        loaded = opening.load(model)
         messages = labelled_or_fail(
-            read_messages_or_fail(
-                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
-            ),
-            data,
+            reading.read(data, text_col, label_col, mail=reading.mail(loaded.card), id_col=id_col), data
         )
         X = loaded.featurizer.transform(messages.texts)
         terms = None
@@ -132,7 +116,7 @@ def assess(
 
             terms = read_watchlist(watchlist).terms
         groups, suspected = audit_inputs(loaded, messages, X, data, slice_by=slice_by, terms=terms,
-                                         label_errors=label_errors, folds=folds, max_data_bytes=max_data_bytes)
+                                         label_errors=label_errors, folds=folds, max_data_bytes=reading.max_data_bytes)
         result = run_assessment(
             loaded.view,
             X,

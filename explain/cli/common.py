@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import io
 import sys
-from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import NoReturn
 
@@ -205,45 +204,3 @@ ID_KEY_FILE = typer.Option(
 def id_col_option(of: str):
     """The ``--id-col`` option of a command whose messages come from ``of`` (``DATA``, ``--data`` ...)."""
     return typer.Option(None, "--id-col", help=f"Column of {of} holding message ids (default: id, if present).")
-
-
-@dataclass(frozen=True)
-class ModelOptions:
-    """How a command opens its model: the options every model-loading command shares, as one object."""
-
-    vectorizer: Path | None = None
-    allow_pickle: bool = False
-    trust: tuple[str, ...] = ()
-    normal_class: str | None = None
-    max_model_memory: str = "8G"
-    load_timeout: float = 300.0
-    no_cache: bool = False
-
-    @classmethod
-    def of(cls, params: dict) -> "ModelOptions":
-        """The model options among a command's parameters (its ``locals()``); those it lacks keep their defaults."""
-        chosen = {f.name: params[f.name] for f in fields(cls) if f.name in params}
-        chosen["trust"] = tuple(chosen.get("trust") or ())
-        return cls(**chosen)
-
-
-def load_model_or_fail(model: Path, options: ModelOptions = ModelOptions()):
-    """The CLI's one way to load a model: warnings to stderr, errors as one line."""
-    from explain.model.loading import LoadLimits, load_model
-
-    if not options.load_timeout > 0:
-        fail(f"--load-timeout must be a positive number of seconds, got {options.load_timeout}")
-    limits = LoadLimits(
-        memory=parse_size(options.max_model_memory, "--max-model-memory"), timeout=options.load_timeout,
-        cache=not options.no_cache,
-    )
-    return load_model(
-        model,
-        vectorizer_path=options.vectorizer,
-        allow_pickle=options.allow_pickle,
-        trust=options.trust,
-        normal_class=options.normal_class,
-        on_warning=warn,
-        limits=limits,
-    )
-

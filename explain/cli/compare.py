@@ -4,22 +4,23 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import List, Optional
+from typing import Optional
 
 import typer
 
 from explain.cli.common import (
-    ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, ModelOptions, app, console, fail, load_model_or_fail, model_inputs, one_threshold,
-    read_messages_or_fail, ID_KEY_FILE, id_col_option,
+    NORMAL_CLASS, THRESHOLD, THRESHOLD_LOG_ODDS, app, console, fail, model_inputs, one_threshold, ID_KEY_FILE,
+    id_col_option,
 )
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.option_sets import DataOptions, ModelOptions, left_out, with_option_sets
 from explain.present.token_display import for_terminal
 
 SUFFIXES = (".pdf", ".html", ".htm", ".json")
 
 
 @app.command()
+# each filter keeps its own normal class (the comparison applies --normal-class itself); no bare classifiers
+@with_option_sets(opening=left_out(ModelOptions, "vectorizer_path", "normal_class"), reading=DataOptions)
 def compare(
     old: Path = typer.Argument(..., help="The filter in use (.skops)."),
     new: Path = typer.Argument(..., help="The filter that would replace it (.skops)."),
@@ -41,17 +42,8 @@ def compare(
     reviews: Optional[str] = typer.Option(
         None, "--reviews", help="Review desk database (SQLite file or postgresql://): appeals overturned per 10,000, each model."
     ),
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """Compare two filters: vocabulary, priors, and with --data the decisions that change and why."""
     from explain.analysis.compare import compare_models, redacted_comparison
@@ -75,21 +67,18 @@ def compare(
     with OutputSet(inputs=[*model_inputs(old), *model_inputs(new), data, id_key_file]) as files:
         if out is not None:
             files.file(out)
-        # each filter keeps its own normal class (the comparison applies --normal-class itself)
-        options = ModelOptions.of({**locals(), "normal_class": None})
-        loaded = [load_model_or_fail(path, options) for path in (old, new)]
+        loaded = [opening.load(path) for path in (old, new)]
         messages = mail = None
         if data is not None:
             from explain.model.email_reader import resolve_text_view
 
             # Both models must read the same text view: one view for both, or an error.
-            views = sorted({resolve_text_view(m.card, text_view) for m in loaded})
+            views = sorted({resolve_text_view(m.card, reading.text_view) for m in loaded})
             if len(views) > 1:
                 fail(f"the two models read different text views ({' and '.join(views)}): their decisions on one "
                      "message would not be about the same text")
-            mail = mail_input(loaded[0].card, text_view, raw_email, labels_from_folders, label)
-            messages = read_messages_or_fail(data, text_col, label_col or None, mail, id_col=id_col,
-                                             max_data_bytes=max_data_bytes, max_bytes=max_bytes)
+            mail = reading.mail(loaded[0].card)
+            messages = reading.read(data, text_col, label_col or None, mail=mail, id_col=id_col)
         result = compare_models(*loaded, messages, normal_class=normal_class, threshold=threshold, top=top, show=show,
                                 threshold_log_odds=threshold_log_odds, text_view=None if mail is None else mail.view)
         if desk_reviews is not None:

@@ -11,11 +11,11 @@ from typing import List, Optional
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, EXIT_USER_ERROR, LOAD_TIMEOUT, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, Interrupted, app, console, err_console, load_model_or_fail, model_inputs,
-    one_threshold, parse_size, warn,
+    EXIT_USER_ERROR, THRESHOLD, THRESHOLD_LOG_ODDS, Interrupted, app, console, err_console, one_threshold, parse_size,
+    warn,
 )
 from explain.cli.mail_options import TEXT_VIEW, mail_input
+from explain.cli.option_sets import ModelOptions, with_option_sets
 from explain.errors import NbledgerError
 from explain.output_files import OutputSet
 
@@ -91,6 +91,7 @@ def _report(p, out: Path, summary: Optional[Path]) -> None:
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions)
 def ledger(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     data: List[Path] = typer.Argument(
@@ -109,10 +110,6 @@ def ledger(
     scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler (tcp://host:port)."),
     workers: Optional[int] = typer.Option(None, "--workers", min=1, help="Worker processes of a local Dask cluster (default 2)."),
     connect_timeout: float = typer.Option(10.0, "--connect-timeout", min=0.1, help="Seconds to wait for a Dask scheduler."),
-    normal_class: Optional[str] = NORMAL_CLASS,
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
     max_bytes: int = typer.Option(
         LEDGER_MAX_BYTES, "--max-bytes", min=1,
         help="Refuse a message longer than this (bytes); each row or line is bounded before it is read whole.",
@@ -120,10 +117,8 @@ def ledger(
     max_data_bytes: str = typer.Option(
         "none", "--max-data-bytes", help="Refuse a data file larger than this once decompressed (e.g. 50G; default none).",
     ),
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
     text_view: Optional[str] = TEXT_VIEW,
+    opening: ModelOptions = None,
 ):
     """Write the evidence for every message of a large input, chunk by chunk."""
     from explain.runs.ledger_local import LedgerProgress, write_ledger
@@ -155,14 +150,14 @@ def ledger(
     try:
         # The ledger and its flag drivers are one transaction, and neither may replace an input of the run
         # nor each other; the block is entered first, so a refused path leaves no staging folder behind.
-        with OutputSet(inputs=[*model_inputs(model, vectorizer), *data]) as outputs:
+        with OutputSet(inputs=[*opening.inputs(model), *data]) as outputs:
             if single:
                 outputs.file(out)
             else:
                 outputs.dataset(out)  # a Parquet data set folder, put in place whole
             if summary is not None:
                 outputs.file(summary)
-            loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+            loaded = opening.load(model)
             options = dict(
                 id_col=id_col, top_k=top, chunk_rows=chunk_rows, only_flagged=only_flagged,
                 threshold=threshold, threshold_log_odds=threshold_log_odds, progress=progress, mail=mail_input(loaded.card, text_view),

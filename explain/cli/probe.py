@@ -4,22 +4,21 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
-from typing import List, Optional
+from typing import Optional
 
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
-    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, deliver, fail, load_model_or_fail,
-    model_inputs, plain_text, read_messages_or_fail, one_threshold, ID_KEY_FILE, id_col_option,
+    THRESHOLD, THRESHOLD_LOG_ODDS, app, console, deliver, fail, plain_text, one_threshold, ID_KEY_FILE, id_col_option,
 )
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.option_sets import DataOptions, ModelOptions, with_option_sets
 from explain.output_files import OutputSet
 
 FORMATS = ("text", "json")
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions, reading=DataOptions)
 def probe(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     data: Optional[Path] = typer.Argument(
@@ -29,7 +28,6 @@ def probe(
     label_col: Optional[str] = typer.Option(None, "--label-col", help="Column of DATA holding the class (read, not needed)."),
     id_col: Optional[str] = id_col_option("DATA"),
     id_key_file: Optional[Path] = ID_KEY_FILE,
-    normal_class: Optional[str] = NORMAL_CLASS,
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     evasion: bool = typer.Option(False, "--evasion", help="Find the fewest added tokens that let each flagged message through."),
@@ -40,18 +38,8 @@ def probe(
     output_format: str = typer.Option("text", "--format", help="text | json"),
     out: Optional[Path] = typer.Option(None, "--out", help="Write the output to this file instead of the terminal."),
     images: Optional[Path] = typer.Option(None, "--images", help="Write the pictures (PNG) here."),
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """How many added words get a flagged message through, and do swapped group terms change decisions?"""
     from explain.analysis.probe import probe as run_probe
@@ -70,18 +58,15 @@ def probe(
     from explain.analysis.redaction import IdPseudonyms, read_id_key
 
     pseudonyms = IdPseudonyms(read_id_key(id_key_file) if id_key_file is not None else None)
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, swap_terms, id_key_file]) as outputs:
+    with OutputSet(inputs=[*opening.inputs(model), data, swap_terms, id_key_file]) as outputs:
         if out is not None:
             outputs.file(out)
         if images is not None:
             outputs.folder(images)
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        loaded = opening.load(model)
         texts = ids = None
         if data is not None:
-            mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-            messages = read_messages_or_fail(
-                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
-            )
+            messages = reading.read(data, text_col, label_col, mail=reading.mail(loaded.card), id_col=id_col)
             # ids as team papers show them: as given, a keyed pseudonym when one holds an e-mail address
             texts, ids = messages.texts, [pseudonyms(str(i)) for i in messages.ids]
         result = run_probe(

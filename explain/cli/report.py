@@ -13,12 +13,10 @@ import numpy as np
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE,
-    THRESHOLD, THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, console, err_console, fail, load_model_or_fail, model_inputs,
-    read_messages_or_fail, ID_KEY_FILE, id_col_option,
+    THRESHOLD, THRESHOLD_LOG_ODDS, app, console, err_console, fail, ID_KEY_FILE, id_col_option,
 )
 from explain.cli.audit_options import FOLDS_HELP, LABEL_ERRORS_HELP, SLICE_BY_HELP, audit_inputs, check_folds
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.option_sets import DataOptions, ModelOptions, with_option_sets
 
 
 def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
@@ -35,22 +33,23 @@ def check_output(path: Path, option: str, suffixes: tuple[str, ...]) -> Path:
     return path
 
 
-def read_explain(path: Path, text_col: str, mail, id_col: str | None = None, *, max_data_bytes="1G",
-                 max_bytes: int = 1 << 20):
+def read_explain(path: Path, text_col: str, reading: DataOptions, card: dict | None, id_col: str | None = None):
     """Messages to explain: a data file (its ``text_col``), or a ``.txt``/``.eml`` file holding one message.
 
-    A raw e-mail is read as ``why`` reads it, in the text view ``mail.view``
+    A raw e-mail is read as ``why`` reads it, in the text view of ``reading``
     (the model card's unless ``--text-view`` says otherwise); the message is
     named by its file name, as ``why --file`` names it. The limits are the command's
     ``--max-data-bytes`` (a data file) and ``--max-bytes`` (each message, as ``why`` bounds one).
     """
+    from dataclasses import replace
+
     from explain.cli.why import read_message, read_one
     from explain.model.data_io import Messages, decode_utf8
 
+    mail = replace(reading, labels_from_folders=False, label=None).mail(card)  # labels describe --data only
     if path.suffix.lower() not in (".txt", ".eml"):
-        return read_messages_or_fail(path, text_col, mail=mail, id_col=id_col, max_data_bytes=max_data_bytes,
-                                     max_bytes=max_bytes)
-    raw = read_message(None, path, max_bytes)  # a missing, special or over-long file: one line
+        return reading.read(path, text_col, mail=mail, id_col=id_col)
+    raw = read_message(None, path, reading.max_bytes)  # a missing, special or over-long file: one line
     text, replaced = decode_utf8(raw)
     if not text.strip():
         fail(f"{path.name} is empty")
@@ -84,6 +83,7 @@ def steps(total: int):
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions, reading=DataOptions)
 def report(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     out: Path = typer.Option(..., "--out", help="The PDF to write."),
@@ -95,7 +95,6 @@ def report(
     explain: Optional[Path] = typer.Option(
         None, "--explain", help="Messages to explain: a data file with --text-col, or a .txt/.eml file of one message."
     ),
-    normal_class: Optional[str] = NORMAL_CLASS,
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
     base_rate: Optional[str] = typer.Option(
@@ -131,18 +130,8 @@ def report(
     reviews: Optional[str] = typer.Option(
         None, "--reviews", help="Review desk database (SQLite file or postgresql://): adds appeals overturned per 10,000."
     ),
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
     from explain.analysis.report import ReportSettings
@@ -178,21 +167,16 @@ def report(
     desk_reviews = None if reviews is None else read_reviews(reviews)  # a missing or locked database: said now
     probing = probe_evasion or swap_terms is not None
     total = 8 + bool(slice_by or label_errors) + probing
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, explain, watchlist, swap_terms, id_key_file]) as files, \
+    with OutputSet(inputs=[*opening.inputs(model), data, explain, watchlist, swap_terms, id_key_file]) as files, \
             steps(total) as step:
         for path in outputs:
             files.file(path)  # refused now, before any work, if it is an input, a link or a folder
         step("loading the model")
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        loaded = opening.load(model)
         step("reading the data")
-        mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-        messages = (
-            read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes,
-                                  max_bytes=max_bytes)
-            if data is not None else None
-        )
-        to_explain = (read_explain(explain, text_col, mail_input(loaded.card, text_view, raw_email), id_col,
-                                   max_data_bytes=max_data_bytes, max_bytes=max_bytes) if explain else None)
+        mail = reading.mail(loaded.card)
+        messages = reading.read(data, text_col, label_col, mail=mail, id_col=id_col) if data is not None else None
+        to_explain = read_explain(explain, text_col, reading, loaded.card, id_col) if explain else None
         groups, suspected = [], None
         # The data are featurized once, for every section of the report.
         features = loaded.featurizer.counts_and_features(messages.texts) if messages is not None else None
@@ -201,7 +185,7 @@ def report(
             groups, suspected = audit_inputs(
                 loaded, messages, features[1], data, slice_by=slice_by,
                 terms=terms.terms if (slice_by and terms is not None) else None, label_errors=label_errors,
-                folds=folds, max_data_bytes=max_data_bytes,
+                folds=folds, max_data_bytes=reading.max_data_bytes,
             )
         built = build_report_files(loaded, settings=settings, data=messages, explain=to_explain, watchlist=terms,
                                    on_step=step, slices=groups, label_errors=suspected,

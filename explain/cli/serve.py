@@ -6,16 +6,12 @@ import errno
 import ipaddress
 import socket
 from pathlib import Path
-from typing import List, Optional
+from typing import Optional
 
 import typer
 
-from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, err_console, fail, load_model_or_fail, one_threshold, parse_size,
-    read_messages_or_fail,
-)
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW
+from explain.cli.common import THRESHOLD, THRESHOLD_LOG_ODDS, app, err_console, fail, one_threshold, parse_size
+from explain.cli.option_sets import DataOptions, ModelOptions, with_option_sets
 
 LOOPBACK_NAMES = ("localhost",)
 #: Queues of at least this many messages show their progress while they are scored.
@@ -59,8 +55,7 @@ def default_db(queue: Optional[Path]) -> Path:
     return queue.parent / f"{queue.name.split('.')[0] or 'queue'}.reviews.sqlite"
 
 
-def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_bytes, threshold, log_odds, date_col=None,
-               max_bytes: int | None = None):
+def load_queue(loaded, data: Path, text_col, id_col, label_col, reading: DataOptions, threshold, log_odds, date_col=None):
     """The queue read and scored, with progress on standard error while it loads."""
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
@@ -68,8 +63,7 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
     from explain.runs.desk.queue import score_queue
 
     err_console.print(f"reading the queue {data.name} ...", markup=False, highlight=False)
-    messages = read_messages_or_fail(data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes,
-                                     max_bytes=max_bytes)
+    messages = reading.read(data, text_col, label_col, mail=reading.mail(loaded.card), id_col=id_col)
     rule = DecisionRule.for_view(loaded.view, threshold, log_odds)
     dates = None
     if messages.mail is not None:
@@ -77,7 +71,7 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
     elif date_col is not None:
         from explain.model.data_io import read_column
 
-        dates = read_column(data, date_col, parse_size(max_data_bytes, "--max-data-bytes"))
+        dates = read_column(data, date_col, parse_size(reading.max_data_bytes, "--max-data-bytes"))
     if len(messages) < LARGE_QUEUE:
         return score_queue(loaded, messages, rule, None, dates)
     if not err_console.is_terminal:  # plain lines in a log
@@ -92,6 +86,7 @@ def load_queue(loaded, data: Path, text_col, id_col, label_col, mail, max_data_b
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions, reading=DataOptions)
 def serve(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     queue: Optional[Path] = typer.Option(None, "--queue", help="Messages to review: a table, a folder of .eml files or an mbox file."),
@@ -108,22 +103,10 @@ def serve(
     redact: bool = typer.Option(False, "--redact", help="Mask personal-looking values in every ledger the desk shows and keeps."),
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
-    normal_class: Optional[str] = NORMAL_CLASS,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """The review desk: the queue, each message as its ledger, and every review kept in a database."""
-    from explain.cli.mail_options import mail_input
     from explain.runs.desk.settings import DeskSettings
     from explain.runs.desk.store import open_store
     from explain.runs.desk.users import Users
@@ -135,14 +118,12 @@ def serve(
     store = open_store(db if db is not None else default_db(queue))
     sock = bound_socket(host, port)
     try:
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        loaded = opening.load(model)
         if loaded.view.n_classes < 2:
             fail("the model has one class: there is no decision to review")
         scored = None
         if queue is not None:
-            mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
-            scored = load_queue(loaded, queue, text_col, id_col, label_col, mail, max_data_bytes, threshold,
-                                threshold_log_odds, date_col, max_bytes=max_bytes)
+            scored = load_queue(loaded, queue, text_col, id_col, label_col, reading, threshold, threshold_log_odds, date_col)
         settings = DeskSettings(
             loaded=loaded, store=store, queue=scored, threshold=threshold, threshold_log_odds=threshold_log_odds,
             users=people, redact=redact,

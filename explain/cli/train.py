@@ -8,14 +8,13 @@ from typing import Optional
 
 import typer
 
-from explain.cli.common import (
-    MAX_BYTES, MAX_DATA_BYTES, NORMAL_CLASS, app, console, fail, labelled_or_fail, read_messages_or_fail,
-)
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.common import NORMAL_CLASS, app, console, fail, labelled_or_fail
+from explain.cli.option_sets import DataOptions, with_option_sets
 from explain.output_files import OutputSet
 
 
 @app.command()
+@with_option_sets(reading=DataOptions)
 def train(
     data: Path = typer.Argument(
         ..., help="Labelled messages: .csv, .jsonl or .parquet (optionally .gz), a folder of .eml files, or an mbox file."
@@ -39,12 +38,7 @@ def train(
     normal_class: Optional[str] = NORMAL_CLASS,
     holdout: float = typer.Option(0.0, help="Fraction held out (stratified) to measure accuracy and F1."),
     seed: int = typer.Option(0, help="Seed for the hold-out split."),
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
+    reading: DataOptions = None,
 ):
     """Train a naive Bayes filter; write MODEL.skops and MODEL.card.json beside it."""
     import skops.io as sio
@@ -56,9 +50,9 @@ def train(
     # Training reads raw e-mail in the body view unless a view is named; the card records it.
     from explain.model.email_reader import DEFAULT_VIEW
 
-    mail = mail_input(None, text_view or DEFAULT_VIEW, raw_email, labels_from_folders, label)
+    mail = reading.mail(None, default_view=DEFAULT_VIEW)
     from_mail = is_mail_source(data, mail)
-    if text_view is not None and not from_mail:
+    if reading.text_view is not None and not from_mail:
         fail("--text-view applies to raw e-mail: a folder of .eml files, an mbox file, or a table with --raw-email")
     settings = TrainSettings(
         features=features, ngrams=parse_ngrams(ngrams), analyzer=analyzer, variant=variant,
@@ -72,12 +66,7 @@ def train(
     with OutputSet(inputs=[data]) as outputs:
         outputs.file(out)
         outputs.file(card_path)
-        messages = labelled_or_fail(
-            read_messages_or_fail(
-                data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
-            ),
-            data,
-        )
+        messages = labelled_or_fail(reading.read(data, text_col, label_col, mail=mail, id_col=id_col), data)
         trained = train_filter(messages.texts, messages.labels, settings, ids=messages.ids)
         staged = outputs.staged(out)
         sio.dump(trained.pipeline, staged)

@@ -6,17 +6,13 @@ import json
 import math
 from dataclasses import replace
 from pathlib import Path
-from typing import List, Optional
+from typing import Optional
 
 import numpy as np
 import typer
 
-from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, TRUST, VECTORIZER, app,
-    console, deliver, fail, labelled_or_fail, load_model_or_fail, model_inputs, plain_text,
-    read_messages_or_fail,
-)
-from explain.cli.mail_options import LABEL, LABELS_FROM_FOLDERS, RAW_EMAIL, TEXT_VIEW, mail_input
+from explain.cli.common import app, console, deliver, fail, labelled_or_fail, plain_text
+from explain.cli.option_sets import DataOptions, ModelOptions, with_option_sets
 from explain.output_files import OutputSet
 
 FORMATS = ("text", "csv", "json")
@@ -45,13 +41,11 @@ def people_named(messages):
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions, reading=DataOptions)
 def vocab(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     target: Optional[str] = typer.Option(None, "--class", help="The class to measure evidence for."),
     against: Optional[str] = typer.Option(None, "--against", help="A class, or 'rest' for all other classes pooled."),
-    normal_class: Optional[str] = typer.Option(
-        None, "--normal-class", help="The class that lets a message through; every other class is compared with it."
-    ),
     by: str = typer.Option("zscore", "--by", help="Ranking: zscore | ratio | mass | chi2 | g2."),
     top: int = typer.Option(20, "--top", help="Tokens to list for and against each class."),
     watchlist: Optional[Path] = typer.Option(
@@ -77,18 +71,8 @@ def vocab(
     names_from: Optional[Path] = typer.Option(
         None, "--names-from", help="Hashed models: a text file whose tokens, hashed like the model's, name the columns."
     ),
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
-    text_view: Optional[str] = TEXT_VIEW,
-    raw_email: bool = RAW_EMAIL,
-    labels_from_folders: bool = LABELS_FROM_FOLDERS,
-    label: Optional[str] = LABEL,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
-    max_data_bytes: str = MAX_DATA_BYTES,
-    max_bytes: int = MAX_BYTES,
+    opening: ModelOptions = None,
+    reading: DataOptions = None,
 ):
     """Which words does the filter treat as evidence, how well supported, and which need a reviewer's look?"""
     from explain.analysis.risk import RiskThresholds, read_watchlist
@@ -104,9 +88,8 @@ def vocab(
         fail(f"--top must be at least 1, got {top}")
     if not strong > 1 or not math.isfinite(strong):
         fail(f"--strong is an odds factor and must be above 1, got {strong}")
-    if data is None and (raw_email or labels_from_folders or label is not None):
-        fail("--raw-email, --labels-from-folders and --label describe --data; give --data")
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, watchlist, names_from]) as outputs:
+    reading.need_data(data)
+    with OutputSet(inputs=[*opening.inputs(model), data, watchlist, names_from]) as outputs:
         if out is not None:
             outputs.file(out)
         if images is not None:
@@ -114,15 +97,11 @@ def vocab(
         thresholds = RiskThresholds(thin_below=thin_below, strong_log_odds=math.log(strong))
         terms = read_watchlist(watchlist) if watchlist is not None else None
 
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        loaded = opening.load(model)
         messages = documents = None
         if data is not None:
-            mail = mail_input(loaded.card, text_view, raw_email, labels_from_folders, label)
             messages = labelled_or_fail(
-                read_messages_or_fail(
-                    data, text_col, label_col, mail, id_col=id_col, max_data_bytes=max_data_bytes, max_bytes=max_bytes
-                ),
-                data,
+                reading.read(data, text_col, label_col, mail=reading.mail(loaded.card), id_col=id_col), data
             )
             seen = rows_trained_on(loaded.card, messages)
             rows = np.arange(len(messages)) if seen.trained is None else np.flatnonzero(seen.trained)

@@ -5,16 +5,16 @@ from __future__ import annotations
 import os
 import sys
 from pathlib import Path
-from typing import List, Optional
+from typing import Optional
 
 import typer
 
 from explain.cli.common import (
-    ModelOptions, ALLOW_PICKLE, LOAD_TIMEOUT, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NORMAL_CLASS, NO_CACHE, THRESHOLD,
-    THRESHOLD_LOG_ODDS, TRUST, VECTORIZER, app, fail, load_model_or_fail, model_inputs, note, one_threshold,
-    read_messages_or_fail, warn, ID_KEY_FILE,
+    MAX_DATA_BYTES, THRESHOLD, THRESHOLD_LOG_ODDS, app, fail, note, one_threshold, read_messages_or_fail, warn,
+    ID_KEY_FILE,
 )
 from explain.cli.mail_options import TEXT_VIEW
+from explain.cli.option_sets import ModelOptions, with_option_sets
 from explain.dates import record_date
 from explain.present.token_display import for_terminal, make_console
 
@@ -225,6 +225,7 @@ def _check_choices(color, audience, out, data, text, file, message_id, ids, thre
 
 
 @app.command()
+@with_option_sets(opening=ModelOptions)
 def why(
     model: Path = typer.Argument(..., help="Model file (.skops; pickle/joblib only with --allow-pickle)."),
     text: Optional[str] = typer.Argument(None, help="The message, or - to read standard input."),
@@ -240,7 +241,6 @@ def why(
     top: int = typer.Option(10, "--top", min=1, help="Largest entries to keep when a long message is folded."),
     threshold: Optional[float] = THRESHOLD,
     threshold_log_odds: Optional[float] = THRESHOLD_LOG_ODDS,
-    normal_class: Optional[str] = NORMAL_CLASS,
     output_format: str = typer.Option("text", "--format", help="text | json (on standard output)."),
     out: Optional[Path] = typer.Option(None, "--out", help="Write a record to this file: .txt or .json."),
     redact: Optional[bool] = typer.Option(
@@ -250,17 +250,11 @@ def why(
     ),
     watchlist: Optional[Path] = typer.Option(None, "--watchlist", help="Terms to flag as watchlist (one a line)."),
     color: str = typer.Option("auto", "--color", help="auto | always | never (auto honours NO_COLOR)."),
-    vectorizer: Optional[Path] = VECTORIZER,
-    allow_pickle: bool = ALLOW_PICKLE,
-    trust: Optional[List[str]] = TRUST,
     max_bytes: int = typer.Option(MAX_MESSAGE_BYTES, "--max-bytes", min=1, help="Refuse larger messages."),
     as_email: bool = typer.Option(
         False, "--email", help="Read the message as a raw e-mail even if its headers are not recognised."
     ),
     text_view: Optional[str] = TEXT_VIEW,
-    max_model_memory: str = MAX_MODEL_MEMORY,
-    load_timeout: float = LOAD_TIMEOUT,
-    no_cache: bool = NO_CACHE,
     max_data_bytes: str = MAX_DATA_BYTES,
     audience: str = typer.Option(
         "team", "--audience", help="team (the ledger, with every figure) | member (a plain letter to the person whose message was held)."
@@ -272,6 +266,7 @@ def why(
     contact: Optional[str] = typer.Option(None, "--contact", help="Where a member asks questions (member letter)."),
     appeal: Optional[str] = typer.Option(None, "--appeal", help="How a member asks for a person's review (member letter)."),
     id_key_file: Optional[Path] = ID_KEY_FILE,
+    opening: ModelOptions = None,
 ):
     """Why did the filter decide this message the way it did? Told as a ledger, or as a letter to the member."""
     from explain.model.email_reader import resolve_text_view
@@ -293,12 +288,12 @@ def why(
     _check_choices(color, audience, out, data, text, file, message_id, ids, threshold, threshold_log_odds)
     if redact is None:  # papers circulate: masked unless asked otherwise; the analyst's own screen shows the text
         redact = out is not None
-    with OutputSet(inputs=[*model_inputs(model, vectorizer), data, ids, watchlist, file, letter_settings_file,
+    with OutputSet(inputs=[*opening.inputs(model), data, ids, watchlist, file, letter_settings_file,
                            id_key_file]) as outputs:
         if out is not None:
             outputs.file(out)  # checked before any work: never an input, a link or a folder
 
-        loaded = load_model_or_fail(model, ModelOptions.of(locals()))
+        loaded = opening.load(model)
         two_classes_or_fail(loaded)
         # Imported after loading, so that their imports overlap the loading process.
         from explain.analysis.ledger import ledger_of, redacted
