@@ -3,6 +3,7 @@
 SQLite (a file, write-ahead log) is the embedded default; PostgreSQL serves a team. Both run the same
 statements. A review is never changed or removed: a correction is a new review naming the one it
 supersedes, and the schema's triggers (migration ``0002``) refuse UPDATE and DELETE on the table.
+The migrations are the schema's one declaration: an open store reads the table from the database.
 
 A database is opened with :func:`open_store`: a new, empty one is given the schema; one at an older
 schema is refused with one line saying how to upgrade it (:func:`upgrade`, ``nbledger reviews upgrade``).
@@ -27,31 +28,6 @@ MIGRATIONS = Path(__file__).with_name("migrations")
 #: Seconds a writer waits for SQLite's lock before giving up with one line.
 SQLITE_WAIT = 15.0
 
-metadata = sa.MetaData()
-#: One row per review, never updated or deleted (declared once; the migrations create it).
-reviews = sa.Table(
-    "reviews",
-    metadata,
-    sa.Column("id", sa.Integer, primary_key=True, autoincrement=True),
-    sa.Column("review_key", sa.String(64), nullable=False, unique=True),
-    sa.Column("message_id", sa.Text, nullable=False, index=True),
-    sa.Column("reviewer", sa.Text, nullable=False),
-    sa.Column("role", sa.Text, nullable=False),
-    sa.Column("recorded_at", sa.Text, nullable=False),
-    sa.Column("outcome", sa.Text, nullable=False),
-    sa.Column("reason", sa.Text, nullable=False),
-    sa.Column("note", sa.Text, nullable=False),
-    sa.Column("label", sa.Text, nullable=True),
-    sa.Column("supersedes", sa.Integer, sa.ForeignKey("reviews.id"), nullable=True),
-    sa.Column("decision", sa.Text, nullable=False),
-    sa.Column("flagged", sa.Boolean, nullable=False),
-    sa.Column("model_sha256", sa.Text, nullable=False),
-    sa.Column("model_fingerprint", sa.Text, nullable=True),
-    sa.Column("rule", sa.Text, nullable=False),
-    sa.Column("text", sa.Text, nullable=False),
-    sa.Column("ledger", sa.Text, nullable=False),
-    sa.CheckConstraint("outcome IN ('upheld', 'overturned', 'escalated')", name="known_outcome"),
-)
 #: The columns of a review in the API and the CSV log (the ledger record and text only on request).
 COLUMNS = (
     "id", "message_id", "reviewer", "role", "recorded_at", "outcome", "reason", "note", "label",
@@ -165,6 +141,8 @@ class Store:
 
     engine: sa.Engine
     url: str
+    #: the reviews table as the database holds it (its one declaration is the migrations)
+    table: sa.Table
 
     def close(self) -> None:
         self.engine.dispose()
@@ -179,11 +157,11 @@ class Store:
             with self.engine.begin() as conn:
                 if row.get("supersedes") is not None:
                     earlier = conn.execute(
-                        sa.select(reviews.c.message_id).where(reviews.c.id == row["supersedes"])
+                        sa.select(self.table.c.message_id).where(self.table.c.id == row["supersedes"])
                     ).scalar()
                     if earlier != row["message_id"]:
                         raise NbledgerError(f"review {row['supersedes']} is not a review of message {row['message_id']!r}")
-                new_id = conn.execute(reviews.insert().values(**row).returning(reviews.c.id)).scalar_one()
+                new_id = conn.execute(self.table.insert().values(**row).returning(self.table.c.id)).scalar_one()
             return self.get(new_id, ledger=True), True
         except IntegrityError:
             existing = self.by_key(row["review_key"])
@@ -193,33 +171,33 @@ class Store:
 
     def by_key(self, key: str) -> dict | None:
         with self.engine.connect() as conn:
-            found = conn.execute(sa.select(reviews.c.id).where(reviews.c.review_key == key)).scalar()
+            found = conn.execute(sa.select(self.table.c.id).where(self.table.c.review_key == key)).scalar()
         return None if found is None else self.get(found, ledger=True)
 
     def get(self, review_id: int, *, ledger: bool = False) -> dict | None:
         with self.engine.connect() as conn:
-            row = conn.execute(sa.select(reviews).where(reviews.c.id == review_id)).mappings().first()
+            row = conn.execute(sa.select(self.table).where(self.table.c.id == review_id)).mappings().first()
         return None if row is None else as_dict(row, ledger=ledger)
 
     def select(self, *, message_id=None, outcome=None, reviewer=None, current_only=False, ledger=False) -> list[dict]:
         """Reviews oldest first, filtered; ``current_only`` keeps the newest review of each message."""
-        query = sa.select(reviews).order_by(reviews.c.id)
+        query = sa.select(self.table).order_by(self.table.c.id)
         if message_id is not None:
-            query = query.where(reviews.c.message_id == message_id)
+            query = query.where(self.table.c.message_id == message_id)
         if reviewer is not None:
-            query = query.where(reviews.c.reviewer == reviewer)
+            query = query.where(self.table.c.reviewer == reviewer)
         if current_only:
-            newest = sa.select(sa.func.max(reviews.c.id)).group_by(reviews.c.message_id)
-            query = query.where(reviews.c.id.in_(newest))
+            newest = sa.select(sa.func.max(self.table.c.id)).group_by(self.table.c.message_id)
+            query = query.where(self.table.c.id.in_(newest))
         if outcome is not None:
-            query = query.where(reviews.c.outcome == outcome)
+            query = query.where(self.table.c.outcome == outcome)
         with self.engine.connect() as conn:
             return [as_dict(r, ledger=ledger) for r in conn.execute(query).mappings()]
 
     def current_outcomes(self) -> dict[str, str]:
         """message id -> outcome of its newest review."""
-        newest = sa.select(sa.func.max(reviews.c.id)).group_by(reviews.c.message_id)
-        query = sa.select(reviews.c.message_id, reviews.c.outcome).where(reviews.c.id.in_(newest))
+        newest = sa.select(sa.func.max(self.table.c.id)).group_by(self.table.c.message_id)
+        query = sa.select(self.table.c.message_id, self.table.c.outcome).where(self.table.c.id.in_(newest))
         with self.engine.connect() as conn:
             return {m: o for m, o in conn.execute(query)}
 
@@ -265,10 +243,11 @@ def open_store(db: str | Path, *, create: bool = True) -> Store:
                 f"the review database {shown_url(url)} needs a migration ({now}, this nbledger needs {head}): "
                 f"run nbledger reviews upgrade {db}"
             )
+        table = sa.Table("reviews", sa.MetaData(), autoload_with=engine)
     except (OperationalError, sqlite3.OperationalError, SQLAlchemyError, OSError) as exc:
         engine.dispose()
         raise trouble(exc, url) from None
-    return Store(engine, url)
+    return Store(engine, url, table)
 
 
 def read_reviews(db: str | Path) -> tuple[list[dict], str]:

@@ -2,9 +2,8 @@
 
 from alembic import context
 
-from explain.runs.desk.store import metadata
-
+# The migrations are the one declaration of the schema; the store reads the table's shape from the database.
 connection = context.config.attributes["connection"]
-context.configure(connection=connection, target_metadata=metadata)
+context.configure(connection=connection, target_metadata=None)
 with context.begin_transaction():
     context.run_migrations()
