@@ -17,25 +17,10 @@ from pathlib import Path
 
 from explain.analysis.ledger import Ledger, redacted
 from explain.analysis.risk import FLAG_LABELS
+from explain.present import ledger_words as words
 from explain.present.drawing import class_colours
 from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
-from explain.present.ledger_words import (
-    CAUTION,
-    closing_figure,
-    beat_line,
-    closing_odds,
-    credit_colour_class,
-    ledger_notes,
-    money,
-    opening_lines,
-    probability_line,
-    rule_line,
-    shown_rows,
-    support_cell,
-    versus_note,
-    word_notes,
-)
 from explain.present.wording import amount, folded
 
 REDACTIONS = ("none", "personal", "bodies")
@@ -44,7 +29,7 @@ STYLESHEET = "ledger.css"
 
 
 def _money(x: float) -> dict:
-    debit, credit = money(x)
+    debit, credit = words.money(x)
     return {"debit": debit, "credit": credit}
 
 
@@ -91,7 +76,7 @@ def _heat_segments(ledger: Ledger) -> list[dict]:
     for start, end, direction, _, size in heat_runs(heat, largest):
         if start > at:
             segments.append({"text": text[at:start]})
-        family = families[credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
+        family = families[words.credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
         t = tint(direction, family, size, largest)
         segments.append({"text": text[start:end], "mark": t.mark, "direction": direction, "level": t.level_name,
                          "style": f"background-color: {t.background}; color: {t.foreground}"})
@@ -123,7 +108,7 @@ def _row_views(ledger: Ledger, rows, looks: dict) -> list[dict]:
             **_money(row.amount),
             "balance": f"{row.balance_after:+.2f}",
             "tipped": i == ledger.tipped_at,
-            "seen": support_cell(row, ledger),
+            "seen": words.support_cell(row, ledger),
             "flags": [FLAG_LABELS.get(f, f) for f in row.flags],  # one spelling on every screen: watchlist-strong
         })
     return row_views
@@ -141,7 +126,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
     if redaction != "none":
         ledger = redacted(ledger)
     families = class_colours(ledger.classes, ledger.normal_class)
-    credit_class = credit_colour_class(ledger)
+    credit_class = words.credit_colour_class(ledger)
     largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
 
     def look(e) -> dict:
@@ -154,10 +139,10 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         }
 
     looks = {e.column: look(e) for e in ledger.entries}
-    rows = shown_rows(ledger, top)
+    rows = words.shown_rows(ledger, top)
     row_views = _row_views(ledger, rows, looks)
     opening = [
-        {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in opening_lines(ledger)
+        {"label": label, **_money(change), "balance": f"{after:+.2f}"} for label, change, after in words.opening_lines(ledger)
     ]
     directions = {r["direction"] for r in row_views if r["kind"] == "entry"}
     legend = [
@@ -175,7 +160,7 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "card_date": ledger.card_date,
         "redaction": redaction,
         "decision": ledger.decision,
-        "probability": probability_line(ledger),
+        "probability": words.probability_line(ledger),
         "balance_method": ledger.balance_method,
         "credit_label": credit_class if len(ledger.credit_classes) == 1 else ledger.credit_side,
         "debit_label": ledger.debit_class,
@@ -183,16 +168,16 @@ def ledger_context(ledger: Ledger, redaction: str = "none", *, top: int = 10, da
         "has_flags": any(r.get("flags") for r in row_views),
         "opening": opening,
         "rows": row_views,
-        "closing": closing_figure(ledger),
-        "closing_odds": closing_odds(ledger),
-        "rule": rule_line(ledger),
-        "beat": None if ledger.beat is None else beat_line(ledger),
-        "versus_note": versus_note(ledger),
+        "closing": words.closing_figure(ledger),
+        "closing_odds": words.closing_odds(ledger),
+        "rule": words.rule_line(ledger),
+        "beat": None if ledger.beat is None else words.beat_line(ledger),
+        "versus_note": words.versus_note(ledger),
         "legend": legend,
-        "notes": ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top),
-        "word_notes": word_notes(ledger),
+        "notes": words.ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top),
+        "word_notes": words.word_notes(ledger),
         "segments": [] if redaction == "bodies" else _segments(ledger, looks),
         "text_withheld": redaction == "bodies",
         "spans_note": ledger.spans_note,
-        "caution": CAUTION,
+        "caution": words.CAUTION,
     }

@@ -25,24 +25,9 @@ from rich.text import Text
 
 from explain.analysis.ledger import Ledger
 from explain.analysis.risk import FLAG_LABELS
+from explain.present import ledger_words as words
 from explain.present.drawing import class_colours
 from explain.present.email_lines import email_header_lines
-from explain.present.ledger_words import (
-    CAUTION,
-    beat_line,
-    closing_figure,
-    closing_odds,
-    credit_colour_class,
-    ledger_notes,
-    money,
-    opening_lines,
-    probability_line,
-    rule_line,
-    shown_rows,
-    support_cell,
-    versus_note,
-    word_notes,
-)
 from explain.present.tint import MARKS, heat_runs, tint
 from explain.present.token_display import shown
 from explain.present.wording import amount
@@ -98,7 +83,7 @@ def _head(ledger: Ledger, date: str | None) -> list[Text]:
 def _legend(ledger: Ledger, rows, mode: str, families) -> Text:
     shown_directions = {r.direction for r in rows if not isinstance(r, tuple)}
     legend = Text()
-    for direction, side in (("credit", credit_colour_class(ledger)), ("debit", ledger.debit_class)):
+    for direction, side in (("credit", words.credit_colour_class(ledger)), ("debit", ledger.debit_class)):
         if direction not in shown_directions:
             continue
         if legend:
@@ -120,7 +105,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     mode = colour_mode(console)
     families = class_colours(ledger.classes, ledger.normal_class)
     if ledger.credit_side not in families:
-        families[ledger.credit_side] = families[credit_colour_class(ledger)]
+        families[ledger.credit_side] = families[words.credit_colour_class(ledger)]
     for line in _head(ledger, date):
         console.print(line)
     if ledger.explanation.mail is not None:
@@ -128,29 +113,29 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
             console.print(line, markup=False, highlight=False)
     decision = Text("decision ", style="bold")
     decision.append(ledger.decision, style="bold")
-    decision.append(f"   {probability_line(ledger)}")
+    decision.append(f"   {words.probability_line(ledger)}")
     console.print(decision)
     console.print(Text(f"balance = {ledger.balance_method}"))
-    if versus_note(ledger):
-        console.print(Text(versus_note(ledger)))
+    if words.versus_note(ledger):
+        console.print(Text(words.versus_note(ledger)))
     console.print()
 
-    rows = shown_rows(ledger, top)
+    rows = words.shown_rows(ledger, top)
     table = _book(ledger, rows, mode, families)
     console.print(table)
     console.print("═" * min(console.measure(table).maximum, console.width))
     closing = Text("closing balance ", style="bold")
-    closing.append(closing_figure(ledger), style="bold")
-    closing.append(f"   {closing_odds(ledger)}")
+    closing.append(words.closing_figure(ledger), style="bold")
+    closing.append(f"   {words.closing_odds(ledger)}")
     console.print(closing)
-    console.print(Text(rule_line(ledger) + f"; decision: {ledger.decision}"))
+    console.print(Text(words.rule_line(ledger) + f"; decision: {ledger.decision}"))
     if ledger.beat is not None:
-        console.print(Text(beat_line(ledger)))
+        console.print(Text(words.beat_line(ledger)))
     console.print(_legend(ledger, rows, mode, families))
-    for note in ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
+    for note in words.ledger_notes(ledger, folding=len(rows) < len(ledger.entries), top=top):
         console.print(Text(note, style="dim" if mode != "none" else ""))
     console.print()
-    for line in word_notes(ledger):
+    for line in words.word_notes(ledger):
         console.print(Text(line))
     console.print()
     console.print(Text("message", style="bold"))
@@ -161,7 +146,7 @@ def render(ledger: Ledger, console: Console, top: int = 10, date: str | None = N
     if ledger.spans_note is not None:
         console.print(Text(f"(not tinted: {ledger.spans_note})"))
     console.print()
-    console.print(Text(CAUTION, style="dim" if mode != "none" else ""))
+    console.print(Text(words.CAUTION, style="dim" if mode != "none" else ""))
 
 
 def _book(ledger: Ledger, rows, mode: str, families) -> Table:
@@ -182,15 +167,15 @@ def _book(ledger: Ledger, rows, mode: str, families) -> Table:
     if flagged:
         table.add_column("flags", overflow="fold")
 
-    for label, change, after in opening_lines(ledger):
-        table.add_row("", Text(label, style="italic"), "", "", *money(change), f"{after:+.2f}")
+    for label, change, after in words.opening_lines(ledger):
+        table.add_row("", Text(label, style="italic"), "", "", *words.money(change), f"{after:+.2f}")
     table.add_section()
     number = {id(e): i for i, e in enumerate(ledger.entries)}
     for row in rows:
         if isinstance(row, tuple):
             count, total, after = row
             label = Text(f"… {count:,} smaller", style="italic")  # their sum is in its column
-            table.add_row("", label, "", "", *money(total), f"{after:+.2f}")
+            table.add_row("", label, "", "", *words.money(total), f"{after:+.2f}")
             continue
         i = number[id(row)]
         tipped = " ◀" if i == ledger.tipped_at else ""
@@ -199,9 +184,9 @@ def _book(ledger: Ledger, rows, mode: str, families) -> Table:
             _word(row, largest, mode, families),
             str(row.occurrences),
             amount(row.per_occurrence),
-            *money(row.amount),
+            *words.money(row.amount),
             f"{row.balance_after:+.2f}{tipped}",
-            support_cell(row, ledger),
+            words.support_cell(row, ledger),
             *([", ".join(FLAG_LABELS.get(f, f) for f in row.flags)] if flagged else []),  # watchlist-strong
         )
     if not rows:
@@ -222,7 +207,7 @@ def tinted_text(ledger: Ledger, mode: str, families, limit: int = DISPLAY_LIMIT)
         largest = float(np.abs(heat).max(initial=0.0))
         for start, end, direction, _, size in heat_runs(heat, largest):
             if start < limit:
-                family = families[credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
+                family = families[words.credit_colour_class(ledger) if direction == "credit" else ledger.debit_class]
                 text.stylize(_tint_style(direction, family, size, largest, mode), start, min(end, limit))
         return text
     largest = max((abs(e.per_occurrence) for e in ledger.entries), default=0.0)
