@@ -45,6 +45,21 @@ def parse_costs(text: Optional[str]) -> tuple[float, float] | None:
     return cost_fp, cost_fn
 
 
+def figure_settings(target_fpr, target_recall, costs, base_rate, bins: int, top: int) -> dict:
+    """The keywords of :func:`~explain.analysis.assessment.assess` that say how figures are computed, parsed
+    from their options before any work (a mistyped value is one error line at once)."""
+    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
+
+    return {
+        "target_fpr": tuple(parse_fraction(t, "--target-fpr") for t in target_fpr or ()) or DEFAULT_TARGET_FPR,
+        "target_recall": tuple(parse_fraction(t, "--target-recall") for t in target_recall or ()) or DEFAULT_TARGET_RECALL,
+        "costs": parse_costs(costs),
+        "base_rate": None if base_rate is None else parse_fraction(base_rate, "--base-rate"),
+        "n_bins": bins,
+        "top": top,
+    }
+
+
 @app.command()
 @with_option_sets(opening=ModelOptions, reading=DataOptions)
 def assess(
@@ -86,18 +101,12 @@ def assess(
     reading: DataOptions = None,
 ):
     """How well does the filter work? Rates with intervals, ranking, thresholds, calibration, slices, errors."""
-    from explain.analysis.assessment import DEFAULT_TARGET_FPR, DEFAULT_TARGET_RECALL
     from explain.analysis.assessment import assess as run_assessment
     from explain.present.assessment import render, to_json
 
     if output_format not in ("text", "json"):
         fail(f"--format must be text or json, got {output_format!r}")
-    fprs = DEFAULT_TARGET_FPR if not target_fpr else tuple(parse_fraction(t, "--target-fpr") for t in target_fpr)
-    recalls = (
-        DEFAULT_TARGET_RECALL if not target_recall else tuple(parse_fraction(t, "--target-recall") for t in target_recall)
-    )
-    cost_pair = parse_costs(costs)
-    prevalence = None if base_rate is None else parse_fraction(base_rate, "--base-rate")
+    figures = figure_settings(target_fpr, target_recall, costs, base_rate, bins, top)
     one_threshold(threshold, threshold_log_odds)
     check_folds(folds)
     with OutputSet(inputs=[*opening.inputs(model), data, watchlist]) as outputs:
@@ -118,20 +127,8 @@ def assess(
         groups, suspected = audit_inputs(loaded, messages, X, data, slice_by=slice_by, terms=terms,
                                          label_errors=label_errors, folds=folds, max_data_bytes=reading.max_data_bytes)
         result = run_assessment(
-            loaded.view,
-            X,
-            messages.labels,
-            threshold=threshold,
-            threshold_log_odds=threshold_log_odds,
-            base_rate=prevalence,
-            slices=groups,
-            label_errors=suspected,
-            ids=messages.ids,
-            target_fpr=fprs,
-            target_recall=recalls,
-            costs=cost_pair,
-            n_bins=bins,
-            top=top,
+            loaded.view, X, messages.labels, ids=messages.ids, slices=groups, label_errors=suspected,
+            threshold=threshold, threshold_log_odds=threshold_log_odds, **figures,
         )
 
         pictures = {}
