@@ -17,7 +17,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import expit
 
-from explain.analysis.rates import PER_MESSAGES, Projection, Rate, frozen, project_to_base_rate, rate_of
+from explain.analysis.rates import (
+    PER_MESSAGES, CountsAtDecision, Projection, counts_at_decision, frozen, project_to_base_rate,
+)
 from explain.analysis.stats import AucEstimate, delong_auc
 
 DEFAULT_TARGET_FPR = (0.001, 0.005, 0.01)
@@ -50,8 +52,8 @@ class RankingQuality:
     average_precision: float
 
 
-@dataclass(frozen=True)
-class ThresholdFigures:
+@dataclass(frozen=True, kw_only=True)
+class ThresholdFigures(CountsAtDecision):
     """What flagging every message with log-odds ``>= threshold_log_odds`` does on the data.
 
     ``false_alarms_per_10k``, ``missed_per_10k`` and ``flagged_per_10k`` are the expected false
@@ -66,13 +68,6 @@ class ThresholdFigures:
 
     threshold_log_odds: float
     threshold_probability: float
-    tp: int
-    fp: int
-    fn: int
-    tn: int
-    precision: Rate
-    recall: Rate
-    false_alarm_rate: Rate
     false_alarms_per_10k: float
     missed_per_10k: float
     flagged_per_10k: float
@@ -180,21 +175,14 @@ def threshold_figures(threshold: float, tp: int, fp: int, n_pos: int, n_neg: int
     n = n_pos + n_neg
     costs, confidence = how.costs, how.confidence
     cost = None if costs is None else (costs[0] * fp + costs[1] * fn) / n
-    recall = rate_of(tp, n_pos, confidence)
-    fpr = rate_of(fp, n_neg, confidence)
+    counts = counts_at_decision(tp, fp, fn, tn, confidence)
     projection = None
     if how.base_rate is not None and n_pos and n_neg:
-        projection = project_to_base_rate(recall, fpr, how.base_rate)
+        projection = project_to_base_rate(counts["recall"], counts["false_alarm_rate"], how.base_rate)
     return ThresholdFigures(
+        **counts,
         threshold_log_odds=float(threshold),
         threshold_probability=float(expit(threshold)),
-        tp=int(tp),
-        fp=int(fp),
-        fn=int(fn),
-        tn=int(tn),
-        precision=rate_of(tp, tp + fp, confidence),
-        recall=recall,
-        false_alarm_rate=fpr,
         false_alarms_per_10k=PER_MESSAGES * fp / n,
         missed_per_10k=PER_MESSAGES * fn / n,
         flagged_per_10k=PER_MESSAGES * (tp + fp) / n,

@@ -55,19 +55,35 @@ def f1_rate_of(tp: int, fp: int, fn: int, confidence: float) -> Rate:
     return Rate(float(value), float(2 * lo / (1 + lo)), float(2 * hi / (1 + hi)), 2 * int(tp), int(den))
 
 
-@dataclass(frozen=True)
-class BinaryMetrics:
-    """One class (or "flagged") against the rest, at the decision in use."""
+@dataclass(frozen=True, kw_only=True)
+class CountsAtDecision:
+    """The four counts of one decision against the truth, and the three rates every table shows of them."""
 
-    positive: str
     tp: int
     fp: int
     fn: int
     tn: int
     precision: Rate
     recall: Rate
-    specificity: Rate
     false_alarm_rate: Rate
+
+
+def counts_at_decision(tp: int, fp: int, fn: int, tn: int, confidence: float) -> dict:
+    """The fields of :class:`CountsAtDecision`: counts as ints, precision, recall and FPR with Wilson intervals."""
+    return {
+        "tp": int(tp), "fp": int(fp), "fn": int(fn), "tn": int(tn),
+        "precision": rate_of(tp, tp + fp, confidence),
+        "recall": rate_of(tp, tp + fn, confidence),
+        "false_alarm_rate": rate_of(fp, fp + tn, confidence),
+    }
+
+
+@dataclass(frozen=True, kw_only=True)
+class BinaryMetrics(CountsAtDecision):
+    """One class (or "flagged") against the rest, at the decision in use."""
+
+    positive: str
+    specificity: Rate
     f1: Rate
     accuracy: Rate
 
@@ -76,16 +92,10 @@ def binary_metrics(positive: str, tp: int, fp: int, fn: int, tn: int, confidence
     """Precision, recall (sensitivity), specificity, FPR, F1 and accuracy with intervals."""
     return BinaryMetrics(
         positive=positive,
-        tp=int(tp),
-        fp=int(fp),
-        fn=int(fn),
-        tn=int(tn),
-        precision=rate_of(tp, tp + fp, confidence),
-        recall=rate_of(tp, tp + fn, confidence),
         specificity=rate_of(tn, tn + fp, confidence),
-        false_alarm_rate=rate_of(fp, fp + tn, confidence),
         f1=f1_rate_of(tp, fp, fn, confidence),
         accuracy=rate_of(tp + tn, tp + fp + fn + tn, confidence),
+        **counts_at_decision(tp, fp, fn, tn, confidence),
     )
 
 
