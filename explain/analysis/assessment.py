@@ -301,29 +301,55 @@ def assess(
     >>> result.flag_metrics.recall.value, result.flag_ranking.auc.auc
     (1.0, 1.0)
     """
-    if view.n_classes < 2:
-        raise NbledgerError("the model has a single class; there is nothing to assess")
-    truth = class_indices(view, labels)
-    n = len(truth)
-    if n != X.shape[0]:
-        raise NbledgerError(f"{n} labels for {X.shape[0]} messages")
-    target_fpr = _check_targets("false-alarm rates", target_fpr)
-    target_recall = _check_targets("recalls", target_recall)
-    costs = _check_costs(costs)
-    if not 0.0 < confidence < 1.0:
-        raise NbledgerError(f"confidence must be in (0, 1), got {confidence:g}")
-    if base_rate is not None and not 0.0 < base_rate < 1.0:
-        raise NbledgerError(f"the base rate must be a share strictly between 0 and 1, got {base_rate:g}")
-    if n_bins < 1 or top < 0 or top_tokens < 0:
-        raise NbledgerError("bins must be at least 1, and list lengths at least 0")
-    if label_errors is not None and label_errors.n_messages != n:
-        raise NbledgerError("the suspected label errors were found on other messages")
+    truth = _checked_messages(view, X, labels, label_errors)
+    how = FigureSettings(_check_costs(costs), confidence, base_rate)
+    _check_settings(how, n_bins, top, top_tokens)
+    targets = _check_targets("false-alarm rates", target_fpr), _check_targets("recalls", target_recall)
     rule = DecisionRule.for_view(view, threshold, threshold_log_odds)
     if evidence is None:
         evidence = batch_evidence(view, X, rule, top_k=0)
-    elif len(evidence) != n or evidence.threshold != rule.threshold or evidence.normal_index != rule.normal_index:
+    elif len(evidence) != len(truth) or evidence.threshold != rule.threshold or evidence.normal_index != rule.normal_index:
         raise NbledgerError("the scored messages do not match these messages or this threshold")
-    ids = np.arange(1, n + 1).astype(str) if ids is None else np.asarray(ids, dtype=object)
+    ids = np.arange(1, len(truth) + 1).astype(str) if ids is None else np.asarray(ids, dtype=object)
+    lists = _Lists(n_bins, top, top_tokens)
+    return _assessment(view, X, truth, rule, evidence, ids, targets, how, slices, label_errors, lists,
+                       given_as_probability=threshold is not None)
+
+
+@dataclass(frozen=True)
+class _Lists:
+    """How long the assessment's lists are: reliability bins, errors listed, tokens per message."""
+
+    n_bins: int
+    top: int
+    top_tokens: int
+
+
+def _checked_messages(view: ModelView, X, labels, label_errors) -> np.ndarray:
+    """The true class index of each message, after the checks that the messages fit the model."""
+    if view.n_classes < 2:
+        raise NbledgerError("the model has a single class; there is nothing to assess")
+    truth = class_indices(view, labels)
+    if len(truth) != X.shape[0]:
+        raise NbledgerError(f"{len(truth)} labels for {X.shape[0]} messages")
+    if label_errors is not None and label_errors.n_messages != len(truth):
+        raise NbledgerError("the suspected label errors were found on other messages")
+    return truth
+
+
+def _check_settings(how: FigureSettings, n_bins: int, top: int, top_tokens: int) -> None:
+    if not 0.0 < how.confidence < 1.0:
+        raise NbledgerError(f"confidence must be in (0, 1), got {how.confidence:g}")
+    if how.base_rate is not None and not 0.0 < how.base_rate < 1.0:
+        raise NbledgerError(f"the base rate must be a share strictly between 0 and 1, got {how.base_rate:g}")
+    if n_bins < 1 or top < 0 or top_tokens < 0:
+        raise NbledgerError("bins must be at least 1, and list lengths at least 0")
+
+
+def _assessment(view, X, truth, rule: DecisionRule, evidence: BatchEvidence, ids, targets, how: FigureSettings,
+                slices, label_errors, lists: _Lists, given_as_probability: bool) -> Assessment:
+    """Every figure of :func:`assess`, its inputs checked."""
+    n, confidence = len(truth), how.confidence
     classes = tuple(str(c) for c in view.classes)
     decided = np.asarray(evidence.decision)
     notes: list[str] = []
@@ -349,7 +375,7 @@ def assess(
         flag_metrics = binary_metrics(FLAGGED, tp, fp, fn, tn, confidence)
         best_flagged = rule.flagged_indices[np.argmax(evidence.jll[:, rule.flagged_indices], axis=1)]
         decision, margin, margin_scale, in_use_threshold = _decision_in_use(
-            rule, evidence.jll, scores, best_flagged, given_as_probability=threshold is not None
+            rule, evidence.jll, scores, best_flagged, given_as_probability=given_as_probability
         )
         if 0 < flag_truth.sum() < n:
             flag_ranking = ranking_quality(FLAGGED, scores, flag_truth, confidence)
@@ -357,16 +383,15 @@ def assess(
             only = classes[normal] if flag_truth.sum() == 0 else "flagged classes"
             notes.append(f"AUC and precision-recall curve undefined: the data hold only {only} messages")
         points = _operating_points(
-            scores, flag_truth, (int(tp), int(fp)), in_use_threshold, target_fpr, target_recall,
-            FigureSettings(costs, confidence, base_rate), notes,
+            scores, flag_truth, (int(tp), int(fp)), in_use_threshold, *targets, how, notes,
         )
-        calibration = calibration_of(scores, flag_truth, n_bins, confidence)
+        calibration = calibration_of(scores, flag_truth, lists.n_bins, confidence)
         scores_dist = score_distribution(classes, truth, scores, in_use_threshold)
         suspected = np.zeros(n, dtype=bool)
         if label_errors is not None:
             suspected[[s.index for s in label_errors.suspected]] = True
         ctx = Decisions(normal, truth, decided, margin, scores, best_flagged, ids, suspected, margin_scale)
-        errors = error_review(view, X, ctx, top, top_tokens)
+        errors = error_review(view, X, ctx, lists.top, lists.top_tokens)
         if slices:
             slice_figures = slice_report(slices, flag_truth, flag_decided, confidence)
 
@@ -377,7 +402,7 @@ def assess(
         threshold=rule.threshold,
         threshold_log_odds=rule.threshold_log_odds,
         confidence=confidence,
-        costs=costs,
+        costs=how.costs,
         base_rates=parts.base_rates,
         confusion=parts.confusion,
         accuracy=parts.accuracy,
@@ -391,7 +416,7 @@ def assess(
         scores=scores_dist,
         errors=errors,
         notes=tuple(notes),
-        base_rate=base_rate,
+        base_rate=how.base_rate,
         slices=slice_figures,
         label_errors=label_errors,
     )

@@ -338,19 +338,10 @@ def build_report(
         )
     on_step("explaining messages")
     source, explained, total = _explained(model, settings, data, explain, scored, watchlist, text_view, pseudonyms)
-    # --- probe (robustness and fairness), only when asked, under the report's rule ---
     probe_result = None
     if probe_evasion or swap_terms is not None:
-        from explain.analysis.probe import probe
-
-        if probe_evasion and data is None:
-            raise NbledgerError("--probe measures evasion over --data: give --data")
         on_step("probing robustness and fairness")
-        probe_result = probe(
-            model, None if data is None else data.texts, evasion=probe_evasion, swap_terms=swap_terms,
-            threshold=settings.threshold, threshold_log_odds=settings.threshold_log_odds,
-            counts=None if data is None else counts,
-        )
+        probe_result = _probe(model, settings, data, None if data is None else counts, probe_evasion, swap_terms)
     appeals = None
     if reviews is not None:
         from explain.analysis.appeals import appeals_of
@@ -374,6 +365,18 @@ def build_report(
         explained_total=total,
         versions=versions(),
         text_view=text_view,
+    )
+
+
+def _probe(model, settings: ReportSettings, data, counts, probe_evasion: bool, swap_terms):
+    """The robustness and fairness probe, only when asked, under the report's rule."""
+    from explain.analysis.probe import probe
+
+    if probe_evasion and data is None:
+        raise NbledgerError("--probe measures evasion over --data: give --data")
+    return probe(
+        model, None if data is None else data.texts, evasion=probe_evasion, swap_terms=swap_terms,
+        threshold=settings.threshold, threshold_log_odds=settings.threshold_log_odds, counts=counts,
     )
 
 
