@@ -46,9 +46,9 @@ def main() -> None:
     parser.add_argument("--repeat", type=int, default=3)
     args = parser.parse_args()
 
-    from explain.analysis.report import build_report
+    from explain.analysis.report_contents import build_report
     from explain.analysis.risk import read_watchlist
-    from explain.present.report import draw_pictures, render_html, render_pdf
+    from explain.present.report_pages import draw_pictures, render_html, render_pdf
     from explain.present.report_json import dumps, to_json
 
     with tempfile.TemporaryDirectory() as tmp:

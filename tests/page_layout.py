@@ -11,7 +11,7 @@ from __future__ import annotations
 def layout(html_text: str):
     """Each page of a rendered HTML page as (fill, found): how far down its content reaches (0 to 1 of the
     page's content height) and, in document order, every text or picture box with its ancestors' (tag, element)."""
-    from explain.present.report import render_document
+    from explain.present.report_pages import render_document
 
     def walk(box, ancestors):
         tag = getattr(box, "element_tag", None)

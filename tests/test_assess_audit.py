@@ -529,7 +529,7 @@ def _point(kind, tp, fp, target=None, n_pos=100, n_neg=900, costs=None):
 def test_the_recommendation_names_a_point_that_beats_the_rule_on_both_rates():
     from types import SimpleNamespace
 
-    from explain.analysis.report import recommend
+    from explain.analysis.report_contents import recommend
 
     in_use = _point("in use", tp=90, fp=20)
     trade = _point("fpr", tp=80, fp=5, target=0.01)  # fewer false alarms, more misses: a trade, not better

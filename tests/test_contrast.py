@@ -119,10 +119,10 @@ def _figures_of_a_full_report(monkeypatch, folder):
     from sklearn.pipeline import Pipeline
 
     from explain.analysis import slices
-    from explain.analysis.report import build_report
+    from explain.analysis.report_contents import build_report
     from explain.model.data_io import read_messages
     from explain.model.loading import load_model
-    from explain.present import assess_pictures, probe_pictures, report, vocab_pictures
+    from explain.present import assess_pictures, probe_pictures, report_pages, vocab_pictures
 
     figures = []
     for module in (assess_pictures, probe_pictures, vocab_pictures):
@@ -135,7 +135,7 @@ def _figures_of_a_full_report(monkeypatch, folder):
     built = build_report(load_model(folder / "filter.skops", normal_class="ok"), data=data,
                          slices=[slices.by_length(data.texts)], probe_evasion=True,
                          swap_terms=ROOT / "demo_corpus" / "examples" / "swap_terms.txt")
-    report.draw_pictures(built)
+    report_pages.draw_pictures(built)
     return figures
 
 

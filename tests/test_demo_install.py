@@ -38,7 +38,7 @@ def test_demo_runs_from_a_fresh_non_editable_install(tmp_path):
     subprocess.run([sys.executable, "-m", "pip", "--python", str(python), "install", "--quiet", "--no-deps",
                     "--no-index", str(wheel)], check=True, env=env)
 
-    where = subprocess.run([python, "-c", "import explain.present.report as r; print(r.template_dir())"],
+    where = subprocess.run([python, "-c", "import explain.present.report_pages as r; print(r.template_dir())"],
                            check=True, capture_output=True, text=True, env=env, cwd=tmp_path).stdout.strip()
     assert Path(where).is_relative_to(site), where  # templates from the installed package
 

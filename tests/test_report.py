@@ -26,7 +26,7 @@ from sklearn.pipeline import Pipeline
 
 from clirun import nbledger
 from pdf_text import pdftotext_pages
-from explain.analysis.report import ReportSettings, build_report
+from explain.analysis.report_contents import ReportSettings, build_report
 from explain.analysis.risk import read_watchlist
 from explain.model.data_io import read_messages
 from explain.model.loading import load_model
@@ -358,7 +358,7 @@ def test_pictures_draw_no_personal_token(files, picture_inputs, redact, tmp_path
     with --redact none (the control) planted values are drawn, so the check can fail."""
     import skops.io as sio
 
-    from explain.present.report import draw_pictures
+    from explain.present.report_pages import draw_pictures
 
     # A model trained on many planted messages, so that planted values rank among the tokens drawn.
     frame = pd.read_csv(CORPUS / "messages.csv", dtype=str, keep_default_na=False)
@@ -547,7 +547,7 @@ def test_without_data_each_left_out_section_is_one_line(files, tmp_path, capsys)
 
 def test_a_sheet_that_cannot_fit_one_page_says_how_many_pages_it_has(files):
     from explain.analysis.ledger import ledger_of
-    from explain.present.report import sheet_pdf
+    from explain.present.report_pages import sheet_pdf
 
     model = load_model(files / "filter.skops", normal_class="ok")
     short = ledger_of(model, "Can I borrow the ladder on Saturday?", message_id="short")
@@ -573,7 +573,7 @@ def test_the_probe_section_masks_names_found_in_the_messages_at_hand(tmp_path, p
     vocabulary; --redact none (the control) shows them, so the check can fail."""
     import skops.io as sio
 
-    from explain.present.report import draw_pictures
+    from explain.present.report_pages import draw_pictures
 
     frame = pd.read_csv(CORPUS / "messages.csv", dtype=str, keep_default_na=False)
     frame = frame[frame.label != "advert"]
@@ -729,7 +729,7 @@ def test_a_sheet_whose_page_note_adds_a_page_states_the_pages_it_has(files):
     import io
 
     from explain.analysis.ledger import ledger_of
-    from explain.present.report import render_document, sheet_html, sheet_pdf
+    from explain.present.report_pages import render_document, sheet_html, sheet_pdf
 
     model = load_model(files / "filter.skops", normal_class="ok")
     words = "Your parcel is held at the depot, pay the fee today. The harbour tea club meets on Sunday.".split()

@@ -96,8 +96,8 @@ def compare(
             result = redacted_comparison(result, pseudonyms, names)
         suffix = None if out is None else out.suffix.lower()
         if suffix in (".pdf", ".html", ".htm"):
-            from explain.analysis.report import report_date
-            from explain.present.report import render_pdf
+            from explain.analysis.report_contents import report_date
+            from explain.present.report_pages import render_pdf
 
             page = present.render_html(result, present.to_json(result, top=top), redact, top=top)
             files.write(out, render_pdf(page, report_date().isoformat()) if suffix == ".pdf" else page)

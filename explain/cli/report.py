@@ -134,7 +134,7 @@ def report(
     reading: DataOptions = None,
 ):
     """Write the review report: a PDF for people, with its HTML and JSON twins."""
-    from explain.analysis.report import ReportSettings
+    from explain.analysis.report_contents import ReportSettings
     from explain.analysis.risk import read_watchlist
     from explain.cli.assess import parse_costs, parse_fraction
     from explain.output_files import OutputSet

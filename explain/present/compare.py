@@ -283,7 +283,7 @@ def _lines(c: Comparison, top: int) -> list[str]:
 def render_html(c: Comparison, twin: dict, redaction: str, *, top: int = 10) -> str:
     """The comparison report as one self-contained HTML file."""
     from explain.present.ledger_html import ledger_context
-    from explain.present.report import environment
+    from explain.present.report_pages import environment
 
     pairs = []
     if c.decisions is not None:

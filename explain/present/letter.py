@@ -68,7 +68,7 @@ def text_letter(letter: MemberLetter) -> str:
 def html_letter(letter: MemberLetter, paper: str = "a4") -> str:
     """The letter as one self-contained HTML page (``templates/letter.html.j2``)."""
     from explain import __version__
-    from explain.present.report import environment
+    from explain.present.report_pages import environment
 
     return environment().get_template("letter.html.j2").render(
         letter=letter, date=long_date(letter.date), paragraphs=paragraphs(letter), paper=paper, version=__version__,
@@ -78,7 +78,7 @@ def html_letter(letter: MemberLetter, paper: str = "a4") -> str:
 
 def pdf_letter(letter: MemberLetter, paper: str = "a4") -> bytes:
     """:func:`html_letter` printed to PDF."""
-    from explain.present.report import render_pdf
+    from explain.present.report_pages import render_pdf
 
     return render_pdf(html_letter(letter, paper), letter.date)
 

@@ -1,7 +1,7 @@
 """The JSON twin of the printable report (schema ``nbledger.report/1``, documented in ``docs/report.md``).
 
 Every figure the PDF prints is here, read from the same
-:class:`~explain.analysis.report.Report`; the HTML and PDF are rendered from
+:class:`~explain.analysis.report_contents.Report`; the HTML and PDF are rendered from
 this very object, so the three cannot disagree. The same inputs and options
 give byte-identical JSON when ``SOURCE_DATE_EPOCH`` fixes the date: keys keep
 a fixed order, files are named without their folders, and non-finite numbers
@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import dataclasses
 
-from explain.analysis.report import Report
+from explain.analysis.report_contents import Report
 from explain.present import assessment as assessment_json
 from explain.present import probe as probe_present
 from explain.present import vocab as vocab_json

@@ -14,7 +14,7 @@ import json
 from explain.present.ledger_json import to_json
 from explain.present.ledger_terminal import render
 from explain.present.ledger_words import INTERNAL_MARK
-from explain.present.report import sheet_html, sheet_pdf
+from explain.present.report_pages import sheet_html, sheet_pdf
 from explain.present.token_display import make_console
 
 #: Width of a plain-text record, the width the terminal ledger is designed for.

@@ -1,8 +1,8 @@
 """The report build: from a loaded model and its inputs to the PDF, the HTML twin and the JSON twin.
 
-:func:`build_report_files` computes the :class:`~explain.analysis.report.Report`
+:func:`build_report_files` computes the :class:`~explain.analysis.report_contents.Report`
 once, turns it into its JSON twin once, draws the pictures once, and renders
-the HTML and the PDF from those (:mod:`explain.present.report`,
+the HTML and the PDF from those (:mod:`explain.present.report_pages`,
 :mod:`explain.present.report_json`): the three files cannot disagree.
 ``nbledger report`` reads the inputs and writes the files.
 """
@@ -12,8 +12,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Callable
 
-from explain.analysis.report import Report, ReportSettings, build_report
-from explain.present.report import draw_pictures, render_html, render_pdf
+from explain.analysis.report_contents import Report, ReportSettings, build_report
+from explain.present.report_pages import draw_pictures, render_html, render_pdf
 from explain.present.report_json import to_json, twin_text
 
 
@@ -34,7 +34,7 @@ def build_report_files(
 ) -> ReportFiles:
     """Compute the report of ``loaded`` (a :class:`~explain.model.loading.LoadedModel`) and render its files.
 
-    The keywords are those of :func:`explain.analysis.report.build_report`;
+    The keywords are those of :func:`explain.analysis.report_contents.build_report`;
     ``on_step`` hears the name of each step as it starts.
     """
     result = build_report(loaded, settings=settings, data=data, explain=explain, watchlist=watchlist,

@@ -12,7 +12,7 @@ from starlette.responses import HTMLResponse, RedirectResponse, Response
 from starlette.routing import Route
 
 from explain.present.drawing import class_colours
-from explain.present.report import template_dir
+from explain.present.report_pages import template_dir
 from explain.present.tint import MARKS
 from explain.runs.desk.guard import csrf_ok, csrf_token, requester
 

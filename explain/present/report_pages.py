@@ -2,7 +2,7 @@
 
 Nothing here computes a figure. The template reads the JSON twin
 (:mod:`explain.present.report_json`) and the pictures drawn from the same
-:class:`~explain.analysis.report.Report`, so the PDF, the HTML and the JSON
+:class:`~explain.analysis.report_contents.Report`, so the PDF, the HTML and the JSON
 show the same numbers. The look is the stylesheet ``templates/report.css``
 (CSS Paged Media as WeasyPrint implements it: ``@page`` margin boxes,
 ``target-counter()`` for the contents, ``bookmark-level``); the templates
@@ -26,7 +26,7 @@ import logging
 from pathlib import Path
 from urllib.parse import unquote, urlsplit
 
-from explain.analysis.report import Report
+from explain.analysis.report_contents import Report
 from explain.analysis.risk import FLAG_LABELS
 from explain.present import assessment as assessment_screen
 from explain.present import numbers, wording

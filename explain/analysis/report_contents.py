@@ -3,7 +3,7 @@
 :func:`build_report` runs the library's own analyses (the vocabulary review,
 the assessment on labelled data, the account of each explained message),
 applies the redaction mode to their results, and returns a :class:`Report`.
-The PDF, its HTML twin and its JSON twin (:mod:`explain.present.report`,
+The PDF, its HTML twin and its JSON twin (:mod:`explain.present.report_pages`,
 :mod:`explain.present.report_json`) only read it.
 """
 
