@@ -19,9 +19,10 @@ from __future__ import annotations
 import functools
 import inspect
 import typing
+from copy import copy
 from dataclasses import dataclass, field, fields
 from pathlib import Path
-from typing import List, Optional
+from typing import ClassVar, List, Optional
 
 from explain.cli.common import (
     ALLOW_PICKLE, LOAD_TIMEOUT, MAX_BYTES, MAX_DATA_BYTES, MAX_MODEL_MEMORY, NO_CACHE, NORMAL_CLASS, TRUST, VECTORIZER,
@@ -42,6 +43,9 @@ class ModelOptions:
     The first four fields are keywords of :func:`explain.model.loading.load_model`;
     the last three bound the loading process (:meth:`load`).
     """
+
+    #: the heading these options stand under in ``--help``
+    PANEL: ClassVar[str] = "Opening the model"
 
     vectorizer_path: Path | None = _option(VECTORIZER, Optional[Path])
     allow_pickle: bool = _option(ALLOW_PICKLE, bool, False)
@@ -75,6 +79,8 @@ class ModelOptions:
 @dataclass(frozen=True)
 class DataOptions:
     """How a command reads its data set: e-mail settings, the text view and the two size limits."""
+
+    PANEL: ClassVar[str] = "Reading the data"
 
     text_view: str | None = _option(TEXT_VIEW, Optional[str])
     raw_email: bool = _option(RAW_EMAIL, bool, False)
@@ -129,7 +135,8 @@ def with_option_sets(**sets):
 
     ``sets`` maps a parameter of the command to a set (a dataclass of this
     module, or :func:`left_out` of one). Typer reads the signature this
-    decorator writes: the command's own parameters, then the sets' options.
+    decorator writes: the command's own parameters, then the sets' options, each set under its own
+    heading in ``--help``.
     """
     chosen = {name: s if isinstance(s, _Partial) else _Partial(s, frozenset()) for name, s in sets.items()}
 
@@ -146,8 +153,10 @@ def with_option_sets(**sets):
                 if f.name in taken:
                     raise TypeError(f"{command.__name__} declares {f.name} itself and through an option set")
                 taken.add(f.name)
+                option = copy(f.metadata["option"])
+                option.rich_help_panel = option_set.of.PANEL
                 added.append(inspect.Parameter(
-                    f.name, inspect.Parameter.KEYWORD_ONLY, default=f.metadata["option"], annotation=f.metadata["type"]
+                    f.name, inspect.Parameter.KEYWORD_ONLY, default=option, annotation=f.metadata["type"]
                 ))
 
         @functools.wraps(command)
