@@ -173,6 +173,11 @@ def missing_column(name: str, wanted, found) -> None:
             raise NbledgerError(f"{name} has no column {column!r}; columns found: {names}")
 
 
+def unreadable(name: str, row: int, exc: BaseException) -> NbledgerError:
+    """A file that cannot be read past data row ``row`` (a damaged ``.gz``, a line that is not JSON ...)."""
+    return NbledgerError(f"{name}: could not read past data row {row:,}: {reason(exc)}")
+
+
 def reason(exc: BaseException) -> str:
     """The error's gist, cut before any quoted row content."""
     first = (str(exc).splitlines() or [type(exc).__name__])[0]
@@ -282,7 +287,7 @@ def table_batches(path, columns, optional=(), chunk_rows: int = 20_000, limits: 
     except NbledgerError:
         raise
     except (OSError, EOFError, ValueError, gzip.BadGzipFile) as exc:
-        raise NbledgerError(f"{path.name}: could not read past data row {row:,}: {reason(exc)}") from None
+        raise unreadable(path.name, row, exc) from None
 
 
 class _Counting:
@@ -445,13 +450,17 @@ def _jsonl_batches(path: Path, gzipped: bool, columns, optional, chunk_rows: int
     raw = _Counting(path)
     with raw.handle:
         lines = gzip.GzipFile(fileobj=raw.handle) if gzipped else raw.handle
-        include, rows, replaced = None, [], 0
+        include, rows, replaced, read = None, [], 0, 0
         for number, line in _bounded_lines(lines, path, limits):
             if not line.strip():
                 continue
             text, bad = decode_utf8(line)
             replaced += bad
-            row = _json_row(text, number)
+            try:
+                row = _json_row(text, number)
+            except ValueError as exc:
+                raise unreadable(path.name, read, exc) from None
+            read += 1
             if include is None:  # the first row's keys are the file's columns
                 missing_column(path.name, columns, list(row))
                 include = _wanted(columns, optional, row)
