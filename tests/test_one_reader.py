@@ -149,7 +149,7 @@ def test_an_empty_file_is_refused(tmp_path, suffix):
 
 def test_blank_lines_only_are_empty(tmp_path):
     for name in ("blank.csv", "blank.jsonl"):
-        (tmp_path / name).write_bytes(b"\n\n  \n" if name.endswith(".jsonl") else b"\n\n")
+        (tmp_path / name).write_bytes(b"\n\n  \n" if name.endswith(".jsonl") else b"  \n\n")
         assert _both_refuse(tmp_path / name) == f"{name} is empty"
 
 

@@ -272,7 +272,7 @@ def table_batches(path, columns, optional=(), chunk_rows: int = 20_000, limits: 
     limits = limits or current_limits()
     path = Path(path)
     fmt, gzipped = data_format(path)
-    if path.stat().st_size == 0:
+    if _blank(path, gzipped):
         raise NbledgerError(f"{path.name} is empty")
     if not gzipped and limits.max_data_bytes is not None and path.stat().st_size > limits.max_data_bytes:
         raise too_large(path.name, limits.max_data_bytes)
@@ -288,6 +288,18 @@ def table_batches(path, columns, optional=(), chunk_rows: int = 20_000, limits: 
         raise
     except (OSError, EOFError, ValueError, gzip.BadGzipFile) as exc:
         raise unreadable(path.name, row, exc) from None
+
+
+def _blank(path: Path, gzipped: bool) -> bool:
+    """True for a file of no bytes, or of a few blank ones (looked at only in a small file)."""
+    size = path.stat().st_size
+    if size > 4096:
+        return False
+    try:
+        with (gzip.open if gzipped else open)(path, "rb") as handle:
+            return not handle.read(4097).strip()
+    except (OSError, EOFError):
+        return False  # a damaged .gz: its reader says so
 
 
 class _Counting:
