@@ -210,3 +210,31 @@ def test_normal_files_read_as_pandas_and_pyarrow_read_them(tmp_path, suffix):
     assert whole.id_col == "id" and whole.replaced_chars == replaced == 0
     labelled = read_messages(path, "text", "label")
     assert list(labelled.labels) == list(ROWS["label"])
+
+
+def test_json_strings_may_hold_unicode_line_breaks(tmp_path):
+    """Only \\n ends a JSON Lines row (JSON Lines text format); U+2028, U+0085 and form feeds inside strings are text."""
+    path = tmp_path / "breaks.jsonl"
+    rows = [{"id": "m1", "text": "tea\u2028at four"}, {"id": "m2", "text": "pay\x85the\x0cfee"}, {"id": "m3", "text": "ok"}]
+    path.write_text("".join(json.dumps(r, ensure_ascii=False) + "\n" for r in rows), encoding="utf-8")
+    texts, ids = _reference(path, ".jsonl")
+    assert texts == [r["text"] for r in rows]
+    assert _whole(path).texts == _streamed(path, "id")[0] == texts
+    assert list(_whole(path).ids) == _streamed(path, "id")[1] == ids
+
+
+def test_a_parquet_text_repeated_in_many_rows_is_held_once(tmp_path):
+    """A dictionary page lets 140 kB on disk stand for 4 GB of text: the rows of a batch share one string instead."""
+    long_text = "fee " * (50 << 10)  # 200 KiB
+    column = pa.DictionaryArray.from_arrays(pa.array([0] * 20_000, type=pa.int32()), pa.array([long_text]))
+    path = tmp_path / "repeated.parquet"
+    pq.write_table(pa.table({"text": column}), path)
+    assert path.stat().st_size < 1 << 20 and pq.ParquetFile(path).metadata.row_group(0).column(0).has_dictionary_page
+    whole = read_messages(path, "text", max_message_bytes=256 << 10)
+    chunks = list(stream_texts([path], "text", None, 5_000, ReadingLimits(256 << 10)))
+    for texts in (whole.texts, [t for c in chunks for t in c.texts]):
+        assert len(texts) == 20_000 and texts[0] == long_text
+        assert len({id(t) for t in texts}) <= 4  # one string per batch of 5,000 rows or more, not one per row
+    assert _both_refuse(path) == (
+        "repeated.parquet: data row 1 holds a message longer than 4,096 bytes (--max-bytes); raise --max-bytes to read it"
+    )

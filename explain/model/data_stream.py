@@ -24,7 +24,8 @@ from typing import Iterator
 
 from explain.errors import NbledgerError
 from explain.model.table_stream import (  # noqa: F401 (ReadingLimits, reading_limits: part of this module's interface)
-    ReadingLimits, as_ids, as_texts, check_lengths, current_limits, data_format, parquet_pieces, reading_limits, reason, table_batches,
+    ReadingLimits, as_ids, as_texts, check_lengths, current_limits, data_format, open_parquet, parquet_pieces,
+    reading_limits, reason, table_batches,
 )
 
 
@@ -250,14 +251,12 @@ def read_piece(piece: Piece, text_col: str, id_col: str | None, chunk_rows: int)
             done += len(texts)
             yield TextChunk(texts, ids, done - len(texts), Path(piece.path).name, piece.row_group + done, 0, 0, share)
         return
-    import pyarrow.parquet as pq
-
     path = Path(piece.path)
     done = 0
     try:
-        handle = pq.ParquetFile(path)
-        limits = piece.limits or current_limits()
         columns = [text_col] if id_col is None else [text_col, id_col]
+        handle = open_parquet(path, columns)
+        limits = piece.limits or current_limits()
         for values, replaced in parquet_pieces(path, handle, columns, (), text_col, chunk_rows, [piece.row_group], limits):
             check_lengths(path.name, values[text_col], done, limits)
             texts, ids, nulls, replaced = _text_piece(values, replaced, text_col, id_col)

@@ -78,6 +78,10 @@ def decode_utf8(raw: bytes) -> tuple[str, int]:
     stands for one maximal run of invalid bytes, as Python's "replace" policy
     does), not those that were validly encoded in the file.
     """
+    try:  # valid UTF-8, the usual case: nothing to count
+        return raw.decode("utf-8").removeprefix("\ufeff"), 0
+    except UnicodeDecodeError:
+        pass
     text = raw.decode("utf-8", errors="replace")
     replaced = text.count("\ufffd") - raw.count("\ufffd".encode("utf-8"))
     return text.removeprefix("\ufeff"), replaced
@@ -228,6 +232,13 @@ def _arrow_values(column) -> tuple[list, int]:
     """An Arrow column as Python values and the invalid UTF-8 sequences replaced (binary becomes str)."""
     import pyarrow as pa
 
+    if pa.types.is_dictionary(column.type):  # rows holding the same text share one string
+        words, replaced = _arrow_values(column.dictionary)
+        rows = column.indices.to_pylist()
+        if replaced:  # counted per row, as for plain columns
+            per_word = [decode_utf8(w)[1] if w is not None else 0 for w in column.dictionary.to_pylist()]
+            replaced = sum(per_word[i] for i in rows if i is not None)
+        return [None if i is None else words[i] for i in rows], replaced
     if not (pa.types.is_binary(column.type) or pa.types.is_large_binary(column.type)):
         return column.to_pylist(), 0
     try:  # valid UTF-8 (the usual case) converts in one step
@@ -500,7 +511,7 @@ def _parquet_batches(path: Path, gzipped: bool, columns, optional, chunk_rows: i
             spool.seek(0)
             source = spool
         try:
-            handle = pq.ParquetFile(source)
+            handle = open_parquet(source, [*columns, *optional])
         except (pa.ArrowException, OSError) as exc:
             raise NbledgerError(f"{path.name} is not a valid Parquet file: {reason(exc)}") from None
         total = max(handle.metadata.num_rows, 1)
@@ -508,6 +519,39 @@ def _parquet_batches(path: Path, gzipped: bool, columns, optional, chunk_rows: i
         for values, replaced in parquet_pieces(path, handle, columns, optional, text_col, chunk_rows, limits=limits):
             done += len(next(iter(values.values())))
             yield values, replaced, done / total
+
+
+def open_parquet(source, columns):
+    """A ``pyarrow.parquet.ParquetFile``; those of ``columns`` stored with a dictionary page are read as dictionaries.
+
+    Read so, each distinct value becomes one Python string that every row holding it shares, and lengths are
+    checked on the dictionary: a small file that repeats one long text in many rows is never expanded
+    (dictionary encoding: Apache Parquet format specification, "Encodings").
+    """
+    import pyarrow.parquet as pq
+
+    handle = pq.ParquetFile(source)
+    schema, meta = handle.schema_arrow, handle.metadata
+    names = list(schema.names)
+    try:
+        wanted = [
+            c for c in dict.fromkeys(columns) if c in names and _is_text(schema.field(c).type)
+            and any(meta.row_group(g).column(names.index(c)).has_dictionary_page for g in range(meta.num_row_groups))
+        ]
+    except (IndexError, AttributeError):  # a nested schema: leaf columns are not the Arrow fields
+        return handle
+    if not wanted:
+        return handle
+    if hasattr(source, "seek"):
+        source.seek(0)
+    return pq.ParquetFile(source, read_dictionary=wanted)
+
+
+def _is_text(kind) -> bool:
+    import pyarrow as pa
+
+    return any(check(kind) for check in (pa.types.is_string, pa.types.is_large_string, pa.types.is_binary,
+                                         pa.types.is_large_binary))
 
 
 def parquet_pieces(path: Path, handle, columns, optional, text_col, chunk_rows, row_groups=None, limits=None):
@@ -534,7 +578,7 @@ def parquet_pieces(path: Path, handle, columns, optional, text_col, chunk_rows, 
         for group in groups:
             if index is not None:
                 _check_group_size(path, meta.row_group(group), index, group, limits)
-            size = _parquet_batch_rows(meta.row_group(group), index, chunk_rows, limits)
+            size = _parquet_batch_rows(meta.row_group(group), chunk_rows)
             for batch in handle.iter_batches(batch_size=size, row_groups=[group], columns=include):
                 if text_col is not None:
                     _check_arrow_lengths(path, batch.column(text_col), done, limits)
@@ -568,22 +612,13 @@ def _check_group_size(path: Path, info, column: int, group: int, limits: Reading
         )
 
 
-def _parquet_batch_rows(info, column: int | None, chunk_rows: int, limits: ReadingLimits) -> int:
-    """Rows per batch so that a batch holds about :data:`PARQUET_BATCH_BYTES` of text.
+def _parquet_batch_rows(info, chunk_rows: int) -> int:
+    """Rows per batch so that a batch holds about :data:`PARQUET_BATCH_BYTES` (the row group's mean row size).
 
-    A row's size is the row group's mean, except with a dictionary page, where
-    one row may repeat the largest entry: then as much as the column chunk
-    holds (at most the row bound, beyond which the first such row is refused).
+    A row group that repeats one long dictionary entry in many rows is not expanded: such columns are read
+    as dictionaries (:func:`open_parquet`), their rows sharing one string.
     """
     per_row = info.total_byte_size / max(info.num_rows, 1)
-    try:
-        chunk = info.column(column) if column is not None else None
-        if chunk is not None and chunk.has_dictionary_page:
-            widest = chunk.total_uncompressed_size
-            bound = limits.row_bound()
-            per_row = max(per_row, widest if bound is None else min(widest, bound))
-    except (IndexError, AttributeError):
-        pass
     return max(1, min(chunk_rows, int(PARQUET_BATCH_BYTES // max(per_row, 1))))
 
 
@@ -593,11 +628,17 @@ def _check_arrow_lengths(path: Path, column, first_row: int, limits: ReadingLimi
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    if limits.max_bytes is None or not (
-        pa.types.is_string(column.type) or pa.types.is_large_string(column.type)
-        or pa.types.is_binary(column.type) or pa.types.is_large_binary(column.type)
-    ):
+    if limits.max_bytes is None:
         return
-    over = pc.greater(pc.binary_length(column), limits.max_bytes)
+    if pa.types.is_dictionary(column.type):
+        words = pc.binary_length(column.dictionary)
+        if not pc.any(pc.greater(words, limits.max_bytes)).as_py():
+            return
+        column = words.take(column.indices)
+    elif _is_text(column.type):
+        column = pc.binary_length(column)
+    else:
+        return
+    over = pc.greater(column, limits.max_bytes)
     if pc.any(over).as_py():
         raise too_long(path.name, first_row + pc.index(over, True).as_py() + 1, limits)
