@@ -73,10 +73,10 @@ def test_a_malformed_csv_row_names_its_row(tmp_path):
     path = tmp_path / "bad.csv"
     path.write_text('text,label\ntea at four,ok\n"private words",ok,surplus\nfee,scam\n')
     line = _both_refuse(path)
-    assert line == "bad.csv: data row 2 is malformed (expected 2 columns, found 3)"
+    assert line == "bad.csv: data row 2 has 3 fields, the header has 2"
     assert "private" not in line
     path.write_text("text,label\ntea at four,ok\nshort row\n")  # fewer fields than the header is malformed too
-    assert _both_refuse(path) == "bad.csv: data row 2 is malformed (expected 2 columns, found 1)"
+    assert _both_refuse(path) == "bad.csv: data row 2 has 1 field, the header has 2"
 
 
 def test_a_bad_json_line_names_its_line_and_the_last_row_read(tmp_path):

@@ -405,8 +405,8 @@ def _csv_batches(path: Path, gzipped: bool, columns, optional, chunk_rows: int, 
         row = next((r for r in bad_rows if r.number is not None), None)
         if row is not None:
             return NbledgerError(
-                f"{path.name}: data row {row.number - 1:,} is malformed "
-                f"(expected {row.expected_columns} columns, found {row.actual_columns})"
+                f"{path.name}: data row {row.number - 1:,} has {row.actual_columns} "
+                f"field{'' if row.actual_columns == 1 else 's'}, the header has {row.expected_columns}"
             )
         if "Empty CSV file" in str(exc):
             return NbledgerError(f"{path.name} is empty")
