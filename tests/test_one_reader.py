@@ -21,7 +21,7 @@ import pyarrow.parquet as pq
 import pytest
 
 from explain.errors import NbledgerError
-from explain.model.data_io import read_messages
+from explain.model.data_io import read_column, read_messages
 from explain.model.data_stream import ReadingLimits, stream_texts
 
 MAX_BYTES = 4096
@@ -238,3 +238,22 @@ def test_a_parquet_text_repeated_in_many_rows_is_held_once(tmp_path):
     assert _both_refuse(path) == (
         "repeated.parquet: data row 1 holds a message longer than 4,096 bytes (--max-bytes); raise --max-bytes to read it"
     )
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".jsonl", ".parquet"])
+def test_read_column_reads_any_one_column_through_the_same_parser(tmp_path, suffix):
+    frame = ROWS.assign(sent_at=[f"2026-0{m}-1{m}T09:00:00Z" for m in range(1, 7)])
+    path = tmp_path / f"rows{suffix}"
+    if suffix == ".csv":
+        frame.to_csv(path, index=False)
+        reference = pd.read_csv(path, dtype=str, keep_default_na=False)["sent_at"].tolist()
+    elif suffix == ".jsonl":
+        path.write_bytes(_jsonl(frame.to_dict("records")))
+        reference = pd.read_json(path, lines=True, dtype=False)["sent_at"].tolist()
+    else:
+        frame.to_parquet(path)
+        reference = pq.read_table(path).column("sent_at").to_pylist()
+    assert read_column(path, "sent_at") == reference == list(frame["sent_at"])
+    with pytest.raises(NbledgerError) as missing:
+        read_column(path, "house")
+    assert str(missing.value) == f"rows{suffix} has no column 'house'; columns found: id, text, label, sent_at"
