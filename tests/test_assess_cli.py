@@ -147,7 +147,7 @@ def test_unmeetable_target_is_a_note_not_a_failure(files, capsys):
 
 BAD = [
     (["odd_labels.csv"], "labels not among the model's classes (advert, ok, scam): 'junk' (1 message), 'spam' (4 messages)"),
-    (["gap.csv"], "gap.csv: 1 rows have no 'label'"),
+    (["gap.csv"], "gap.csv: 1 row has no 'label' (first at data row 8)"),
     (["held.csv", "--label-col", "kind"], "held.csv has no column 'kind'; columns found: id, sent_at, text, label"),
     (["held.csv", "--costs", "1-20"], "--costs takes FP:FN"),
     (["held.csv", "--costs", "0:5"], "--costs must be two positive numbers"),

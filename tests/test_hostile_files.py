@@ -69,8 +69,13 @@ def test_a_gzip_bomb_is_stopped_at_the_data_limit(good_model, tmp_path):
     bomb = gzip_bomb(tmp_path / "bomb.csv.gz", inflated_mib=256)
     assert bomb.stat().st_size < 1 << 20
     args = ["assess", good_model, bomb, "--text-col", "text", "--label-col", "label", "--max-data-bytes", "32M"]
-    code, err, peak = run_measured(args, _env(tmp_path))
-    assert code == 2 and "--max-data-bytes" in err and err.count("\n") == 1, err
+    # Its one endless message meets the row bound first (--max-bytes, 1 MiB by default) ...
+    code, err, _ = run_measured(args, _env(tmp_path))
+    assert code == 2 and "bomb.csv.gz: a row is longer than 1,114,112 bytes (--max-bytes" in err and err.count("\n") == 1, err
+    # ... and with messages up to 40 MiB allowed, the 32 MiB data limit stops it.
+    code, err, peak = run_measured([*args, "--max-bytes", str(40 << 20)], _env(tmp_path))
+    assert code == 2 and "bomb.csv.gz holds more than 33,554,432 bytes once decompressed (--max-data-bytes)" in err, err
+    assert err.count("\n") == 1, err
     small = tmp_path / "small.csv.gz"
     small.write_bytes(gzip.compress(b"text,label\nfee now,scam\ntea at four,ok\n"))
     _, _, usual = run_measured(
@@ -83,12 +88,12 @@ def test_a_gzip_bomb_is_stopped_at_the_data_limit(good_model, tmp_path):
     assert peak < usual + (96 << 20)
 
 
-def test_a_data_message_over_max_bytes_is_counted_and_refused(good_model, tmp_path, capsys):
+def test_a_data_message_over_max_bytes_is_refused_naming_its_row(good_model, tmp_path, capsys):
     data = tmp_path / "d.csv"
     data.write_text("text,label\n" + "fee now,scam\n" + ("x" * 5000) + ",ok\n" + ("y" * 6000) + ",ok\n")
     line = nbledger(capsys, "assess", good_model, data, "--text-col", "text", "--label-col", "label",
                     "--max-bytes", "4096").one_error_line()
-    assert "2 messages are longer than 4,096 bytes" in line and "first at data row 2" in line
+    assert "d.csv: data row 2 holds a message longer than 4,096 bytes (--max-bytes)" in line
 
 
 def test_loading_that_takes_too_long_is_stopped(good_model):

@@ -154,7 +154,7 @@ def test_a_ragged_csv_names_the_data_row(model, tmp_path, capsys):
     data = tmp_path / "d.csv"
     data.write_text('text,label\nfee now,scam\n"tea\nat home",ok\nsofa,advert,extra\nkids,ok\n')
     line = nbledger(capsys, "assess", model, data, "--text-col", "text", "--label-col", "label").one_error_line()
-    assert "data row 3 has 3 fields, the header has 2" in line
+    assert "d.csv: data row 3 has 3 fields, the header has 2" in line
 
 
 def test_an_output_in_proc_is_refused_before_computing(model, tmp_path):
