@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import gzip
 import json
+from pathlib import Path
 
 import pandas as pd
 import pyarrow as pa
@@ -52,18 +53,23 @@ def _jsonl(rows) -> bytes:
     return "".join(json.dumps(r) + "\n" for r in rows).encode()
 
 
+def _write(frame: pd.DataFrame, path: Path) -> None:
+    """``frame`` as the file its suffix names (pandas writes it: the reference the readers are checked against)."""
+    if path.suffix == ".parquet":
+        frame.to_parquet(path)
+    elif path.suffix == ".jsonl":
+        path.write_bytes(_jsonl(frame.to_dict("records")))
+    else:
+        frame.to_csv(path, index=False)
+
+
 # --- the same fault, the same line -------------------------------------------------------------
 
 @pytest.mark.parametrize("suffix", [".csv", ".jsonl", ".parquet", ".csv.gz"])
 def test_a_missing_column_names_the_columns_found(tmp_path, suffix):
     frame = pd.DataFrame({"id": ["m1", "m2"], "body": ["tea at four", "pay the fee"]})
     path = tmp_path / f"d{suffix}"
-    if suffix == ".parquet":
-        frame.to_parquet(path)
-    elif suffix == ".jsonl":
-        path.write_bytes(_jsonl(frame.to_dict("records")))
-    else:
-        frame.to_csv(path, index=False)
+    _write(frame, path)
     if suffix == ".csv.gz":
         path.write_bytes(gzip.compress(frame.to_csv(index=False).encode()))
     assert _both_refuse(path) == f"d{suffix} has no column 'text'; columns found: id, body"
@@ -94,12 +100,7 @@ def test_a_bad_json_line_names_its_line_and_the_last_row_read(tmp_path):
 def test_an_over_long_message_names_its_row(tmp_path, suffix):
     frame = pd.DataFrame({"text": ["tea at four", "fee " * 2000, "pay now", "x" * 9000]})
     path = tmp_path / f"long{suffix}"
-    if suffix == ".parquet":
-        frame.to_parquet(path)
-    elif suffix == ".jsonl":
-        path.write_bytes(_jsonl(frame.to_dict("records")))
-    else:
-        frame.to_csv(path, index=False)
+    _write(frame, path)
     assert _both_refuse(path) == (
         f"long{suffix}: data row 2 holds a message longer than 4,096 bytes (--max-bytes); raise --max-bytes to read it"
     )
