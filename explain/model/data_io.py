@@ -75,7 +75,7 @@ class Messages:
 
 
 def _gather(path, columns, optional=(), max_bytes=DEFAULT_MAX_DATA_BYTES, max_message_bytes=None, text_col=None):
-    """(values by column, replaced characters, SHA-256 of the file) of a whole data file, read in chunks."""
+    """(values by column, replaced characters, the file as opened) of a whole data file, read in chunks."""
     path = Path(path)
     data_format(path)
     path = input_file(path, "data file")
@@ -86,7 +86,7 @@ def _gather(path, columns, optional=(), max_bytes=DEFAULT_MAX_DATA_BYTES, max_me
         for column, part in values.items():
             gathered.setdefault(column, []).extend(part)
         replaced += bad
-    return gathered, replaced, _sha256(path)
+    return gathered, replaced, path
 
 
 def _sha256(path: Path) -> str:
@@ -122,7 +122,8 @@ def read_messages(
     path = Path(path)
     wanted = [c for c in (text_col, label_col, id_col) if c is not None]
     optional = ("id",) if id_col is None else ()
-    columns, replaced, digest = _gather(path, wanted, optional, max_bytes, max_message_bytes, text_col)
+    columns, replaced, opened = _gather(path, wanted, optional, max_bytes, max_message_bytes, text_col)
+    digest = _sha256(opened)  # only the whole reader records the file's digest (read_column has no use for it)
     if not columns:
         raise NbledgerError(f"{path.name} has a header but no rows")
     texts, _ = as_texts(columns[text_col])
