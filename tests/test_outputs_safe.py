@@ -224,7 +224,7 @@ def test_a_signal_wrapped_by_python_during_a_class_definition_is_still_a_stop(mo
     monkeypatch.setattr(cli, "app", app)
     assert cli.run(["anything"]) == cli.EXIT_SIGTERM
     err = capsys.readouterr().err
-    assert err.startswith("error: stopped by SIGTERM") and err.count("\n") == 1
+    assert err.startswith("error: interrupted by SIGTERM") and err.count("\n") == 1
 
 
 def test_a_swallowed_signal_is_sent_again_once_the_hook_has_returned():

@@ -99,7 +99,7 @@ def _run(argv: list[str]) -> int:
     except typer.Exit as exc:
         return exc.exit_code
     except (typer.Abort, KeyboardInterrupt):
-        say("error", "interrupted (SIGINT); no output was left half-written")
+        say("error", "interrupted by SIGINT; no output was left half-written")
         return EXIT_SIGINT
     except Interrupted as stop:
         return _stopped(stop)
@@ -126,7 +126,7 @@ def _run(argv: list[str]) -> int:
 
 def _stopped(stop: Interrupted) -> int:
     name = signal.Signals(stop.signum).name
-    say("error", f"stopped by {name}; no output was left half-written")
+    say("error", f"interrupted by {name}; no output was left half-written")
     return EXIT_SIGTERM if stop.signum == signal.SIGTERM else EXIT_SIGINT
 
 
